@@ -1,0 +1,1 @@
+"""The compute core: numpy, scipy and pandas only (never plotly or ipywidgets)."""

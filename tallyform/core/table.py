@@ -1,0 +1,656 @@
+"""CommunityTable: counts (samples x taxa) with aligned sample and taxon information.
+
+The table is the single funnel through which every input reaches the computations: it checks
+the numbers once (finite, non-negative, unique labels), aligns the sample information by label,
+and records what was dropped and where each value came from, so that later errors can still
+point at the file, line and column the user typed.
+"""
+from __future__ import annotations
+
+import hashlib
+from dataclasses import dataclass, field
+from typing import Iterable, Mapping
+
+import numpy as np
+import pandas as pd
+
+from .errors import DesignError, InputError, Location
+
+__all__ = ["CommunityTable", "Origin", "as_table", "EMPTY_POLICIES"]
+
+EMPTY_POLICIES = ("error", "drop", "keep")
+_MAX_LISTED = 8
+
+
+def _listing(items: Iterable, limit: int = _MAX_LISTED) -> str:
+    items = [str(x) for x in items]
+    shown = ", ".join(repr(x) for x in items[:limit])
+    more = len(items) - limit
+    return shown + (f" and {more} more" if more > 0 else "")
+
+
+def _column_letter(j: int) -> str:
+    """0-based column index -> spreadsheet letters (0 -> 'A', 26 -> 'AA')."""
+    letters = ""
+    j += 1
+    while j:
+        j, r = divmod(j - 1, 26)
+        letters = chr(65 + r) + letters
+    return letters
+
+
+@dataclass(frozen=True)
+class Origin:
+    """Where a table's cells came from, so errors can name the place the user can open.
+
+    Parameters
+    ----------
+    file : str or None
+        File name as the user gave it.
+    sheet : str or None
+        Spreadsheet sheet name (XLSX only).
+    rows : {'samples', 'taxa'}
+        What the rows of the file were.
+    row_numbers : mapping label -> int
+        1-based line (text) or row (spreadsheet) number of each row label.
+    column_numbers : mapping label -> int
+        0-based column index of each column label in the file.
+    spreadsheet : bool
+        Report cells as spreadsheet references (``C7``) rather than line and column.
+    """
+
+    file: str | None = None
+    sheet: str | None = None
+    rows: str = "samples"
+    row_numbers: Mapping[str, int] = field(default_factory=dict)
+    column_numbers: Mapping[str, int] = field(default_factory=dict)
+    spreadsheet: bool = False
+
+    def cell(self, sample: str, taxon: str) -> Location:
+        row_label, col_label = (sample, taxon) if self.rows == "samples" else (taxon, sample)
+        r = self.row_numbers.get(row_label)
+        c = self.column_numbers.get(col_label)
+        if self.file is None:  # an in-memory table: name cells by label and position
+            return Location(row=f"sample {sample!r}" + (f" (row {r})" if r else ""),
+                            column=f"taxon {taxon!r}" + (f" (column {c + 1})" if c is not None
+                                                         else ""))
+        what = f"(sample {sample!r}, taxon {taxon!r})"
+        if self.spreadsheet and r is not None and c is not None:
+            return Location(file=self.file, sheet=self.sheet,
+                            cell=f"{_column_letter(c)}{r} {what}")
+        row = f"line {r}" if r is not None else f"row {row_label!r}"
+        col = (f"column {c + 1} ({col_label!r})" if c is not None else f"column {col_label!r}")
+        return Location(file=self.file, sheet=self.sheet, row=f"{row} {what}", column=col)
+
+    def label(self, label: str, axis: str) -> Location:
+        """Location of a whole sample or taxon (``axis`` is 'samples' or 'taxa')."""
+        if self.file is None:
+            return Location(row=f"{'sample' if axis == 'samples' else 'taxon'} {label!r}")
+        if axis == self.rows:
+            r = self.row_numbers.get(label)
+            return Location(file=self.file, sheet=self.sheet,
+                            row=f"line {r} ({label!r})" if r is not None else repr(label))
+        c = self.column_numbers.get(label)
+        col = (_column_letter(c) if self.spreadsheet else c + 1) if c is not None else None
+        return Location(file=self.file, sheet=self.sheet,
+                        column=f"column {col} ({label!r})" if col is not None else repr(label))
+
+
+def _labels(index: pd.Index, what: str, origin: Origin | None) -> pd.Index:
+    """Labels as unique, non-blank strings, or an InputError that lists the offenders."""
+    labels = pd.Index([str(x).strip() if not _is_missing(x) else "" for x in index],
+                      dtype=object)
+    file = origin.file if origin else None
+    blank = [i for i, x in enumerate(labels) if x == ""]
+    if blank:
+        raise InputError(
+            f"{len(blank)} {what} label(s) are blank (position(s) {_listing([b + 1 for b in blank])}).",
+            location=Location(file=file), hint=f"Give every {what} a name.")
+    dup = labels[labels.duplicated()].unique()
+    if len(dup):
+        pos = {d: [i + 1 for i, x in enumerate(labels) if x == d] for d in dup[:_MAX_LISTED]}
+        where = "; ".join(f"{d!r} at positions {p}" for d, p in pos.items())
+        raise InputError(f"{what} labels must be unique; repeated: {where}.",
+                         location=Location(file=file),
+                         hint=f"Rename or merge the repeated {what}s before loading.")
+    return labels
+
+
+def _is_missing(x) -> bool:
+    try:
+        return bool(pd.isna(x))
+    except (TypeError, ValueError):
+        return False
+
+
+def _numeric_values(df: pd.DataFrame, origin: Origin) -> np.ndarray:
+    """float64 copy of the cells; an InputError naming the first bad cell otherwise."""
+    n, p = df.shape
+    out = np.empty((n, p), dtype=np.float64)
+    for j, col in enumerate(df.columns):
+        s = df.iloc[:, j]
+        if pd.api.types.is_bool_dtype(s.dtype):
+            out[:, j] = s.to_numpy(dtype=np.float64)
+            continue
+        if pd.api.types.is_numeric_dtype(s.dtype):
+            out[:, j] = s.to_numpy(dtype=np.float64, na_value=np.nan)
+            continue
+        num = pd.to_numeric(s, errors="coerce")
+        text = s.astype(object)
+        bad = num.isna() & ~text.map(_is_blank)
+        if bad.any():
+            i = int(np.flatnonzero(bad.to_numpy())[0])
+            sample, taxon = (df.index[i], col)
+            raise InputError(
+                f"count cell holds text {text.iloc[i]!r}, not a number "
+                f"({int(bad.sum())} such cell(s) in this column).",
+                location=origin.cell(sample, taxon),
+                hint="Counts must be numbers; fix the cell (decimal commas and thousands "
+                     "separators can be declared with decimal=',' / thousands=' ').")
+        out[:, j] = num.to_numpy(dtype=np.float64, na_value=np.nan)
+    return out
+
+
+def _is_blank(x) -> bool:
+    return _is_missing(x) or (isinstance(x, str) and x.strip() == "")
+
+
+def _check_values(values: np.ndarray, samples: pd.Index, taxa: pd.Index, origin: Origin):
+    finite = np.isfinite(values)
+    if not finite.all():
+        i, j = np.argwhere(~finite)[0]
+        v = values[i, j]
+        kind = "a blank or missing value" if np.isnan(v) else f"an infinite value ({v})"
+        n_bad = int((~finite).sum())
+        raise InputError(f"count cell holds {kind} ({n_bad} non-finite cell(s) in all).",
+                         location=origin.cell(samples[i], taxa[j]),
+                         hint="Write 0 for an absent taxon; remove or fix unknown values.")
+    neg = values < 0
+    if neg.any():
+        i, j = np.argwhere(neg)[0]
+        raise InputError(f"count cell holds a negative number ({values[i, j]:g}); "
+                         f"{int(neg.sum())} negative cell(s) in all.",
+                         location=origin.cell(samples[i], taxa[j]),
+                         hint="Counts and biomass must be >= 0.")
+
+
+def _align(info, labels: pd.Index, what: str, origin: Origin | None,
+           info_name: str) -> pd.DataFrame:
+    """Sample or taxon information aligned to ``labels`` (by label, never by position)."""
+    if info is None:
+        return pd.DataFrame(index=pd.Index(labels, name=what))
+    if isinstance(info, pd.Series):
+        info = info.to_frame()
+    if not isinstance(info, pd.DataFrame):
+        raise InputError(f"`{info_name}` must be a DataFrame indexed by {what} label; "
+                         f"got {type(info).__name__}.")
+    info = info.copy()
+    info.index = _labels(info.index, f"{what} (in `{info_name}`)", None)
+    have, want = set(info.index), set(labels)
+    missing = [x for x in labels if x not in have]
+    extra = [x for x in info.index if x not in want]
+    if missing or extra:
+        msg = []
+        if missing:
+            msg.append(f"{len(missing)} {what}(s) in the counts are missing from `{info_name}`: "
+                       f"{_listing(missing)}")
+        if extra:
+            msg.append(f"{len(extra)} {what}(s) in `{info_name}` are not in the counts: "
+                       f"{_listing(extra)}")
+        raise InputError("; ".join(msg) + ".",
+                         location=Location(file=origin.file) if origin else None,
+                         hint=f"Labels are matched exactly (case and spaces count); make both "
+                              f"tables list the same {what}s.")
+    out = info.loc[list(labels)]
+    out.index = pd.Index(labels, name=what)
+    return out
+
+
+class CommunityTable:
+    """Counts or biomass of taxa in samples, with aligned sample and taxon information.
+
+    Parameters
+    ----------
+    counts : DataFrame or array_like, shape (n_samples, n_taxa)
+        Non-negative, finite abundances; rows are samples, columns are taxa. Labels are
+        taken from the index and columns (converted to strings); arrays get ``s1..`` and
+        ``t1..``. The input is copied, never modified.
+    samples : DataFrame, optional
+        Sample information indexed by sample label (treatment, site, time, effort...).
+        Matched to the counts by label; a label in one table and not the other is an error.
+    taxa : DataFrame, optional
+        Taxon information indexed by taxon label (group, trait...).
+    effort : str or array_like, optional
+        Sampling effort per sample (trap nights, volume filtered, reads): the name of a
+        column of ``samples`` or one positive value per sample.
+    empty : {'error', 'drop', 'keep'}, default 'error'
+        What to do with samples whose total is 0 and taxa never observed. ``'drop'``
+        removes them and records them in :attr:`dropped`; ``'keep'`` keeps them (measures
+        that are undefined for them will say so).
+    origin : Origin, optional
+        Where the cells came from (set by the readers, used in error messages).
+
+    Raises
+    ------
+    InputError
+        A cell is not a finite number >= 0, labels repeat or are blank, the sample or taxon
+        tables do not list the same labels, the effort is not positive, an empty sample or
+        taxon is found under ``empty='error'``, or fewer than 2 samples remain.
+
+    Examples
+    --------
+    >>> tab = CommunityTable([[3, 0, 1], [1, 1, 0]])
+    >>> tab.totals.tolist()
+    [4.0, 2.0]
+    >>> tab.profiles.iloc[0].round(2).tolist()
+    [0.75, 0.0, 0.25]
+    """
+
+    def __init__(self, counts, samples=None, taxa=None, *, effort=None, empty: str = "error",
+                 origin: Origin | None = None):
+        if empty not in EMPTY_POLICIES:
+            raise InputError(f"`empty` must be one of {list(EMPTY_POLICIES)}; got {empty!r}.")
+        origin = origin or Origin()
+        df = self._as_frame(counts)
+        sample_labels = _labels(df.index, "sample", origin)
+        taxon_labels = _labels(df.columns, "taxon", origin)
+        df = df.set_axis(sample_labels, axis=0).set_axis(taxon_labels, axis=1)
+        if origin.row_numbers == {} and origin.column_numbers == {}:
+            origin = Origin(file=origin.file, sheet=origin.sheet, rows="samples",
+                            row_numbers={s: i + 1 for i, s in enumerate(sample_labels)},
+                            column_numbers={t: j for j, t in enumerate(taxon_labels)})
+        values = _numeric_values(df, origin)
+        _check_values(values, sample_labels, taxon_labels, origin)
+
+        sample_info = _align(samples, sample_labels, "sample", origin, "samples")
+        taxon_info = _align(taxa, taxon_labels, "taxon", origin, "taxa")
+        effort_values, effort_name = self._effort(effort, sample_info, sample_labels, origin)
+
+        dropped_samples: list[str] = []
+        dropped_taxa: list[str] = []
+        if empty != "keep":
+            row_zero = values.sum(axis=1) == 0
+            col_zero = values.sum(axis=0) == 0
+            if empty == "error" and row_zero.any():
+                bad = sample_labels[row_zero]
+                raise InputError(
+                    f"{len(bad)} sample(s) have a total of 0: {_listing(bad)}.",
+                    location=origin.label(bad[0], "samples"),
+                    hint="Remove them, or load with empty='drop' (they are then listed in "
+                         "table.dropped).")
+            if empty == "error" and col_zero.any():
+                bad = taxon_labels[col_zero]
+                raise InputError(
+                    f"{len(bad)} taxon/taxa are never observed (all counts 0): {_listing(bad)}.",
+                    location=origin.label(bad[0], "taxa"),
+                    hint="Remove them, or load with empty='drop' (they are then listed in "
+                         "table.dropped).")
+            if row_zero.any() or col_zero.any():
+                dropped_samples = list(sample_labels[row_zero])
+                keep_r = ~row_zero
+                # taxa seen only in dropped samples become empty too
+                col_zero = values[keep_r].sum(axis=0) == 0
+                dropped_taxa = list(taxon_labels[col_zero])
+                keep_c = ~col_zero
+                values = values[keep_r][:, keep_c]
+                sample_labels = sample_labels[keep_r]
+                taxon_labels = taxon_labels[keep_c]
+                sample_info = sample_info.loc[list(sample_labels)]
+                taxon_info = taxon_info.loc[list(taxon_labels)]
+                if effort_values is not None:
+                    effort_values = effort_values[keep_r]
+        if values.shape[0] < 2:
+            raise InputError(
+                f"the table has {values.shape[0]} sample(s); comparing samples needs at least 2"
+                + (f" ({len(dropped_samples)} empty sample(s) were dropped)" if dropped_samples
+                   else "") + ".",
+                location=Location(file=origin.file),
+                hint="Check that samples are rows (or pass rows='taxa' to the reader).")
+        if values.shape[1] < 1:
+            raise InputError("the table has no taxa with a count above 0.",
+                             location=Location(file=origin.file))
+
+        values = np.ascontiguousarray(values)
+        values.setflags(write=False)
+        self._values = values
+        self._sample_labels = pd.Index(sample_labels, name="sample", dtype=object)
+        self._taxon_labels = pd.Index(taxon_labels, name="taxon", dtype=object)
+        sample_info.index = self._sample_labels
+        taxon_info.index = self._taxon_labels
+        self._samples = sample_info
+        self._taxa = taxon_info
+        if effort_values is not None:
+            effort_values = effort_values.copy()
+            effort_values.setflags(write=False)
+        self._effort_values = effort_values
+        self._effort_name = effort_name
+        self._dropped = {"samples": tuple(dropped_samples), "taxa": tuple(dropped_taxa)}
+        self._origin = origin
+        self._notes: tuple[str, ...] = ()
+        self._cache: dict = {}
+
+    # ------------------------------------------------------------------ construction helpers
+    @staticmethod
+    def _as_frame(counts) -> pd.DataFrame:
+        if isinstance(counts, CommunityTable):
+            return counts.counts
+        if isinstance(counts, pd.DataFrame):
+            return counts.copy()
+        try:
+            arr = np.asarray(counts)
+        except Exception as exc:  # ragged lists and the like
+            raise InputError(f"counts could not be read as a table: {exc}.") from None
+        if arr.ndim != 2:
+            raise InputError(f"counts must be 2-dimensional (samples x taxa); got "
+                             f"{arr.ndim} dimension(s) with shape {arr.shape}.")
+        return pd.DataFrame(arr, index=[f"s{i + 1}" for i in range(arr.shape[0])],
+                            columns=[f"t{j + 1}" for j in range(arr.shape[1])])
+
+    @staticmethod
+    def _effort(effort, info: pd.DataFrame, labels: pd.Index, origin: Origin):
+        if effort is None:
+            return None, None
+        if isinstance(effort, str):
+            if effort not in info.columns:
+                raise DesignError(
+                    f"effort column {effort!r} is not in the sample table "
+                    f"(columns: {_listing(info.columns)}).",
+                    location=Location(file=origin.file, column=repr(effort)))
+            raw, name = info[effort], effort
+        else:
+            raw, name = effort, getattr(effort, "name", None) or "effort"
+            if isinstance(raw, pd.Series):
+                raw = raw.copy()
+                raw.index = [str(i) for i in raw.index]
+                if set(raw.index) == set(labels):
+                    raw = raw.loc[list(labels)]
+            raw = pd.Series(np.asarray(raw).ravel() if not isinstance(raw, pd.Series) else
+                            raw.to_numpy(), index=None)
+            if len(raw) != len(labels):
+                raise InputError(f"effort has {len(raw)} value(s) for {len(labels)} samples.")
+            raw.index = labels
+        num = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        bad = ~np.isfinite(num) | (num <= 0)
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            raise InputError(
+                f"sampling effort must be a positive number; sample {labels[i]!r} has "
+                f"{raw.iloc[i]!r} ({int(bad.sum())} such sample(s)).",
+                location=Location(file=origin.file, row=f"sample {labels[i]!r}",
+                                  column=repr(name)),
+                hint="Effort (trap nights, volume, reads...) divides the totals; it cannot be "
+                     "zero, negative or missing.")
+        return num, name
+
+    # ------------------------------------------------------------------ views
+    @property
+    def values(self) -> np.ndarray:
+        """Counts as a read-only float64 array, shape (n_samples, n_taxa)."""
+        return self._values
+
+    @property
+    def counts(self) -> pd.DataFrame:
+        """Counts as a DataFrame (a copy: editing it never changes the table)."""
+        return pd.DataFrame(self._values.copy(), index=self._sample_labels.copy(),
+                            columns=self._taxon_labels.copy())
+
+    @property
+    def samples(self) -> pd.DataFrame:
+        """Sample information, one row per sample in table order (a copy)."""
+        return self._samples.copy()
+
+    @property
+    def taxa(self) -> pd.DataFrame:
+        """Taxon information, one row per taxon in table order (a copy)."""
+        return self._taxa.copy()
+
+    @property
+    def sample_labels(self) -> pd.Index:
+        return self._sample_labels
+
+    @property
+    def taxon_labels(self) -> pd.Index:
+        return self._taxon_labels
+
+    @property
+    def n_samples(self) -> int:
+        return self._values.shape[0]
+
+    @property
+    def n_taxa(self) -> int:
+        return self._values.shape[1]
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self._values.shape
+
+    @property
+    def totals(self) -> pd.Series:
+        """Sample totals r_i = sum_j x_ij: each sample's *size*."""
+        if "totals" not in self._cache:
+            t = self._values.sum(axis=1)
+            t.setflags(write=False)
+            self._cache["totals"] = t
+        return pd.Series(self._cache["totals"].copy(), index=self._sample_labels, name="total")
+
+    @property
+    def profiles(self) -> pd.DataFrame:
+        """Relative abundances a_ij = x_ij / r_i: each sample's *shape* (rows sum to 1)."""
+        t = self._values.sum(axis=1, keepdims=True)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            prof = np.where(t > 0, self._values / np.where(t > 0, t, 1.0), 0.0)
+        return pd.DataFrame(prof, index=self._sample_labels.copy(),
+                            columns=self._taxon_labels.copy())
+
+    @property
+    def effort(self) -> pd.Series | None:
+        """Sampling effort per sample, or None when the table has none."""
+        if self._effort_values is None:
+            return None
+        return pd.Series(self._effort_values.copy(), index=self._sample_labels,
+                         name=self._effort_name)
+
+    @property
+    def effort_name(self) -> str | None:
+        return self._effort_name
+
+    @property
+    def dropped(self) -> dict[str, tuple[str, ...]]:
+        """Samples and taxa removed by the ``empty='drop'`` policy (or by :meth:`subset`)."""
+        return {k: tuple(v) for k, v in self._dropped.items()}
+
+    @property
+    def origin(self) -> Origin:
+        return self._origin
+
+    @property
+    def notes(self) -> tuple[str, ...]:
+        """What the reader decided on the user's behalf (orientation, summed duplicates...)."""
+        return self._notes
+
+    @property
+    def is_integer(self) -> bool:
+        """True when every value is a whole number (true counts, not biomass or cover)."""
+        if "is_integer" not in self._cache:
+            v = self._values
+            self._cache["is_integer"] = bool(np.all(v == np.round(v)))
+        return self._cache["is_integer"]
+
+    @property
+    def fingerprint(self) -> str:
+        """A short hash of values, labels, sample information and effort (for caches)."""
+        if "fingerprint" not in self._cache:
+            h = hashlib.sha256()
+            h.update(np.ascontiguousarray(self._values).tobytes())
+            h.update("\x1f".join(self._sample_labels).encode())
+            h.update("\x1e".join(self._taxon_labels).encode())
+            h.update(pd.util.hash_pandas_object(self._samples.astype(str), index=True)
+                     .to_numpy().tobytes())
+            if self._effort_values is not None:
+                h.update(self._effort_values.tobytes())
+            self._cache["fingerprint"] = h.hexdigest()[:16]
+        return self._cache["fingerprint"]
+
+    # ------------------------------------------------------------------ design access
+    def group(self, column: str, *, min_levels: int = 1) -> pd.Series:
+        """A sample-table column as group labels (strings), checked for use as a factor.
+
+        Raises DesignError naming the column when it is unknown, has missing values or has
+        fewer than ``min_levels`` levels.
+        """
+        if isinstance(column, pd.Series):
+            s = column.copy()
+            s.index = [str(i) for i in s.index]
+            if set(s.index) != set(self._sample_labels):
+                raise DesignError("the group labels do not match the table's samples.")
+            s = s.loc[list(self._sample_labels)]
+            name = s.name or "group"
+        else:
+            if column not in self._samples.columns:
+                raise DesignError(
+                    f"column {column!r} is not in the sample table; columns are: "
+                    f"{_listing(self._samples.columns, 20) or '(none)'}.",
+                    location=Location(column=repr(column)),
+                    hint="Load sample information with samples=... or pick one of those.")
+            s, name = self._samples[column], column
+        missing = s.isna()
+        if missing.any():
+            bad = list(s.index[missing])
+            raise DesignError(f"column {name!r} has missing values for sample(s) "
+                              f"{_listing(bad)}.", location=Location(column=repr(name)),
+                              hint="Fill them in, or take a subset without those samples.")
+        out = s.astype(str)
+        out.index = self._sample_labels
+        out.name = name
+        n_levels = out.nunique()
+        if n_levels < min_levels:
+            raise DesignError(f"column {name!r} has {n_levels} level(s) "
+                              f"({_listing(out.unique())}); this needs at least {min_levels}.",
+                              location=Location(column=repr(name)))
+        return out
+
+    def totals_by(self, group, *, per_effort: bool = False) -> pd.DataFrame:
+        """Sample totals summarised per group: n, mean, geometric mean, median, min, max.
+
+        With ``per_effort=True`` the totals are divided by the sampling effort first.
+        """
+        g = self.group(group)
+        t = self.totals
+        if per_effort:
+            if self._effort_values is None:
+                raise DesignError("the table has no effort column; load it with effort=...")
+            t = t / self._effort_values
+        frame = pd.DataFrame({"total": t.to_numpy(), "group": g.to_numpy()})
+        out = frame.groupby("group", sort=False)["total"].agg(
+            n="count", mean="mean",
+            geometric_mean=lambda x: float(np.exp(np.mean(np.log(x)))) if (x > 0).all()
+            else float("nan"),
+            median="median", min="min", max="max")
+        out.index.name = g.name
+        return out
+
+    def summary(self) -> pd.Series:
+        """Key facts about the table, as a labelled Series."""
+        v = self._values
+        t = v.sum(axis=1)
+        occ = (v > 0).sum(axis=0)
+        facts = {
+            "samples": self.n_samples,
+            "taxa": self.n_taxa,
+            "grand total": float(v.sum()),
+            "whole-number counts": self.is_integer,
+            "sample total, min": float(t.min()),
+            "sample total, median": float(np.median(t)),
+            "sample total, max": float(t.max()),
+            "max/min total ratio": float(t.max() / t.min()) if t.min() > 0 else float("inf"),
+            "zero cells (%)": float(100.0 * np.mean(v == 0)),
+            "taxa in one sample only": int((occ == 1).sum()),
+            "samples dropped (empty)": len(self._dropped["samples"]),
+            "taxa dropped (empty)": len(self._dropped["taxa"]),
+            "sample information columns": ", ".join(map(str, self._samples.columns)) or "(none)",
+            "effort column": self._effort_name or "(none)",
+        }
+        if self._effort_values is not None:
+            facts["effort, min"] = float(self._effort_values.min())
+            facts["effort, max"] = float(self._effort_values.max())
+        if self._origin.file:
+            facts["file"] = self._origin.file
+        return pd.Series(facts, name="table", dtype=object)
+
+    # ------------------------------------------------------------------ subsetting
+    def subset(self, samples=None, taxa=None, *, empty: str = "drop") -> "CommunityTable":
+        """A new table with some samples and/or taxa.
+
+        Parameters
+        ----------
+        samples, taxa : list of labels, boolean mask, or callable, optional
+            Which to keep. A callable receives the sample (or taxon) information table and
+            returns a boolean mask, e.g. ``tab.subset(lambda s: s.week == "w4")``.
+        empty : {'drop', 'error', 'keep'}, default 'drop'
+            Policy for samples or taxa left empty by the subset (taxa seen only in removed
+            samples are the usual case); what is dropped is recorded in :attr:`dropped`.
+        """
+        rows = self._select(samples, self._sample_labels, self._samples, "sample")
+        cols = self._select(taxa, self._taxon_labels, self._taxa, "taxon")
+        counts = pd.DataFrame(self._values[np.ix_(rows, cols)],
+                              index=self._sample_labels[rows], columns=self._taxon_labels[cols])
+        effort = None if self._effort_values is None else self._effort_values[rows]
+        out = CommunityTable(counts, self._samples.iloc[rows], self._taxa.iloc[cols],
+                             effort=None if effort is None else pd.Series(
+                                 effort, index=self._sample_labels[rows],
+                                 name=self._effort_name),
+                             empty=empty, origin=self._origin)
+        prev = self._dropped
+        out._dropped = {"samples": tuple(prev["samples"]) + out._dropped["samples"],
+                        "taxa": tuple(prev["taxa"]) + out._dropped["taxa"]}
+        return out
+
+    @staticmethod
+    def _select(which, labels: pd.Index, info: pd.DataFrame, what: str) -> np.ndarray:
+        if which is None:
+            return np.arange(len(labels))
+        if callable(which):
+            which = which(info.copy())
+        if isinstance(which, (str, bytes)):
+            which = [which]
+        arr = np.asarray(which)
+        if arr.dtype == bool:
+            if arr.shape != (len(labels),):
+                raise InputError(f"{what} mask has {arr.size} values for {len(labels)} {what}s.")
+            idx = np.flatnonzero(arr)
+        else:
+            pos = {x: i for i, x in enumerate(labels)}
+            wanted = [str(x) for x in arr.ravel()]
+            unknown = [x for x in wanted if x not in pos]
+            if unknown:
+                raise InputError(f"unknown {what} label(s): {_listing(unknown)}.")
+            idx = np.array([pos[x] for x in wanted], dtype=int)
+        if len(idx) == 0:
+            raise InputError(f"the subset keeps no {what}s.")
+        return idx
+
+    # ------------------------------------------------------------------ display
+    def __repr__(self) -> str:
+        src = f" from {self._origin.file!r}" if self._origin.file else ""
+        eff = f", effort={self._effort_name!r}" if self._effort_name else ""
+        return (f"CommunityTable({self.n_samples} samples x {self.n_taxa} taxa{src}; "
+                f"sample information: {list(self._samples.columns)}{eff})")
+
+    def _repr_html_(self) -> str:
+        head = self.counts.iloc[:8, :10].to_html(float_format="{:g}".format)
+        facts = self.summary().to_frame("value").to_html()
+        return (f"<div><p><b>CommunityTable</b>: {self.n_samples} samples &times; "
+                f"{self.n_taxa} taxa</p>{facts}<p>First rows and columns:</p>{head}</div>")
+
+    def __len__(self) -> int:
+        return self.n_samples
+
+
+def as_table(data, samples=None, *, name: str = "table") -> CommunityTable:
+    """The funnel: a CommunityTable from a CommunityTable, DataFrame or 2-D array."""
+    if isinstance(data, CommunityTable):
+        if samples is not None:
+            raise InputError(f"`{name}` already carries its sample information; pass the "
+                             "CommunityTable alone.")
+        return data
+    return CommunityTable(data, samples)

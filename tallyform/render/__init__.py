@@ -1,0 +1,1 @@
+"""Render ring: result objects -> plotly figures, HTML and text. Pure functions only."""

@@ -1,0 +1,1 @@
+"""Interaction ring: ipywidgets panels that wire controls to core calls (no arithmetic)."""

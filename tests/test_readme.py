@@ -1,0 +1,28 @@
+"""The README's quick start: exactly two commands, and CI runs the second verbatim."""
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def quick_start_commands() -> list[str]:
+    text = (ROOT / "README.md").read_text()
+    section = text.split("## Quick start", 1)[1].split("\n## ", 1)[0]
+    return [c.strip() for c in re.findall(r"```bash\n(.*?)```", section, re.S)]
+
+
+def test_two_commands_and_ci_runs_the_test_command():
+    cmds = quick_start_commands()
+    assert len(cmds) == 2 and all("\n" not in c for c in cmds), cmds
+    assert "tallyform demo" in cmds[0]
+    assert "pytest" in cmds[1]
+    ci = (ROOT / ".ci" / "run").read_text().splitlines()
+    assert cmds[1] in ci, "'.ci/run' must run the README's test command verbatim"
+
+
+def test_readme_opens_with_the_job():
+    first = (ROOT / "README.md").read_text().split("\n\n")[1]
+    for word in ("ecologists", "size", "shape", "dissimilarity"):
+        assert word in first

@@ -1,0 +1,262 @@
+"""The Dissimilarity object: condensed distances + labels + provenance (+ feature matrix).
+
+Condensed order is scipy's (``scipy.spatial.distance.squareform``): pairs (0,1), (0,2), ...,
+(0,n-1), (1,2), ... For measures that are Euclidean distances between rows of some feature
+matrix F (Euclidean, Hellinger, chord, chi-square, Aitchison), ``features`` holds F; the
+condensed vector is then computed only when asked for, so analyses that can work in O(n p)
+(ordination by SVD, PERMANOVA by projections) never form an n x n matrix.
+"""
+from __future__ import annotations
+
+from typing import Mapping
+
+import numpy as np
+import pandas as pd
+
+from .errors import InputError
+from .memory import check_memory
+
+__all__ = ["Dissimilarity", "condensed_index"]
+
+
+def condensed_index(n: int, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    """Position of pair (i, j), i != j, in a condensed vector of n items."""
+    i, j = np.minimum(i, j), np.maximum(i, j)
+    return n * i - i * (i + 1) // 2 + (j - i - 1)
+
+
+class Dissimilarity:
+    """Dissimilarities between samples, with what produced them.
+
+    Parameters
+    ----------
+    condensed : array_like, shape (n*(n-1)/2,), optional
+        Condensed distances in scipy order. May be omitted when ``features`` is given.
+    labels : sequence of str
+        Sample labels, length n.
+    measure : str
+        Name of the measure (a key of the measure registry, or ``"custom"``).
+    transform : str, optional
+        Name of the transformation applied to the counts before the measure.
+    params : mapping, optional
+        Every other choice (pseudocount, exponent, weights...), kept for provenance.
+    features : ndarray, shape (n, q), optional
+        A matrix whose row-to-row Euclidean distances are these dissimilarities.
+    properties : mapping, optional
+        ``metric``, ``euclidean``, ``size_free`` flags of the measure.
+    notes : tuple of str
+        Things the user should know (zero replacement used, taxa removed...).
+    dtype : numpy dtype, default float64
+        float32 halves memory for very large n.
+
+    Examples
+    --------
+    >>> d = Dissimilarity([3.0, 4.0, 5.0], ["a", "b", "c"], measure="custom")
+    >>> d.square()
+    array([[0., 3., 4.],
+           [3., 0., 5.],
+           [4., 5., 0.]])
+    """
+
+    def __init__(self, condensed=None, labels=None, *, measure: str, transform: str | None = None,
+                 params: Mapping | None = None, features=None,
+                 properties: Mapping | None = None, notes: tuple = (), dtype=np.float64):
+        self._dtype = np.dtype(dtype)
+        if features is not None:
+            features = np.array(features, dtype=np.float64, copy=True)
+            if features.ndim != 2:
+                raise InputError("`features` must be a 2-D array (samples x features).")
+            if not np.isfinite(features).all():
+                raise InputError("`features` contains non-finite values.")
+            features.setflags(write=False)
+        if condensed is None and features is None:
+            raise InputError("give condensed distances or a feature matrix.")
+        n = features.shape[0] if features is not None else None
+        if condensed is not None:
+            condensed = np.array(condensed, dtype=self._dtype, copy=True).ravel()
+            m = condensed.size
+            nn = int(round((1 + np.sqrt(1 + 8 * m)) / 2))
+            if nn * (nn - 1) // 2 != m:
+                raise InputError(f"a condensed vector of length {m} does not correspond to "
+                                 "any number of samples.")
+            if n is not None and nn != n:
+                raise InputError(f"{nn} samples in the distances but {n} feature rows.")
+            n = nn
+            bad = ~np.isfinite(condensed) | (condensed < 0)
+            if bad.any():
+                k = int(np.flatnonzero(bad)[0])
+                i, j = _pair_of(n, k)
+                lab = list(labels) if labels is not None else [f"s{x + 1}" for x in range(n)]
+                raise InputError(f"dissimilarity between {lab[i]!r} and {lab[j]!r} is "
+                                 f"{float(condensed[k])!r}; dissimilarities must be finite and >= 0.")
+            condensed.setflags(write=False)
+        if labels is None:
+            labels = [f"s{i + 1}" for i in range(n)]
+        labels = pd.Index([str(x) for x in labels], dtype=object, name="sample")
+        if len(labels) != n:
+            raise InputError(f"{len(labels)} labels for {n} samples.")
+        if labels.has_duplicates:
+            raise InputError(f"sample labels repeat: {sorted(set(labels[labels.duplicated()]))}.")
+        if n < 2:
+            raise InputError("a dissimilarity needs at least 2 samples.")
+        self._condensed = condensed
+        self._features = features
+        self.labels = labels
+        self.measure = str(measure)
+        self.transform = None if transform is None else str(transform)
+        self.params = dict(params or {})
+        self.properties = dict(properties or {})
+        self.notes = tuple(notes)
+        self._cache: dict = {}
+
+    # ------------------------------------------------------------------ constructors
+    @classmethod
+    def from_square(cls, matrix, labels=None, *, measure: str = "custom", **kw):
+        """From a symmetric matrix with a zero diagonal (checked to 1e-10 relative)."""
+        if isinstance(matrix, pd.DataFrame):
+            labels = list(matrix.index) if labels is None else labels
+            matrix = matrix.to_numpy()
+        a = np.asarray(matrix, dtype=np.float64)
+        if a.ndim != 2 or a.shape[0] != a.shape[1]:
+            raise InputError(f"a dissimilarity matrix must be square; got shape {a.shape}.")
+        scale = max(float(np.nanmax(np.abs(a))) if a.size else 0.0, 1e-300)
+        if not np.allclose(a, a.T, rtol=0, atol=1e-10 * scale, equal_nan=True):
+            i, j = np.unravel_index(np.nanargmax(np.abs(a - a.T)), a.shape)
+            raise InputError(f"the matrix is not symmetric: [{i}, {j}] = {a[i, j]!r} but "
+                             f"[{j}, {i}] = {a[j, i]!r}.")
+        if np.any(np.abs(np.diag(a)) > 1e-10 * scale):
+            i = int(np.argmax(np.abs(np.diag(a))))
+            raise InputError(f"the diagonal must be 0; entry [{i}, {i}] is {a[i, i]!r}.")
+        iu = np.triu_indices(a.shape[0], 1)
+        return cls(a[iu], labels, measure=measure, **kw)
+
+    @classmethod
+    def from_features(cls, features, labels=None, *, measure: str = "euclidean", **kw):
+        """Euclidean distances between the rows of ``features`` (computed lazily)."""
+        return cls(None, labels, measure=measure, features=features, **kw)
+
+    # ------------------------------------------------------------------ views
+    @property
+    def n(self) -> int:
+        return len(self.labels)
+
+    def __len__(self) -> int:
+        return self.n
+
+    @property
+    def dtype(self):
+        return self._dtype
+
+    @property
+    def features(self) -> np.ndarray | None:
+        """Feature matrix whose Euclidean distances are these dissimilarities, or None."""
+        return self._features
+
+    @property
+    def has_features(self) -> bool:
+        return self._features is not None
+
+    @property
+    def condensed(self) -> np.ndarray:
+        """Condensed distances (read-only), computed from the features on first use."""
+        if self._condensed is None:
+            n = self.n
+            check_memory(n * (n - 1) / 2 * self._dtype.itemsize,
+                         f"the condensed distances of {n} samples",
+                         alternatives="Work from the feature matrix (ordination with dims=..., "
+                                      "PERMANOVA) or use dtype='float32'.")
+            from .kernels import euclidean_condensed
+            c = np.asarray(euclidean_condensed(self._features), dtype=self._dtype)
+            c.setflags(write=False)
+            self._condensed = c
+        return self._condensed
+
+    def square(self, dtype=None) -> np.ndarray:
+        """The full symmetric n x n matrix (a new array)."""
+        from scipy.spatial.distance import squareform
+        dt = np.dtype(dtype or self._dtype)
+        check_memory(self.n ** 2 * dt.itemsize, f"a {self.n} x {self.n} distance matrix",
+                     alternatives="Use the condensed vector, or dtype='float32'.")
+        return squareform(np.asarray(self.condensed, dtype=dt), checks=False)
+
+    def gower(self) -> np.ndarray:
+        """Gower-centred matrix G = -1/2 C D^2 C (Gower 1966), float64, cached, read-only.
+
+        Its trace is the total sum of squares; eigenvalues of G are the PCoA eigenvalues.
+        """
+        if "gower" not in self._cache:
+            n = self.n
+            check_memory(2 * n * n * 8, f"the {n} x {n} Gower-centred matrix",
+                         alternatives="For measures with a feature matrix, use the feature "
+                                      "path (it needs no n x n matrix).")
+            if self._features is not None:
+                f = self._features - self._features.mean(axis=0)
+                g = f @ f.T
+            else:
+                a = self.square(dtype=np.float64)
+                a *= a
+                a *= -0.5
+                a -= a.mean(axis=0, keepdims=True)
+                a -= a.mean(axis=1, keepdims=True)
+                g = a
+            g = (g + g.T) / 2
+            g.setflags(write=False)
+            self._cache["gower"] = g
+        return self._cache["gower"]
+
+    def total_ss(self) -> float:
+        """Total sum of squares: sum of squared distances / n = trace(G)."""
+        if self._features is not None:
+            f = self._features - self._features.mean(axis=0)
+            return float(np.sum(f * f))
+        c = np.asarray(self.condensed, dtype=np.float64)
+        return float(np.dot(c, c) / self.n)
+
+    def subset(self, which) -> "Dissimilarity":
+        """Dissimilarities among some samples (labels or a boolean mask), same provenance."""
+        arr = np.asarray(which)
+        if arr.dtype == bool:
+            idx = np.flatnonzero(arr)
+        else:
+            pos = {x: i for i, x in enumerate(self.labels)}
+            missing = [str(x) for x in arr if str(x) not in pos]
+            if missing:
+                raise InputError(f"unknown sample label(s): {missing[:8]}.")
+            idx = np.array([pos[str(x)] for x in arr], dtype=int)
+        kw = dict(measure=self.measure, transform=self.transform, params=self.params,
+                  properties=self.properties, notes=self.notes, dtype=self._dtype)
+        if self._features is not None:
+            return Dissimilarity(None, self.labels[idx], features=self._features[idx], **kw)
+        ii, jj = np.triu_indices(len(idx), 1)
+        c = self.condensed[condensed_index(self.n, idx[ii], idx[jj])]
+        return Dissimilarity(c, self.labels[idx], **kw)
+
+    def to_frame(self) -> pd.DataFrame:
+        """The square matrix as a labelled DataFrame."""
+        return pd.DataFrame(self.square(), index=self.labels.copy(), columns=self.labels.copy())
+
+    @property
+    def provenance(self) -> dict:
+        """Everything needed to recompute these dissimilarities."""
+        return {"measure": self.measure, "transform": self.transform, **self.params,
+                "n_samples": self.n, "dtype": str(self._dtype)}
+
+    def __repr__(self) -> str:
+        tr = f", transform={self.transform!r}" if self.transform else ""
+        feat = f", features {self._features.shape[1]}" if self._features is not None else ""
+        return f"Dissimilarity({self.measure!r}{tr}, {self.n} samples{feat})"
+
+    def _repr_html_(self) -> str:
+        head = f"<p><b>{self!r}</b></p>".replace("<D", "&lt;D")
+        if self.n <= 12:
+            return head + self.to_frame().to_html(float_format="{:.4g}".format)
+        c = self.condensed
+        return head + (f"<p>min {c.min():.4g}, median {np.median(c):.4g}, "
+                       f"max {c.max():.4g}</p>")
+
+
+def _pair_of(n: int, k: int) -> tuple[int, int]:
+    """Inverse of :func:`condensed_index` for one position."""
+    i = int(n - 2 - np.floor(np.sqrt(-8 * k + 4 * n * (n - 1) - 7) / 2 - 0.5))
+    j = int(k + i + 1 - n * (n - 1) // 2 + (n - i) * ((n - i) - 1) // 2)
+    return i, j

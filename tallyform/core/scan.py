@@ -1,0 +1,134 @@
+"""Scan: the size and shape partition over a grid of transforms x measures."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .errors import InputError
+from .partition import FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, _check_option, _size_shape_from
+from .results import ResultMixin
+from .table import as_table
+
+__all__ = ["scan", "ScanResult", "DEFAULT_SCAN_MEASURES", "DEFAULT_SCAN_TRANSFORMS"]
+
+DEFAULT_SCAN_MEASURES = ("euclidean", "manhattan", "bray_curtis", "canberra", "chi_square",
+                         "hellinger", "chord", "jaccard")
+DEFAULT_SCAN_TRANSFORMS = (1.0, 0.5, 0.25, 0.0, "log1p")
+
+
+@dataclass(frozen=True, eq=False)
+class ScanResult(ResultMixin):
+    """The size and shape partition over a grid of transforms x measures.
+
+    ``frame`` is tidy: one row per (transform, measure) with the four fractions, the
+    negative-eigenvalue share, the shape dimensions and any error for that combination.
+    """
+
+    frame: pd.DataFrame
+    size: str
+    shape: str
+    n: int
+    results: dict = field(default_factory=dict, repr=False)
+    notes: tuple = ()
+
+    def to_frame(self) -> pd.DataFrame:
+        return self.frame.copy()
+
+    def pivot(self, value: str = "size_only") -> pd.DataFrame:
+        """One value (a fraction or ``negative_share``) as measures x transforms."""
+        if value not in self.frame.columns:
+            raise InputError(f"`value` must be one of {list(self.frame.columns[2:])}; "
+                             f"got {value!r}.")
+        out = self.frame.pivot(index="measure", columns="transform", values=value)
+        order_m = list(dict.fromkeys(self.frame["measure"]))
+        order_t = list(dict.fromkeys(self.frame["transform"]))
+        return out.loc[order_m, order_t]
+
+    def _title(self) -> str:
+        return f"Size and shape scan (n = {self.n}; size: {self.size}; shape: {self.shape})"
+
+    def _repr_html_(self) -> str:
+        import html as _html
+        body = self.pivot("size_only").to_html(float_format="{:.1%}".format)
+        return (f"<div><p><b>{_html.escape(self._title())}</b>: size-only share</p>{body}"
+                f"{self._notes_html()}</div>")
+
+
+def _as_transform_spec(t):
+    from .transforms import Power, get_transform
+    if isinstance(t, (int, float, np.integer, np.floating)) and not isinstance(t, bool):
+        return Power(float(t))
+    return get_transform(t)
+
+
+def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFORMS, *,
+         size: str = "log_total", shape: str = "chi_square", shape_dims: int | None = None,
+         progress=None, cancel=None) -> ScanResult:
+    """The size and shape partition for every (transform, measure) pair of a grid.
+
+    Parameters
+    ----------
+    table : CommunityTable, DataFrame or array
+    measures : sequence of str
+        Measure names (default: 8 common measures).
+    transforms : sequence of str, Transform or float
+        Transforms; a number ``a`` means ``Power(a)`` (1 = none, 0 = presence).
+    size, shape, shape_dims
+        As in :func:`size_shape`; the shape coordinates are computed once for the grid
+        (except for ``shape='same_measure'``).
+
+    Returns
+    -------
+    ScanResult
+        A combination that is undefined for the data (e.g. Aitchison with zeros) gets NaN
+        fractions and its reason in the ``error`` column; the rest of the grid is computed.
+    """
+    from .dissimilarity import dissimilarity
+    from .errors import Cancelled
+    _check_option("size", size, SIZE_OPTIONS)
+    _check_option("shape", shape, SHAPE_OPTIONS)
+    table = as_table(table)
+    if isinstance(measures, str):
+        measures = [measures]
+    if isinstance(transforms, (str, int, float)):
+        transforms = [transforms]
+    specs = [_as_transform_spec(t) for t in transforms]
+    from .measures import MEASURES
+    unknown = [m for m in measures if m not in MEASURES]
+    if unknown:
+        raise InputError(f"unknown measure(s) {unknown}; choose from {sorted(MEASURES)}.")
+    cache: dict = {}
+    rows, results = [], {}
+    total = len(specs) * len(measures)
+    done = 0
+    for tr in specs:
+        for m in measures:
+            if cancel is not None and cancel():
+                raise Cancelled("the scan was cancelled; no result was kept.")
+            row = {"transform": tr.name, "measure": m}
+            try:
+                d = dissimilarity(table, m, transform=tr)
+                r = _size_shape_from(table, d, measure=m, transform=tr, size=size, shape=shape,
+                                     shape_dims=shape_dims, n_permutations=0, rng=None,
+                                     progress=None, cancel=None, shape_cache=cache)
+                row.update(r.fractions.to_dict())
+                row.update(negative_share=r.negative_share, shape_dims=r.shape_dims,
+                           size_free=bool(d.properties.get("size_free", False)), error="")
+                results[(tr.name, m)] = r
+            except InputError as err:      # undefined for these data: keep the rest of the grid
+                row.update({f: np.nan for f in FRACTIONS}, negative_share=np.nan,
+                           shape_dims=np.nan, size_free=np.nan, error=str(err))
+            rows.append(row)
+            done += 1
+            if progress is not None:
+                progress(done, total)
+    frame = pd.DataFrame(rows)
+    failed = frame["error"].astype(bool)
+    notes = ()
+    if failed.any():
+        notes = (f"{int(failed.sum())} combination(s) are undefined for these data and are "
+                 "left blank (see the error column).",)
+    return ScanResult(frame=frame, size=size, shape=shape, n=table.n_samples,
+                      results=results, notes=notes)

@@ -347,8 +347,8 @@ def ca(table, *, scaling: str = "samples") -> Ordination:
     --------
     >>> import pandas as pd
     >>> t = pd.DataFrame([[10, 2], [3, 9]], index=["s1", "s2"], columns=["a", "b"])
-    >>> round(ca(t).total_inertia, 4)
-    0.3388
+    >>> round(ca(t).total_inertia, 4)  # Pearson chi-square / N
+    0.3427
     """
     check_option("scaling", scaling, tuple(SCALINGS))
     from .table import as_table
@@ -545,7 +545,7 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
     Returns
     -------
     Ordination
-        Axes ``dbRDA1...`` (constrained) then ``PCoA1...`` (residual). ``scores`` on the
+        Axes ``db-RDA1...`` (constrained) then ``PCoA1...`` (residual). ``scores`` on the
         constrained axes are G z_k / sqrt(l_k) (the response-space scores, which keep the
         spread within groups), ``fitted_scores`` are z_k sqrt(l_k); taxon scores come from
         :meth:`Ordination.taxon_scores`. ``r_squared`` = tr(H G) / tr(G) and its adjusted
@@ -572,8 +572,8 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
     >>> y = np.array([[1.0], [2.0], [4.0], [7.0]])
     >>> d = Dissimilarity(pdist(y), ["a", "b", "c", "d"], measure="euclidean")
     >>> info = pd.DataFrame({"x": [0.0, 1.0, 2.0, 3.0]}, index=["a", "b", "c", "d"])
-    >>> round(db_rda(d, info, ["x"]).r_squared, 4)
-    0.9657
+    >>> round(db_rda(d, info, ["x"]).r_squared, 4)  # the squared correlation of x and y
+    0.9524
     """
     d = as_dissimilarity(d)
     check_option("correction", correction, CORRECTIONS)
@@ -595,7 +595,7 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
         total = float(np.sum(Y * Y))
         prov["path"] = "features (SVD)"
         res = _assemble("db-RDA", split, Yz, labels, None, row_scale=np.ones(n),
-                        col_scale=np.ones(Y.shape[1]), scaling="samples", con_prefix="dbRDA",
+                        col_scale=np.ones(Y.shape[1]), scaling="samples", con_prefix="db-RDA",
                         res_prefix="PCoA", total=total,
                         conditioned=(total - split.total) if Xc is not None else None,
                         Xt=Xt, xnames=xnames, weights=np.ones(n), provenance=prov,
@@ -619,7 +619,7 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
     rpos = split.residual_values > 0
     (rz,) = flip_signs(split.residual_vectors[:, rpos])
     res_scores = rz * np.sqrt(split.residual_values[rpos])
-    con_names = axis_names("dbRDA", len(fv))
+    con_names = axis_names("db-RDA", len(fv))
     res_names = axis_names("PCoA", int(rpos.sum()))
     idx = _labels_index(labels)
     scores = pd.DataFrame(np.column_stack([wa, res_scores]), index=idx,
@@ -632,7 +632,7 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
                   conditioned=(total - float(np.trace(Gz))) if Xc is not None else None,
                   scaling=SCALINGS["samples"][1], taxa=None, fitted=fitted, corr=corr,
                   has_constraints=True, provenance=dict(prov, scaling="samples"), notes=notes,
-                  adjusted_df=adjusted_df, n=n, con_prefix="dbRDA", res_prefix="PCoA")
+                  adjusted_df=adjusted_df, n=n, con_prefix="db-RDA", res_prefix="PCoA")
     return _restate_db(res, residual_dims)
 
 

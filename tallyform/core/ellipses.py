@@ -83,8 +83,8 @@ def ellipse_outline(centre, semi_axes, angle: float, k: int = 100) -> tuple[np.n
     Examples
     --------
     >>> x, y = ellipse_outline((0, 0), (2, 1), 0.0, k=5)
-    >>> [round(float(v), 6) + 0.0 for v in x]
-    [2.0, 0.0, -2.0, -0.0, 2.0]
+    >>> [abs(round(float(v), 6)) for v in y]
+    [0.0, 1.0, 0.0, 1.0, 0.0]
     """
     if int(k) < 3:
         raise InputError(f"an outline needs at least 3 points; got k={k!r}.")

@@ -514,7 +514,9 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
     >>> d = Dissimilarity([3.0, 4.0, 5.0], ["a", "b", "c"], measure="euclidean")
     >>> o = pcoa(d)
     >>> [round(float(v), 6) for v in o.eigenvalues]
-    [16.666667, 8.333333, 0.0]
+    [12.964148, 3.702519, 0.0]
+    >>> round(float(o.eigenvalues.sum()), 6)  # total: (3^2 + 4^2 + 5^2) / 3
+    16.666667
     """
     d = as_dissimilarity(d)
     check_option("correction", correction, CORRECTIONS)
@@ -537,6 +539,10 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
         prov["path"] = "features (SVD)"
         complete = True
     else:
+        check_memory((5 if dims is None else 2) * n * n * 8,
+                     f"PCoA of {n} samples (the Gower matrix and its eigenvectors)",
+                     alternatives="Ask for the leading axes only with dims=..., or use a "
+                                  "measure with a feature matrix (no n x n matrix needed).")
         G, c = corrected_gower(d, correction)
         if correction is not None:
             prov["correction_constant"] = c

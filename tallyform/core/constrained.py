@@ -540,7 +540,9 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
     correction : {None, 'lingoes', 'cailliez'}, default None
         Make the dissimilarity Euclidean first (see :func:`tallyform.core.ordination.pcoa`).
     residual_dims : int, optional
-        Compute only this many unconstrained axes (0: none); default all.
+        Gower path only: compute just this many unconstrained axes (0: none) by ARPACK
+        instead of the full n x n eigen-decomposition; default all. (On the feature path all
+        axes come from a thin SVD and cost little.)
 
     Returns
     -------
@@ -577,6 +579,11 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
     """
     d = as_dissimilarity(d)
     check_option("correction", correction, CORRECTIONS)
+    if residual_dims is not None and (isinstance(residual_dims, bool) or
+                                      not isinstance(residual_dims, (int, np.integer)) or
+                                      not 0 <= residual_dims <= d.n - 1):
+        raise InputError(f"`residual_dims` must be None or a whole number from 0 to {d.n - 1}; "
+                         f"got {residual_dims!r}.")
     labels = d.labels
     n = d.n
     Xt, xnames, tlist, Xc, clist = _design(samples, labels, terms, conditions)

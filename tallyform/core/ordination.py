@@ -200,9 +200,11 @@ class Ordination(ResultMixin):
 
     def _repr_html_(self) -> str:
         frame = self.to_frame()
+        more = ""
         if len(frame) > 12:
+            more = f"<p>first 12 of {len(frame)} rows (all in <code>to_frame()</code>)</p>"
             frame = frame.head(12)
-        body = frame.to_html(float_format="{:.4g}".format)
+        body = frame.to_html(float_format="{:.4g}".format) + more
         import html as _html
         return (f"<div><p><b>{_html.escape(self._title())}</b></p>{body}"
                 f"{self._notes_html()}</div>")
@@ -355,11 +357,11 @@ def _operator(G: np.ndarray, shift: float = 0.0):
     n = G.shape[0]
 
     def mv(x):
-        x = np.asarray(x).reshape(n, -1)
+        x = np.asarray(x)
         y = G @ x
         if shift:
-            y = y + shift * (x - x.mean(axis=0))
-        return y if y.shape[1] > 1 else y.ravel()
+            y += shift * (x - x.mean(axis=0))
+        return y
     return LinearOperator((n, n), matvec=mv, matmat=mv, dtype=np.float64)
 
 
@@ -370,12 +372,15 @@ def _leading(G: np.ndarray, k: int, shift: float = 0.0) -> tuple[np.ndarray, np.
     if k >= n - 1:
         w, v = _eigh_desc(G + shift * (np.eye(n) - 1.0 / n), "all axes")
         return w[:k], v[:, :k]
-    w, v = eigsh(_operator(G, shift), k=k, which="LA", v0=_start_vector(n))
+    # a wider Krylov space than ARPACK's default (2k + 1) needs fewer restarts, and every
+    # restart re-reads the whole n x n matrix (memory-bound)
+    ncv = min(n - 1, max(2 * k + 1, k + 30))
+    w, v = eigsh(_operator(G, shift), k=k, which="LA", v0=_start_vector(n), ncv=ncv)
     order = np.argsort(w)[::-1]
     return w[order], v[:, order]
 
 
-def _extreme_eigenvalue(G: np.ndarray, which: str) -> float:
+def _extreme_eigenvalue(G: np.ndarray, which: str, tol: float = 1e-10) -> float:
     """The smallest (``'SA'``) or largest (``'LA'``) eigenvalue of a symmetric matrix."""
     n = G.shape[0]
     if n <= 300:
@@ -384,13 +389,13 @@ def _extreme_eigenvalue(G: np.ndarray, which: str) -> float:
                                        check_finite=False)[0])
     from scipy.sparse.linalg import eigsh
     w = eigsh(_operator(G), k=1, which=which, v0=_start_vector(n), return_eigenvectors=False,
-              tol=1e-10)
+              tol=tol, ncv=min(n - 1, 30))
     return float(w[0])
 
 
-def smallest_eigenvalue(G: np.ndarray) -> float:
-    """The smallest (most negative) eigenvalue of a symmetric matrix."""
-    return _extreme_eigenvalue(G, "SA")
+def smallest_eigenvalue(G: np.ndarray, tol: float = 1e-10) -> float:
+    """The smallest (most negative) eigenvalue of a symmetric matrix (ARPACK past n = 300)."""
+    return _extreme_eigenvalue(G, "SA", tol)
 
 
 def _cailliez_constant(d: Dissimilarity, G: np.ndarray, *, dense_max: int) -> float:
@@ -560,7 +565,7 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
             prov["path"] = "Gower matrix (leading axes, ARPACK)"
             complete = False
             if correction is None and not d.properties.get("euclidean", False):
-                lmin = smallest_eigenvalue(G)
+                lmin = smallest_eigenvalue(G, tol=1e-6)  # for a note: 6 digits suffice
                 if lmin < -ZERO_RTOL * max(values[0], 1e-300):
                     notes.append(f"the smallest eigenvalue is {lmin:.4g} ({100 * -lmin / values[0]:.2g} "
                                  "% of the largest): the measure is not Euclidean; only the "

@@ -318,3 +318,13 @@ def test_sample_table_must_match_labels(community):
     a = db_rda(d, info, ["trt"])
     b = db_rda(d, info.iloc[::-1], ["trt"])
     assert a.r_squared == pytest.approx(b.r_squared)
+
+
+def test_residual_dims_checked(community):
+    x, info = community
+    d = Dissimilarity(pdist(x.to_numpy()), x.index, measure="euclidean")
+    with pytest.raises(InputError, match="`residual_dims` must be None or a whole number"):
+        db_rda(d, info, ["trt"], residual_dims=-1)
+    o = db_rda(d, info, ["trt"], residual_dims=0)
+    assert o.axes == ["db-RDA1", "db-RDA2"] and not o.eigenvalues_complete
+    assert o.constrained_inertia + o.unconstrained_inertia == pytest.approx(o.total_inertia)

@@ -4,7 +4,8 @@ All of them are one computation in different metrics. A centred response Y (n x 
 split by an orthonormal basis Q of the constraints into fitted (Q Q' Y) and residual parts,
 each decomposed by SVD; with only a dissimilarity, the same split works on the Gower matrix
 G (fitted part Q Q' G Q Q', eigen-decomposed through the small m x m matrix Q' G Q). The
-two small engines :func:`split_features` and :func:`split_gower` are public so that the
+two small engines :func:`~tallyform.core.eigen.split_features` and
+:func:`~tallyform.core.eigen.split_gower` live in :mod:`tallyform.core.eigen` so that the
 permutation tests and the size/shape partition can reuse them.
 
 - CA: Y = D_r^{-1/2} (P - r c') D_c^{-1/2}, no constraints.
@@ -15,22 +16,20 @@ permutation tests and the size/shape partition can reuse them.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 import pandas as pd
-import scipy.linalg
 
-from .design import model_matrix, orthonormal_basis
+from .design import model_matrix
+from .eigen import (CORRECTIONS, EigenSplit, constraint_bases, corrected_gower, flip_signs,
+                    residualized_gower, split_features, split_gower)
 from .errors import DesignError, InputError
-from .memory import check_memory
-from .ordination import (ZERO_RTOL, Ordination, _eigh_desc, _labels_index, _leading,
-                         _require_design, as_dissimilarity, axis_names, check_option,
-                         corrected_gower, flip_signs, CORRECTIONS)
+from .ordination import (Ordination, _labels_index, _require_design, as_dissimilarity,
+                         axis_names, check_option)
 
-__all__ = ["EigenSplit", "split_features", "split_gower", "constraint_bases",
-           "residualized_gower", "ca", "cca",
-           "rda", "db_rda", "SCALINGS"]
+__all__ = ["ca", "cca", "rda", "db_rda", "SCALINGS",
+           # the engines, re-exported from .eigen for convenience
+           "EigenSplit", "split_features", "split_gower", "constraint_bases",
+           "residualized_gower"]
 
 #: scaling option -> (exponent alpha on the sample side, description)
 SCALINGS = {
@@ -41,137 +40,6 @@ SCALINGS = {
     "symmetric": (0.5, "symmetric (samples and taxa each scaled by the square root of the "
                        "singular value)"),
 }
-
-
-# ---------------------------------------------------------------------------- engines
-@dataclass(frozen=True, eq=False)
-class EigenSplit:
-    """Eigen-structure of the fitted and residual parts of a centred response.
-
-    Attributes
-    ----------
-    fitted_values, residual_values : ndarray
-        Eigenvalues (sums of squares), decreasing; values with magnitude at most
-        ``ZERO_RTOL`` times the largest are dropped. May be negative on the Gower path.
-    fitted_vectors, residual_vectors : ndarray, shape (n, r)
-        Orthonormal sample vectors (left singular vectors / eigenvectors).
-    fitted_loadings, residual_loadings : ndarray, shape (p, r) or None
-        Right singular vectors (feature path only).
-    total, fitted_trace, residual_trace : float
-        tr(G) (or ||Y||^2) and its two parts; fitted + residual = total.
-    """
-
-    fitted_values: np.ndarray
-    fitted_vectors: np.ndarray
-    residual_values: np.ndarray
-    residual_vectors: np.ndarray
-    total: float
-    fitted_trace: float
-    residual_trace: float
-    fitted_loadings: np.ndarray | None = None
-    residual_loadings: np.ndarray | None = None
-
-
-def _keep(values: np.ndarray, scale: float) -> np.ndarray:
-    return np.abs(values) > ZERO_RTOL * scale
-
-
-def split_features(Y: np.ndarray, Q: np.ndarray, *, residual: bool = True) -> EigenSplit:
-    """Fitted/residual SVDs of a centred response Y (n x p) on constraints with basis Q.
-
-    Q Q' Y = (Q W) S U' from the SVD of the small matrix Q' Y = W S U'; the residual
-    Y - Q Q' Y is decomposed by a thin SVD. Eigenvalues are squared singular values.
-    """
-    Y = np.asarray(Y, dtype=float)
-    B = Q.T @ Y
-    total = float(np.sum(Y * Y))
-    scale = max(total, 1e-300)
-    if B.size:
-        w, s, ut = scipy.linalg.svd(B, full_matrices=False, check_finite=False)
-        fv, fz, fu = s ** 2, Q @ w, ut.T
-    else:
-        fv, fz, fu = np.empty(0), np.empty((Y.shape[0], 0)), np.empty((Y.shape[1], 0))
-    keep = _keep(fv, scale)
-    fv, fz, fu = fv[keep], fz[:, keep], fu[:, keep]
-    fitted_trace = float(np.sum(B * B))
-    if residual:
-        R = Y - Q @ B
-        u, s, vt = scipy.linalg.svd(R, full_matrices=False, check_finite=False)
-        rv, rz, ru = s ** 2, u, vt.T
-        keep = _keep(rv, scale)
-        rv, rz, ru = rv[keep], rz[:, keep], ru[:, keep]
-    else:
-        rv, rz, ru = np.empty(0), np.empty((Y.shape[0], 0)), np.empty((Y.shape[1], 0))
-    return EigenSplit(fv, fz, rv, rz, total, fitted_trace, total - fitted_trace, fu, ru)
-
-
-def split_gower(G: np.ndarray, Q: np.ndarray, *, residual_dims: int | None = None) -> EigenSplit:
-    """Fitted/residual eigen-structure of a Gower matrix G on constraints with basis Q.
-
-    Fitted part H G H = Q A Q' with A = Q' G Q (m x m): its eigenvectors are Q W for
-    A = W L W'. Residual part (I - H) G (I - H), eigen-decomposed fully, or only its
-    ``residual_dims`` leading axes (``0`` skips it).
-    """
-    n = G.shape[0]
-    GQ = G @ Q
-    A = Q.T @ GQ
-    A = (A + A.T) / 2
-    total = float(np.trace(G))
-    scale = max(abs(total), 1e-300)
-    if A.size:
-        w, W = scipy.linalg.eigh(A, check_finite=False)
-        fv, fz = w[::-1], Q @ W[:, ::-1]
-    else:
-        fv, fz = np.empty(0), np.empty((n, 0))
-    keep = _keep(fv, scale)
-    fv, fz = fv[keep], fz[:, keep]
-    fitted_trace = float(np.trace(A))
-    if residual_dims == 0:
-        rv, rz = np.empty(0), np.empty((n, 0))
-    else:
-        check_memory(4 * n * n * 8, f"the residual part of a {n} x {n} Gower matrix",
-                     alternatives="Ask for fewer residual axes with residual_dims=..., or use "
-                                  "a measure with a feature matrix.")
-        R = residualized_gower(G, Q)
-        if residual_dims is None:
-            rv, rz = _eigh_desc(R, "residual part")
-        else:
-            rv, rz = _leading(R, min(int(residual_dims), n - 1))
-        keep = _keep(rv, scale)
-        rv, rz = rv[keep], rz[:, keep]
-    return EigenSplit(fv, fz, rv, rz, total, fitted_trace, total - fitted_trace)
-
-
-def residualized_gower(G: np.ndarray, Q: np.ndarray) -> np.ndarray:
-    """(I - Q Q') G (I - Q Q') in O(n^2 m) operations (G symmetric, Q orthonormal)."""
-    GQ = G @ Q
-    A = Q.T @ GQ
-    out = G - Q @ GQ.T - GQ @ Q.T + Q @ A @ Q.T
-    return (out + out.T) / 2
-
-
-def constraint_bases(X_terms: np.ndarray, X_conditions: np.ndarray | None = None,
-                     weights: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Orthonormal bases (Q_z, Q_x) of conditions (with intercept) and of the terms.
-
-    Q_z spans [1, conditions]; Q_x spans the terms after removing what Q_z explains, so
-    Q_x' Q_z = 0 and the hat matrix of the terms given the conditions is Q_x Q_x'. With
-    ``weights`` (row masses, CCA) every row is multiplied by sqrt(weight) first.
-    """
-    n = X_terms.shape[0]
-    sw = np.ones(n) if weights is None else np.sqrt(weights)
-    Z = np.ones((n, 1)) if X_conditions is None else np.column_stack([np.ones(n), X_conditions])
-    Qz = orthonormal_basis(Z * sw[:, None])
-    Xw = X_terms * sw[:, None]
-    Xr = Xw - Qz @ (Qz.T @ Xw)
-    norms = np.linalg.norm(Xw, axis=0)
-    alive = np.linalg.norm(Xr, axis=0) > 1e-10 * np.maximum(norms, 1e-300)
-    Qx = orthonormal_basis(Xr[:, alive]) if alive.any() else np.empty((n, 0))
-    if Qz.shape[1] + Qx.shape[1] >= n:
-        raise DesignError(f"the terms and conditions use {Qz.shape[1] + Qx.shape[1]} degrees of "
-                          f"freedom with {n} samples, leaving none for the residual.",
-                          hint="Use fewer terms or levels, or more samples.")
-    return Qz, Qx
 
 
 # ---------------------------------------------------------------------------- shared build

@@ -22,18 +22,13 @@ import pandas as pd
 import scipy.linalg
 
 from .dissimilarity import Dissimilarity
+from .eigen import (CORRECTIONS, ZERO_RTOL, corrected_gower, eigh_desc, flip_signs,
+                    leading_eigen, smallest_eigenvalue)
 from .errors import DesignError, InputError
 from .memory import check_memory
 from .results import ResultMixin
 
-__all__ = ["Ordination", "pcoa", "CORRECTIONS", "correction_constant", "corrected_gower",
-           "weighted_average_scores", "correlation_scores"]
-
-CORRECTIONS = (None, "lingoes", "cailliez")
-#: eigenvalues within this fraction of the largest one are treated as zero
-ZERO_RTOL = 1e-10
-#: above this many samples the Cailliez constant comes from ARPACK, not a dense solver
-_CAILLIEZ_DENSE_MAX = 600
+__all__ = ["Ordination", "pcoa", "weighted_average_scores", "correlation_scores"]
 
 
 # ---------------------------------------------------------------------------- helpers
@@ -51,19 +46,6 @@ def as_dissimilarity(d, *, name: str = "d") -> Dissimilarity:
         return Dissimilarity.from_square(d)
     raise InputError(f"`{name}` must be a Dissimilarity (or a square matrix of dissimilarities); "
                      f"got {type(d).__name__}.")
-
-
-def flip_signs(vectors: np.ndarray, *others: np.ndarray):
-    """Make each column's largest-magnitude entry positive (deterministic axis signs).
-
-    The same sign flip is applied to the matching columns of ``others``.
-    """
-    if vectors.size == 0:
-        return (vectors, *others)
-    idx = np.argmax(np.abs(vectors), axis=0)
-    signs = np.sign(vectors[idx, np.arange(vectors.shape[1])])
-    signs[signs == 0] = 1.0
-    return (vectors * signs, *(o * signs[: o.shape[1]] for o in others))
 
 
 def axis_names(prefix: str, k: int, start: int = 1) -> list[str]:
@@ -158,6 +140,11 @@ class Ordination(ResultMixin):
     def axes(self) -> list[str]:
         """Names of the axes that have sample scores."""
         return list(self.scores.columns)
+
+    @property
+    def constrained_axes(self) -> list[str]:
+        """Names of the scored constrained axes (empty for unconstrained methods)."""
+        return [] if self.fitted_scores is None else list(self.fitted_scores.columns)
 
     @property
     def n_samples(self) -> int:
@@ -335,139 +322,6 @@ def correlation_scores(values: np.ndarray, scores: np.ndarray) -> np.ndarray:
 
 
 # ---------------------------------------------------------------------------- eigen tools
-def _eigh_desc(G: np.ndarray, what: str) -> tuple[np.ndarray, np.ndarray]:
-    """All eigenvalues (decreasing) and eigenvectors of a symmetric matrix."""
-    n = G.shape[0]
-    check_memory(3 * n * n * 8, f"the eigen-decomposition of a {n} x {n} matrix ({what})",
-                 alternatives="Ask for the leading axes only with dims=..., or use a measure "
-                              "with a feature matrix.")
-    w, v = scipy.linalg.eigh(G, check_finite=False)
-    return w[::-1].copy(), v[:, ::-1].copy()
-
-
-def _start_vector(n: int) -> np.ndarray:
-    """A fixed ARPACK start vector (same answer on every run), orthogonal to 1."""
-    v = np.random.default_rng(20240607).standard_normal(n)
-    return v - v.mean()
-
-
-def _operator(G: np.ndarray, shift: float = 0.0):
-    """G + shift * C as a LinearOperator (C the centring matrix)."""
-    from scipy.sparse.linalg import LinearOperator
-    n = G.shape[0]
-
-    def mv(x):
-        x = np.asarray(x)
-        y = G @ x
-        if shift:
-            y += shift * (x - x.mean(axis=0))
-        return y
-    return LinearOperator((n, n), matvec=mv, matmat=mv, dtype=np.float64)
-
-
-def _leading(G: np.ndarray, k: int, shift: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
-    """The k largest eigenvalues (decreasing) and eigenvectors of G + shift * C (ARPACK)."""
-    from scipy.sparse.linalg import eigsh
-    n = G.shape[0]
-    if k >= n - 1:
-        w, v = _eigh_desc(G + shift * (np.eye(n) - 1.0 / n), "all axes")
-        return w[:k], v[:, :k]
-    # a wider Krylov space than ARPACK's default (2k + 1) needs fewer restarts, and every
-    # restart re-reads the whole n x n matrix (memory-bound)
-    ncv = min(n - 1, max(2 * k + 1, k + 30))
-    w, v = eigsh(_operator(G, shift), k=k, which="LA", v0=_start_vector(n), ncv=ncv)
-    order = np.argsort(w)[::-1]
-    return w[order], v[:, order]
-
-
-def _extreme_eigenvalue(G: np.ndarray, which: str, tol: float = 1e-10) -> float:
-    """The smallest (``'SA'``) or largest (``'LA'``) eigenvalue of a symmetric matrix."""
-    n = G.shape[0]
-    if n <= 300:
-        i = 0 if which == "SA" else n - 1
-        return float(scipy.linalg.eigh(G, eigvals_only=True, subset_by_index=[i, i],
-                                       check_finite=False)[0])
-    from scipy.sparse.linalg import eigsh
-    w = eigsh(_operator(G), k=1, which=which, v0=_start_vector(n), return_eigenvectors=False,
-              tol=tol, ncv=min(n - 1, 30))
-    return float(w[0])
-
-
-def smallest_eigenvalue(G: np.ndarray, tol: float = 1e-10) -> float:
-    """The smallest (most negative) eigenvalue of a symmetric matrix (ARPACK past n = 300)."""
-    return _extreme_eigenvalue(G, "SA", tol)
-
-
-def _cailliez_constant(d: Dissimilarity, G: np.ndarray, *, dense_max: int) -> float:
-    """Largest real eigenvalue of [[0, 2 G], [-I, -4 B2]], B2 = -1/2 C D C (Cailliez 1983)."""
-    n = d.n
-    check_memory(3 * n * n * 8, f"the Cailliez correction for {n} samples")
-    B2 = -0.5 * d.square(dtype=np.float64)
-    B2 -= B2.mean(axis=0, keepdims=True)
-    B2 -= B2.mean(axis=1, keepdims=True)
-    if n <= dense_max:
-        M = np.block([[np.zeros((n, n)), 2.0 * G], [-np.eye(n), -4.0 * B2]])
-        ev = scipy.linalg.eigvals(M, check_finite=False)
-        return float(np.max(ev.real))
-    from scipy.sparse.linalg import LinearOperator, eigs
-
-    def mv(z):
-        z = np.asarray(z).ravel()
-        x, y = z[:n], z[n:]
-        return np.concatenate([2.0 * (G @ y), -x - 4.0 * (B2 @ y)])
-    op = LinearOperator((2 * n, 2 * n), matvec=mv, dtype=np.float64)
-    ev = eigs(op, k=3, which="LR", v0=np.concatenate([_start_vector(n), _start_vector(n)]),
-              return_eigenvectors=False, maxiter=20 * n)
-    return float(np.max(ev.real))
-
-
-def correction_constant(d: Dissimilarity, correction: str, G: np.ndarray | None = None,
-                        *, smallest: float | None = None,
-                        _dense_max: int = _CAILLIEZ_DENSE_MAX) -> float:
-    """The constant c of a Lingoes (1971) or Cailliez (1983) correction; 0 if D is Euclidean.
-
-    Lingoes: c = |most negative eigenvalue of G|, d' = sqrt(d^2 + 2c). Cailliez: c is the
-    largest real eigenvalue of the 2n x 2n matrix [[0, 2 G], [-I, -4 B2]] with
-    B2 = -1/2 C D C, and d' = d + c. Both apply off the diagonal only.
-    """
-    check_option("correction", correction, ("lingoes", "cailliez"))
-    G = d.gower() if G is None else G
-    lmin = smallest_eigenvalue(G) if smallest is None else smallest
-    scale = max(abs(_extreme_eigenvalue(G, "LA")), abs(lmin), 1e-300)
-    if lmin >= -ZERO_RTOL * scale:
-        return 0.0
-    if correction == "lingoes":
-        return -lmin
-    return _cailliez_constant(d, G, dense_max=_dense_max)
-
-
-def corrected_gower(d: Dissimilarity, correction: str | None, *,
-                    _dense_max: int = _CAILLIEZ_DENSE_MAX) -> tuple[np.ndarray, float]:
-    """G of the (corrected) dissimilarities and the constant used (0 without correction)."""
-    G = d.gower()
-    if correction is None:
-        return G, 0.0
-    c = correction_constant(d, correction, G, _dense_max=_dense_max)
-    if c == 0.0:
-        return G, 0.0
-    return _apply_correction(d, G, correction, c), c
-
-
-def _apply_correction(d: Dissimilarity, G: np.ndarray, correction: str, c: float) -> np.ndarray:
-    n = d.n
-    if correction == "lingoes":
-        # -1/2 C (D^2 + 2c (11' - I)) C = G + c C
-        out = G + c * (np.eye(n) - 1.0 / n)
-    else:
-        fixed = Dissimilarity(np.asarray(d.condensed, dtype=np.float64) + c, d.labels,
-                              measure=d.measure)
-        out = np.array(fixed.gower())
-    out = (out + out.T) / 2
-    out.setflags(write=False)
-    return out
-
-
-# ---------------------------------------------------------------------------- PCoA
 def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordination:
     """Principal coordinates analysis (PCoA, classical scaling) of a dissimilarity.
 
@@ -557,11 +411,11 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
             else:
                 total = float(np.trace(G))
         if dims is None:
-            values, vectors = _eigh_desc(G, "PCoA")
+            values, vectors = eigh_desc(G, "PCoA")
             prov["path"] = "Gower matrix (full eigen-decomposition)"
             complete = True
         else:
-            values, vectors = _leading(G, dims)
+            values, vectors = leading_eigen(G, dims)
             prov["path"] = "Gower matrix (leading axes, ARPACK)"
             complete = False
             if correction is None and not d.properties.get("euclidean", False):

@@ -6,13 +6,14 @@ import dataclasses
 import numpy as np
 import pandas as pd
 import pytest
-from scipy.spatial.distance import pdist, squareform
+from scipy.spatial.distance import pdist
 from scipy.stats import pearsonr
 
 import tallyform as tly
 from tallyform.core.dissimilarity import Dissimilarity
 from tallyform.core.memory import set_memory_limit
-from tallyform.core.ordination import correction_constant, pcoa
+from tallyform.core.eigen import correction_constant
+from tallyform.core.ordination import pcoa
 from tallyform.errors import InputError, TooLargeError
 
 

@@ -278,6 +278,7 @@ def test_db_rda_non_euclidean_trace_identities(community):
     assert o.r_squared == pytest.approx(np.trace(H @ G) / np.trace(G), rel=1e-10)
     assert o.eigenvalues.sum() == pytest.approx(np.trace(G))
     assert o.negative_share > 0 and any("not Euclidean" in n for n in o.notes)
+    assert o.constrained_axes == [a for a in o.axes if a.startswith("db-RDA")]
     c = db_rda(d, info, ["trt", "temp"], correction="lingoes")
     assert c.eigenvalues.min() >= -1e-10 * c.eigenvalues.max()
     short = db_rda(d, info, ["trt", "temp"], residual_dims=2)

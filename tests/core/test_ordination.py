@@ -231,3 +231,14 @@ def test_taxon_scores_errors(bray, counts):
 def test_top_level_exports():
     for name in ("pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination"):
         assert hasattr(tly, name)
+
+
+def test_lingoes_with_arpack_smallest_eigenvalue(rng):
+    # past 300 samples the most negative eigenvalue comes from ARPACK, not LAPACK
+    x = rng.poisson(rng.gamma(0.5, 4, size=(1, 12)), size=(320, 12)).astype(float) + \
+        (np.arange(12) == 0)
+    d = Dissimilarity(pdist(x, "braycurtis"), measure="bray_curtis")
+    c = correction_constant(d, "lingoes")
+    assert c == pytest.approx(-np.linalg.eigvalsh(d.gower()).min(), rel=1e-9)  # numpy LAPACK
+    ev = pcoa(d, correction="lingoes").eigenvalues.to_numpy()
+    assert ev.min() >= -1e-10 * ev.max()

@@ -21,6 +21,7 @@ from .errors import DesignError, InputError
 from .memory import check_memory
 
 __all__ = ["ZERO_RTOL", "CORRECTIONS", "flip_signs", "eigh_desc", "leading_eigen",
+           "gower_operator",
            "smallest_eigenvalue", "correction_constant", "corrected_gower", "EigenSplit",
            "split_features", "split_gower", "residualized_gower", "constraint_bases"]
 
@@ -74,17 +75,47 @@ def _operator(G: np.ndarray, shift: float = 0.0):
     return LinearOperator((n, n), matvec=mv, matmat=mv, dtype=np.float64)
 
 
-def leading_eigen(G: np.ndarray, k: int, shift: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
-    """The k largest eigenvalues (decreasing) and eigenvectors of G + shift * C (ARPACK)."""
+def gower_operator(d: Dissimilarity):
+    """G = -1/2 C D^2 C as a LinearOperator that holds only D^2 (one n x n array).
+
+    G x = -1/2 C (D^2 (C x)): the Gower matrix itself is never formed, which saves its
+    centring passes when only a few leading axes are wanted.
+    """
+    from scipy.sparse.linalg import LinearOperator
+    A = d.square(dtype=np.float64)
+    A *= A
+    n = A.shape[0]
+
+    def mv(x):
+        x = np.asarray(x, dtype=np.float64)
+        z = A @ (x - x.mean(axis=0))
+        z -= z.mean(axis=0)
+        z *= -0.5
+        return z
+    return LinearOperator((n, n), matvec=mv, matmat=mv, dtype=np.float64)
+
+
+def leading_eigen(G, k: int, shift: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+    """The k largest eigenvalues (decreasing) and eigenvectors of G + shift * C (ARPACK).
+
+    ``G`` is a symmetric array, or a LinearOperator (then ``shift`` must be 0 and
+    ``k < n - 1``).
+    """
     from scipy.sparse.linalg import eigsh
     n = G.shape[0]
-    if k >= n - 1:
+    if not isinstance(G, np.ndarray):
+        if shift or k >= n - 1:
+            raise ValueError("an operator needs shift=0 and k < n - 1")  # internal misuse
+        op = G
+    elif k >= n - 1:
         w, v = eigh_desc(G + shift * (np.eye(n) - 1.0 / n), "all axes")
         return w[:k], v[:, :k]
     # a wider Krylov space than ARPACK's default (2k + 1) needs fewer restarts, and every
     # restart re-reads the whole n x n matrix (memory-bound)
+    else:
+        op = _operator(G, shift)
     ncv = min(n - 1, max(2 * k + 1, k + 30))
-    w, v = eigsh(_operator(G, shift), k=k, which="LA", v0=_start_vector(n), ncv=ncv)
+    w, v = eigsh(op, k=k, which="LA", v0=_start_vector(n), ncv=ncv)
     order = np.argsort(w)[::-1]
     return w[order], v[:, order]
 
@@ -92,12 +123,13 @@ def leading_eigen(G: np.ndarray, k: int, shift: float = 0.0) -> tuple[np.ndarray
 def _extreme_eigenvalue(G: np.ndarray, which: str, tol: float = 1e-10) -> float:
     """The smallest (``'SA'``) or largest (``'LA'``) eigenvalue of a symmetric matrix."""
     n = G.shape[0]
-    if n <= 300:
+    if n <= 300 and isinstance(G, np.ndarray):
         i = 0 if which == "SA" else n - 1
         return float(scipy.linalg.eigh(G, eigvals_only=True, subset_by_index=[i, i],
                                        check_finite=False)[0])
     from scipy.sparse.linalg import eigsh
-    w = eigsh(_operator(G), k=1, which=which, v0=_start_vector(n), return_eigenvectors=False,
+    op = _operator(G) if isinstance(G, np.ndarray) else G
+    w = eigsh(op, k=1, which=which, v0=_start_vector(n), return_eigenvectors=False,
               tol=tol, ncv=min(n - 1, 30))
     return float(w[0])
 

@@ -23,7 +23,7 @@ import scipy.linalg
 
 from .dissimilarity import Dissimilarity
 from .eigen import (CORRECTIONS, ZERO_RTOL, corrected_gower, eigh_desc, flip_signs,
-                    leading_eigen, smallest_eigenvalue)
+                    gower_operator, leading_eigen, smallest_eigenvalue)
 from .errors import DesignError, InputError
 from .memory import check_memory
 from .results import ResultMixin
@@ -339,8 +339,9 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
     -------
     Ordination
         ``scores`` on every axis with a positive eigenvalue (or the first ``dims``),
-        ``eigenvalues`` (all, negatives included, unless ``dims``), ``explained`` (shares of
-        tr(G)), ``negative_share`` and notes.
+        ``eigenvalues`` (all n, negatives included; on the feature path the min(n, q)
+        squared singular values, the others being 0; with ``dims`` only the leading ones),
+        ``explained`` (shares of tr(G)), ``negative_share`` and notes.
 
     Raises
     ------
@@ -402,7 +403,10 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
                      f"PCoA of {n} samples (the Gower matrix and its eigenvectors)",
                      alternatives="Ask for the leading axes only with dims=..., or use a "
                                   "measure with a feature matrix (no n x n matrix needed).")
-        G, c = corrected_gower(d, correction)
+        if dims is not None and correction is None and 300 < n and dims < n - 1:
+            G, c = gower_operator(d), 0.0  # D^2 only: no centred n x n copy
+        else:
+            G, c = corrected_gower(d, correction)
         if correction is not None:
             prov["correction_constant"] = c
             if c == 0.0:
@@ -417,6 +421,8 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
         else:
             values, vectors = leading_eigen(G, dims)
             prov["path"] = "Gower matrix (leading axes, ARPACK)"
+            if not isinstance(G, np.ndarray):
+                prov["path"] = "squared distances as an operator (leading axes, ARPACK)"
             complete = False
             if correction is None and not d.properties.get("euclidean", False):
                 lmin = smallest_eigenvalue(G, tol=1e-6)  # for a note: 6 digits suffice

@@ -242,3 +242,18 @@ def test_lingoes_with_arpack_smallest_eigenvalue(rng):
     assert c == pytest.approx(-np.linalg.eigvalsh(d.gower()).min(), rel=1e-9)  # numpy LAPACK
     ev = pcoa(d, correction="lingoes").eigenvalues.to_numpy()
     assert ev.min() >= -1e-10 * ev.max()
+
+
+def test_leading_axes_from_the_squared_distance_operator(rng):
+    # past 300 samples, dims= works on D^2 as an operator (no Gower matrix is formed)
+    x = rng.poisson(rng.gamma(0.8, 5, size=(1, 10)), size=(330, 10)).astype(float) + \
+        (np.arange(10) == 0)
+    d = Dissimilarity(pdist(x, "braycurtis"), measure="bray_curtis")
+    part = pcoa(d, dims=5)
+    assert part.provenance["path"].startswith("squared distances as an operator")
+    full = pcoa(Dissimilarity(d.condensed, measure="bray_curtis"))
+    np.testing.assert_allclose(part.eigenvalues.to_numpy(), full.eigenvalues.to_numpy()[:5],
+                               rtol=1e-9)
+    np.testing.assert_allclose(part.scores.to_numpy(), full.scores.to_numpy()[:, :5], atol=1e-8)
+    lmin = full.eigenvalues.min()
+    assert any(f"{lmin:.4g}" in n for n in part.notes)  # the smallest eigenvalue is reported

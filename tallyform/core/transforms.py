@@ -55,7 +55,7 @@ def check_values(values, *, labels: Sequence | None = None, what: str = "values"
     if bad.any():
         i, j = np.argwhere(bad)[0]
         raise InputError(f"{what} must be finite and >= 0; sample {_row_names([i], labels)[0]!r}"
-                         f" has {x[i, j]!r} in column {j + 1}.")
+                         f" has {float(x[i, j])!r} in column {j + 1}.")
     return x
 
 
@@ -482,9 +482,10 @@ def get_transform(spec=None) -> Transform:
         if len(parts) != 1:
             raise InputError(f"write the exponent as 'power(0.3)'; got {spec!r}.")
         try:
-            return Power(float(parts[0].split("=")[-1]))
+            a = float(parts[0].split("=")[-1])
         except ValueError:
             raise InputError(f"cannot read the exponent in {spec!r}.") from None
+        return Power(a)
     if base == "clr":
         kw: dict = {}
         for part in parts:

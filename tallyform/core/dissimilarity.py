@@ -421,8 +421,8 @@ def feature_matrix(data, measure, *, transform=None, **params) -> np.ndarray | N
     Examples
     --------
     >>> feature_matrix([[1, 3], [4, 0]], "hellinger").round(4)
-    array([[0.5   , 0.866 ],
-           [1.    , 0.    ]])
+    array([[0.5  , 0.866],
+           [1.   , 0.   ]])
     >>> feature_matrix([[1, 3], [4, 0]], "bray_curtis") is None
     True
     """

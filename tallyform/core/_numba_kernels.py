@@ -233,11 +233,17 @@ def gram_fill(G, i0, sq, F, out, tol):
         i = i0 + r
         base = _start(i, n)
         si = sq[i]
-        for j in range(i + 1, n):
+        suspect = 0
+        for j in range(i + 1, n):          # vectorised pass: no inner loop, no branch
             d2 = si + sq[j] - 2.0 * G[r, j - i0]
-            if d2 < tol * (si + sq[j]):
-                d2 = 0.0
-                for k in range(p):
-                    d = F[i, k] - F[j, k]
-                    d2 += d * d
-            out[base + j] = np.sqrt(d2) if d2 > 0.0 else 0.0
+            suspect += d2 < tol * (si + sq[j])
+            out[base + j] = np.sqrt(d2 if d2 > 0.0 else 0.0)
+        if suspect:                        # rare: recompute the doubtful pairs directly
+            for j in range(i + 1, n):
+                d2 = si + sq[j] - 2.0 * G[r, j - i0]
+                if d2 < tol * (si + sq[j]):
+                    d2 = 0.0
+                    for k in range(p):
+                        d = F[i, k] - F[j, k]
+                        d2 += d * d
+                    out[base + j] = np.sqrt(d2)

@@ -376,6 +376,15 @@ def dissimilarity(data, measure, *, transform=None, dtype="float64", **params) -
     :data:`tallyform.MEASURES` for each formula, the double-zero behaviour and references.
     The chi-square distance here is between profiles, sqrt(sum_j (a_xj - a_yj)^2 / c_j);
     some texts multiply it by sqrt(N), N the grand total, which rescales all distances.
+    Gower's range-standardised measure leaves out taxa whose range is 0 (the same value in
+    every sample: |x - y| / range is 0 / 0 there) and says so in ``notes``. Jensen-Shannon is
+    Euclidean-embeddable (Fuglede & Topsoe 2004) but has no finite feature matrix, so its
+    ``features`` is None. Measures undefined for an empty sample raise InputError; Euclidean,
+    Manhattan, Canberra and Gower are defined for it and add a note.
+
+    References
+    ----------
+    Legendre, P. & Legendre, L. (2012). Numerical Ecology, 3rd ed., ch. 7. Elsevier.
 
     Examples
     --------

@@ -4,6 +4,10 @@ Every kernel returns the condensed vector of all pairs in scipy order, as float6
 Two implementations give the same numbers (to rounding): numba loops compiled on first use
 (parallel over rows, cached on disk) and a numpy fallback used when numba is missing, or
 when the environment variable ``TALLYFORM_NUMBA=0`` is set, or after ``use_numba(False)``.
+In automatic mode small problems (fewer than about a million pair-by-taxon operations) take
+the numpy path too: it is as fast there and needs no compilation. Calls into the compiled
+parallel loops are serialised by a lock, so that threads (a dashboard's background worker)
+never launch two parallel regions at once.
 
 Euclidean distances use the Gram form d^2 = |x|^2 + |y|^2 - 2 x.y on BLAS, in blocks of rows
 (no n x n temporary), on column-centred features (distances do not change, cancellation
@@ -13,6 +17,7 @@ shrinks); pairs where cancellation could still cost precision (d^2 below 1 % of
 from __future__ import annotations
 
 import os
+import threading
 
 import numpy as np
 
@@ -24,8 +29,10 @@ __all__ = ["euclidean_condensed", "sqeuclidean_condensed", "abs_condensed",
 RAW, RATIO, RUZICKA, KULCZYNSKI, SQRT, SCALE = 0, 1, 2, 3, 4, 5
 _GRAM_TOL = 1e-2          # recompute pairs with d^2 < _GRAM_TOL * (|x|^2 + |y|^2)
 _BLOCK_BYTES = 32e6       # size of one block of the Gram matrix
+_SMALL = 1e6              # pair-by-taxon operations below which numpy is used (automatic mode)
 
 _state: dict = {"wanted": None, "module": None, "failed": False}
+_LOCK = threading.Lock()
 
 
 def use_numba(flag: bool | None) -> None:
@@ -33,12 +40,13 @@ def use_numba(flag: bool | None) -> None:
     _state["wanted"] = flag
 
 
-def _numba():
-    """The compiled-kernel module, or None (numpy path)."""
+def _numba(work: float = np.inf):
+    """The compiled-kernel module, or None (numpy path) for a problem of ``work`` operations."""
     wanted = _state["wanted"]
     if wanted is None:
         wanted = os.environ.get("TALLYFORM_NUMBA", "1").strip().lower() not in ("0", "false",
                                                                                  "no", "off")
+        wanted = wanted and work >= _SMALL
     if not wanted or _state["failed"]:
         return None
     if _state["module"] is None:
@@ -52,12 +60,17 @@ def _numba():
 
 
 def numba_enabled() -> bool:
-    """True when the numba kernels are in use."""
+    """True when the numba kernels are in use (for problems that are not tiny)."""
     return _numba() is not None
 
 
 def _prepare(x) -> np.ndarray:
     return np.ascontiguousarray(x, dtype=np.float64)
+
+
+def _work(x) -> float:
+    n, p = x.shape
+    return n * (n - 1) / 2 * max(p, 1)
 
 
 def _empty_out(n: int, dtype) -> np.ndarray:
@@ -107,9 +120,10 @@ def abs_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
     n = x.shape[0]
     t = _totals(t, n)
     out = _empty_out(n, dtype)
-    nbk = _numba()
+    nbk = _numba(_work(x))
     if nbk is not None:
-        return nbk.abs_condensed(x, out, mode, t, float(scale))
+        with _LOCK:
+            return nbk.abs_condensed(x, out, mode, t, float(scale))
     return _rowwise(x, out, lambda a, b: np.abs(b - a).sum(axis=1), mode, t, scale)
 
 
@@ -121,9 +135,10 @@ def sqeuclidean_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
     n = x.shape[0]
     t = _totals(t, n)
     out = _empty_out(n, dtype)
-    nbk = _numba()
+    nbk = _numba(_work(x))
     if nbk is not None:
-        return nbk.sq_condensed(x, out, mode, t, float(scale))
+        with _LOCK:
+            return nbk.sq_condensed(x, out, mode, t, float(scale))
 
     def sums(a, b):
         d = b - a
@@ -136,9 +151,10 @@ def canberra_condensed(x, *, dtype=np.float64) -> np.ndarray:
     x = _prepare(x)
     n = x.shape[0]
     out = _empty_out(n, dtype)
-    nbk = _numba()
+    nbk = _numba(_work(x))
     if nbk is not None:
-        return nbk.canberra_condensed(x, out)
+        with _LOCK:
+            return nbk.canberra_condensed(x, out)
 
     def sums(a, b):
         den = np.abs(a) + np.abs(b)
@@ -153,9 +169,10 @@ def jensen_shannon_condensed(profiles, *, dtype=np.float64) -> np.ndarray:
     p = _prepare(profiles)
     n = p.shape[0]
     out = _empty_out(n, dtype)
-    nbk = _numba()
+    nbk = _numba(_work(p))
     if nbk is not None:
-        return nbk.js_condensed(p, out)
+        with _LOCK:
+            return nbk.js_condensed(p, out)
 
     def sums(a, b):
         m = 0.5 * (a + b)
@@ -184,7 +201,7 @@ def euclidean_condensed(features, *, dtype=np.float64) -> np.ndarray:
     f = f - f.mean(axis=0)                     # translation leaves distances unchanged
     sq = np.einsum("ij,ij->i", f, f)
     block = int(max(16, min(256, _BLOCK_BYTES // (8 * n))))
-    nbk = _numba()
+    nbk = _numba(_work(f))
     for i0 in range(0, n - 1, block):
         i1 = min(i0 + block, n - 1)
         g = f[i0:i1] @ f[i0:].T                # (b, n - i0): rows i0..i1-1 against j >= i0

@@ -263,7 +263,9 @@ _RECORDS = [
     Measure("bray_curtis", "Bray-Curtis", "sum_j |x_j - y_j| / sum_j (x_j + y_j)",
             False, False, False, _DZ_IGNORED + "; samples sharing no taxa are at 1",
             ("Bray & Curtis (1957)", _LL), pairwise=_p_bray_curtis),
-    Measure("chi_square", "Chi-square distance", "sqrt(sum_j (a_xj - a_yj)^2 / c_j)",
+    Measure("chi_square", "Chi-square distance",
+            "sqrt(sum_j (a_xj - a_yj)^2 / c_j) (some texts multiply by sqrt(N), N the grand "
+            "total: the same ordering, rescaled)",
             True, True, True, _DZ_IGNORED + "; rare taxa (small c_j) weigh heavily",
             (_LL, "Greenacre (1984), Theory and Applications of Correspondence Analysis"),
             features=_f_chi_square, size_free_exact=False,

@@ -422,3 +422,24 @@ def test_declarations_are_not_overcautious():
             if not np.allclose(_d(x, m), _d(y, m), rtol=1e-9):
                 need_scale.discard(m)
     assert not need_tri and not need_neg and not need_scale, (need_tri, need_neg, need_scale)
+
+
+def test_without_numba_same_numbers(tmp_path):
+    # numba is optional at run time: with its import blocked, the numpy path answers
+    import json
+    import subprocess
+    import sys
+    from pathlib import Path
+    code = (
+        "import sys; sys.modules['numba'] = None\n"
+        "import json, numpy as np, tallyform as tly\n"
+        "from tallyform.core import kernels\n"
+        "kernels.use_numba(True)\n"
+        "x = np.random.default_rng(3).poisson(3.0, size=(30, 7)).astype(float) + 1\n"
+        "print(json.dumps(tly.dissimilarity(x, 'canberra').condensed.tolist()))\n"
+        "print(kernels.numba_enabled())\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, cwd=Path(__file__).resolve().parents[2]).stdout.split("\n")
+    assert out[1] == "False"
+    x = np.random.default_rng(3).poisson(3.0, size=(30, 7)).astype(float) + 1
+    np.testing.assert_allclose(json.loads(out[0]), pdist(x, "canberra"), rtol=1e-12)

@@ -142,7 +142,7 @@ def _f_hellinger(x, ctx):
 
 
 def _f_chord(x, ctx):
-    return _Chord()._apply(x.copy(), ctx.labels)
+    return _Chord()._apply(x, ctx.labels)       # x is private to this call
 
 
 def _f_chi_square(x, ctx):
@@ -187,7 +187,7 @@ def _f_aitchison(x, ctx):
                          "log-ratios; a fixed pseudocount is a larger share of a small "
                          "sample than of a large one, so sample size leaks into the "
                          "distances (multiplicative replacement avoids this).")
-    return clr._apply(x.copy(), ctx.labels)
+    return clr._apply(x, ctx.labels)            # x is private to this call
 
 
 # ---------------------------------------------------------------------- pairwise kernels

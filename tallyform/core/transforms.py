@@ -416,12 +416,15 @@ class Clr(Transform):
         p = x.shape[1]
         delta = self.delta if self.delta is not None else 1.0 / p ** 2
         prof = x / x.sum(axis=1, keepdims=True)
-        nz = (prof == 0).sum(axis=1, keepdims=True)
+        zero = prof == 0
+        nz = zero.sum(axis=1, keepdims=True)
         if np.any(nz * delta >= 1):
             bad = _row_names(np.flatnonzero((nz * delta >= 1).ravel()), labels)
             raise InputError(f"delta = {delta!r} times the number of zeros reaches 1 in "
                              f"sample(s) {_listing(bad)}; choose a smaller delta.")
-        return np.where(prof == 0, delta, prof * (1.0 - nz * delta))
+        prof *= 1.0 - nz * delta
+        prof[zero] = delta
+        return prof
 
 
 TRANSFORMS: dict[str, Transform] = {

@@ -13,12 +13,20 @@ from .core.nmds import nmds
 from .core.ordination import Ordination, pcoa
 from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
+from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
+from .core.measures import MEASURES, Measure, get_measure
 from .core.table import CommunityTable
+from .core.transforms import (TRANSFORMS, Chord, Clr, Hellinger, Identity, Log1p, Power,
+                              Presence, Profile, Transform, Wisconsin, get_transform)
 
 __version__ = "0.1.0"
 
 __all__ = [
     "CommunityTable", "read_counts", "read_samples", "read_long", "read_darwin_core",
     "demo", "demo_names", "simulate_community", "errors", "InputError", "DesignError",
-    "TooLargeError", "__version__", "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination",
+    "TooLargeError", "__version__",
+    "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination",
+    "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",
+    "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
+    "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
 ]

@@ -21,6 +21,14 @@ from .core.transforms import (TRANSFORMS, Chord, Clr, Hellinger, Identity, Log1p
 
 __version__ = "0.1.0"
 
+
+def __getattr__(name):
+    # figures and the dashboard are imported on first use, so `import tallyform` stays light
+    if name == "plots":
+        from .render import plots
+        return plots
+    raise AttributeError(f"module 'tallyform' has no attribute {name!r}")
+
 __all__ = [
     "CommunityTable", "read_counts", "read_samples", "read_long", "read_darwin_core",
     "demo", "demo_names", "simulate_community", "errors", "InputError", "DesignError",

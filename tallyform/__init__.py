@@ -11,6 +11,9 @@ from .core.constrained import ca, cca, db_rda, rda
 from .core.io import read_counts, read_darwin_core, read_long, read_samples
 from .core.nmds import nmds
 from .core.ordination import Ordination, pcoa
+from .core.audit import AuditResult, audit
+from .core.partition import SizeShapeResult, size_shape
+from .core.scan import ScanResult, scan
 from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
 from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
@@ -33,6 +36,7 @@ __all__ = [
     "CommunityTable", "read_counts", "read_samples", "read_long", "read_darwin_core",
     "demo", "demo_names", "simulate_community", "errors", "InputError", "DesignError",
     "TooLargeError", "__version__",
+    "size_shape", "SizeShapeResult", "scan", "ScanResult", "audit", "AuditResult",
     "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination",
     "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",

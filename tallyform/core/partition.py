@@ -101,12 +101,13 @@ class Variation:
 
 
 def negative_share(eigenvalues: np.ndarray) -> float:
-    """|sum of negative eigenvalues| / sum of |eigenvalues| (0 for a Euclidean measure)."""
+    """|sum of negative eigenvalues| / tr(G), as in :func:`tallyform.pcoa` (0 if Euclidean)."""
     ev = np.asarray(eigenvalues, dtype=float)
     scale = np.abs(ev).max() if ev.size else 0.0
-    neg = ev[ev < -1e-10 * scale].sum() if scale > 0 else 0.0
-    denom = np.abs(ev[np.abs(ev) > 1e-10 * scale]).sum() if scale > 0 else 0.0
-    return float(-neg / denom) if denom > 0 else 0.0
+    total = ev.sum()
+    if scale == 0 or total <= 0:
+        return 0.0
+    return float(max(0.0, -ev[ev < -1e-10 * scale].sum() / total))
 
 
 # ---------------------------------------------------------------------------- predictors

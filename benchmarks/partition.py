@@ -1,0 +1,60 @@
+"""Speed of the size and shape partition (the live-slider path) and of the scan.
+
+Prints ratios against references timed in the same run (a bare time means little on a
+shared machine), plus the medians, which the issues state targets for:
+
+* size_shape without permutations, 200 samples x 100 taxa: under 150 ms median, reported as
+  a ratio to one ``dissimilarity`` call on the same data;
+* scan over 8 measures x 5 transforms on the same table: under 3 s.
+
+Run: python benchmarks/partition.py
+"""
+from __future__ import annotations
+
+import statistics
+import time
+
+import numpy as np
+import pandas as pd
+
+import tallyform as tly
+
+
+def timed(fn, repeat=15):
+    fn()                                         # warm-up (numba caches, imports)
+    out = []
+    for _ in range(repeat):
+        t = time.perf_counter()
+        fn()
+        out.append(time.perf_counter() - t)
+    return statistics.median(out)
+
+
+def table(n=200, p=100, seed=7):
+    design = pd.DataFrame({"grp": np.repeat(["a", "b", "c", "d"], n // 4)},
+                          index=[f"s{i:04d}" for i in range(n)])
+    return tly.simulate_community(
+        design, n_taxa=p, mean_total=800,
+        size_effects={"grp": {"b": 0.5, "c": 1.5}},
+        shape_effects={"grp": {"d": {j: 3.0 for j in range(10)}}}, rng=seed)
+
+
+def main():
+    raw = table()
+    tab = tly.CommunityTable(raw.counts, raw.samples, empty="drop")
+    print(f"table: {tab.n_samples} samples x {tab.n_taxa} taxa")
+    for measure, transform in [("bray_curtis", None), ("bray_curtis", tly.Power(0.37)),
+                               ("hellinger", None), ("jaccard", None)]:
+        ref = timed(lambda: tly.dissimilarity(tab, measure, transform=transform).condensed)
+        run = timed(lambda: tly.size_shape(tab, measure, transform=transform))
+        name = measure if transform is None else f"{measure} + {transform.name}"
+        print(f"size_shape({name}): median {1000 * run:.1f} ms (target < 150 ms) = "
+              f"{run / ref:.1f} x one dissimilarity call ({1000 * ref:.2f} ms)")
+    scan_t = timed(lambda: tly.scan(tab), repeat=5)
+    one = timed(lambda: tly.size_shape(tab, "bray_curtis"), repeat=5)
+    print(f"scan 8 measures x 5 transforms: median {scan_t:.2f} s (target < 3 s) = "
+          f"{scan_t / one:.1f} x one size_shape call (40 cells)")
+
+
+if __name__ == "__main__":
+    main()

@@ -7,9 +7,11 @@ from __future__ import annotations
 
 from . import errors
 from .core.errors import DesignError, InputError, TooLargeError
+from .core.inference import dispersion_test, pairwise_permanova, permanova
 from .core.io import read_counts, read_darwin_core, read_long, read_samples
 from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
+from .core.size_tests import size_test
 from .core.table import CommunityTable
 
 __version__ = "0.1.0"
@@ -18,4 +20,5 @@ __all__ = [
     "CommunityTable", "read_counts", "read_samples", "read_long", "read_darwin_core",
     "demo", "demo_names", "simulate_community", "errors", "InputError", "DesignError",
     "TooLargeError", "__version__",
+    "permanova", "pairwise_permanova", "dispersion_test", "size_test",
 ]

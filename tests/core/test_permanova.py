@@ -266,3 +266,15 @@ def test_pairwise_needs_two_samples_per_level():
         pairwise_permanova(euclid(np.arange(7.0), labels), frame, "g")
     with pytest.raises(InputError, match="adjust"):
         pairwise_permanova(euclid(np.arange(7.0), labels), frame, "g", adjust="bonf")
+
+
+def test_docstring_examples_run():
+    # the Examples sections of the inference modules are doctests
+    import doctest
+
+    import tallyform.core.inference as inference
+    import tallyform.core.permutation as permutation
+    import tallyform.core.size_tests as size_tests
+    for mod in (inference, permutation, size_tests):
+        result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
+        assert result.failed == 0, mod.__name__

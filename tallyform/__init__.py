@@ -7,7 +7,8 @@ from __future__ import annotations
 
 from . import errors
 from .core.errors import DesignError, InputError, TooLargeError
-from .core.inference import dispersion_test, pairwise_permanova, permanova
+from .core.dispersion import dispersion_test
+from .core.inference import pairwise_permanova, permanova
 from .core.io import read_counts, read_darwin_core, read_long, read_samples
 from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community

@@ -9,7 +9,7 @@ from scipy.spatial.distance import pdist
 
 from tallyform.core.dissimilarity import Dissimilarity
 from tallyform.core.errors import DesignError, InputError
-from tallyform.core.inference import (centroid_distances_squared, dispersion_test, pcoa_axes,
+from tallyform.core.dispersion import (centroid_distances_squared, dispersion_test, pcoa_axes,
                                       _spatial_median)
 
 

@@ -272,9 +272,10 @@ def test_docstring_examples_run():
     # the Examples sections of the inference modules are doctests
     import doctest
 
+    import tallyform.core.dispersion as dispersion
     import tallyform.core.inference as inference
     import tallyform.core.permutation as permutation
     import tallyform.core.size_tests as size_tests
-    for mod in (inference, permutation, size_tests):
+    for mod in (dispersion, inference, permutation, size_tests):
         result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
         assert result.failed == 0, mod.__name__

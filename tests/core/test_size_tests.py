@@ -158,3 +158,54 @@ def test_errors():
         size_test(bio, "g", method="negbin")
     with pytest.raises(InputError, match="effort"):
         size_test(bio, "g", effort=[1, 1, 1, 0, 1, 1])
+
+
+# ---------------------------------------------------------------------------- comparison
+def _size_result(p):
+    from tallyform.core.size_tests import SizeTestResult
+    summary = pd.DataFrame({"n": [5, 5], "geometric_mean": [100.0, 50.0], "mean": [1, 1],
+                            "ratio": [1.0, 0.5], "ci_low": [np.nan, 0.3],
+                            "ci_high": [np.nan, 0.8]}, index=["ctl", "low"])
+    return SizeTestResult(method="anova", statistic=9.0, pvalue=p, df=(1, 8),
+                          summary=summary, measure="log total", effect="ratio", group="g")
+
+
+@pytest.mark.parametrize("shape_p,spread_p,must,must_not", [
+    (0.01, 0.01, "differ in composition or in spread", "simplest reading"),
+    (0.01, 0.40, "simplest reading", "or in spread"),
+    (0.40, 0.01, "spread of compositions differs", "differ in composition ("),
+    (0.40, 0.40, "not evidence that the compositions are the same", "The groups differ"),
+])
+def test_reading_never_overstates(shape_p, spread_p, must, must_not):
+    from tallyform.core.size_tests import reading_text
+    text = reading_text(_size_result(0.2), shape_p, spread_p, group="g", measure="chi_square")
+    assert must in text and must_not not in text
+    assert "does not show that the totals are equal" in text
+    assert "without adjustment" in text
+
+
+def test_reading_of_size_and_of_a_measure_that_is_not_size_free():
+    from tallyform.core.size_tests import reading_text
+    text = reading_text(_size_result(0.001), 0.5, 0.5, group="g", measure="bray_curtis",
+                        size_free=False)
+    assert "Total abundance differs" in text and "'low' has 0.5 times" in text
+    assert "not size-free" in text
+
+
+def test_compare_groups_with_a_given_dissimilarity():
+    from tallyform.core.dissimilarity import Dissimilarity
+    from tallyform.core.size_tests import compare_groups
+    design = pd.DataFrame({"treatment": np.repeat(["ctl", "low"], 10)},
+                          index=[f"s{i:02d}" for i in range(20)])
+    tab = simulate_community(design, n_taxa=12, size_effects={"treatment": {"low": 0.3}},
+                             rng=5)
+    hell = Dissimilarity.from_features(np.sqrt(tab.profiles.to_numpy()), tab.sample_labels,
+                                       measure="hellinger", properties={"size_free": True})
+    res = compare_groups(tab, "treatment", shape_measure=hell, n_permutations=199, rng=1)
+    assert res.size.pvalue < 0.001 and "Total abundance differs" in res.reading
+    assert list(res.to_frame().index) == ["size", "shape", "spread"]
+    assert res.pvalue["shape"] == res.shape.pvalue["treatment"]
+    assert res.pvalue["spread"] == res.dispersion.pvalue
+    assert res.reading in str(res) and "not size-free" not in res.reading
+    again = compare_groups(tab, "treatment", shape_measure=hell, n_permutations=199, rng=1)
+    pd.testing.assert_series_equal(res.pvalue, again.pvalue)

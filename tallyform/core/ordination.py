@@ -1,0 +1,496 @@
+"""Ordination results and principal coordinates analysis (PCoA).
+
+One result class, :class:`Ordination`, serves every method (PCoA, CA, CCA, RDA, db-RDA,
+NMDS): eigenvalues (all of them, negative ones included), the share of the total per axis,
+sample scores labelled by sample, optional taxon scores, the scaling used, inertia parts for
+constrained methods, provenance and plain-language notes.
+
+PCoA (Gower 1966) works from the Gower-centred matrix ``G = -1/2 C D^2 C``; for measures that
+carry a feature matrix F (Euclidean embeddings), the same answer comes from the thin SVD of
+the centred F without any n x n matrix. ``dims=k`` asks for the k leading axes only (ARPACK),
+which makes thousands of samples feasible.
+
+Constrained methods live in :mod:`tallyform.core.constrained`, NMDS in
+:mod:`tallyform.core.nmds`, ellipses in :mod:`tallyform.core.ellipses`.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+import scipy.linalg
+
+from .dissimilarity import Dissimilarity
+from .eigen import (CORRECTIONS, ZERO_RTOL, corrected_gower, eigh_desc, flip_signs,
+                    gower_operator, leading_eigen, smallest_eigenvalue)
+from .errors import DesignError, InputError
+from .memory import check_memory
+from .results import ResultMixin
+
+__all__ = ["Ordination", "pcoa", "weighted_average_scores", "correlation_scores"]
+
+
+# ---------------------------------------------------------------------------- helpers
+def check_option(name: str, value, allowed) -> None:
+    """Raise InputError unless ``value`` is one of ``allowed`` (the message lists them)."""
+    if value not in allowed:
+        raise InputError(f"`{name}` must be one of {list(allowed)}; got {value!r}.")
+
+
+def as_dissimilarity(d, *, name: str = "d") -> Dissimilarity:
+    """A Dissimilarity from a Dissimilarity, or from a square DataFrame / array."""
+    if isinstance(d, Dissimilarity):
+        return d
+    if isinstance(d, (pd.DataFrame, np.ndarray, list)):
+        return Dissimilarity.from_square(d)
+    raise InputError(f"`{name}` must be a Dissimilarity (or a square matrix of dissimilarities); "
+                     f"got {type(d).__name__}.")
+
+
+def axis_names(prefix: str, k: int, start: int = 1) -> list[str]:
+    return [f"{prefix}{i}" for i in range(start, start + k)]
+
+
+def _labels_index(labels) -> pd.Index:
+    return pd.Index([str(x) for x in labels], dtype=object, name="sample")
+
+
+# ---------------------------------------------------------------------------- result
+@dataclass(frozen=True, eq=False)
+class Ordination(ResultMixin):
+    """The result of an ordination (PCoA, CA, CCA, RDA, db-RDA or NMDS).
+
+    Attributes
+    ----------
+    method : str
+        ``'PCoA'``, ``'CA'``, ``'CCA'``, ``'RDA'``, ``'db-RDA'`` or ``'NMDS'``.
+    scores : DataFrame, shape (n_samples, n_axes)
+        Sample scores under ``scaling``, one column per axis with a positive eigenvalue
+        (constrained axes first, then unconstrained ones). For constrained methods these are
+        the scores in the space of the response (weighted averages for CCA), so samples of a
+        group keep their spread; the fitted (linear-combination) scores are in
+        ``fitted_scores``.
+    eigenvalues : Series
+        Every eigenvalue computed, in decreasing order within each part, negative ones
+        included, labelled by axis name. Sums of squares for PCoA, RDA and db-RDA; inertia
+        (mean-square contingency) for CA and CCA. Empty for NMDS.
+    explained : Series
+        Each eigenvalue divided by the total (trace of G, or the total inertia), so that all
+        shares, negative ones included, add up to 1.
+    scaling : str
+        How sample and taxon scores are scaled, stated in words.
+    taxa : DataFrame or None
+        Taxon scores under ``scaling`` (CA, CCA, RDA); see :meth:`taxon_scores` for the others.
+    fitted_scores : DataFrame or None
+        Constrained methods: sample scores on the constrained axes computed from the fitted
+        values (linear combinations of the constraints).
+    constraint_correlations : DataFrame or None
+        Constrained methods: correlation of each coded constraint column with the fitted
+        sample scores of each constrained axis (arrows in a biplot).
+    total_inertia, constrained_inertia, unconstrained_inertia, conditioned_inertia : float
+        Total variation and its parts (constrained methods; None where not applicable).
+        ``conditioned_inertia`` is the part removed by ``conditions`` (partial analyses).
+    r_squared, adjusted_r_squared : float or None
+        Constrained share of the total (after conditioning, of the whole total) and its
+        adjustment (Ezekiel 1930) for RDA and db-RDA without conditions.
+    n_constrained : int
+        Number of constrained eigenvalues at the start of ``eigenvalues``.
+    negative_share : float
+        Sum of the magnitudes of negative eigenvalues divided by the total (0 when none):
+        the positive axes together then hold ``1 + negative_share`` of the total.
+    eigenvalues_complete : bool
+        False when only the leading eigenvalues were computed (``dims=``).
+    stress, stress_reading, shepard, starts
+        NMDS only: Kruskal's stress-1 of the best start, its reading in plain words, the
+        Shepard-plot data (dissimilarity, ordination distance, monotone fit per pair) and one
+        row per start.
+    provenance : dict
+        Every choice that produced the result (method, measure, transform, correction...).
+    notes : tuple of str
+        Plain-language warnings that belong with the numbers.
+    """
+
+    method: str
+    scores: pd.DataFrame
+    eigenvalues: pd.Series
+    explained: pd.Series
+    scaling: str
+    taxa: pd.DataFrame | None = None
+    fitted_scores: pd.DataFrame | None = None
+    constraint_correlations: pd.DataFrame | None = None
+    total_inertia: float = float("nan")
+    constrained_inertia: float | None = None
+    unconstrained_inertia: float | None = None
+    conditioned_inertia: float | None = None
+    r_squared: float | None = None
+    adjusted_r_squared: float | None = None
+    n_constrained: int = 0
+    negative_share: float = 0.0
+    eigenvalues_complete: bool = True
+    stress: float | None = None
+    stress_reading: str | None = None
+    shepard: pd.DataFrame | None = field(default=None, repr=False)
+    starts: pd.DataFrame | None = field(default=None, repr=False)
+    provenance: dict = field(default_factory=dict)
+    notes: tuple = ()
+
+    # ------------------------------------------------------------------ views
+    @property
+    def axes(self) -> list[str]:
+        """Names of the axes that have sample scores."""
+        return list(self.scores.columns)
+
+    @property
+    def constrained_axes(self) -> list[str]:
+        """Names of the scored constrained axes (empty for unconstrained methods)."""
+        return [] if self.fitted_scores is None else list(self.fitted_scores.columns)
+
+    @property
+    def n_samples(self) -> int:
+        return self.scores.shape[0]
+
+    def axis_label(self, axis) -> str:
+        """``'PCoA1 (31.2 %)'``: an axis name with its share of the total, for plot titles."""
+        name = self.scores.columns[axis] if isinstance(axis, (int, np.integer)) else str(axis)
+        if name in self.explained.index:
+            return f"{name} ({100 * float(self.explained[name]):.1f} %)"
+        return name
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per axis: eigenvalue, share of the total, cumulative share, part.
+
+        For NMDS (no eigenvalues): one row per start (stress, whether it is the one kept).
+        """
+        if self.method == "NMDS":
+            return self.starts.copy() if self.starts is not None else pd.DataFrame()
+        frame = pd.DataFrame({"eigenvalue": self.eigenvalues.to_numpy(),
+                              "explained": self.explained.to_numpy(),
+                              "cumulative": np.cumsum(self.explained.to_numpy())},
+                             index=self.eigenvalues.index.copy())
+        if self.constrained_inertia is not None:
+            frame["part"] = (["constrained"] * self.n_constrained +
+                             ["unconstrained"] * (len(frame) - self.n_constrained))
+        frame.index.name = "axis"
+        return frame
+
+    def _title(self) -> str:
+        bits = [f"{self.method}: {self.n_samples} samples", f"scaling: {self.scaling}"]
+        if self.stress is not None:
+            bits.append(f"stress {self.stress:.3f} ({self.stress_reading})")
+        if self.r_squared is not None:
+            bits.append(f"constrained share {self.r_squared:.3f}")
+        return "; ".join(bits)
+
+    def __repr__(self) -> str:
+        return f"<Ordination {self._title()}>"
+
+    def _repr_html_(self) -> str:
+        frame = self.to_frame()
+        more = ""
+        if len(frame) > 12:
+            more = f"<p>first 12 of {len(frame)} rows (all in <code>to_frame()</code>)</p>"
+            frame = frame.head(12)
+        body = frame.to_html(float_format="{:.4g}".format) + more
+        import html as _html
+        return (f"<div><p><b>{_html.escape(self._title())}</b></p>{body}"
+                f"{self._notes_html()}</div>")
+
+    # ------------------------------------------------------------------ derived results
+    def ellipses(self, group, *, kind: str = "confidence", level: float = 0.95,
+                 axes=(0, 1), n_boot: int = 999, rng=None):
+        """Per-group ellipses on two axes of the sample scores.
+
+        See :func:`tallyform.core.ellipses.group_ellipses` for the kinds and constants.
+
+        Parameters
+        ----------
+        group : Series or sequence, length n_samples
+            Group of each sample (a Series is aligned by sample label).
+        kind : {'confidence', 'prediction', 'data', 'bootstrap'}, default 'confidence'
+        level : float, default 0.95
+        axes : pair of int or str, default (0, 1)
+        n_boot : int, default 999
+            Bootstrap resamples (``kind='bootstrap'`` only).
+        rng : None, int or numpy.random.Generator
+            Seed for the bootstrap.
+
+        Returns
+        -------
+        EllipseSet
+        """
+        from .ellipses import group_ellipses
+        cols = [self._axis(a) for a in axes]
+        if len(cols) != 2 or cols[0] == cols[1]:
+            raise InputError(f"`axes` must name two different axes; got {axes!r}.")
+        return group_ellipses(self.scores[cols], group, kind=kind, level=level,
+                              n_boot=n_boot, rng=rng,
+                              source=f"{self.method} ({self.scaling})")
+
+    def _axis(self, a) -> str:
+        if isinstance(a, (int, np.integer)):
+            if not -len(self.axes) <= a < len(self.axes):
+                raise InputError(f"axis {a} does not exist; this ordination has "
+                                 f"{len(self.axes)} scored axes ({self.axes[:6]}...).")
+            return self.axes[a]
+        if str(a) not in self.axes:
+            raise InputError(f"axis {a!r} does not exist; axes are {self.axes[:10]}.")
+        return str(a)
+
+    def taxon_scores(self, table=None, *, method: str = "weighted_average",
+                     axes=None) -> pd.DataFrame:
+        """Taxon positions in the ordination, from a table of abundances.
+
+        Parameters
+        ----------
+        table : CommunityTable, DataFrame or array, optional
+            Abundances of the same samples (matched by label when labelled). Omit it to get
+            the taxon scores the method produced itself (CA, CCA, RDA).
+        method : {'weighted_average', 'correlation'}, default 'weighted_average'
+            ``weighted_average``: sum_i x_ij s_ik / sum_i x_ij, the abundance-weighted mean
+            of the sample scores (a taxon sits among the samples where it is abundant).
+            ``correlation``: Pearson correlation of the taxon's abundances with the scores
+            (an arrow; its length says how well the axis tracks the taxon).
+        axes : list of int or str, optional
+            Axes to compute (default: all scored axes).
+
+        Returns
+        -------
+        DataFrame, taxa x axes
+            Taxa absent from every sample (weighted averages) or constant across samples
+            (correlations) get NaN.
+        """
+        if table is None:
+            if self.taxa is None:
+                raise InputError(f"{self.method} has no taxon scores of its own; pass the "
+                                 "table of abundances: taxon_scores(table).")
+            return self.taxa.copy()
+        check_option("method", method, ("weighted_average", "correlation"))
+        values, taxa = _aligned_values(table, self.scores.index)
+        cols = self.axes if axes is None else [self._axis(a) for a in axes]
+        s = self.scores[cols].to_numpy(dtype=float)
+        out = (weighted_average_scores(values, s) if method == "weighted_average"
+               else correlation_scores(values, s))
+        return pd.DataFrame(out, index=pd.Index(taxa, name="taxon"), columns=cols)
+
+
+def _aligned_values(table, labels: pd.Index) -> tuple[np.ndarray, list]:
+    """Abundances (n x p) with rows in the order of ``labels``, and the taxon names."""
+    from .table import CommunityTable
+    if isinstance(table, CommunityTable):
+        frame = table.counts
+    elif isinstance(table, pd.DataFrame):
+        frame = table
+    else:
+        arr = np.asarray(table, dtype=float)
+        if arr.ndim != 2 or arr.shape[0] != len(labels):
+            raise InputError(f"the table must have one row per sample ({len(labels)} rows); "
+                             f"got shape {arr.shape}.")
+        frame = pd.DataFrame(arr, index=labels, columns=[f"taxon{j + 1}" for j in
+                                                         range(arr.shape[1])])
+    idx = pd.Index([str(x) for x in frame.index])
+    if set(idx) != set(labels):
+        missing = [x for x in labels if x not in set(idx)]
+        raise InputError(f"the table's samples do not match the ordination's; missing "
+                         f"from the table: {missing[:8]}.")
+    frame = frame.set_axis(idx).loc[list(labels)]
+    values = frame.apply(pd.to_numeric, errors="coerce").to_numpy(dtype=float)
+    if not np.isfinite(values).all():
+        raise InputError("the table holds non-numeric or non-finite values.")
+    return values, [str(c) for c in frame.columns]
+
+
+def weighted_average_scores(values: np.ndarray, scores: np.ndarray) -> np.ndarray:
+    """Abundance-weighted means of sample scores per taxon: (X' S) / column totals."""
+    tot = values.sum(axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = (values.T @ scores) / tot[:, None]
+    out[tot <= 0] = np.nan
+    return out
+
+
+def correlation_scores(values: np.ndarray, scores: np.ndarray) -> np.ndarray:
+    """Pearson correlation of each taxon (column of values) with each score column."""
+    xc = values - values.mean(axis=0)
+    sc = scores - scores.mean(axis=0)
+    num = xc.T @ sc
+    den = np.sqrt(np.sum(xc * xc, axis=0))[:, None] * np.sqrt(np.sum(sc * sc, axis=0))[None, :]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = num / den
+    out[~np.isfinite(out)] = np.nan
+    return out
+
+
+# ---------------------------------------------------------------------------- eigen tools
+def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordination:
+    """Principal coordinates analysis (PCoA, classical scaling) of a dissimilarity.
+
+    Parameters
+    ----------
+    d : Dissimilarity (or a square matrix)
+    correction : {None, 'lingoes', 'cailliez'}, default None
+        Make a non-Euclidean dissimilarity Euclidean before the analysis (off-diagonal
+        values only). Skipped (constant 0) when it is already Euclidean.
+    dims : int, optional
+        Compute only the ``dims`` leading axes (ARPACK), for thousands of samples. Without
+        it every eigenvalue is computed and reported.
+
+    Returns
+    -------
+    Ordination
+        ``scores`` on every axis with a positive eigenvalue (or the first ``dims``),
+        ``eigenvalues`` (all n, negatives included; on the feature path the min(n, q)
+        squared singular values, the others being 0; with ``dims`` only the leading ones),
+        ``explained`` (shares of tr(G)), ``negative_share`` and notes.
+
+    Raises
+    ------
+    InputError
+        Bad ``correction`` or ``dims``.
+    TooLargeError
+        When an n x n matrix would exceed the memory limit.
+
+    Notes
+    -----
+    G = -1/2 C D^2 C with C = I - 11'/n; G = U L U'; scores u_k sqrt(l_k) for l_k > 0
+    (Gower 1966). The trace of G is the total sum of squares (sum of squared distances / n),
+    so shares add up to 1 over all axes, negative ones counted negative. When ``d`` carries
+    a feature matrix F (a Euclidean-embeddable measure), the centred F = U S V' gives the same
+    scores U S and eigenvalues S^2 in O(n p) memory. Lingoes (1971): d' = sqrt(d^2 + 2c),
+    c = |most negative eigenvalue|; Cailliez (1983): d' = d + c, c the largest real eigenvalue
+    of [[0, 2G], [-I, -4 B2]], B2 = -1/2 C D C. Axis signs are fixed so that each axis's
+    largest-magnitude score is positive.
+
+    References
+    ----------
+    Gower (1966) Biometrika 53: 325-338. Lingoes (1971) Psychometrika 36: 195-203.
+    Cailliez (1983) Psychometrika 48: 305-308. Legendre & Legendre (2012) Numerical
+    Ecology, 3rd ed., section 9.3.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from tallyform.core.dissimilarity import Dissimilarity
+    >>> d = Dissimilarity([3.0, 4.0, 5.0], ["a", "b", "c"], measure="euclidean")
+    >>> o = pcoa(d)
+    >>> [round(float(v), 6) for v in o.eigenvalues]
+    [12.964148, 3.702519, 0.0]
+    >>> round(float(o.eigenvalues.sum()), 6)  # total: (3^2 + 4^2 + 5^2) / 3
+    16.666667
+    """
+    d = as_dissimilarity(d)
+    check_option("correction", correction, CORRECTIONS)
+    n = d.n
+    if dims is not None:
+        if isinstance(dims, bool) or not isinstance(dims, (int, np.integer)) or \
+                not 1 <= dims <= n - 1:
+            raise InputError(f"`dims` must be a whole number from 1 to {n - 1} (samples - 1); "
+                             f"got {dims!r}.")
+        dims = int(dims)
+    notes: list[str] = []
+    prov = {"method": "PCoA", **d.provenance, "correction": correction,
+            "correction_constant": 0.0, "dims": dims, "path": None}
+    total = d.total_ss()
+    if d.has_features:
+        if correction is not None:
+            notes.append(f"the {d.measure} measure is Euclidean (it has a feature matrix): "
+                         f"no {correction} correction was needed.")
+        values, vectors = _feature_path(d.features, dims)
+        prov["path"] = "features (SVD)"
+        complete = True
+    else:
+        check_memory((5 if dims is None else 2) * n * n * 8,
+                     f"PCoA of {n} samples (the Gower matrix and its eigenvectors)",
+                     alternatives="Ask for the leading axes only with dims=..., or use a "
+                                  "measure with a feature matrix (no n x n matrix needed).")
+        if dims is not None and correction is None and 300 < n and dims < n - 1:
+            G, c = gower_operator(d), 0.0  # D^2 only: no centred n x n copy
+        else:
+            G, c = corrected_gower(d, correction)
+        if correction is not None:
+            prov["correction_constant"] = c
+            if c == 0.0:
+                notes.append(f"the dissimilarities are already Euclidean: no {correction} "
+                             "correction was needed.")
+            else:
+                total = float(np.trace(G))
+        if dims is None:
+            values, vectors = eigh_desc(G, "PCoA")
+            prov["path"] = "Gower matrix (full eigen-decomposition)"
+            complete = True
+        else:
+            values, vectors = leading_eigen(G, dims)
+            prov["path"] = "Gower matrix (leading axes, ARPACK)"
+            if not isinstance(G, np.ndarray):
+                prov["path"] = "squared distances as an operator (leading axes, ARPACK)"
+            complete = False
+            if correction is None and not d.properties.get("euclidean", False):
+                lmin = smallest_eigenvalue(G, tol=1e-6)  # for a note: 6 digits suffice
+                if lmin < -ZERO_RTOL * max(values[0], 1e-300):
+                    notes.append(f"the smallest eigenvalue is {lmin:.4g} ({100 * -lmin / values[0]:.2g} "
+                                 "% of the largest): the measure is not Euclidean; only the "
+                                 f"{dims} leading axes were computed, so the share held by "
+                                 "negative eigenvalues is not known.")
+    return _pcoa_result(d, values, vectors, total, complete=complete, dims=dims,
+                        correction=correction, notes=notes, provenance=prov)
+
+
+def _feature_path(F: np.ndarray, dims: int | None) -> tuple[np.ndarray, np.ndarray]:
+    """Eigenvalues (S^2) and left singular vectors of the centred feature matrix."""
+    Fc = F - F.mean(axis=0)
+    n, q = Fc.shape
+    check_memory(3 * n * min(n, q) * 8, f"the SVD of a {n} x {q} feature matrix")
+    u, s, _ = scipy.linalg.svd(Fc, full_matrices=False, check_finite=False,
+                               lapack_driver="gesdd")
+    values = s ** 2
+    if dims is not None:
+        u = u[:, :dims]
+    return values, u
+
+
+def _pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes,
+                 provenance) -> Ordination:
+    n = d.n
+    labels = _labels_index(d.labels)
+    scale = max(float(np.max(np.abs(values))) if values.size else 0.0, 1e-300)
+    tol = ZERO_RTOL * scale
+    k = int(np.sum(values[: vectors.shape[1]] > tol))
+    vecs = vectors[:, :k]
+    (vecs,) = flip_signs(vecs)
+    scores = vecs * np.sqrt(values[:k])
+    names = axis_names("PCoA", len(values))
+    eig = pd.Series(values, index=names, name="eigenvalue")
+    explained = pd.Series(values / total if total > 0 else np.full(len(values), np.nan),
+                          index=names, name="explained")
+    neg = values[values < -tol]
+    negative_share = float(-neg.sum() / total) if (neg.size and total > 0) else 0.0
+    if negative_share > 0:
+        notes = list(notes) + [
+            f"negative eigenvalues hold {100 * negative_share:.1f} % of the total (the positive "
+            f"axes together hold {100 * (1 + negative_share):.1f} %): the {d.measure} measure "
+            "is not Euclidean here; consider correction='lingoes' or 'cailliez', or a "
+            "Euclidean measure."]
+    if n > 1 and k == 0:
+        notes = list(notes) + ["no axis has a positive eigenvalue: all samples coincide."]
+    provenance = dict(provenance, n_axes=k)
+    return Ordination(
+        method="PCoA", scores=pd.DataFrame(scores, index=labels, columns=names[:k]),
+        eigenvalues=eig, explained=explained,
+        scaling="principal coordinates (distances between scores approximate the "
+                "dissimilarities)",
+        total_inertia=float(total), negative_share=negative_share,
+        eigenvalues_complete=complete, provenance=provenance, notes=tuple(notes))
+
+
+def _require_design(samples, n_expected: int, labels: pd.Index) -> pd.DataFrame:
+    """The sample table aligned to ``labels`` (by label when they match, else by position)."""
+    from .design import as_samples
+    frame = as_samples(samples)
+    idx = pd.Index([str(x) for x in frame.index])
+    if len(frame) != n_expected:
+        raise DesignError(f"the sample table has {len(frame)} rows but there are {n_expected} "
+                          "samples.")
+    if set(idx) == set(labels):
+        return frame.set_axis(idx).loc[list(labels)]
+    raise DesignError("the sample table's labels do not match the samples; e.g. "
+                      f"{[x for x in labels if x not in set(idx)][:5]} are missing from it.")

@@ -279,3 +279,52 @@ def test_docstring_examples_run():
     for mod in (dispersion, inference, permutation, size_tests):
         result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
         assert result.failed == 0, mod.__name__
+
+
+def test_feature_path_needs_no_n_by_n_matrix():
+    # with a memory limit below one n x n matrix, the feature path still runs and the
+    # distance path refuses with TooLargeError (checked before allocating)
+    from tallyform.core.errors import TooLargeError
+    from tallyform.core.memory import set_memory_limit
+    rng = np.random.default_rng(6)
+    n = 800
+    f = rng.normal(size=(n, 5))
+    labels = [f"s{i}" for i in range(n)]
+    frame = pd.DataFrame({"g": np.tile(["a", "b", "c", "d"], n // 4)}, index=labels)
+    feat = Dissimilarity.from_features(f, labels, measure="euclidean")
+    set_memory_limit(n * n * 8 // 2)
+    try:
+        res = permanova(feat, frame, ["g"], n_permutations=99, rng=1)
+        with pytest.raises(TooLargeError):
+            permanova(Dissimilarity(pdist(f), labels, measure="euclidean"), frame, ["g"],
+                      n_permutations=99, rng=1)
+    finally:
+        set_memory_limit(None)
+    assert res.table.loc["g", "df"] == 3
+
+
+def test_property_relabelling_samples_changes_nothing():
+    # property (hypothesis): presenting the samples in another order, in both the
+    # dissimilarity and the sample table, leaves the sums of squares and F unchanged
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    @settings(max_examples=25, deadline=None)
+    @given(st.integers(0, 10_000), st.integers(6, 14))
+    def check(seed, n):
+        rng = np.random.default_rng(seed)
+        y = rng.normal(size=(n, 3))
+        g = np.array(["a", "b"] * n)[:n]
+        x = rng.normal(size=n)
+        labels = [f"s{i}" for i in range(n)]
+        frame = pd.DataFrame({"g": g, "x": x}, index=labels)
+        order = rng.permutation(n)
+        d1 = Dissimilarity(pdist(y, "cityblock"), labels, measure="custom")
+        d2 = Dissimilarity(pdist(y[order], "cityblock"), [labels[i] for i in order],
+                           measure="custom")
+        t1 = permanova(d1, frame, ["x", "g"], n_permutations=0).table
+        t2 = permanova(d2, frame, ["x", "g"], n_permutations=0).table
+        cols = ["df", "ss", "pseudo_f", "r2"]
+        pd.testing.assert_frame_equal(t1[cols], t2[cols], rtol=1e-9)
+
+    check()

@@ -15,14 +15,30 @@ from .core.nmds import nmds
 from .core.ordination import Ordination, pcoa
 from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
-from .core.size_tests import size_test
+from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
+from .core.measures import MEASURES, Measure, get_measure
+from .core.size_tests import compare_groups, size_test
 from .core.table import CommunityTable
+from .core.transforms import (TRANSFORMS, Chord, Clr, Hellinger, Identity, Log1p, Power,
+                              Presence, Profile, Transform, Wisconsin, get_transform)
 
 __version__ = "0.1.0"
+
+
+def __getattr__(name):
+    # figures and the dashboard are imported on first use, so `import tallyform` stays light
+    if name == "plots":
+        from .render import plots
+        return plots
+    raise AttributeError(f"module 'tallyform' has no attribute {name!r}")
 
 __all__ = [
     "CommunityTable", "read_counts", "read_samples", "read_long", "read_darwin_core",
     "demo", "demo_names", "simulate_community", "errors", "InputError", "DesignError",
-    "TooLargeError", "__version__", "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination",
-    "permanova", "pairwise_permanova", "dispersion_test", "size_test",
+    "TooLargeError", "__version__",
+    "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination",
+    "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",
+    "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
+    "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
+    "permanova", "pairwise_permanova", "dispersion_test", "size_test", "compare_groups",
 ]

@@ -16,7 +16,7 @@ import pandas as pd
 from .errors import InputError
 from .memory import check_memory
 
-__all__ = ["Dissimilarity", "condensed_index"]
+__all__ = ["Dissimilarity", "condensed_index", "dissimilarity", "feature_matrix"]
 
 
 def condensed_index(n: int, i: np.ndarray, j: np.ndarray) -> np.ndarray:
@@ -166,7 +166,8 @@ class Dissimilarity:
                          alternatives="Work from the feature matrix (ordination with dims=..., "
                                       "PERMANOVA) or use dtype='float32'.")
             from .kernels import euclidean_condensed
-            c = np.asarray(euclidean_condensed(self._features), dtype=self._dtype)
+            c = np.asarray(euclidean_condensed(self._features, dtype=self._dtype),
+                           dtype=self._dtype)
             c.setflags(write=False)
             self._condensed = c
         return self._condensed
@@ -260,3 +261,182 @@ def _pair_of(n: int, k: int) -> tuple[int, int]:
     i = int(n - 2 - np.floor(np.sqrt(-8 * k + 4 * n * (n - 1) - 7) / 2 - 0.5))
     j = int(k + i + 1 - n * (n - 1) // 2 + (n - i) * ((n - i) - 1) // 2)
     return i, j
+
+
+# ====================================================================== computing from data
+_DTYPES = {"float64": np.float64, "float32": np.float32}
+
+
+def _resolve_dtype(dtype) -> np.dtype:
+    try:
+        dt = np.dtype(dtype)
+    except TypeError:
+        dt = None
+    if dt is None or dt.name not in _DTYPES:
+        raise InputError(f"`dtype` must be 'float64' or 'float32'; got {dtype!r}.")
+    return dt
+
+
+def _prepare(data, measure, transform, params: dict, dtype):
+    """Validate everything, then transform: (table, measure record, transform, x, context)."""
+    from .measures import _Context, get_measure
+    from .table import CommunityTable
+    from .transforms import _listing, get_transform
+
+    rec = get_measure(measure)
+    unknown = sorted(set(params) - set(rec.options))
+    if unknown:
+        allowed = sorted(rec.options) or "none"
+        raise InputError(f"measure {rec.name!r} has no option(s) {unknown}; its options are: "
+                         f"{allowed}.")
+    tr = get_transform(transform)
+    tab = data if isinstance(data, CommunityTable) else CommunityTable(data, empty="keep")
+    labels = tab.sample_labels
+    x = tr.apply(tab.values, labels=labels)
+    if rec.nonnegative and np.any(x < 0):
+        raise InputError(f"the {rec.label} measure needs values >= 0, but the transformation "
+                         f"{tr.name!r} gives negative values.",
+                         hint="Use a measure defined for any real values (euclidean, "
+                              "manhattan, canberra, gower) after this transformation.")
+    empty = np.flatnonzero(~(x != 0).any(axis=1))
+    notes: list[str] = []
+    if empty.size:
+        names = [str(labels[i]) for i in empty]
+        if rec.empty_samples == "error":
+            raise InputError(
+                f"the {rec.label} measure is undefined for samples with nothing in them; "
+                f"{len(names)} sample(s) are all 0 after the transformation {tr.name!r}: "
+                f"{_listing(names)}.",
+                hint="Remove them (CommunityTable(..., empty='drop')) or use a measure "
+                     "defined for empty samples: euclidean, manhattan, canberra, gower.")
+        notes.append(f"{len(names)} sample(s) are all 0 ({_listing(names)}); {rec.label} is "
+                     "defined for them, but they have no composition to compare.")
+    if tr.name.startswith("clr(pseudocount") and np.any(tab.values == 0):
+        notes.append("clr with a fixed pseudocount: the pseudocount is a larger share of a "
+                     "small sample than of a large one, so sample size leaks into the values.")
+    ctx = _Context(labels, tab.taxon_labels, dict(params), dtype)
+    ctx.notes.extend(notes)
+    return tab, rec, tr, x, ctx
+
+
+def _properties(rec, tr, ctx) -> dict:
+    size_free = bool(rec.size_free or tr.removes_size)
+    exact = ctx.properties.get("size_free_exact", rec.size_free_exact)
+    exact = bool((rec.size_free and exact) or (tr.removes_size and tr.exact))
+    return {"metric": rec.metric, "euclidean": rec.euclidean, "size_free": size_free,
+            "size_free_exact": exact and size_free}
+
+
+def dissimilarity(data, measure, *, transform=None, dtype="float64", **params) -> Dissimilarity:
+    """Dissimilarities between all pairs of samples, after an optional transformation.
+
+    Parameters
+    ----------
+    data : CommunityTable, DataFrame or array_like, shape (n_samples, n_taxa)
+        Abundances (a DataFrame or array is read as a table that keeps empty samples and
+        taxa, so that the measure can say whether it is defined for them).
+    measure : str or Measure
+        A key of :data:`tallyform.MEASURES`: ``'euclidean'``, ``'manhattan'``,
+        ``'bray_curtis'``, ``'chi_square'``, ``'hellinger'``, ``'chord'``, ``'aitchison'``,
+        ``'jaccard'``, ``'quantitative_jaccard'``, ``'sorensen'``, ``'kulczynski'``,
+        ``'canberra'``, ``'morisita_horn'``, ``'jensen_shannon'``, ``'gower'``.
+    transform : None, str or Transform, default None
+        Applied to the abundances before the measure (see :func:`get_transform`), e.g.
+        ``'sqrt'``, ``'fourth_root'``, ``tly.Power(0.3)``, ``'profile'``.
+    dtype : {'float64', 'float32'}, default 'float64'
+        Storage type of the condensed distances (float32 halves memory).
+    **params
+        Options of the measure: ``aitchison``: ``zeros`` ('multiplicative', 'pseudocount',
+        'error'), ``pseudocount``, ``delta``; ``chi_square``: ``column_masses`` (one positive
+        weight per taxon; default the column masses of the table).
+
+    Returns
+    -------
+    Dissimilarity
+        Condensed distances in scipy order with labels, ``measure``, ``transform``
+        (canonical name), ``params`` (every option used), ``properties`` (``metric``,
+        ``euclidean``, ``size_free``, ``size_free_exact``) and ``notes``. For Euclidean,
+        Hellinger, chord, chi-square and Aitchison it also carries ``features``; its
+        distances are then computed on first use.
+
+    Raises
+    ------
+    InputError
+        Unknown measure, transform or option; negative values where the measure needs
+        values >= 0; a sample that is empty (all 0) for a measure undefined on it; zeros
+        under ``zeros='error'``; a taxon with total 0 for chi-square. Each names the samples
+        or taxa concerned.
+    TooLargeError
+        The condensed vector would exceed the memory limit.
+
+    Notes
+    -----
+    Euclidean-family distances are computed from the features in the Gram form on BLAS,
+    others by compiled loops (numba, cached; numpy when numba is missing). See
+    :data:`tallyform.MEASURES` for each formula, the double-zero behaviour and references.
+    The chi-square distance here is between profiles, sqrt(sum_j (a_xj - a_yj)^2 / c_j);
+    some texts multiply it by sqrt(N), N the grand total, which rescales all distances.
+    Gower's range-standardised measure leaves out taxa whose range is 0 (the same value in
+    every sample: |x - y| / range is 0 / 0 there) and says so in ``notes``. Jensen-Shannon is
+    Euclidean-embeddable (Fuglede & Topsoe 2004) but has no finite feature matrix, so its
+    ``features`` is None. Measures undefined for an empty sample raise InputError; Euclidean,
+    Manhattan, Canberra and Gower are defined for it and add a note.
+
+    References
+    ----------
+    Legendre, P. & Legendre, L. (2012). Numerical Ecology, 3rd ed., ch. 7. Elsevier.
+
+    Examples
+    --------
+    >>> d = dissimilarity([[1, 2, 3, 4, 5], [2, 4, 6, 8, 10]], "bray_curtis")
+    >>> round(float(d.condensed[0]), 6)
+    0.333333
+    >>> float(dissimilarity([[1, 2, 3, 4, 5], [2, 4, 6, 8, 10]], "hellinger").condensed[0])
+    0.0
+    """
+    dt = _resolve_dtype(dtype)
+    tab, rec, tr, x, ctx = _prepare(data, measure, transform, params, dt)
+    n = x.shape[0]
+    kw = dict(measure=rec.name, transform=tr.name, dtype=dt)
+    if rec.features is not None:
+        feats = rec.features(x, ctx)
+        cond = None
+    else:
+        check_memory(n * (n - 1) / 2 * dt.itemsize,
+                     f"the condensed {rec.label} dissimilarities of {n} samples",
+                     alternatives="Use dtype='float32', a measure with a feature matrix "
+                                  "(hellinger, chi_square, chord, aitchison, euclidean), or a "
+                                  "subset of the samples.")
+        cond = rec.pairwise(x, ctx)
+        feats = None
+        if not np.all(np.isfinite(cond)):   # never let a NaN leave: name the pair
+            bad = int(np.flatnonzero(~np.isfinite(cond))[0])
+            i, j = _pair_of(n, bad)
+            raise InputError(f"the {rec.label} dissimilarity between {tab.sample_labels[i]!r} "
+                             f"and {tab.sample_labels[j]!r} is undefined for these data.")
+    opts = {k: ctx.params.get(k, v) for k, v in rec.options.items()}
+    opts.update(ctx.record)
+    return Dissimilarity(cond, tab.sample_labels, features=feats, params=opts,
+                         properties=_properties(rec, tr, ctx), notes=tuple(ctx.notes), **kw)
+
+
+def feature_matrix(data, measure, *, transform=None, **params) -> np.ndarray | None:
+    """The n x q matrix whose row-to-row Euclidean distances are the measure, or None.
+
+    Defined for the Euclidean-family measures (Euclidean, Hellinger, chord, chi-square,
+    Aitchison); O(n p) time and memory, no distances formed. Options and errors as in
+    :func:`dissimilarity`.
+
+    Examples
+    --------
+    >>> feature_matrix([[1, 3], [4, 0]], "hellinger").round(4)
+    array([[0.5  , 0.866],
+           [1.   , 0.   ]])
+    >>> feature_matrix([[1, 3], [4, 0]], "bray_curtis") is None
+    True
+    """
+    _, rec, _, x, ctx = _prepare(data, measure, transform, params, np.dtype(np.float64))
+    if rec.features is None:
+        return None
+    f = np.array(rec.features(x, ctx), dtype=np.float64, copy=True)
+    return f

@@ -1,12 +1,226 @@
-"""Low-level distance kernels (the hot loops). Pure functions on float64 arrays."""
+"""Low-level distance kernels (the hot loops). Pure functions on float64 arrays.
+
+Every kernel returns the condensed vector of all pairs in scipy order, as float64 or float32.
+Two implementations give the same numbers (to rounding): numba loops compiled on first use
+(parallel over rows, cached on disk) and a numpy fallback used when numba is missing, or
+when the environment variable ``TALLYFORM_NUMBA=0`` is set, or after ``use_numba(False)``.
+In automatic mode small problems (fewer than about a million pair-by-taxon operations) take
+the numpy path too: it is as fast there and needs no compilation. Calls into the compiled
+parallel loops are serialised by a lock, so that threads (a dashboard's background worker)
+never launch two parallel regions at once.
+
+Euclidean distances use the Gram form d^2 = |x|^2 + |y|^2 - 2 x.y on BLAS, in blocks of rows
+(no n x n temporary), on column-centred features (distances do not change, cancellation
+shrinks); pairs where cancellation could still cost precision (d^2 below 1 % of
+|x|^2 + |y|^2) are recomputed directly, and tiny negative squares are clamped to 0.
+"""
 from __future__ import annotations
 
+import os
+import threading
+
 import numpy as np
-from scipy.spatial.distance import pdist
 
-__all__ = ["euclidean_condensed"]
+__all__ = ["euclidean_condensed", "sqeuclidean_condensed", "abs_condensed",
+           "canberra_condensed", "jensen_shannon_condensed", "use_numba", "numba_enabled",
+           "RAW", "RATIO", "RUZICKA", "KULCZYNSKI", "SQRT", "SCALE"]
+
+# post-processing modes for the per-pair sums (same values as in _numba_kernels)
+RAW, RATIO, RUZICKA, KULCZYNSKI, SQRT, SCALE = 0, 1, 2, 3, 4, 5
+_GRAM_TOL = 1e-2          # recompute pairs with d^2 < _GRAM_TOL * (|x|^2 + |y|^2)
+_BLOCK_BYTES = 32e6       # size of one block of the Gram matrix
+_SMALL = 1e6              # pair-by-taxon operations below which numpy is used (automatic mode)
+
+_state: dict = {"wanted": None, "module": None, "failed": False}
+_LOCK = threading.Lock()
 
 
-def euclidean_condensed(features: np.ndarray) -> np.ndarray:
-    """Condensed Euclidean distances between the rows of ``features``."""
-    return pdist(np.asarray(features, dtype=np.float64), "euclidean")
+def use_numba(flag: bool | None) -> None:
+    """Force (True), forbid (False) or reset to automatic (None) the numba kernels."""
+    _state["wanted"] = flag
+
+
+def _numba(work: float = np.inf):
+    """The compiled-kernel module, or None (numpy path) for a problem of ``work`` operations."""
+    wanted = _state["wanted"]
+    if wanted is None:
+        wanted = os.environ.get("TALLYFORM_NUMBA", "1").strip().lower() not in ("0", "false",
+                                                                                 "no", "off")
+        wanted = wanted and work >= _SMALL
+    if not wanted or _state["failed"]:
+        return None
+    if _state["module"] is None:
+        try:
+            from . import _numba_kernels
+        except Exception:  # numba absent or broken: the numpy path gives the same numbers
+            _state["failed"] = True
+            return None
+        _state["module"] = _numba_kernels
+    return _state["module"]
+
+
+def numba_enabled() -> bool:
+    """True when the numba kernels are in use (for problems that are not tiny)."""
+    return _numba() is not None
+
+
+def _prepare(x) -> np.ndarray:
+    return np.ascontiguousarray(x, dtype=np.float64)
+
+
+def _work(x) -> float:
+    n, p = x.shape
+    return n * (n - 1) / 2 * max(p, 1)
+
+
+def _empty_out(n: int, dtype) -> np.ndarray:
+    return np.empty(n * (n - 1) // 2, dtype=np.dtype(dtype))
+
+
+def _combine(mode: int, s: np.ndarray, ti, tj, scale: float) -> np.ndarray:
+    if mode == RAW:
+        return s
+    if mode == RATIO:
+        return s / (ti + tj)
+    if mode == RUZICKA:
+        return 2.0 * s / (ti + tj + s)
+    if mode == KULCZYNSKI:
+        return np.maximum((s * (ti + tj) - (ti - tj) ** 2) / (4.0 * ti * tj), 0.0)
+    if mode == SQRT:
+        return np.sqrt(s)
+    return s * scale
+
+
+def _rowwise(x: np.ndarray, out: np.ndarray, pair_sums, mode: int, t, scale: float):
+    """numpy fallback: one row against all later rows at a time."""
+    n = x.shape[0]
+    pos = 0
+    for i in range(n - 1):
+        s = pair_sums(x[i], x[i + 1:])
+        k = n - 1 - i
+        out[pos:pos + k] = _combine(mode, s, t[i], t[i + 1:], scale)
+        pos += k
+    return out
+
+
+def _totals(t, n):
+    return np.zeros(n) if t is None else np.ascontiguousarray(t, dtype=np.float64)
+
+
+def abs_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
+                  dtype=np.float64) -> np.ndarray:
+    """Per-pair s = sum_k |x_ik - x_jk|, post-processed by ``mode``.
+
+    Modes: RAW s (Manhattan); RATIO s / (t_i + t_j) (Bray-Curtis with t the totals);
+    RUZICKA 2 s / (t_i + t_j + s) (= 1 - sum min / sum max); KULCZYNSKI
+    (s (t_i + t_j) - (t_i - t_j)^2) / (4 t_i t_j) (= 1 - (m / t_i + m / t_j) / 2, m the sum of
+    minima, using 2 m = t_i + t_j - s); SCALE s * scale.
+    """
+    x = _prepare(x)
+    n = x.shape[0]
+    t = _totals(t, n)
+    out = _empty_out(n, dtype)
+    nbk = _numba(_work(x))
+    if nbk is not None:
+        with _LOCK:
+            return nbk.abs_condensed(x, out, mode, t, float(scale))
+    return _rowwise(x, out, lambda a, b: np.abs(b - a).sum(axis=1), mode, t, scale)
+
+
+def sqeuclidean_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
+                          dtype=np.float64) -> np.ndarray:
+    """Per-pair s = sum_k (x_ik - x_jk)^2 computed directly (no cancellation), then ``mode``
+    (RATIO with t = squared norms of profiles gives Morisita-Horn; SQRT the Euclidean)."""
+    x = _prepare(x)
+    n = x.shape[0]
+    t = _totals(t, n)
+    out = _empty_out(n, dtype)
+    nbk = _numba(_work(x))
+    if nbk is not None:
+        with _LOCK:
+            return nbk.sq_condensed(x, out, mode, t, float(scale))
+
+    def sums(a, b):
+        d = b - a
+        return np.einsum("ij,ij->i", d, d)
+    return _rowwise(x, out, sums, mode, t, scale)
+
+
+def canberra_condensed(x, *, dtype=np.float64) -> np.ndarray:
+    """Canberra: sum_k |x_ik - x_jk| / (|x_ik| + |x_jk|), terms with both 0 omitted."""
+    x = _prepare(x)
+    n = x.shape[0]
+    out = _empty_out(n, dtype)
+    nbk = _numba(_work(x))
+    if nbk is not None:
+        with _LOCK:
+            return nbk.canberra_condensed(x, out)
+
+    def sums(a, b):
+        den = np.abs(a) + np.abs(b)
+        return (np.abs(b - a) / np.where(den > 0, den, 1.0)).sum(axis=1)
+    return _rowwise(x, out, sums, RAW, np.zeros(n), 1.0)
+
+
+def jensen_shannon_condensed(profiles, *, dtype=np.float64) -> np.ndarray:
+    """Jensen-Shannon distance (square root of the divergence, natural log) between rows
+    that each sum to 1, in the form sum_k [a log(a / m) + b log(b / m)] / 2, m = (a + b) / 2,
+    which stays exact for near-identical rows."""
+    p = _prepare(profiles)
+    n = p.shape[0]
+    out = _empty_out(n, dtype)
+    nbk = _numba(_work(p))
+    if nbk is not None:
+        with _LOCK:
+            return nbk.js_condensed(p, out)
+
+    def sums(a, b):
+        m = 0.5 * (a + b)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ta = np.where(a > 0, a * np.log(np.where(a > 0, a, 1.0) / m), 0.0)
+            tb = np.where(b > 0, b * np.log(np.where(b > 0, b, 1.0) / m), 0.0)
+        s = 0.5 * (ta + tb).sum(axis=1)
+        return np.sqrt(np.maximum(s, 0.0))
+    return _rowwise(p, out, sums, RAW, np.zeros(n), 1.0)
+
+
+def euclidean_condensed(features, *, dtype=np.float64) -> np.ndarray:
+    """Condensed Euclidean distances between the rows of ``features`` (Gram form on BLAS).
+
+    Parameters
+    ----------
+    features : array_like, shape (n, q)
+    dtype : float64 or float32
+        Type of the returned vector (the arithmetic is always float64).
+    """
+    f = _prepare(features)
+    n, q = f.shape
+    out = _empty_out(n, dtype)
+    if n < 2:
+        return out
+    f = f - f.mean(axis=0)                     # translation leaves distances unchanged
+    sq = np.einsum("ij,ij->i", f, f)
+    block = int(max(16, min(256, _BLOCK_BYTES // (8 * n))))
+    nbk = _numba(_work(f))
+    for i0 in range(0, n - 1, block):
+        i1 = min(i0 + block, n - 1)
+        g = f[i0:i1] @ f[i0:].T                # (b, n - i0): rows i0..i1-1 against j >= i0
+        if nbk is not None:
+            nbk.gram_fill(g, i0, sq, f, out, _GRAM_TOL)
+        else:
+            _gram_fill_numpy(g, i0, sq, f, out)
+    return out
+
+
+def _gram_fill_numpy(g, i0, sq, f, out):
+    n = f.shape[0]
+    for r in range(g.shape[0]):
+        i = i0 + r
+        j0 = i + 1
+        d2 = sq[i] + sq[j0:] - 2.0 * g[r, j0 - i0:]
+        redo = np.flatnonzero(d2 < _GRAM_TOL * (sq[i] + sq[j0:]))
+        if redo.size:
+            d = f[j0 + redo] - f[i]
+            d2[redo] = np.einsum("ij,ij->i", d, d)
+        start = i * n - i * (i + 1) // 2
+        out[start:start + n - j0] = np.sqrt(np.maximum(d2, 0.0))

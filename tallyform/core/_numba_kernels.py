@@ -1,0 +1,249 @@
+"""numba versions of the hot loops (imported lazily by :mod:`tallyform.core.kernels`).
+
+Never imported by ``import tallyform``. Each public kernel writes the condensed vector of all
+pairs (scipy order) into ``out`` (float64 or float32). Rows are handled four at a time so that
+each partner row is read once for four sums; blocks of rows are paired from both ends of the
+triangle (block t with block nb - 1 - t) so the two halves of a parallel loop get equal work.
+Compiled on first use and cached on disk (``cache=True``).
+"""
+from __future__ import annotations
+
+import numba as nb
+import numpy as np
+
+# No 'afn' (approximate functions): logarithms stay exact. No NaN/inf reach these loops
+# (inputs are checked finite), so 'nnan'/'ninf' are safe and let min/abs/select vectorise.
+_FM = {"reassoc", "nsz", "contract", "arcp", "nnan", "ninf"}
+
+# post-processing of a per-pair sum s, given per-row values t_i, t_j (see kernels.py)
+RAW, RATIO, RUZICKA, KULCZYNSKI, SQRT, SCALE = 0, 1, 2, 3, 4, 5
+
+
+@nb.njit(inline="always")
+def _start(i, n):
+    """Condensed position of pair (i, j) is _start(i, n) + j."""
+    return i * n - i * (i + 1) // 2 - i - 1
+
+
+@nb.njit(inline="always", fastmath=_FM)
+def _combine(mode, s, ti, tj, scale):
+    if mode == RAW:
+        return s
+    if mode == RATIO:          # s / (t_i + t_j): Bray-Curtis, Sorensen, Morisita-Horn
+        return s / (ti + tj)
+    if mode == RUZICKA:        # 2 s / (t_i + t_j + s): quantitative Jaccard, Jaccard
+        return 2.0 * s / (ti + tj + s)
+    if mode == KULCZYNSKI:     # (s (t_i + t_j) - (t_i - t_j)^2) / (4 t_i t_j)
+        v = (s * (ti + tj) - (ti - tj) * (ti - tj)) / (4.0 * ti * tj)
+        return v if v > 0.0 else 0.0
+    if mode == SQRT:
+        return np.sqrt(s)
+    return s * scale            # SCALE: Gower
+
+
+@nb.njit(fastmath=_FM, cache=True)
+def _abs_rows(X, i, m, out, mode, t, scale):
+    """Sums of |x_ik - x_jk| for rows i..i+m-1 (m <= 4) against all j > i."""
+    n, p = X.shape
+    for j in range(i + 1, n):
+        s0 = 0.0
+        s1 = 0.0
+        s2 = 0.0
+        s3 = 0.0
+        if m == 4:
+            for k in range(p):
+                y = X[j, k]
+                s0 += abs(X[i, k] - y)
+                s1 += abs(X[i + 1, k] - y)
+                s2 += abs(X[i + 2, k] - y)
+                s3 += abs(X[i + 3, k] - y)
+        else:
+            for k in range(p):
+                s0 += abs(X[i, k] - X[j, k])
+        tj = t[j]
+        out[_start(i, n) + j] = _combine(mode, s0, t[i], tj, scale)
+        if m == 4:
+            if j > i + 1:
+                out[_start(i + 1, n) + j] = _combine(mode, s1, t[i + 1], tj, scale)
+            if j > i + 2:
+                out[_start(i + 2, n) + j] = _combine(mode, s2, t[i + 2], tj, scale)
+            if j > i + 3:
+                out[_start(i + 3, n) + j] = _combine(mode, s3, t[i + 3], tj, scale)
+
+
+@nb.njit(fastmath=_FM, cache=True)
+def _sq_rows(X, i, m, out, mode, t, scale):
+    """Sums of (x_ik - x_jk)^2 for rows i..i+m-1 against all j > i."""
+    n, p = X.shape
+    for j in range(i + 1, n):
+        s0 = 0.0
+        s1 = 0.0
+        s2 = 0.0
+        s3 = 0.0
+        if m == 4:
+            for k in range(p):
+                y = X[j, k]
+                d0 = X[i, k] - y
+                d1 = X[i + 1, k] - y
+                d2 = X[i + 2, k] - y
+                d3 = X[i + 3, k] - y
+                s0 += d0 * d0
+                s1 += d1 * d1
+                s2 += d2 * d2
+                s3 += d3 * d3
+        else:
+            for k in range(p):
+                d0 = X[i, k] - X[j, k]
+                s0 += d0 * d0
+        tj = t[j]
+        out[_start(i, n) + j] = _combine(mode, s0, t[i], tj, scale)
+        if m == 4:
+            if j > i + 1:
+                out[_start(i + 1, n) + j] = _combine(mode, s1, t[i + 1], tj, scale)
+            if j > i + 2:
+                out[_start(i + 2, n) + j] = _combine(mode, s2, t[i + 2], tj, scale)
+            if j > i + 3:
+                out[_start(i + 3, n) + j] = _combine(mode, s3, t[i + 3], tj, scale)
+
+
+@nb.njit(fastmath=_FM, cache=True)
+def _canberra_rows(X, i, m, out):
+    """Canberra sums |x - y| / (|x| + |y|) (0 where both are 0) for rows i..i+m-1."""
+    n, p = X.shape
+    for j in range(i + 1, n):
+        s0 = 0.0
+        s1 = 0.0
+        s2 = 0.0
+        s3 = 0.0
+        if m == 4:
+            for k in range(p):
+                y = X[j, k]
+                ay = abs(y)
+                a = X[i, k]
+                d = abs(a) + ay
+                s0 += abs(a - y) / (d if d > 0.0 else 1.0)
+                a = X[i + 1, k]
+                d = abs(a) + ay
+                s1 += abs(a - y) / (d if d > 0.0 else 1.0)
+                a = X[i + 2, k]
+                d = abs(a) + ay
+                s2 += abs(a - y) / (d if d > 0.0 else 1.0)
+                a = X[i + 3, k]
+                d = abs(a) + ay
+                s3 += abs(a - y) / (d if d > 0.0 else 1.0)
+        else:
+            for k in range(p):
+                a = X[i, k]
+                y = X[j, k]
+                d = abs(a) + abs(y)
+                s0 += abs(a - y) / (d if d > 0.0 else 1.0)
+        out[_start(i, n) + j] = s0
+        if m == 4:
+            if j > i + 1:
+                out[_start(i + 1, n) + j] = s1
+            if j > i + 2:
+                out[_start(i + 2, n) + j] = s2
+            if j > i + 3:
+                out[_start(i + 3, n) + j] = s3
+
+
+@nb.njit(fastmath=_FM, cache=True)
+def _js_row(P, i, out):
+    """Jensen-Shannon distances (natural log) from profile row i to every j > i."""
+    n, p = P.shape
+    base = _start(i, n)
+    for j in range(i + 1, n):
+        s = 0.0
+        for k in range(p):
+            a = P[i, k]
+            b = P[j, k]
+            h = 0.5 * (a + b)
+            if a > 0.0:
+                s += a * np.log(a / h)
+            if b > 0.0:
+                s += b * np.log(b / h)
+        s *= 0.5
+        out[base + j] = np.sqrt(s) if s > 0.0 else 0.0
+
+
+@nb.njit(parallel=True, cache=True)
+def abs_condensed(X, out, mode, t, scale):
+    n = X.shape[0]
+    nblk = n // 4
+    for b in nb.prange((nblk + 1) // 2):
+        _abs_rows(X, 4 * b, 4, out, mode, t, scale)
+        c = nblk - 1 - b
+        if c != b:
+            _abs_rows(X, 4 * c, 4, out, mode, t, scale)
+    for i in range(4 * nblk, n):
+        _abs_rows(X, i, 1, out, mode, t, scale)
+    return out
+
+
+@nb.njit(parallel=True, cache=True)
+def sq_condensed(X, out, mode, t, scale):
+    n = X.shape[0]
+    nblk = n // 4
+    for b in nb.prange((nblk + 1) // 2):
+        _sq_rows(X, 4 * b, 4, out, mode, t, scale)
+        c = nblk - 1 - b
+        if c != b:
+            _sq_rows(X, 4 * c, 4, out, mode, t, scale)
+    for i in range(4 * nblk, n):
+        _sq_rows(X, i, 1, out, mode, t, scale)
+    return out
+
+
+@nb.njit(parallel=True, cache=True)
+def canberra_condensed(X, out):
+    n = X.shape[0]
+    nblk = n // 4
+    for b in nb.prange((nblk + 1) // 2):
+        _canberra_rows(X, 4 * b, 4, out)
+        c = nblk - 1 - b
+        if c != b:
+            _canberra_rows(X, 4 * c, 4, out)
+    for i in range(4 * nblk, n):
+        _canberra_rows(X, i, 1, out)
+    return out
+
+
+@nb.njit(parallel=True, cache=True)
+def js_condensed(P, out):
+    n = P.shape[0]
+    for b in nb.prange((n + 1) // 2):
+        _js_row(P, b, out)
+        c = n - 1 - b
+        if c != b:
+            _js_row(P, c, out)
+    return out
+
+
+@nb.njit(fastmath=_FM, cache=True)
+def gram_fill(G, i0, sq, F, out, tol):
+    """Distances of rows i0..i0+b-1 to every j > i from a block of the Gram matrix.
+
+    d^2 = sq_i + sq_j - 2 G_ij. Where d^2 < tol * (sq_i + sq_j) cancellation could cost
+    precision, the pair is recomputed directly from the rows of F. Deliberately serial: a
+    parallel loop here would fight the BLAS threads that computed G.
+    """
+    n, p = F.shape
+    b = G.shape[0]
+    for r in range(b):
+        i = i0 + r
+        base = _start(i, n)
+        si = sq[i]
+        suspect = 0
+        for j in range(i + 1, n):          # vectorised pass: no inner loop, no branch
+            d2 = si + sq[j] - 2.0 * G[r, j - i0]
+            suspect += d2 < tol * (si + sq[j])
+            out[base + j] = np.sqrt(d2 if d2 > 0.0 else 0.0)
+        if suspect:                        # rare: recompute the doubtful pairs directly
+            for j in range(i + 1, n):
+                d2 = si + sq[j] - 2.0 * G[r, j - i0]
+                if d2 < tol * (si + sq[j]):
+                    d2 = 0.0
+                    for k in range(p):
+                        d = F[i, k] - F[j, k]
+                        d2 += d * d
+                    out[base + j] = np.sqrt(d2)

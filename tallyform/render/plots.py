@@ -1,0 +1,8 @@
+"""Figures: pure functions, result object in, new plotly Figure out (no statistics here).
+
+The functions live in topic modules and are gathered here, so ``tly.plots.<name>`` and
+``from tallyform.render.plots import <name>`` always work.
+"""
+from __future__ import annotations
+
+from .style import FRACTION_COLOURS, OKABE_ITO, base_layout, group_colours  # noqa: F401

@@ -285,8 +285,9 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
     measure = "total" + (f" per {e_name}" if e_name else "")
     notes: list[str] = []
     if e_name and effort is None:
-        notes.append(f"Totals were divided by the table's sampling effort {e_name!r}; pass "
-                     "effort=False to compare raw totals.")
+        notes.append(f"The table's sampling effort {e_name!r} was used ("
+                     + ("log effort as an offset" if method == "negbin" else
+                        "totals divided by it") + "); pass effort=False to compare raw totals.")
     positive = (size > 0).all()
     if method in ("anova", "welch", "permutation") and not positive:
         who = list(tab.sample_labels[size <= 0])[:8]
@@ -410,6 +411,13 @@ class ComparisonResult(ResultMixin):
             "</div>", f"<p>{html.escape(self.reading)}</p></div>", 1)
 
 
+_MEASURE_NAMES = {"bray_curtis": "Bray-Curtis", "chi_square": "chi-square",
+                  "hellinger": "Hellinger", "aitchison": "Aitchison",
+                  "jensen_shannon": "Jensen-Shannon", "morisita_horn": "Morisita-Horn",
+                  "kulczynski": "Kulczynski", "sorensen": "Sorensen", "jaccard": "Jaccard",
+                  "canberra": "Canberra", "euclidean": "Euclidean"}
+
+
 def _p(p: float) -> str:
     return "p < 0.001" if p < 0.001 else f"p = {p:.3g}"
 
@@ -437,27 +445,37 @@ def reading_text(size: SizeTestResult, shape_p: float, spread_p: float, *, group
         out.append(f"No difference in total abundance between the levels of {group!r} was "
                    f"detected ({size.method}, {_p(size.pvalue)}); this does not show that "
                    "the totals are equal.")
-    what = f"composition (relative abundances, {measure.replace('_', '-')} distance)"
-    if sh and not sp:
-        out.append(f"The groups differ in {what} (PERMANOVA, {_p(shape_p)}), and no "
-                   f"difference in spread was detected ({_p(spread_p)}), so a shift in "
-                   "composition is the simplest reading; the dispersion test has little "
-                   "power with few samples per group.")
-    elif sh and sp:
-        out.append(f"The groups differ in composition or in spread, or both (PERMANOVA "
-                   f"{_p(shape_p)}; dispersion test {_p(spread_p)}): with unequal spreads, "
-                   "PERMANOVA cannot tell a shift in composition from a difference in "
-                   "variability.")
-    elif sp:
-        out.append(f"No shift in composition was detected (PERMANOVA, {_p(shape_p)}), but "
-                   f"the spread of compositions differs between groups ({_p(spread_p)}).")
+    name = _MEASURE_NAMES.get(measure, measure.replace("_", "-"))
+    if size_free:
+        noun = "composition"
+        how = f"PERMANOVA on {name} distances between relative abundances"
+        shift = "a shift in composition"
     else:
-        out.append(f"No difference in {what} or in its spread was detected (PERMANOVA "
-                   f"{_p(shape_p)}; dispersion test {_p(spread_p)}); this is not evidence "
-                   "that the compositions are the same.")
+        noun = f"overall {name} dissimilarity"
+        how = f"PERMANOVA on {name}"
+        shift = "a shift of the group centroids"
+    if sh and not sp:
+        out.append(f"The groups differ in {noun} ({how}, {_p(shape_p)}), and no difference "
+                   f"in spread was detected (dispersion test, {_p(spread_p)}), so {shift} is "
+                   "the simplest reading; the dispersion test has little power with few "
+                   "samples per group.")
+    elif sh and sp:
+        out.append(f"The groups differ in {noun} or in spread, or both ({how}, "
+                   f"{_p(shape_p)}; dispersion test, {_p(spread_p)}): with unequal spreads, "
+                   "PERMANOVA cannot tell a shift between groups from a difference in "
+                   "variability within them.")
+    elif sp:
+        out.append(f"No shift in {'composition' if size_free else noun} was detected "
+                   f"({how}, {_p(shape_p)}), but the spread within groups differs "
+                   f"(dispersion test, {_p(spread_p)}).")
+    else:
+        out.append(f"No difference in {noun} or in its spread was detected ({how}, "
+                   f"{_p(shape_p)}; dispersion test, {_p(spread_p)}); this is not evidence "
+                   "that the groups are the same.")
     if not size_free:
-        out.append(f"The {measure.replace('_', '-')} measure is not size-free, so the "
-                   "composition test also responds to differences in totals.")
+        out.append(f"The {name} measure is not size-free, so its test also responds to "
+                   "differences in totals; use a size-free measure (chi-square, Hellinger, "
+                   "Aitchison) to test composition alone.")
     if coarse:
         out.append("Few distinct permutations exist, so the permutation p-values are coarse.")
     out.append(f"Each test is read at alpha = {alpha:g}, without adjustment across the "

@@ -32,7 +32,7 @@ from scipy.spatial.distance import pdist
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from tallyform.core.dissimilarity import Dissimilarity  # noqa: E402
+from tallyform.core.dissimilarity import Dissimilarity, dissimilarity  # noqa: E402
 from tallyform.core.inference import permanova  # noqa: E402
 
 
@@ -79,7 +79,8 @@ def bench_distance(n, n_perm, repeats, loop_perms):
     rng = np.random.default_rng(1)
     x, groups = synthetic_counts(n, 40, rng)
     labels = [f"s{i}" for i in range(n)]
-    cond = pdist(x, "braycurtis")
+    cond = np.asarray(dissimilarity(x, "bray_curtis").condensed)
+    assert np.allclose(cond, pdist(x, "braycurtis"))
     info = pd.DataFrame({"group": np.array(["a", "b", "c"])[groups]}, index=labels)
 
     def ours():
@@ -113,10 +114,11 @@ def bench_distance(n, n_perm, repeats, loop_perms):
 def bench_features(n_big, n_small, p, n_perm, repeats):
     rng = np.random.default_rng(2)
     x, groups = synthetic_counts(n_big, p, rng)
-    hell = np.sqrt(x / x.sum(axis=1, keepdims=True))
     labels = [f"s{i}" for i in range(n_big)]
     info = pd.DataFrame({"group": np.array(["a", "b", "c"])[groups]}, index=labels)
-    d_feat = Dissimilarity.from_features(hell, labels, measure="hellinger")
+    d_feat = dissimilarity(pd.DataFrame(x, index=labels), "hellinger")
+    assert d_feat.has_features and d_feat.features.shape == (n_big, p)
+    hell = np.asarray(d_feat.features)
 
     def feat():
         return permanova(d_feat, info, "group", n_permutations=n_perm, rng=1)

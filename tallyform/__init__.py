@@ -8,6 +8,8 @@ from __future__ import annotations
 from . import errors
 from .core.errors import DesignError, InputError, TooLargeError
 from .core.constrained import ca, cca, db_rda, rda
+from .core.dispersion import dispersion_test
+from .core.inference import pairwise_permanova, permanova
 from .core.io import read_counts, read_darwin_core, read_long, read_samples
 from .core.nmds import nmds
 from .core.ordination import Ordination, pcoa
@@ -18,6 +20,7 @@ from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
 from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
 from .core.measures import MEASURES, Measure, get_measure
+from .core.size_tests import compare_groups, size_test
 from .core.table import CommunityTable
 from .core.transforms import (TRANSFORMS, Chord, Clr, Hellinger, Identity, Log1p, Power,
                               Presence, Profile, Transform, Wisconsin, get_transform)
@@ -41,4 +44,5 @@ __all__ = [
     "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
+    "permanova", "pairwise_permanova", "dispersion_test", "size_test", "compare_groups",
 ]

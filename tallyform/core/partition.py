@@ -479,7 +479,7 @@ def _fraction_tests(d, z, u, *, n_permutations, rng, progress, cancel) -> pd.Dat
                 progress(_s * total + done, 2 * total)
         res = permutation_f_test(d, full, reduced, n_permutations=n_permutations, rng=rng,
                                  progress=sub_progress, cancel=cancel)
-        rows[name] = {"statistic": res.statistic, "pvalue": res.pvalue, "df": res.df,
+        rows[name] = {"statistic": res.statistic, "pvalue": res.pvalue, "df": res.df[0],
                       "n_permutations": res.n_permutations}
         notes.extend(getattr(res, "notes", ()))
     out = pd.DataFrame.from_dict(rows, orient="index")

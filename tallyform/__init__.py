@@ -8,6 +8,7 @@ from __future__ import annotations
 from . import errors
 from .core.errors import DesignError, InputError, TooLargeError
 from .core.constrained import ca, cca, db_rda, rda
+from .core.contributions import TaxonContributions, taxon_contributions
 from .core.io import read_counts, read_darwin_core, read_long, read_samples
 from .core.nmds import nmds
 from .core.ordination import Ordination, pcoa
@@ -37,4 +38,5 @@ __all__ = [
     "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
+    "taxon_contributions", "TaxonContributions",
 ]

@@ -61,7 +61,7 @@ class TaxonContributions(ResultMixin):
         Bootstrap interval of ``total`` (NaN when no interval could be made, see ``notes``).
     noise : float or None
         Expected D^2 if the two groups had the same centroid: sum_j (s2_aj / n_a +
-        s2_bj / n_b) (exact split only, groups of 2 samples or more).
+        s2_bj / n_b), or its form for units (exact split only, groups of 2 units or more).
     shape : DataFrame
         One row per taxon, largest term first: ``term``, ``share_pct``, ``ci_low``,
         ``ci_high`` (bootstrap interval of ``share_pct``), ``cumulative_pct``, ``higher_in``
@@ -151,19 +151,25 @@ class TaxonContributions(ResultMixin):
 
     def _repr_html_(self) -> str:
         fmt = "{:.4g}".format
-        ref = self.size_reference
-        head = (f"<p><b>{html.escape(self._title())}</b><br>total = {self.total:.4g} "
-                f"(interval {self.total_ci[0]:.4g} to {self.total_ci[1]:.4g}); "
-                f"n = {html.escape(str(self.n))}; log2 ratio of totals ({html.escape(self.b)}"
-                f" / {html.escape(self.a)}) = {ref.get('log2_ratio', np.nan):.3g}</p>")
+        head = f"<p><b>{html.escape(self._title())}</b><br>{html.escape(self._summary())}</p>"
         shape = self.shape.head(15).to_html(float_format=fmt)
         size = self.size.head(15).to_html(float_format=fmt)
         return (f"<div>{head}<p>Shape (top 15 of {len(self.shape)})</p>{shape}"
                 f"<p>Size (top 15 of {len(self.size)})</p>{size}{self._notes_html()}</div>")
 
+    def _summary(self) -> str:
+        lo, hi = self.total_ci
+        ci = (f" ({self.level:.0%} interval {lo:.4g} to {hi:.4g})" if np.isfinite(lo)
+              else " (no interval)")
+        noise = f", noise level {self.noise:.4g}" if self.noise is not None else ""
+        ref = self.size_reference
+        n = ", ".join(f"{k}: {v}" for k, v in self.n.items())
+        return (f"total = {self.total:.4g}{ci}{noise}; samples {n}; log2 ratio of total "
+                f"abundance ({self.b} / {self.a}) = {ref['log2_ratio']:.3g}")
+
     def __str__(self) -> str:
         with pd.option_context("display.float_format", "{:.4g}".format, "display.width", 140):
-            text = (f"{self._title()}\ntotal = {self.total:.4g}\n"
+            text = (f"{self._title()}\n{self._summary()}\n"
                     f"{self.shape.head(15).to_string()}\n\nsize (b / a):\n"
                     f"{self.size.head(15).to_string()}")
         if self.notes:
@@ -172,14 +178,14 @@ class TaxonContributions(ResultMixin):
 
 
 # ============================================================================== helpers
-def _group_labels(tab: CommunityTable, group) -> pd.Series:
+def _group_labels(tab: CommunityTable, group, name: str = "group") -> pd.Series:
     if isinstance(group, (str, pd.Series)):
         return tab.group(group)
     values = np.asarray(group, dtype=object)
     if values.ndim != 1 or len(values) != tab.n_samples:
-        raise DesignError(f"`group` must be a column of the sample table or one label per "
+        raise DesignError(f"`{name}` must be a column of the sample table or one label per "
                           f"sample ({tab.n_samples}); got shape {values.shape}.")
-    return tab.group(pd.Series(values, index=tab.sample_labels, name="group"))
+    return tab.group(pd.Series(values, index=tab.sample_labels, name=name))
 
 
 def _check_int(name: str, value, low: int) -> int:
@@ -191,7 +197,7 @@ def _check_int(name: str, value, low: int) -> int:
 # ============================================================================== public
 def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", transform=None,
                         n_boot: int = 999, level: float = 0.95, pseudocount: float = 0.5,
-                        rng=None, progress=None, cancel=None,
+                        units=None, rng=None, progress=None, cancel=None,
                         **params) -> TaxonContributions:
     """Which taxa make the difference between groups ``a`` and ``b``, in shape and in size.
 
@@ -221,6 +227,12 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
         total, it cannot itself make taxa differ: under a pure size change every taxon keeps
         the total's ratio. 0 uses the raw means (a taxon absent from one group then gets an
         infinite ratio, listed in ``notes``).
+    units : str, Series or sequence, optional
+        The independent sampling units when samples are not independent (repeated visits of
+        one tank or site): a column of the sample table or one label per sample. The
+        bootstrap then draws units with replacement within each group, keeping a unit's
+        samples together, and ``noise`` is computed from unit totals. Default: every sample
+        is its own unit.
     rng : None, int or numpy.random.Generator
         Seed of the bootstrap (one stream for both sides: the same resamples).
     progress : callable(done, total), optional
@@ -263,8 +275,9 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
     centroid distance, and D^2 = mean_{i in a, k in b} d_ik^2 - (W_a + W_b) / 2 with W_g the
     mean of d^2 over all ordered pairs of group g (pairs of a sample with itself included).
     The expected value of term_j when the two centroids are equal is
-    ``noise_j = s2_aj / n_a + s2_bj / n_b``: shares of a D^2 not well above its noise mostly
-    describe sampling noise. Taxa absent from both groups are left out (and listed);
+    ``noise_j = s2_aj / n_a + s2_bj / n_b`` (with ``units``, the linearised variance of each
+    centroid from its unit totals): shares of a D^2 not well above its noise mostly describe
+    sampling noise. Taxa absent from both groups are left out (and listed);
     quantities that depend on several samples (chi-square column masses, Wisconsin maxima)
     are held at their observed values in the bootstrap.
 
@@ -312,6 +325,7 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
     # ------------------------------------------------------------------ validate
     tab = as_table(table)
     labels = _group_labels(tab, group)
+    unit_labels = None if units is None else _group_labels(tab, units, "units")
     gname = str(labels.name)
     a, b = str(a), str(b)
     levels = list(dict.fromkeys(labels))
@@ -369,20 +383,41 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
 
     # ------------------------------------------------------------------ compute
     notes: list[str] = []
-    boot = n_boot > 0 and min(na, nb) >= 2
+    if unit_labels is None:
+        codes_a, codes_b = np.arange(na), np.arange(nb)
+        what = "sample"
+    else:
+        u = unit_labels.to_numpy()[rows]
+        codes_a = np.unique(u[ia], return_inverse=True)[1].ravel()
+        codes_b = np.unique(u[ib], return_inverse=True)[1].ravel()
+        what = "unit"
+    ma, mb = int(codes_a.max()) + 1, int(codes_b.max()) + 1
+    boot = n_boot > 0 and min(ma, mb) >= 2
     if n_boot == 0:
         notes.append("n_boot = 0: no bootstrap, so no intervals (ci columns are NaN).")
     if n_boot > 0 and not boot:
-        small = [f"{lab!r} (n = {n})" for lab, n in ((a, na), (b, nb)) if n < 2]
-        notes.append(f"group {' and '.join(small)} has one sample: resampling cannot show "
-                     "its variation, so no intervals are given (ci columns are NaN).")
-    Wa = boot_weights(rng, na, n_boot) if boot else None
-    Wb = boot_weights(rng, nb, n_boot) if boot else None
+        small = [repr(lab) for lab, m in ((a, ma), (b, mb)) if m < 2]
+        who = (f"group {small[0]} has" if len(small) == 1
+               else f"groups {small[0]} and {small[1]} each have")
+        notes.append(f"{who} only one {what}: resampling cannot show the variation within "
+                     "a group, so no intervals are given (ci columns are NaN).")
+    if unit_labels is not None:
+        notes.append(f"the bootstrap resamples the {ma} and {mb} units of "
+                     f"{unit_labels.name!r} in {a!r} and {b!r}, keeping each unit's samples "
+                     "together.")
+    elif boot:
+        notes.append("intervals treat the samples as independent; if some share a tank, "
+                     "site or plot, pass units=... (they are too narrow otherwise).")
+    if boot and min(ma, mb) < 10:
+        notes.append(f"only {min(ma, mb)} {what}s in the smaller group: percentile bootstrap "
+                     "intervals from so few tend to be too narrow; read them as rough.")
+    Wa = boot_weights(rng, codes_a, n_boot) if boot else None
+    Wb = boot_weights(rng, codes_b, n_boot) if boot else None
     ticker = Ticker(2 * n_boot if boot else 0, progress, cancel)
     exact = rec.name in SPLIT_MEASURES
     if exact:
         terms, bt, btot, extra = split_terms(sub, ia, ib, rec.name, tr, params, Wa, Wb,
-                                             ticker)
+                                             ticker, codes_a=codes_a, codes_b=codes_b)
     else:
         terms, bt, btot, extra = pair_terms(sub, ia, ib, rec, tr, Wa, Wb, ticker)
     sz = size_ratios(x, e, ia, ib, float(pseudocount), Wa, Wb, ticker)
@@ -417,7 +452,7 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
     if exact:
         shape["noise"] = extra["noise"]
         shape["noise_pct"] = 100.0 * extra["noise"] / total if total > 0 else np.nan
-        if min(na, nb) >= 2:
+        if min(ma, mb) >= 2:
             noise_total = float(np.sum(extra["noise"]))
     shape = shape.sort_values("term", ascending=False, kind="stable")
     shape.insert(4, "cumulative_pct", shape["share_pct"].cumsum())
@@ -506,6 +541,7 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
     prov = {"function": "taxon_contributions", "group": gname, "a": a, "b": b,
             "measure": rec.name, "transform": tr.name, **extra["params"], "n_boot": n_boot,
             "level": float(level), "pseudocount": float(pseudocount),
+            "units": None if unit_labels is None else str(unit_labels.name),
             "per_effort": tab.effort_name, "n_samples": {a: na, b: nb},
             "table": tab.fingerprint}
     return TaxonContributions(

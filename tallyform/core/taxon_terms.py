@@ -15,8 +15,8 @@ from .errors import Cancelled, InputError
 from .memory import check_memory
 from .table import CommunityTable, _listing
 
-__all__ = ["SPLIT_MEASURES", "PAIR_MEASURES", "boot_weights", "interval", "Ticker",
-           "split_terms", "pair_terms", "size_ratios"]
+__all__ = ["SPLIT_MEASURES", "PAIR_MEASURES", "boot_weights", "centroid_noise", "interval",
+           "Ticker", "split_terms", "pair_terms", "size_ratios"]
 
 SPLIT_MEASURES = ("hellinger", "chi_square", "chord", "aitchison", "euclidean")
 # measures that are, for one pair, a sum over taxa: (on presence?, denominator of the pair)
@@ -31,14 +31,42 @@ PAIR_MEASURES = {
 _BLOCK_BYTES = 32e6
 
 
-def boot_weights(rng, n: int, n_boot: int) -> np.ndarray:
-    """n_boot x n resampling counts (how often each sample is drawn with replacement)."""
-    return rng.multinomial(n, np.full(n, 1.0 / n), size=n_boot).astype(np.float64)
+def boot_weights(rng, codes: np.ndarray, n_boot: int) -> np.ndarray:
+    """n_boot x n resampling weights: how often each sample's unit is drawn.
+
+    ``codes`` numbers the units of one group's samples 0..m-1 (``arange(n)`` when every
+    sample is its own unit); the m units are drawn with replacement and a sample weighs as
+    often as its unit was drawn, so samples of one unit stay together.
+    """
+    m = int(codes.max()) + 1
+    counts = rng.multinomial(m, np.full(m, 1.0 / m), size=n_boot).astype(np.float64)
+    return counts[:, codes]
+
+
+def centroid_noise(F: np.ndarray, codes: np.ndarray) -> np.ndarray:
+    """Sampling variance of a group centroid, per column, from m independent units.
+
+    Linearised variance of the ratio mean sum_u S_u / sum_u n_u (S_u the column sums of unit
+    u, n_u its samples): m / (m - 1) * sum_u (S_u - n_u fbar)^2 / N^2, N = sum_u n_u. With
+    one sample per unit it is the usual s^2 / n (divisor n - 1 in s^2).
+    """
+    m = int(codes.max()) + 1
+    if m < 2:
+        return np.full(F.shape[1], np.nan)
+    fbar = F.mean(axis=0)
+    S = np.zeros((m, F.shape[1]))
+    np.add.at(S, codes, F)
+    nu = np.bincount(codes, minlength=m).astype(np.float64)
+    dev = S - nu[:, None] * fbar
+    return m / (m - 1) * np.sum(dev * dev, axis=0) / F.shape[0] ** 2
 
 
 def interval(draws: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray]:
-    """Percentile interval along axis 0, the (B+1)-rule order statistics (no interpolation,
-    so infinite draws give infinite bounds, never NaN)."""
+    """Percentile interval along axis 0, the (B+1)-rule order statistics.
+
+    No interpolation, so infinite draws give infinite bounds rather than NaN; NaN draws
+    (a ratio 0/0 in some resamples) are left out, and a column of NaN gives NaN bounds.
+    """
     lo, hi = (1 - level) / 2, 1 - (1 - level) / 2
     with warnings.catch_warnings():     # an all-NaN column gives NaN bounds, handled by callers
         warnings.simplefilter("ignore", RuntimeWarning)
@@ -69,7 +97,8 @@ class Ticker:
 
 
 # ============================================================================== shape: split
-def split_terms(sub: CommunityTable, ia, ib, measure, transform, params, Wa, Wb, ticker):
+def split_terms(sub: CommunityTable, ia, ib, measure, transform, params, Wa, Wb, ticker, *,
+                codes_a, codes_b):
     """Exact split of ||fbar_a - fbar_b||^2 over the columns of the feature matrix."""
     from .dissimilarity import dissimilarity
     d = dissimilarity(sub, measure, transform=transform, **params)
@@ -80,16 +109,15 @@ def split_terms(sub: CommunityTable, ia, ib, measure, transform, params, Wa, Wb,
     ca, cb = Fa.mean(axis=0), Fb.mean(axis=0)
     diff = cb - ca
     terms = diff * diff
-    na, nb = len(ia), len(ib)
-    noise = (Fa.var(axis=0, ddof=1) / na + Fb.var(axis=0, ddof=1) / nb
-             if min(na, nb) >= 2 else np.full(F.shape[1], np.nan))
+    noise = centroid_noise(Fa, codes_a) + centroid_noise(Fb, codes_b)
     boot_terms = boot_total = None
     if Wa is not None:
         B = Wa.shape[0]
         boot_terms = np.empty((B, F.shape[1]))
         for s, e in _chunks(B, 8.0 * 2 * F.shape[1]):
             ticker.check()
-            dd = Wb[s:e] @ Fb / nb - Wa[s:e] @ Fa / na
+            wa, wb = Wa[s:e], Wb[s:e]
+            dd = (wb @ Fb) / wb.sum(axis=1)[:, None] - (wa @ Fa) / wa.sum(axis=1)[:, None]
             boot_terms[s:e] = dd * dd
             ticker.step(e - s)
         boot_total = boot_terms.sum(axis=1)
@@ -142,7 +170,8 @@ def pair_terms(sub: CommunityTable, ia, ib, rec, transform, Wa, Wb, ticker):
         for s, e in _chunks(B, 8.0 * nb * p):
             ticker.check()
             tmp = (Wa[s:e] @ flat).reshape(e - s, nb, p)
-            boot_terms[s:e] = np.einsum("bk,bkj->bj", Wb[s:e], tmp) / (na * nb)
+            pairs = Wa[s:e].sum(axis=1) * Wb[s:e].sum(axis=1)
+            boot_terms[s:e] = np.einsum("bk,bkj->bj", Wb[s:e], tmp) / pairs[:, None]
             ticker.step(e - s)
         boot_total = boot_terms.sum(axis=1)
     extra = {"params": {}, "notes": (), "size_free": bool(rec.size_free),
@@ -158,7 +187,6 @@ def size_ratios(x, e, ia, ib, pseudocount, Wa, Wb, ticker):
     rbar = r.mean()
     pseudo = pseudocount * r / rbar                    # per sample, proportional to its total
     xp = x + pseudo[:, None]
-    na, nb = len(ia), len(ib)
     Ea, Eb = e[ia].sum(), e[ib].sum()
     mean_a, mean_b = x[ia].sum(axis=0) / Ea, x[ib].sum(axis=0) / Eb
     tot_a, tot_b = r[ia].sum() / Ea, r[ib].sum() / Eb

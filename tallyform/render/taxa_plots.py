@@ -199,7 +199,7 @@ def taxon_size_figure(result, *, top: int = 15, title: str | None = None) -> go.
             hovertext=hover, hoverinfo="text"))
     if not np.isfinite(ratio).all():
         fig.add_trace(go.Scatter(
-            x=[None], y=[None], mode="markers", name="◀ ▶ seen in one group only<br>"
+            x=[None], y=[None], mode="markers", name="seen in one group only<br>"
             "(infinite ratio, drawn at the edge)",
             marker={"symbol": "triangle-left", "size": 11, "color": _NO_INTERVAL}))
     fig.update_xaxes(title_text=f"log2 ratio of mean abundance{unit}, {b} / {a} "

@@ -11,7 +11,7 @@ import tallyform as tly
 from tallyform.core.contributions import PAIR_MEASURES, SPLIT_MEASURES
 from tallyform.core.dissimilarity import Dissimilarity
 from tallyform.core.errors import Cancelled, DesignError, InputError
-from tallyform.core.taxon_terms import interval
+from tallyform.core.taxon_terms import centroid_noise, interval
 from tallyform.core.transforms import Clr
 
 
@@ -436,7 +436,7 @@ def test_group_with_one_sample_has_no_interval():
     assert k.size[["ci_low", "ci_high"]].isna().all().all()
     assert k.size["differs_from_total"].isna().all()
     assert np.isnan(k.total_ci[0]) and k.noise is None and k.n_boot == 0
-    assert any("'b' (n = 1) has one sample" in n and "no intervals" in n for n in k.notes)
+    assert any("'b' has only one sample" in n and "no intervals" in n for n in k.notes)
     assert np.isfinite(k.shape["share_pct"]).all()
     assert np.isfinite(k.size["log2_ratio"]).all()
 
@@ -506,3 +506,64 @@ def test_result_views(mesocosm):
     with pytest.raises(InputError, match="kind"):
         k.figure("bars")
     assert k.provenance["measure"] == "hellinger" and k.provenance["n_boot"] == 30
+
+
+# ---------------------------------------------------------------------------- units
+def test_units_of_one_sample_each_change_nothing(mesocosm):
+    k1 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
+                                 n_boot=40, rng=3)
+    k2 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
+                                 n_boot=40, rng=3, units=list(mesocosm.sample_labels))
+    pd.testing.assert_frame_equal(k1.shape, k2.shape)
+    pd.testing.assert_frame_equal(k1.size, k2.size)
+    assert k1.noise == pytest.approx(k2.noise, rel=1e-12)
+
+
+def test_centroid_noise_forms():
+    rng = np.random.default_rng(4)
+    F = rng.normal(size=(12, 5))
+    # one sample per unit: s^2 / n with divisor n - 1 (numpy's var, ddof=1)
+    np.testing.assert_allclose(centroid_noise(F, np.arange(12)),
+                               F.var(axis=0, ddof=1) / 12, rtol=1e-12)
+    # equal units of 3: the variance of the 4 unit means / 4 (common practice for cluster
+    # samples of equal size)
+    codes = np.repeat(np.arange(4), 3)
+    means = np.vstack([F[codes == u].mean(axis=0) for u in range(4)])
+    np.testing.assert_allclose(centroid_noise(F, codes), means.var(axis=0, ddof=1) / 4,
+                               rtol=1e-12)
+    assert np.isnan(centroid_noise(F, np.zeros(12, dtype=int))).all()
+
+
+def test_unit_bootstrap_matches_resampling_units_directly(mesocosm):
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
+                                measure="bray_curtis", n_boot=6, rng=5, units="tank")
+    sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
+    tank = mesocosm.samples["tank"].loc[sub.index].to_numpy()
+    x = sub.to_numpy()
+    rng = np.random.default_rng(5)
+    ua, ca = np.unique(tank[ia], return_inverse=True)
+    ub, cb = np.unique(tank[ib], return_inverse=True)
+    Da = rng.multinomial(len(ua), np.full(len(ua), 1 / len(ua)), size=6)
+    Db = rng.multinomial(len(ub), np.full(len(ub), 1 / len(ub)), size=6)
+    xa, xb = x[ia], x[ib]
+    totals = []
+    for da, db in zip(Da, Db):
+        ra = np.vstack([xa[ca == u] for u in range(len(ua)) for _ in range(da[u])])
+        rb = np.vstack([xb[cb == u] for u in range(len(ub)) for _ in range(db[u])])
+        totals.append(cdist(ra, rb, "braycurtis").mean())
+    lo, hi = interval(np.array(totals), 0.95)
+    assert k.total_ci == pytest.approx((float(lo), float(hi)), rel=1e-12)
+    assert any("units of 'tank'" in n for n in k.notes)
+    assert any("too narrow" in n for n in k.notes)
+
+
+def test_one_unit_per_group_has_no_interval(mesocosm):
+    block = np.where(mesocosm.group("treatment") == "control", "c", "other")
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
+                                n_boot=20, rng=1, units=block)
+    assert k.shape["ci_low"].isna().all() and k.noise is None
+    assert any("'control' and 'nutrient_high' each have only one unit" in n for n in k.notes)
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
+                                n_boot=20, rng=1, units=np.where(block == "c", "c",
+                                                                 mesocosm.samples["tank"]))
+    assert any("group 'control' has only one unit" in n for n in k.notes)

@@ -171,7 +171,8 @@ def taxon_size_figure(result, *, top: int = 15, title: str | None = None) -> go.
     fig.add_vline(x=ref["log2_ratio"], line={"color": FRACTION_COLOURS["size_only"],
                                              "width": 2, "dash": "dash"})
     fig.add_trace(go.Scatter(
-        x=[None], y=[None], mode="lines", name=f"total ({ref['log2_ratio']:.2f}):<br>all taxa alike",
+        x=[None], y=[None], mode="lines",
+        name=f"total ({ref['log2_ratio']:.2f}):<br>all taxa alike",
         line={"color": FRACTION_COLOURS["size_only"], "width": 2, "dash": "dash"}))
     for name, colour, mask in classes:
         if not mask.any():

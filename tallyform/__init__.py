@@ -36,6 +36,9 @@ def __getattr__(name):
     if name == "plots":
         from .render import plots
         return plots
+    if name in ("report", "write_outputs"):
+        from .render import report as _report
+        return getattr(_report, name)
     raise AttributeError(f"module 'tallyform' has no attribute {name!r}")
 
 __all__ = [

@@ -7,3 +7,4 @@ from __future__ import annotations
 
 from .style import FRACTION_COLOURS, OKABE_ITO, base_layout, group_colours  # noqa: F401
 from .taxa_plots import taxon_shape_figure, taxon_size_figure  # noqa: F401
+from .display import show  # noqa: F401

@@ -1,0 +1,34 @@
+"""Showing figures in a notebook so that they survive without a kernel.
+
+``show(fig)`` sends one output holding both the interactive plotly figure (drawn by
+JupyterLab's plotly renderer) and, when a static exporter works, a PNG copy of it. Viewers
+without a kernel or without the plotly renderer (nbconvert HTML, repository browsers) fall
+back to the PNG, so a shared executed notebook shows its figures offline; the notebook stays
+small because plotly.js is not embedded.
+"""
+from __future__ import annotations
+
+__all__ = ["show"]
+
+_STATIC: tuple[bool, str] | None = None
+
+
+def _static_ok() -> bool:
+    global _STATIC
+    if _STATIC is None:
+        try:
+            from .export import static_export_available
+            _STATIC = static_export_available()
+        except Exception as err:                           # no exporter at all
+            _STATIC = (False, str(err))
+    return _STATIC[0]
+
+
+def show(fig, *, static: bool = True, width: int = 900, height: int | None = None) -> None:
+    """Display ``fig`` interactively, with a PNG copy for viewers without a kernel."""
+    renderer = "plotly_mimetype+png" if static and _static_ok() else "plotly_mimetype"
+    kw = {"width": width, "height": height or fig.layout.height or 520}
+    try:
+        fig.show(renderer=renderer, **kw)
+    except Exception:                                       # exporter failed mid-way
+        fig.show(renderer="plotly_mimetype")

@@ -1,0 +1,72 @@
+"""The walkthrough notebooks: where they are, and executing one into an output folder."""
+from __future__ import annotations
+
+import shutil
+import tempfile
+from pathlib import Path
+
+from ..core.errors import InputError
+from ..core.fileio import write_text_atomic
+
+__all__ = ["notebook_dir", "notebook_names", "execute_notebook", "execute_walkthrough"]
+
+WALKTHROUGH = "01_quickstart.ipynb"
+
+
+def notebook_dir() -> Path:
+    """Folder of the bundled notebooks (installed package or source checkout)."""
+    pkg = Path(__file__).resolve().parent.parent
+    for cand in (pkg / "notebooks", pkg.parent / "notebooks"):
+        if (cand / WALKTHROUGH).is_file():
+            return cand
+    raise InputError("the walkthrough notebooks were not found (looked in "
+                     f"{pkg / 'notebooks'} and {pkg.parent / 'notebooks'}).",
+                     hint="Reinstall tallyform.")
+
+
+def notebook_names() -> list[str]:
+    return sorted(p.name for p in notebook_dir().glob("[0-9][0-9]_*.ipynb"))
+
+
+def execute_notebook(source, target, *, cwd=None, timeout: int = 900, progress=None):
+    """Execute ``source`` top to bottom (nbclient) and write the executed copy to ``target``.
+
+    ``progress(done, total)`` is called after each cell. The working folder is ``cwd`` (a
+    temporary folder by default), so the notebook's own files never land in the sources.
+    """
+    import nbformat
+    from nbclient import NotebookClient
+
+    nb = nbformat.read(str(source), as_version=4)
+    total = sum(1 for c in nb.cells if c.cell_type == "code")
+    with tempfile.TemporaryDirectory(prefix="tallyform-nb-") as tmp:
+        work = Path(cwd) if cwd is not None else Path(tmp)
+        client = NotebookClient(nb, timeout=timeout, kernel_name="python3",
+                                resources={"metadata": {"path": str(work)}},
+                                record_timing=False)
+        done = 0
+        if progress is not None:
+            progress(0, total)
+        with client.setup_kernel():
+            for index, cell in enumerate(nb.cells):
+                if cell.cell_type != "code":
+                    continue
+                client.execute_cell(cell, index)
+                done += 1
+                if progress is not None:
+                    progress(done, total)
+    write_text_atomic(target, nbformat.writes(nb))
+    return Path(target)
+
+
+def execute_walkthrough(out, *, progress=None) -> Path:
+    """Execute the quick-start walkthrough into ``out/walkthrough.ipynb``."""
+    out = Path(out)
+    out.mkdir(parents=True, exist_ok=True)
+    src = notebook_dir() / WALKTHROUGH
+    work = out / ".notebook-work"
+    work.mkdir(exist_ok=True)
+    try:
+        return execute_notebook(src, out / "walkthrough.ipynb", cwd=work, progress=progress)
+    finally:
+        shutil.rmtree(work, ignore_errors=True)

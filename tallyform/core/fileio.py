@@ -35,6 +35,7 @@ def atomic_write(path, mode: str = "w", *, encoding: str | None = "utf-8"):
         raise InputError(f"cannot write in {str(folder)!r}: {err.strerror}.",
                          hint="Choose a folder you can write to.") from None
     tmp = Path(tmp)
+    _ordinary_mode(tmp, path)
     owned = False                      # True once fd is closed by someone else
     try:
         if mode == "path":
@@ -55,6 +56,19 @@ def atomic_write(path, mode: str = "w", *, encoding: str | None = "utf-8"):
         with contextlib.suppress(OSError):
             tmp.unlink()
         raise
+
+
+def _ordinary_mode(tmp: Path, path: Path) -> None:
+    """mkstemp creates 0600 files; give the result the mode a plain open() would."""
+    try:
+        mode = path.stat().st_mode & 0o777 if path.exists() else None
+        if mode is None:
+            umask = os.umask(0)
+            os.umask(umask)
+            mode = 0o666 & ~umask
+        os.chmod(tmp, mode)
+    except OSError:
+        pass
 
 
 def write_text_atomic(path, text: str) -> Path:

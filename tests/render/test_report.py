@@ -1,0 +1,109 @@
+"""The HTML report: self-contained, complete, escaped; outputs written atomically."""
+from __future__ import annotations
+
+import json
+from html.parser import HTMLParser
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import tallyform as tly
+from tallyform.render.report import report_html, write_outputs
+
+FAST = dict(n_permutations=99, audit_n_sim=10, audit_n_permutations=49,
+            scan_measures=("bray_curtis", "hellinger"), scan_transforms=("none", "sqrt"))
+HOSTILE = ["<script>alert(1)</script>", "=HYPERLINK(\"x\")", "+1", "@SUM(A1)",
+           "x" * 300, "Ἀρτεμίσια", "蜉蝣_01", "</script><img src=x onerror=alert(2)>"]
+
+
+class _Scripts(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.scripts, self.handlers, self.in_script, self.bodies = 0, [], False, []
+
+    def handle_starttag(self, tag, attrs):
+        if tag == "script":
+            self.scripts += 1
+            self.in_script = True
+            self.bodies.append("")
+        self.handlers += [k for k, _ in attrs if k.startswith("on")]
+        if tag in ("img", "iframe", "link") or any(k == "src" for k, _ in attrs):
+            self.handlers.append(f"<{tag} src>")
+
+    def handle_endtag(self, tag):
+        if tag == "script":
+            self.in_script = False
+
+    def handle_data(self, data):
+        if self.in_script:
+            self.bodies[-1] += data
+
+
+@pytest.fixture(scope="module")
+def demo_results():
+    spec = tly.AnalysisSpec(group="treatment", terms=("treatment", "week"),
+                            blocks="tank_block", **FAST)
+    return tly.run(spec, tly.demo("mesocosm"))
+
+
+def test_report_is_self_contained_and_complete(demo_results):
+    page = report_html(demo_results)
+    p = _Scripts()
+    p.feed(page)
+    assert p.handlers == []                                # no src=, no on*= anywhere
+    assert "<script src" not in page
+    for title in ("Data", "Size and shape of the chosen measure", "Which measure?",
+                  "Ordination", "Size test, shape test and dispersion", "Pairwise",
+                  "Which taxa", "Audit", "Methods", "Analysis spec"):
+        assert title in page, title
+    n_fig = page.count("class='figure'")
+    assert n_fig >= 12 and p.scripts == n_fig + 1         # plotly.js once + one per figure
+    assert "Every random step used the seed 1." in page
+    assert json.loads(tly.AnalysisSpec.from_json(demo_results.spec.to_json()).to_json())
+
+
+def test_hostile_labels_are_escaped_everywhere(tmp_path):
+    rng = np.random.default_rng(3)
+    n = 16
+    counts = pd.DataFrame(rng.poisson(20, size=(n, len(HOSTILE))) + 1,
+                          index=[f"{HOSTILE[i % len(HOSTILE)]}#{i}" for i in range(n)],
+                          columns=HOSTILE)
+    samples = pd.DataFrame({"grp": [HOSTILE[0], HOSTILE[1]] * (n // 2)}, index=counts.index)
+    tab = tly.CommunityTable(counts, samples)
+    res = tly.run(tly.AnalysisSpec(group="grp", **FAST), tab)
+    page = report_html(res)
+    p = _Scripts()
+    p.feed(page)
+    assert p.handlers == [], p.handlers
+    n_fig = page.count("class='figure'")
+    assert p.scripts == n_fig + 1                         # no script was added by a label
+    assert not any("alert(" in body and "<script" in body for body in p.bodies)
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page   # shown as text in tables
+    out = write_outputs(res, tmp_path / "out")
+    csv = (tmp_path / "out" / "tables" / "taxa_shape.csv").read_text()
+    assert "'=HYPERLINK" in csv and "'@SUM(A1)" in csv and "'+1" in csv
+    assert "\n=HYPERLINK" not in csv and ",=HYPERLINK" not in csv
+    assert out["report"].stat().st_mode & 0o777 != 0o600   # ordinary file permissions
+
+
+def test_skipped_steps_are_listed():
+    tab = tly.demo("mesocosm")
+    res = tly.run(tly.AnalysisSpec(**FAST), tab)            # no group: tests cannot run
+    page = report_html(res)
+    assert "Steps that could not run" in page and "no group column in the spec" in page
+
+
+def test_failed_report_keeps_the_old_file(tmp_path, demo_results, monkeypatch):
+    target = tmp_path / "report.html"
+    target.write_text("old report")
+    import tallyform.core.fileio as fileio
+    import tallyform.render.report as rep
+
+    def boom(*a, **k):                 # the disk fails just as the new file would land
+        raise OSError(28, "No space left on device (simulated)")
+    monkeypatch.setattr(fileio.os, "replace", boom)
+    with pytest.raises(OSError):
+        rep.write_report(demo_results, target)
+    assert target.read_text() == "old report"
+    assert [q.name for q in tmp_path.iterdir()] == ["report.html"]

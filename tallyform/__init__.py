@@ -33,6 +33,9 @@ def __getattr__(name):
     if name == "plots":
         from .render import plots
         return plots
+    if name == "explore":
+        from .widgets import explore
+        return explore
     raise AttributeError(f"module 'tallyform' has no attribute {name!r}")
 
 __all__ = [
@@ -45,4 +48,5 @@ __all__ = [
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
     "permanova", "pairwise_permanova", "dispersion_test", "size_test", "compare_groups",
+    "explore",
 ]

@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError
+from .cache import shared_cache
 from .memory import check_memory
 
 __all__ = ["Dissimilarity", "condensed_index", "dissimilarity", "feature_matrix"]
@@ -395,6 +396,11 @@ def dissimilarity(data, measure, *, transform=None, dtype="float64", **params) -
     0.0
     """
     dt = _resolve_dtype(dtype)
+    key = _cache_key(data, measure, transform, params, dt)
+    if key is not None:
+        hit = shared_cache.get(key)
+        if hit is not None:
+            return hit
     tab, rec, tr, x, ctx = _prepare(data, measure, transform, params, dt)
     n = x.shape[0]
     kw = dict(measure=rec.name, transform=tr.name, dtype=dt)
@@ -416,8 +422,36 @@ def dissimilarity(data, measure, *, transform=None, dtype="float64", **params) -
                              f"and {tab.sample_labels[j]!r} is undefined for these data.")
     opts = {k: ctx.params.get(k, v) for k, v in rec.options.items()}
     opts.update(ctx.record)
-    return Dissimilarity(cond, tab.sample_labels, features=feats, params=opts,
-                         properties=_properties(rec, tr, ctx), notes=tuple(ctx.notes), **kw)
+    out = Dissimilarity(cond, tab.sample_labels, features=feats, params=opts,
+                        properties=_properties(rec, tr, ctx), notes=tuple(ctx.notes), **kw)
+    if key is not None:
+        size = (n * (n - 1) / 2 * dt.itemsize + 8.0 * n * n      # distances + G when asked
+                + (0 if feats is None else feats.nbytes))
+        shared_cache.put(key, out, size)
+    return out
+
+
+def _cache_key(data, measure, transform, params, dt):
+    """Key for the shared cache, or None when the input cannot be fingerprinted cheaply."""
+    import hashlib
+
+    from .table import CommunityTable
+    from .transforms import get_transform
+    if not isinstance(data, CommunityTable):
+        return None
+
+    def freeze(v):
+        if isinstance(v, (np.ndarray, list, tuple, pd.Series)):
+            a = np.ascontiguousarray(np.asarray(v, dtype=float))
+            return "array:" + hashlib.sha256(a.tobytes()).hexdigest()
+        return repr(v)
+    try:
+        tr = get_transform(transform).name
+        frozen = tuple(sorted((k, freeze(v)) for k, v in params.items()))
+    except Exception:           # an invalid option: let _prepare raise the proper error
+        return None
+    return ("dissimilarity", data.fingerprint, str(getattr(measure, "name", measure)), tr,
+            dt.str, frozen)
 
 
 def feature_matrix(data, measure, *, transform=None, **params) -> np.ndarray | None:

@@ -55,6 +55,7 @@ class Variation:
 
     def __init__(self, d: Dissimilarity):
         self.n = d.n
+        self._d = d
         if d.has_features:
             f = np.asarray(d.features, dtype=np.float64)
             self.fc = f - f.mean(axis=0)
@@ -91,7 +92,18 @@ class Variation:
         return float(np.sum((self.g @ q) * q))
 
     def eigenvalues(self) -> np.ndarray:
-        """All eigenvalues of G, largest first (zero negatives when D is Euclidean on features)."""
+        """All eigenvalues of G, largest first (zero negatives when D is Euclidean on features).
+
+        Kept on the Dissimilarity object, so a repeated call with the same D is free.
+        """
+        cache = self._d._cache
+        if "eigenvalues" not in cache:
+            ev = self._eigenvalues()
+            ev.setflags(write=False)
+            cache["eigenvalues"] = ev
+        return cache["eigenvalues"]
+
+    def _eigenvalues(self) -> np.ndarray:
         if self.fc is not None:
             s = np.linalg.svd(self.fc, compute_uv=False)
             ev = np.zeros(self.n)
@@ -384,19 +396,34 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
                             cancel=cancel)
 
 
+def _cached_shape(table, shape, measure, transform, local=None):
+    """Shape coordinates, from a per-call dict, the shared cache, or computed."""
+    from .cache import shared_cache
+    from .transforms import get_transform
+    key = ("shape", table.fingerprint, shape)
+    if shape == "same_measure":
+        key += (str(measure), get_transform(transform).name)
+    if local is not None and key in local:
+        return local[key]
+    hit = shared_cache.get(key)
+    if hit is None:
+        sd = _shape_dissimilarity(table, shape, measure, transform)
+        u, ev, neg = shape_coordinates(sd)
+        u.setflags(write=False)
+        ev.setflags(write=False)
+        hit = shared_cache.put(key, (u, ev, neg, sd.measure), u.nbytes + ev.nbytes)
+    if local is not None:
+        local[key] = hit
+    return hit
+
+
 def _size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
                      n_permutations, rng, progress, cancel, shape_cache=None):
     n = table.n_samples
     z_raw, size_label = size_predictor(table, size)
     z = _centred_unit(z_raw)
-    if shape_cache is not None and shape in shape_cache:
-        u, ev, shape_neg, shape_measure = shape_cache[shape]
-    else:
-        sd = _shape_dissimilarity(table, shape, measure, transform)
-        u, ev, shape_neg = shape_coordinates(sd)
-        shape_measure = sd.measure
-        if shape_cache is not None and shape != "same_measure":
-            shape_cache[shape] = (u, ev, shape_neg, shape_measure)
+    u, ev, shape_neg, shape_measure = _cached_shape(table, shape, measure, transform,
+                                                    shape_cache)
     var = Variation(d)
     notes = list(d.notes)
     shape_total = float(ev.sum())

@@ -15,10 +15,17 @@ def test_core_loads_no_ui():
     subprocess.run([sys.executable, "-c", code], check=True, cwd=PKG.parent)
 
 
-def _imports(path: Path) -> set[str]:
+def _imports(path: Path, *, lazy_figure: bool = False) -> set[str]:
+    """Modules a file imports. ``lazy_figure=True``: only those inside ``figure`` methods."""
     tree = ast.parse(path.read_text())
     names = set()
+    figure_nodes = set()
     for node in ast.walk(tree):
+        if isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef)) and node.name == "figure":
+            figure_nodes |= {id(n) for n in ast.walk(node)}
+    for node in ast.walk(tree):
+        if (id(node) in figure_nodes) != lazy_figure:
+            continue
         if isinstance(node, ast.Import):
             names |= {a.name for a in node.names}
         elif isinstance(node, ast.ImportFrom):
@@ -38,6 +45,10 @@ def test_imports_point_inward():
             assert top not in {"plotly", "ipywidgets", "anywidget"}, (f, name)
             assert not name.startswith(("tallyform.render", "tallyform.widgets",
                                         "tallyform.cli")), (f, name)
+        # result.figure() may import the render ring, lazily, inside the method only
+        for name in _imports(f, lazy_figure=True):
+            assert name.split(".")[0] not in {"plotly", "ipywidgets", "anywidget"}, (f, name)
+            assert name.startswith("tallyform.render."), (f, name)
     for f in (PKG / "render").rglob("*.py"):
         for name in _imports(f):
             assert not name.startswith(("tallyform.widgets", "tallyform.cli")), (f, name)

@@ -319,6 +319,19 @@ class SizeShapeResult(ResultMixin):
         """Fractions for k = 1 .. kmax shape dimensions (adjusted, then unadjusted columns)."""
         return self._dims.copy()
 
+    def figure(self, *, kind: str = "bars", **kwargs):
+        """A plotly figure: ``kind='bars'`` the partition bar, ``'dims'`` fractions by k.
+
+        Keyword arguments go to :func:`tallyform.render.plots.partition_bars` or
+        :func:`~tallyform.render.plots.dims_figure` (e.g. ``present=True``).
+        """
+        _check_option("kind", kind, ("bars", "dims"))
+        if kind == "dims":
+            from ..render.partition_plots import dims_figure  # lazy: plotly is outer ring
+            return dims_figure(self, **kwargs)
+        from ..render.partition_plots import partition_bars
+        return partition_bars(self, **kwargs)
+
     def to_frame(self) -> pd.DataFrame:
         out = pd.DataFrame({"share": self.fractions,
                             "share_unadjusted": self.fractions_unadjusted})

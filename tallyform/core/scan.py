@@ -46,6 +46,20 @@ class ScanResult(ResultMixin):
         order_t = list(dict.fromkeys(self.frame["transform"]))
         return out.loc[order_m, order_t]
 
+    def figure(self, *, kind: str = "heatmap", value: str = "size_only", **kwargs):
+        """A plotly figure: ``kind='heatmap'`` one fraction over the grid (``value``),
+        ``'bars'`` one partition bar per (transform, measure).
+
+        Keyword arguments go to :func:`tallyform.render.plots.scan_heatmap` or
+        :func:`~tallyform.render.plots.partition_bars` (e.g. ``present=True``).
+        """
+        _check_option("kind", kind, ("heatmap", "bars"))
+        if kind == "bars":
+            from ..render.partition_plots import partition_bars  # lazy: plotly is outer ring
+            return partition_bars(self, **kwargs)
+        from ..render.partition_plots import scan_heatmap
+        return scan_heatmap(self, value=value, **kwargs)
+
     def _title(self) -> str:
         return f"Size and shape scan (n = {self.n}; size: {self.size}; shape: {self.shape})"
 

@@ -5,4 +5,7 @@ The functions live in topic modules and are gathered here, so ``tly.plots.<name>
 """
 from __future__ import annotations
 
-from .style import FRACTION_COLOURS, OKABE_ITO, base_layout, group_colours  # noqa: F401
+from .export import SavedFiles, StaticExportWarning, save, static_export_available  # noqa: F401
+from .partition_plots import dims_figure, partition_bars, scan_heatmap  # noqa: F401
+from .style import (FRACTION_COLOURS, OKABE_ITO, base_layout, group_colours,  # noqa: F401
+                    group_levels)

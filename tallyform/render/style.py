@@ -1,8 +1,15 @@
-"""One look for every figure: palette, fraction colours, fonts readable on a projector."""
+"""One look for every figure: palette, fraction colours, fonts readable on a projector.
+
+Every figure module takes its colours, symbols and sizes from here, so a group, a fraction or
+a negative eigenvalue looks the same in every figure.
+"""
 from __future__ import annotations
 
-__all__ = ["OKABE_ITO", "FRACTION_COLOURS", "FRACTION_LABELS", "FONT_SIZE", "group_colours",
-           "base_layout"]
+import pandas as pd
+
+__all__ = ["OKABE_ITO", "FRACTION_COLOURS", "FRACTION_LABELS", "FONT_SIZE", "TITLE_SIZE",
+           "PRESENT_FONT_SIZE", "SYMBOLS", "NEUTRAL", "OBSERVED", "EIGEN_COLOURS",
+           "group_colours", "group_levels", "sizes", "base_layout", "subtitle"]
 
 # Colour-blind-safe qualitative palette (Okabe & Ito 2008), for groups.
 OKABE_ITO = ["#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7",
@@ -18,8 +25,41 @@ FRACTION_COLOURS = {
 FRACTION_LABELS = {"size_only": "size only", "shared": "shared (size and shape)",
                    "shape_only": "shape only", "residual": "residual"}
 
+# Marker shapes for a second factor (chosen to stay distinct in black and white).
+SYMBOLS = ["circle", "square", "diamond", "triangle-up", "triangle-down", "cross", "x",
+           "star", "hexagon", "pentagon"]
+
+NEUTRAL = "#7F7F7F"      # permuted statistics, taxa, anything that is not a group
+OBSERVED = "#000000"     # an observed statistic, a nominal rate
+# Eigenvalues in a scree plot: positive axes (constrained darker), negative ones hatched.
+EIGEN_COLOURS = {"constrained": "#0072B2", "positive": "#56B4E9", "negative": "#D55E00"}
+
 FONT_SIZE = 16          # >= 14 px at projector size
 TITLE_SIZE = 20
+PRESENT_FONT_SIZE = 22  # presentation mode (projector at the back of a room)
+
+
+def sizes(present: bool = False) -> dict:
+    """Font, title, marker and line sizes for normal or presentation (``present``) mode."""
+    if present:
+        return {"font": PRESENT_FONT_SIZE, "title": PRESENT_FONT_SIZE + 6, "marker": 13,
+                "line": 3.5, "small": PRESENT_FONT_SIZE - 4}
+    return {"font": FONT_SIZE, "title": TITLE_SIZE, "marker": 9, "line": 2.5,
+            "small": FONT_SIZE - 2}
+
+
+def group_levels(values) -> list[str]:
+    """Level order used for colours: categorical order, else natural sort (as the design).
+
+    The same rule as :func:`tallyform.core.design.factor_levels`, so a group has the same
+    colour in every figure, whichever result it comes from.
+    """
+    from ..core.design import factor_levels
+    s = values if isinstance(values, pd.Series) else pd.Series(list(values), dtype=object)
+    s = s.dropna()
+    if not isinstance(s.dtype, pd.CategoricalDtype):
+        s = s.astype(str)
+    return [str(x) for x in factor_levels(s)]
 
 
 def group_colours(levels) -> dict:
@@ -27,16 +67,33 @@ def group_colours(levels) -> dict:
     return {lv: OKABE_ITO[i % len(OKABE_ITO)] for i, lv in enumerate(levels)}
 
 
+def subtitle(title: str | None, *lines: str) -> str | None:
+    """A title with smaller explanatory lines under it (plain HTML, works in every plotly)."""
+    lines = [ln for ln in lines if ln]
+    if not title and not lines:
+        return None
+    body = "".join(f"<br><span style='font-size:0.72em'>{ln}</span>" for ln in lines)
+    return f"{title or ''}{body}"
+
+
 def base_layout(fig, *, title: str | None = None, legend_title: str | None = None,
-                font_size: int = FONT_SIZE, height: int | None = None):
-    """Apply the shared layout (white template, large fonts, legend shown) and return fig."""
+                font_size: int | None = None, height: int | None = None,
+                present: bool = False):
+    """Apply the shared layout (white template, large fonts, legend shown) and return fig.
+
+    ``present=True`` enlarges every font for a projector; ``font_size`` overrides both.
+    """
+    sz = sizes(present)
+    font_size = sz["font"] if font_size is None else font_size
+    n_title_lines = (title or "").count("<br>") + 1 if title else 0
     fig.update_layout(
         template="plotly_white",
-        font={"size": font_size, "family": "Arial, Helvetica, sans-serif"},
-        title={"text": title, "font": {"size": font_size + 4}} if title else None,
+        font={"size": font_size, "family": "Arial, Helvetica, sans-serif", "color": "#222222"},
+        title={"text": title, "font": {"size": font_size + 4}, "x": 0.01,
+               "xanchor": "left"} if title else None,
         legend={"title": {"text": legend_title}} if legend_title else {},
         showlegend=True,
-        margin={"l": 70, "r": 30, "t": 80 if title else 40, "b": 60},
+        margin={"l": 70, "r": 30, "t": 40 + 34 * n_title_lines if title else 40, "b": 60},
         hoverlabel={"font": {"size": font_size - 2}},
     )
     if height:

@@ -1,0 +1,328 @@
+"""Figures of the size and shape partition: bars, fractions by shape dimensions, scan heatmap.
+
+Pure functions: a result object in, a new plotly Figure out. Every number drawn or printed
+comes from the result (fractions, negative-eigenvalue shares, p-values); nothing is computed
+here but positions and labels.
+"""
+from __future__ import annotations
+
+import numpy as np
+import plotly.graph_objects as go
+
+from ..core.errors import InputError
+from ..core.partition import FRACTIONS, SizeShapeResult
+from ..core.scan import ScanResult
+from .style import FRACTION_COLOURS, FRACTION_LABELS, NEUTRAL, base_layout, sizes, subtitle
+
+NEGATIVE_BLUE = "#3B6FB6"
+
+__all__ = ["partition_bars", "dims_figure", "scan_heatmap", "setting_label", "percent"]
+
+
+def percent(x, digits: int = 1) -> str:
+    """``0.3505 -> '35.1 %'``; NaN -> ``'n/a'`` (the text printed in a segment)."""
+    if x is None or not np.isfinite(x):
+        return "n/a"
+    text = f"{100 * float(x):.{digits}f}"
+    if float(text) == 0:           # no "-0.0 %"
+        text = f"{0:.{digits}f}"
+    return f"{text} %"
+
+
+def setting_label(measure: str, transform) -> str:
+    """``'sqrt + bray_curtis'``; the measure alone when there is no transform."""
+    if transform in (None, "", "none"):
+        return str(measure)
+    return f"{transform} + {measure}"
+
+
+def _rows(results) -> list[dict]:
+    """One dict per bar: label, fractions, negative share, p-values, error."""
+    if isinstance(results, SizeShapeResult):
+        results = [results]
+    if isinstance(results, ScanResult):
+        rows = []
+        for rec in results.frame.to_dict("records"):
+            key = (rec["transform"], rec["measure"])
+            res = results.results.get(key)
+            rows.append({
+                "label": setting_label(rec["measure"], rec["transform"]),
+                "fractions": {f: rec[f] for f in FRACTIONS},
+                "negative_share": rec.get("negative_share", np.nan),
+                "tests": None if res is None else res.tests,
+                "detail": "" if res is None else res.shape_dims_reason,
+                "error": rec.get("error", "") or "",
+            })
+        return rows
+    try:
+        items = list(results)
+    except TypeError:
+        items = None
+    if not items or not all(isinstance(r, SizeShapeResult) for r in items):
+        raise InputError("`results` must be a SizeShapeResult (from tly.size_shape), a list "
+                         "of them, or a ScanResult (from tly.scan); got "
+                         f"{type(results).__name__}.")
+    return [{"label": setting_label(r.measure, r.transform),
+             "fractions": {f: float(r.fractions[f]) for f in FRACTIONS},
+             "negative_share": r.negative_share, "tests": r.tests,
+             "detail": r.shape_dims_reason, "error": ""} for r in items]
+
+
+def _unique_labels(labels: list[str]) -> list[str]:
+    seen: dict[str, int] = {}
+    out = []
+    for lb in labels:
+        seen[lb] = seen.get(lb, 0) + 1
+        out.append(lb if seen[lb] == 1 else f"{lb} ({seen[lb]})")
+    return out
+
+
+def _tick(row: dict) -> str:
+    lines = [row["label"]]
+    neg = row["negative_share"]
+    if row["error"]:
+        lines.append("undefined for these data")
+    elif neg is not None and np.isfinite(neg) and neg > 0 and percent(neg) != "0.0 %":
+        lines.append(f"negative eigenvalues {percent(neg)}")
+    return "<br>".join(lines[:1] + [f"<span style='font-size:0.8em'>{x}</span>"
+                                    for x in lines[1:]])
+
+
+def _describe(results) -> tuple[str, list[str]]:
+    """Default title and explanatory lines."""
+    if isinstance(results, ScanResult):
+        return (f"Size and shape over {len(results.frame)} settings (n = {results.n})",
+                [f"size: {results.size}; shape: {results.shape}"])
+    items = [results] if isinstance(results, SizeShapeResult) else list(results)
+    first = items[0]
+    size_label = first.provenance.get("size_label", first.size)
+    if len(items) == 1:
+        return (f"Size and shape of {setting_label(first.measure, first.transform)} "
+                f"(n = {first.n})",
+                [f"size: {size_label}; shape: {first.shape_dims} {first.shape} dimension(s) "
+                 f"({100 * first.shape_inertia_share:.0f} % of the shape inertia)"])
+    return (f"Size and shape over {len(items)} settings",
+            [f"size: {size_label}; shape: {first.shape}"])
+
+
+def partition_bars(results, *, title: str | None = None, present: bool = False) -> go.Figure:
+    """Horizontal stacked bars of the four fractions, one bar per (transform, measure).
+
+    Parameters
+    ----------
+    results : SizeShapeResult, list of SizeShapeResult, or ScanResult
+        A scan gives one bar per (transform, measure) cell, in the scan's order.
+    title : str, optional
+        Replaces the default title (the explanatory line under it stays).
+    present : bool, default False
+        Larger fonts for a projector.
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+        One bar trace per fraction (size only, shared, shape only, residual) in the fixed
+        fraction colours, the percentage printed in each segment. A negative fraction (the
+        shared one can be negative) is drawn to the left of zero and labelled there; the
+        share of negative eigenvalues of each measure is printed under its name.
+
+    Notes
+    -----
+    The fractions are the result's adjusted shares; they sum to 100 %, so with a negative
+    segment the positive ones reach past 100 %.
+
+    Examples
+    --------
+    >>> import tallyform as tly
+    >>> fig = partition_bars(tly.size_shape(tly.demo("mesocosm"), "bray_curtis"))
+    >>> [t.name for t in fig.data]
+    ['size only', 'shared (size and shape)', 'shape only', 'residual']
+    """
+    rows = _rows(results)
+    sz = sizes(present)
+    labels = _unique_labels([r["label"] for r in rows])
+    ticks = [_tick(r) for r in rows]
+    fig = go.Figure()
+    for f in FRACTIONS:
+        vals = np.array([float(r["fractions"][f]) for r in rows], dtype=float)
+        text = [percent(v) for v in vals]
+        hover = []
+        for r, lb, v in zip(rows, labels, vals):
+            bits = [f"<b>{lb}</b>", f"{FRACTION_LABELS[f]}: {percent(v)}"]
+            t = r["tests"]
+            if t is not None and f in t.index and np.isfinite(t.loc[f, "pvalue"]):
+                bits.append(f"permutation test: p = {t.loc[f, 'pvalue']:.3g} "
+                            f"({int(t.loc[f, 'n_permutations'])} permutations)")
+            if r["error"]:
+                bits.append(r["error"])
+            hover.append("<br>".join(bits))
+        name = FRACTION_LABELS[f]
+        if len(rows) == 1:        # one bar: the legend doubles as a readout of all four
+            name = f"{name}: {text[0]}"
+        fig.add_trace(go.Bar(
+            name=name, x=vals, y=labels, orientation="h",
+            marker={"color": FRACTION_COLOURS[f], "line": {"color": "white", "width": 1}},
+            text=text, textposition="inside", insidetextanchor="middle", textangle=0,
+            textfont={"size": sz["font"]}, hovertext=hover,
+            hovertemplate="%{hovertext}<extra></extra>", meta={"fraction": f}))
+    # negative segments are thin: label them outside, left of the bar
+    lows = []
+    for r, lb in zip(rows, labels):
+        neg = [(f, float(r["fractions"][f])) for f in FRACTIONS
+               if np.isfinite(r["fractions"][f]) and r["fractions"][f] < 0]
+        low = sum(v for _, v in neg)
+        lows.append(low)
+        if neg and any(percent(v) != "0.0 %" for _, v in neg):
+            fig.add_annotation(   # short, in the fraction's colour (hover says more)
+                x=low, y=lb, xref="x", yref="y", xanchor="right", showarrow=False,
+                text=" ".join(f"<span style='color:{FRACTION_COLOURS[f]}'>{percent(v)}</span>"
+                              for f, v in neg) + " ",
+                font={"size": sz["small"]}, name="negative fraction")
+    low = min(lows) if lows else 0.0
+    highs = [sum(float(v) for v in r["fractions"].values() if np.isfinite(v) and v > 0)
+             for r in rows]
+    high = max([1.0] + highs)
+    left = min(0.0, low) - (0.12 if any(a.name == "negative fraction"
+                                         for a in fig.layout.annotations) else 0.0)
+    fig.add_vline(x=0, line={"color": "#222222", "width": 2})
+    default_title, lines = _describe(results)
+    lines.append("shares of the dissimilarity's variation (adjusted R<sup>2</sup>); "
+                 "they sum to 100 %")
+    base_layout(fig, title=subtitle(title or default_title, *lines), legend_title="fraction",
+                present=present, height=max(360, 260 + (70 if present else 56) * len(rows)))
+    # legend under the axis title, anchored to the figure so it never meets the title
+    fig.update_layout(barmode="relative", bargap=0.3,
+                      uniformtext={"minsize": sz["small"], "mode": "hide"},
+                      legend={"orientation": "h", "yref": "container", "y": 0.0,
+                              "yanchor": "bottom", "xanchor": "left", "x": 0.0,
+                              "traceorder": "normal"},
+                      margin={"b": 70 + 2 * sz["font"] + (20 if len(rows) == 1 else 0)})
+    fig.update_xaxes(title_text="share of the variation (%)", tickformat=".0%",
+                     range=[left, high + 0.02], zeroline=False, gridcolor="#E5E5E5")
+    fig.update_yaxes(autorange="reversed", tickmode="array", tickvals=labels,
+                     ticktext=ticks, title_text=None)
+    return fig
+
+
+def dims_figure(result: SizeShapeResult, *, present: bool = False) -> go.Figure:
+    """The four fractions against the number of shape dimensions k (from ``by_dims()``).
+
+    A dashed line marks the k the result used, with the reason it was chosen.
+
+    Examples
+    --------
+    >>> import tallyform as tly
+    >>> fig = dims_figure(tly.size_shape(tly.demo("mesocosm"), "bray_curtis"))
+    >>> len(fig.data)
+    4
+    """
+    if not isinstance(result, SizeShapeResult):
+        raise InputError("`result` must be a SizeShapeResult (from tly.size_shape); got "
+                         f"{type(result).__name__}.")
+    sz = sizes(present)
+    dims = result.by_dims()
+    k = dims.index.to_numpy()
+    fig = go.Figure()
+    for f in FRACTIONS:
+        y = dims[f].to_numpy(dtype=float)
+        fig.add_trace(go.Scatter(
+            x=k, y=y, name=FRACTION_LABELS[f], mode="lines+markers",
+            line={"color": FRACTION_COLOURS[f], "width": sz["line"]},
+            marker={"color": FRACTION_COLOURS[f], "size": sz["marker"]},
+            hovertext=[f"k = {int(kk)}<br>{FRACTION_LABELS[f]}: {percent(v)}"
+                       for kk, v in zip(k, y)],
+            hovertemplate="%{hovertext}<extra></extra>", meta={"fraction": f}))
+    fig.add_hline(y=0, line={"color": "#222222", "width": 1.5})
+    fig.add_vline(x=result.shape_dims, line={"color": NEUTRAL, "width": 2, "dash": "dash"},
+                  annotation={"text": f"used: k = {result.shape_dims}", "yanchor": "bottom",
+                              "font": {"size": sz["small"]}},
+                  annotation_position="top right")
+    title = subtitle(f"Fractions by number of shape dimensions: "
+                     f"{setting_label(result.measure, result.transform)} (n = {result.n})",
+                     result.shape_dims_reason)
+    base_layout(fig, title=title, legend_title="fraction", present=present, height=560)
+    fig.update_xaxes(title_text=f"shape dimensions k (leading {result.shape} principal "
+                                "coordinates)", dtick=1 if len(k) <= 20 else None,
+                     range=[k.min() - 0.5, k.max() + 0.5] if len(k) else None)
+    fig.update_yaxes(title_text="share of the variation (%)", tickformat=".0%")
+    return fig
+
+
+def _mix(colour: str, weight: float) -> str:
+    """``colour`` blended with white: weight 0 gives white, 1 the colour."""
+    rgb = [int(colour[i:i + 2], 16) for i in (1, 3, 5)]
+    w = min(max(weight, 0.0), 1.0)
+    return "#" + "".join(f"{round(255 + (c - 255) * w):02X}" for c in rgb)
+
+
+def _heat_scale(value: str, zmin: float, zmax: float):
+    """White at 0, the fraction's colour at the top; negatives in blue, as strong as
+    their size relative to the largest positive value (so -0.1 % stays near white)."""
+    top = FRACTION_COLOURS.get(value, "#4D4D4D")
+    if zmin < 0 < zmax:
+        low = _mix(NEGATIVE_BLUE, -zmin / max(zmax, -zmin))
+        return [[0.0, low], [-zmin / (zmax - zmin), "#FFFFFF"], [1.0, top]]
+    return [[0.0, "#FFFFFF"], [1.0, top]]
+
+
+def scan_heatmap(scan: ScanResult, *, value: str = "size_only",
+                 present: bool = False) -> go.Figure:
+    """Heatmap of one fraction (default: size only) over measures x transforms.
+
+    Each cell prints its value; cells undefined for the data print ``n/a`` (their reason is
+    in the hover text).
+
+    Examples
+    --------
+    >>> import tallyform as tly
+    >>> g = tly.scan(tly.demo("mesocosm"), measures=["bray_curtis", "hellinger"],
+    ...              transforms=[1.0, 0.5])
+    >>> scan_heatmap(g).data[0].z.shape
+    (2, 2)
+    """
+    if not isinstance(scan, ScanResult):
+        raise InputError("`scan` must be a ScanResult (from tly.scan); got "
+                         f"{type(scan).__name__}.")
+    allowed = list(FRACTIONS) + ["negative_share"]
+    if value not in allowed:
+        raise InputError(f"`value` must be one of {allowed}; got {value!r}.")
+    sz = sizes(present)
+    z = scan.pivot(value)
+    frame = scan.frame.set_index(["measure", "transform"])
+    measures, transforms = list(z.index), list(z.columns)
+    arr = z.to_numpy(dtype=float)
+    text = [[percent(v) for v in row] for row in arr]
+    hover = []
+    for m in measures:
+        line = []
+        for t in transforms:
+            rec = frame.loc[(m, t)]
+            bits = [f"<b>{setting_label(m, t)}</b>",
+                    f"{FRACTION_LABELS.get(value, value.replace('_', ' '))}: "
+                    f"{percent(rec[value])}"]
+            if value != "negative_share":
+                bits.append(f"negative eigenvalues: {percent(rec['negative_share'])}")
+            if rec.get("error"):
+                bits.append(str(rec["error"]))
+            line.append("<br>".join(bits))
+        hover.append(line)
+    finite = arr[np.isfinite(arr)]
+    zmin = float(min(0.0, finite.min())) if finite.size else 0.0
+    zmax = float(max(finite.max(), zmin + 1e-9)) if finite.size else 1.0
+    scale = _heat_scale(value, zmin, zmax)
+    name = FRACTION_LABELS.get(value, value.replace("_", " "))
+    fig = go.Figure(go.Heatmap(
+        z=arr, x=transforms, y=measures, text=text, texttemplate="%{text}",
+        textfont={"size": sz["font"]}, hovertext=hover,
+        hovertemplate="%{hovertext}<extra></extra>", colorscale=scale, zmin=zmin, zmax=zmax,
+        xgap=2, ygap=2, name=name,
+        colorbar={"title": {"text": f"{name} (%)"}, "tickformat": ".0%"}))
+    base_layout(fig, title=subtitle(f"Share of the variation that is {name}: scan over "
+                                    f"measures and transforms (n = {scan.n})",
+                                    f"size: {scan.size}; shape: {scan.shape}"),
+                legend_title=None, present=present,
+                height=max(420, 200 + (60 if present else 46) * len(measures)))
+    fig.update_layout(plot_bgcolor="#D9D9D9")      # the gaps between cells show as a grid
+    fig.update_xaxes(title_text="transform (applied before the measure)", side="bottom",
+                     type="category")
+    fig.update_yaxes(title_text="measure", autorange="reversed", type="category")
+    return fig

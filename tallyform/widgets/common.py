@@ -14,7 +14,7 @@ import ipywidgets as widgets
 
 from ..core.errors import Cancelled, TallyformError
 
-__all__ = ["Ref", "Call", "literal", "error_text", "MessageArea", "copy_figure", "plots",
+__all__ = ["Ref", "Call", "literal", "error_text", "MessageArea", "NotesArea", "copy_figure", "plots",
            "hide", "show", "transform_code", "given", "TABLE"]
 
 TABLE = "tab"   # the variable name the reproduced code gives the table
@@ -39,6 +39,8 @@ def literal(value) -> str:
         inner = ", ".join(literal(v) for v in value)
         return f"({inner},)" if isinstance(value, tuple) and len(value) == 1 else (
             f"({inner})" if isinstance(value, tuple) else f"[{inner}]")
+    if isinstance(value, str) and '"' not in value and "\\" not in value:
+        return f'"{value}"'                  # double quotes, as in our docs
     return repr(value)
 
 
@@ -123,7 +125,7 @@ def error_text(err: BaseException) -> str:
 
 
 class MessageArea(widgets.HTML):
-    """Where a panel says what went wrong (class ``tf-error``) or what it notes."""
+    """Where a panel says what went wrong (class ``tf-error``; empty when all is well)."""
 
     def __init__(self, **kw):
         super().__init__(value="", **kw)
@@ -135,18 +137,29 @@ class MessageArea(widgets.HTML):
         self.value = (f"<div class='tf-message' style='color:#A33;padding:4px 0'>"
                       f"{html.escape(self.text)}</div>")
 
-    def show_notes(self, notes) -> None:
-        notes = [str(n) for n in (notes or ())]
-        self.text = "\n".join(notes)
-        if not notes:
-            self.value = ""
-            return
-        items = "".join(f"<li>{html.escape(n)}</li>" for n in notes)
-        self.value = f"<ul class='tf-notes' style='margin:2px 0'>{items}</ul>"
-
     def clear(self) -> None:
         self.text = ""
         self.value = ""
+
+
+class NotesArea(widgets.HTML):
+    """The plain-language notes of the results on screen (class ``tf-notes``)."""
+
+    def __init__(self, **kw):
+        super().__init__(value="", **kw)
+        self.add_class("tf-notes")
+        self.items: list[str] = []
+
+    def show(self, notes) -> None:
+        self.items = list(dict.fromkeys(str(n) for n in (notes or ())))
+        if not self.items:
+            self.value = ""
+            return
+        lis = "".join(f"<li>{html.escape(n)}</li>" for n in self.items)
+        self.value = f"<ul style='margin:2px 0'>{lis}</ul>"
+
+    def clear(self) -> None:
+        self.show(())
 
 
 # ---------------------------------------------------------------------------- figures

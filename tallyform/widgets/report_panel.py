@@ -45,10 +45,10 @@ def settings_spec(dashboard) -> dict:
 def reproduce_code(dashboard) -> str:
     """Python that recomputes what the dashboard shows, one core call per line."""
     tab = dashboard.table
-    origin = f" read from {tab.origin.file!r}" if getattr(tab.origin, "file", None) else ""
+    origin = f"read from {tab.origin.file}; " if getattr(tab.origin, "file", None) else ""
     lines = ["import tallyform as tly", "",
-             f"{TABLE} = ...  # the CommunityTable given to tly.explore{origin} "
-             f"(fingerprint {tab.fingerprint})", ""]
+             f"{TABLE} = ...  # the CommunityTable given to tly.explore ({origin}"
+             f"fingerprint {tab.fingerprint})", ""]
     data = dashboard.data.calls
     lines.append("# Data")
     for key in ("summary", "totals"):
@@ -117,10 +117,13 @@ class ReportPanel(widgets.VBox):
         self.export_button = widgets.Button(description="Export figures and tables",
                                             icon="download")
         self.export_button.add_class("tf-export-button")
+        self.static = widgets.Checkbox(value=False, indent=False,
+                                       description="also PNG and SVG (needs Chromium)")
+        self.static.add_class("tf-export-static")
         self.export_state = widgets.HTML()
         self.export_state.add_class("tf-export-state")
         self.messages = MessageArea()
-        self.controls = [self.folder, self.export_button]
+        self.controls = [self.folder, self.static, self.export_button]
         super().__init__([
             widgets.HTML("<b>Reproduce this</b> (the core calls behind what is shown)"),
             self.reproduce,
@@ -154,9 +157,13 @@ class ReportPanel(widgets.VBox):
         self.error = None
         self.messages.clear()
         written: list[Path] = []
+        skipped: dict = {}
+        formats = ("html", "png", "svg") if self.static.value else ("html",)
         try:
             for name, fig in self._figures():
-                written += _save_figure(fig, out / name)
+                saved = _save_figure(fig, out / name, formats)
+                written += list(saved)
+                skipped.update(getattr(saved, "skipped", {}))
             for name, frame in self._tables():
                 written.append(atomic_write_text(out / f"{name}.csv", frame.to_csv()))
             written.append(atomic_write_text(out / "settings.json",
@@ -167,8 +174,10 @@ class ReportPanel(widgets.VBox):
             self.messages.show_error(err)
             self.export_state.value = ""
         else:
+            why = "".join(f" {fmt.upper()} skipped: {html.escape(reason)}."
+                          for fmt, reason in skipped.items())
             self.export_state.value = (f"Wrote {len(written)} files to "
-                                       f"<code>{html.escape(str(out))}</code>.")
+                                       f"<code>{html.escape(str(out))}</code>.{why}")
         self.written = written
         return written
 
@@ -201,14 +210,12 @@ class ReportPanel(widgets.VBox):
         return out
 
 
-def _save_figure(fig, stem: Path) -> list[Path]:
-    """Save through the render ring's ``save`` (atomic there); the paths it wrote."""
-    from ..render import export
-    stem.parent.mkdir(parents=True, exist_ok=True)
-    written = export.save(fig, stem)
-    if written is None:
-        return [stem]
-    if isinstance(written, (str, Path)):
-        return [Path(written)]
-    return [Path(p) for p in written]
+def _save_figure(fig, stem: Path, formats):
+    """Save through the render ring's ``save`` (atomic there); the files it wrote."""
+    import warnings
+
+    from ..render.export import StaticExportWarning, save
+    with warnings.catch_warnings():          # the reason is shown in the panel instead
+        warnings.simplefilter("ignore", StaticExportWarning)
+        return save(fig, stem, formats=formats)
 

@@ -22,7 +22,7 @@ import traitlets
 from ..core.measures import MEASURES
 from ..core.partition import SHAPE_OPTIONS, SIZE_OPTIONS
 from ..core.transforms import TRANSFORMS
-from .common import (TABLE, Call, MessageArea, Ref, copy_figure, given, new_figure_widget,
+from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, given, new_figure_widget,
                      plots, transform_code)
 
 __all__ = ["ShapePanel", "LIVE_BUDGET", "POWER", "group_options"]
@@ -85,7 +85,9 @@ class ShapePanel(widgets.VBox):
     ordination, ellipse_set : Ordination, EllipseSet or None
     partition_plot, ordination_plot : plotly FigureWidget
     messages : MessageArea
-        Notes of the results, or the error that stopped an update.
+        The error that stopped an update (empty when all is well).
+    notes : NotesArea
+        Plain-language notes of the results shown.
     calls : dict
         The core calls behind what is shown (``partition``, ``ordination``, ``ellipses``).
     last_compute : float
@@ -138,9 +140,10 @@ class ShapePanel(widgets.VBox):
 
         self.partition_plot = new_figure_widget("tf-partition-plot")
         self.ordination_plot = new_figure_widget("tf-ordination-plot")
-        self.summary = widgets.HTML()
-        self.summary.add_class("tf-partition-summary")
+        self.fractions_text = widgets.HTML()
+        self.fractions_text.add_class("tf-partition-summary")
         self.messages = MessageArea()
+        self.notes = NotesArea()
 
         self.controls = [self.transform, self.measure, self.size, self.shape,
                          self.shape_dims, self.group, self.ellipses]
@@ -149,7 +152,8 @@ class ShapePanel(widgets.VBox):
         row3 = widgets.HBox([self.group, self.ellipses])
         plots_row = widgets.HBox([self.partition_plot, self.ordination_plot],
                                  layout=widgets.Layout(flex_flow="row wrap"))
-        super().__init__([row1, row2, row3, self.messages, self.summary, plots_row])
+        super().__init__([row1, row2, row3, self.messages, self.fractions_text, plots_row,
+                          self.notes])
         self.add_class("tf-panel-shape")
 
         self.exponent.observe(self._exponent_moved, names="value")
@@ -221,6 +225,7 @@ class ShapePanel(widgets.VBox):
         calls = self.build_calls()
         t0 = time.perf_counter()
         self.messages.clear()
+        self.notes.clear()
         self.error = None
         self.result = self._attempt("partition", calls, self.partition_plot)
         self.ordination = self._attempt("ordination", calls, self.ordination_plot)
@@ -254,12 +259,9 @@ class ShapePanel(widgets.VBox):
                 self.error = err
                 self.messages.show_error(err)
         if self.error is None:
-            notes = list(self.result.notes)
-            notes += [n for n in self.ordination.notes if n not in notes]
-            if self.ellipse_set is not None:
-                notes += [n for n in getattr(self.ellipse_set, "notes", ()) if n not in notes]
-            self.messages.show_notes(notes)
-        self.summary.value = _fractions_html(self.result)
+            self.notes.show(list(self.result.notes) + list(self.ordination.notes)
+                            + list(getattr(self.ellipse_set, "notes", ())))
+        self.fractions_text.value = _fractions_html(self.result)
         self.revision += 1
 
     def _attempt(self, name: str, calls: dict, plot, *, key_extra: str = ""):
@@ -277,7 +279,7 @@ class ShapePanel(widgets.VBox):
             with plot.batch_update():         # never leave a figure that no longer matches
                 plot.data = ()
             if plot is self.partition_plot:
-                self.summary.value = ""
+                self.fractions_text.value = ""
             return None
         self._done[key] = result
         return result

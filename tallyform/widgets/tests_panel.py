@@ -20,7 +20,7 @@ import time
 import ipywidgets as widgets
 import traitlets
 
-from ..core.errors import Cancelled
+from ..core.errors import Cancelled, DesignError
 from ..core.inference import _ADJUST
 from ..core.size_tests import _METHODS
 from ..core.transforms import TRANSFORMS
@@ -219,6 +219,12 @@ class TestsPanel(widgets.VBox):
     def run(self, *, block: bool = False) -> None:
         """Start the current call in a background thread (``block=True`` waits for it)."""
         if self.running:
+            return
+        if not self.group.value:
+            self.status, self.result = "error", None
+            self.error = DesignError("choose a group (a column of the sample information) "
+                                     "whose levels the tests compare.")
+            self.messages.show_error(self.error)
             return
         call = self.build_call()
         self.call, self.result, self.error = call, None, None

@@ -212,8 +212,10 @@ class ShapePanel(widgets.VBox):
         if self.transform.value != POWER:
             with self.hold():                 # moving the slider means "use the exponent"
                 self.transform.value = POWER
-            return
-        self._changed(change)
+        else:
+            self._changed(change)
+        # live while dragging only as long as an update fits the budget (measured each time)
+        self.exponent.continuous_update = self.last_compute <= LIVE_BUDGET
 
     def _changed(self, change=None):
         if not self._hold:

@@ -51,8 +51,19 @@ class Call:
     Arguments may be literals, :class:`Ref` values or nested calls (``tly.pcoa(
     tly.dissimilarity(...))``). ``run`` resolves nested calls first, then calls the function
     found on ``core`` (the ``tallyform`` module unless a test injects another namespace).
-    Keyword arguments whose value is None are left out of the code and of the call, so the
-    core's own default applies in both.
+    Build ``kwargs`` with :func:`given` to leave out options that should take the core's
+    default (in the code and in the call alike).
+
+    Examples
+    --------
+    >>> import tallyform as tly
+    >>> tab = tly.demo("mesocosm")
+    >>> call = Call("size_shape", (Ref("tab", tab), "hellinger"), given(transform="sqrt"))
+    >>> call.code()
+    'tly.size_shape(tab, "hellinger", transform="sqrt")'
+    >>> call.run(tly).fractions.equals(
+    ...     tly.size_shape(tab, "hellinger", transform="sqrt").fractions)
+    True
     """
 
     func: str

@@ -90,5 +90,15 @@ def explore(table, *, group: str | None = None, present: bool = False) -> Dashbo
         An ipywidgets container; display it in a notebook. Its panels keep their last
         results (``dash.shape.result``, ``dash.tests.result``...), and the Report panel
         shows the core calls behind them as code.
+
+    Examples
+    --------
+    >>> import tallyform as tly
+    >>> dash = tly.explore(tly.demo("mesocosm"), group="treatment")   # synthetic demo
+    >>> dash.shape.exponent.value = 0.5          # what moving the slider does
+    >>> dash.shape.result.transform
+    'sqrt'
+    >>> print(dash.shape.calls["partition"].code())
+    tly.size_shape(tab, "bray_curtis", transform="sqrt", size="log_total", shape="chi_square")
     """
     return Dashboard(table, group=group, present=present)

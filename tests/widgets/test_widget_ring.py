@@ -20,3 +20,13 @@ def test_widgets_import_no_numerical_library():
                 assert name.split(".")[0] not in {"numpy", "scipy", "statsmodels", "sklearn",
                                                   "numba"}, (f.name, name)
                 assert not name.startswith("tallyform.cli"), (f.name, name)
+
+
+def test_examples_run():
+    # the Examples sections of the widget modules are doctests
+    import doctest
+
+    from tallyform.widgets import common, dashboard
+    for mod in (common, dashboard):
+        result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
+        assert result.failed == 0 and result.attempted > 0, mod.__name__

@@ -10,14 +10,17 @@ from .core.errors import DesignError, InputError, TooLargeError
 from .core.constrained import ca, cca, db_rda, rda
 from .core.dispersion import dispersion_test
 from .core.inference import pairwise_permanova, permanova
+from .core.contributions import TaxonContributions, taxon_contributions
 from .core.io import read_counts, read_darwin_core, read_long, read_samples
 from .core.nmds import nmds
 from .core.ordination import Ordination, pcoa
+from .core.analysis import AnalysisResults, run
 from .core.audit import AuditResult, audit
 from .core.partition import SizeShapeResult, size_shape
 from .core.scan import ScanResult, scan
 from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
+from .core.spec import AnalysisSpec
 from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
 from .core.measures import MEASURES, Measure, get_measure
 from .core.size_tests import compare_groups, size_test
@@ -42,11 +45,12 @@ __all__ = [
     "CommunityTable", "read_counts", "read_samples", "read_long", "read_darwin_core",
     "demo", "demo_names", "simulate_community", "errors", "InputError", "DesignError",
     "TooLargeError", "__version__",
+    "AnalysisSpec", "run", "AnalysisResults",
     "size_shape", "SizeShapeResult", "scan", "ScanResult", "audit", "AuditResult",
     "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination",
     "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
     "permanova", "pairwise_permanova", "dispersion_test", "size_test", "compare_groups",
-    "explore",
+    "taxon_contributions", "TaxonContributions", "explore",
 ]

@@ -9,3 +9,4 @@ from .export import SavedFiles, StaticExportWarning, save, static_export_availab
 from .partition_plots import dims_figure, partition_bars, scan_heatmap  # noqa: F401
 from .style import (FRACTION_COLOURS, OKABE_ITO, base_layout, group_colours,  # noqa: F401
                     group_levels)
+from .taxa_plots import taxon_shape_figure, taxon_size_figure  # noqa: F401

@@ -1,0 +1,289 @@
+"""AnalysisSpec: every choice of an analysis, as data (JSON round trip), and ``run()``.
+
+The dashboard edits a spec, the report embeds it, the methods paragraph is written from it,
+and ``tly.run(spec, table)`` recomputes every result from it, so a shared notebook or report
+can be reproduced without the widgets. Loading a spec reads JSON only (never code) and checks
+every key and value.
+"""
+from __future__ import annotations
+
+import dataclasses
+import json
+from dataclasses import dataclass, field, fields
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = ["AnalysisSpec", "SPEC_VERSION"]
+
+SPEC_VERSION = 1
+
+_CHOICES = {
+    "size": ("log_total", "total", "log_total_per_effort"),
+    "shape": ("chi_square", "hellinger", "aitchison", "same_measure"),
+    "shape_measure": ("chi_square", "hellinger", "aitchison", "chord"),
+    "size_method": ("anova", "welch", "kruskal", "permutation", "negbin"),
+    "pairwise_adjust": ("holm", "bh", None),
+    "dispersion_centre": ("mean", "median"),
+    "ordination": ("pcoa", "nmds"),
+    "correction": (None, "lingoes", "cailliez"),
+    "ellipse": ("confidence", "prediction", "data", "bootstrap", None),
+    "ss": ("sequential", "marginal"),
+    "audit_model": ("dirichlet_multinomial", "multinomial"),
+}
+DEFAULT_SCAN_MEASURES = ("euclidean", "manhattan", "bray_curtis", "canberra", "chi_square",
+                         "hellinger", "chord", "jaccard")
+DEFAULT_SCAN_TRANSFORMS = ("none", "sqrt", "fourth_root", "presence", "log1p")
+
+
+@dataclass(frozen=True)
+class AnalysisSpec:
+    """Every choice of a size-and-shape analysis.
+
+    Parameters
+    ----------
+    group : str, optional
+        Sample column of the groups compared (treatment, habitat...). Needed by the tests,
+        ellipses, contributions and the audit.
+    terms : tuple of str, optional
+        PERMANOVA terms (default: just ``group``); interactions written ``"a:b"``.
+    blocks : str, optional
+        Column of blocks: permutations stay within them.
+    transform : str
+        Transformation before the measure: ``'none'``, ``'sqrt'``, ``'fourth_root'``,
+        ``'log1p'``, ``'presence'``, ``'power(0.3)'``...
+    measure : str
+        The dissimilarity under study (a key of ``tallyform.MEASURES``).
+    size, shape, shape_dims
+        The size predictor, the shape basis and its dimensions (see ``tly.size_shape``).
+    shape_measure : str
+        Size-free measure of the shape test (``tly.compare_groups``).
+    size_method : str
+        Univariate test of log totals.
+    n_permutations : int
+    seed : int or None
+        Seed of every random stream (each step gets its own stream spawned from it).
+    ss : {'sequential', 'marginal'}
+        Sums of squares of the PERMANOVA table.
+    pairwise_adjust, dispersion_centre, ordination, correction, ellipse, ellipse_level
+    scan_measures, scan_transforms : tuple
+        The grid of the scan.
+    contrast : tuple (a, b), optional
+        The two groups whose taxon contributions are shown (default: the first two levels).
+    contribution_measure : str
+    audit_n_sim, audit_n_permutations, audit_model, audit_reference
+        The audit: simulated tables, permutations per test, sampling model, reference.
+    alpha : float
+        Level used in the plain-language readings (p-values are always reported as they are).
+    """
+
+    group: str | None = None
+    terms: tuple | None = None
+    blocks: str | None = None
+    transform: str = "none"
+    measure: str = "bray_curtis"
+    size: str = "log_total"
+    shape: str = "chi_square"
+    shape_dims: int | None = None
+    shape_measure: str = "chi_square"
+    size_method: str = "anova"
+    n_permutations: int = 999
+    seed: int | None = 1
+    ss: str = "sequential"
+    pairwise_adjust: str | None = "holm"
+    dispersion_centre: str = "mean"
+    ordination: str = "pcoa"
+    correction: str | None = None
+    ellipse: str | None = "confidence"
+    ellipse_level: float = 0.95
+    scan_measures: tuple = DEFAULT_SCAN_MEASURES
+    scan_transforms: tuple = DEFAULT_SCAN_TRANSFORMS
+    contrast: tuple | None = None
+    contribution_measure: str = "hellinger"
+    audit_n_sim: int = 200
+    audit_n_permutations: int = 199
+    audit_model: str = "dirichlet_multinomial"
+    audit_reference: str = "chi_square"
+    alpha: float = 0.05
+    version: int = field(default=SPEC_VERSION)
+
+    def __post_init__(self):
+        for name in ("terms", "scan_measures", "scan_transforms", "contrast"):
+            v = getattr(self, name)
+            if isinstance(v, list):
+                object.__setattr__(self, name, tuple(v))
+        self.validate()
+
+    # ------------------------------------------------------------------ checks
+    def validate(self, table=None) -> "AnalysisSpec":
+        """Check every value (and, given a table, that the named columns exist)."""
+        from .measures import MEASURES
+        from .transforms import get_transform
+        for key, allowed in _CHOICES.items():
+            if getattr(self, key) not in allowed:
+                raise InputError(f"spec key {key!r} must be one of {list(allowed)}; got "
+                                 f"{getattr(self, key)!r}.")
+        for key in ("measure", "contribution_measure", "audit_reference"):
+            if getattr(self, key) not in MEASURES:
+                raise InputError(f"spec key {key!r} must name a measure "
+                                 f"({sorted(MEASURES)}); got {getattr(self, key)!r}.")
+        for m in self.scan_measures:
+            if m not in MEASURES:
+                raise InputError(f"spec key 'scan_measures' names unknown measure {m!r}.")
+        for key, value in [("transform", self.transform)] + [
+                ("scan_transforms", t) for t in self.scan_transforms]:
+            try:
+                get_transform(value)
+            except InputError as err:
+                raise InputError(f"spec key {key!r}: {err}") from None
+        _int_key("n_permutations", self.n_permutations, low=0)
+        _int_key("audit_n_sim", self.audit_n_sim, low=1)
+        _int_key("audit_n_permutations", self.audit_n_permutations, low=19)
+        if self.shape_dims is not None:
+            _int_key("shape_dims", self.shape_dims, low=1)
+        if self.seed is not None:
+            _int_key("seed", self.seed, low=0)
+        for key in ("alpha", "ellipse_level"):
+            v = getattr(self, key)
+            if not isinstance(v, (int, float)) or isinstance(v, bool) or not 0 < v < 1:
+                raise InputError(f"spec key {key!r} must be a number between 0 and 1; got "
+                                 f"{v!r}.")
+        for key in ("group", "blocks"):
+            v = getattr(self, key)
+            if v is not None and not isinstance(v, str):
+                raise InputError(f"spec key {key!r} must be a column name (text); got {v!r}.")
+        if self.terms is not None and (not self.terms or
+                                       not all(isinstance(t, str) for t in self.terms)):
+            raise InputError("spec key 'terms' must be a non-empty list of column names.")
+        if self.contrast is not None and (len(self.contrast) != 2 or
+                                          self.contrast[0] == self.contrast[1]):
+            raise InputError("spec key 'contrast' must name two different groups.")
+        if table is not None:
+            cols = set(table.samples.columns)
+            named = [self.group, self.blocks] + [p for t in self.model_terms
+                                                 for p in t.split(":")]
+            for c in named:
+                if c is not None and c not in cols:
+                    raise InputError(f"the spec names column {c!r}, which is not in the "
+                                     f"sample table (columns: {sorted(map(str, cols))}).")
+        return self
+
+    @property
+    def model_terms(self) -> tuple:
+        """PERMANOVA terms: ``terms``, or the group alone."""
+        if self.terms:
+            return tuple(self.terms)
+        return (self.group,) if self.group else ()
+
+    # ------------------------------------------------------------------ JSON
+    def to_dict(self) -> dict:
+        out = {}
+        for f in fields(self):
+            v = getattr(self, f.name)
+            out[f.name] = list(v) if isinstance(v, tuple) else v
+        return out
+
+    def to_json(self, path=None, *, indent: int = 2) -> str:
+        """The spec as JSON text (written atomically to ``path`` when given)."""
+        text = json.dumps(self.to_dict(), indent=indent, ensure_ascii=False)
+        if path is not None:
+            from .fileio import write_text_atomic
+            write_text_atomic(path, text + "\n")
+        return text
+
+    @classmethod
+    def from_dict(cls, data: dict) -> "AnalysisSpec":
+        if not isinstance(data, dict):
+            raise InputError(f"an analysis spec must be a JSON object; got "
+                             f"{type(data).__name__}.")
+        known = {f.name for f in fields(cls)}
+        unknown = [k for k in data if k not in known]
+        if unknown:
+            raise InputError(f"unknown spec key(s) {unknown}; known keys are "
+                             f"{sorted(known)}.")
+        if data.get("version", SPEC_VERSION) != SPEC_VERSION:
+            raise InputError(f"spec key 'version' is {data['version']!r}; this tallyform reads "
+                             f"version {SPEC_VERSION}.")
+        try:
+            return cls(**data)
+        except TypeError as err:          # e.g. a list where a number belongs
+            raise InputError(f"the spec has a value of the wrong kind: {err}.") from None
+
+    @classmethod
+    def from_json(cls, source) -> "AnalysisSpec":
+        """Read a spec from JSON text or a ``.json`` file (JSON only: no code is executed)."""
+        text = source
+        name = None
+        if isinstance(source, Path) or (isinstance(source, str) and
+                                        not source.lstrip().startswith("{")):
+            name = str(source)
+            try:
+                text = Path(source).read_text(encoding="utf-8")
+            except OSError as err:
+                raise InputError(f"cannot read the spec file {name!r}: {err.strerror}.") \
+                    from None
+        try:
+            data = json.loads(text)
+        except json.JSONDecodeError as err:
+            where = f"{name!r}, " if name else ""
+            raise InputError(f"the spec is not valid JSON ({where}line {err.lineno}, column "
+                             f"{err.colno}: {err.msg}).") from None
+        return cls.from_dict(data)
+
+    def replace(self, **changes) -> "AnalysisSpec":
+        """A copy with some choices changed (validated)."""
+        known = {f.name for f in fields(self)}
+        unknown = [k for k in changes if k not in known]
+        if unknown:
+            raise InputError(f"unknown spec key(s) {unknown}.")
+        return dataclasses.replace(self, **changes)
+
+    # ------------------------------------------------------------------ helpers
+    def transform_arg(self):
+        """The transform as passed to core functions (None for 'none')."""
+        return None if self.transform == "none" else self.transform
+
+    def code(self, table_name: str = "tab") -> str:
+        """Python code that reproduces the analysis with public calls ("reproduce this")."""
+        tr = f", transform={self.transform!r}" if self.transform != "none" else ""
+        seed = self.seed
+        lines = [
+            "import tallyform as tly",
+            "",
+            f"spec = tly.AnalysisSpec.from_json({self.to_json(indent=None)!r})",
+            f"results = tly.run(spec, {table_name})          # everything below at once",
+            "",
+            "# or step by step:",
+            f"s = tly.size_shape({table_name}, {self.measure!r}{tr}, size={self.size!r}, "
+            f"shape={self.shape!r}, shape_dims={self.shape_dims!r}, "
+            f"n_permutations={self.n_permutations}, rng={seed!r})",
+            f"d = tly.dissimilarity({table_name}, {self.measure!r}{tr})",
+        ]
+        if self.ordination == "pcoa":
+            lines.append(f"o = tly.pcoa(d, correction={self.correction!r})")
+        else:
+            lines.append(f"o = tly.nmds(d, rng={seed!r})")
+        if self.group:
+            if self.ellipse:
+                lines.append(f"e = o.ellipses({table_name}.samples[{self.group!r}], "
+                             f"kind={self.ellipse!r}, level={self.ellipse_level!r})")
+            lines += [
+                f"c = tly.compare_groups({table_name}, {self.group!r}, "
+                f"shape_measure={self.shape_measure!r}, size_method={self.size_method!r}, "
+                f"blocks={self.blocks!r}, n_permutations={self.n_permutations}, rng={seed!r})",
+                f"p = tly.permanova(d, {table_name}, {list(self.model_terms)!r}, "
+                f"blocks={self.blocks!r}, n_permutations={self.n_permutations}, "
+                f"ss={self.ss!r}, rng={seed!r})",
+                f"a = tly.audit({table_name}, {self.group!r}, {self.measure!r}{tr}, "
+                f"reference={self.audit_reference!r}, n_sim={self.audit_n_sim}, "
+                f"n_permutations={self.audit_n_permutations}, model={self.audit_model!r}, "
+                f"rng={seed!r})",
+            ]
+        return "\n".join(lines)
+
+
+def _int_key(key, value, *, low):
+    if not isinstance(value, (int, np.integer)) or isinstance(value, bool) or value < low:
+        raise InputError(f"spec key {key!r} must be a whole number >= {low}; got {value!r}.")

@@ -127,6 +127,12 @@ class AuditResult(ResultMixin):
             index=pd.Index([label, f"{self.reference} (size-free reference)"],
                            name="measure"))
 
+    def figure(self, **kwargs):
+        """The two false-alarm rates with their intervals and a line at alpha
+        (:func:`tallyform.render.plots.audit_figure`)."""
+        from ..render.inference_plots import audit_figure  # lazy: plotly is outer ring
+        return audit_figure(self, **kwargs)
+
     def _title(self) -> str:
         return (f"Audit: false alarms for 'composition differs' when only size differs "
                 f"({self.group}, alpha = {self.alpha:g})")

@@ -46,6 +46,8 @@ class DispersionResult(ResultMixin):
     exact : bool
     scheme : str
     measure : str
+    groups : Series or None
+        Group label of every sample (indexed like ``distances``), for figures.
     notes : tuple of str
     """
 
@@ -61,12 +63,23 @@ class DispersionResult(ResultMixin):
     scheme: str
     measure: str
     notes: tuple = ()
+    groups: pd.Series | None = None
 
     def __post_init__(self):
         object.__setattr__(self, "null_distribution", readonly(self.null_distribution))
 
     def to_frame(self) -> pd.DataFrame:
         return self.group_means.copy()
+
+    def figure(self, *, kind: str = "distances", **kwargs):
+        """A plotly figure: ``kind='distances'`` distances to the group centres by group,
+        ``'null'`` the permutation distribution of F with the observed value."""
+        check_option("kind", kind, ("distances", "null"))
+        if kind == "null":
+            from ..render.inference_plots import null_distribution_figure  # lazy: plotly
+            return null_distribution_figure(self, **kwargs)
+        from ..render.inference_plots import dispersion_figure
+        return dispersion_figure(self, **kwargs)
 
     def _title(self) -> str:
         return (f"Dispersion test on {self.measure}: distances to group {self.centre}s, "
@@ -272,4 +285,6 @@ def dispersion_test(d, groups, *, n_permutations: int = 999, rng=None, centre: s
                             group_means=means, df=test.df, centre=centre,
                             null_distribution=test.null_distribution,
                             n_permutations=test.n_permutations, exact=test.exact,
-                            scheme=test.scheme, measure=d.measure, notes=notes)
+                            scheme=test.scheme, measure=d.measure, notes=notes,
+                            groups=pd.Series(labels.to_numpy(), index=d.labels.copy(),
+                                             name=name))

@@ -172,6 +172,12 @@ class PermanovaResult(ResultMixin):
     def to_frame(self) -> pd.DataFrame:
         return self.table.copy()
 
+    def figure(self, *, term: str | None = None, **kwargs):
+        """The permutation distribution of one term's pseudo-F with the observed value
+        (:func:`tallyform.render.plots.null_distribution_figure`; default: first term)."""
+        from ..render.inference_plots import null_distribution_figure  # lazy: plotly
+        return null_distribution_figure(self, term=term, **kwargs)
+
     def _title(self) -> str:
         perms = "exact" if self.exact else f"{self.n_permutations} permutations"
         return (f"PERMANOVA on {self.measure} ({self.n_samples} samples, {self.ss_type} sums "

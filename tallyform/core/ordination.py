@@ -196,6 +196,20 @@ class Ordination(ResultMixin):
         return (f"<div><p><b>{_html.escape(self._title())}</b></p>{body}"
                 f"{self._notes_html()}</div>")
 
+    def figure(self, *, kind: str = "samples", **kwargs):
+        """A plotly figure: ``kind='samples'`` the ordination plot, ``'scree'`` eigenvalues.
+
+        Keyword arguments go to :func:`tallyform.render.plots.ordination_figure` (``group``,
+        ``symbol``, ``ellipses``, ``axes``, ``taxa``, ``top_taxa``, ``arrows``, ``title``,
+        ``present``) or :func:`~tallyform.render.plots.scree_figure` (``present``).
+        """
+        check_option("kind", kind, ("samples", "scree"))
+        if kind == "scree":
+            from ..render.ordination_plots import scree_figure  # lazy: plotly is outer ring
+            return scree_figure(self, **kwargs)
+        from ..render.ordination_plots import ordination_figure
+        return ordination_figure(self, **kwargs)
+
     # ------------------------------------------------------------------ derived results
     def ellipses(self, group, *, kind: str = "confidence", level: float = 0.95,
                  axes=(0, 1), n_boot: int = 999, rng=None):

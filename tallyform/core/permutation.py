@@ -481,6 +481,12 @@ class PermutationTest(ResultMixin):
     def _title(self) -> str:
         return f"Permutation F test ({self.scheme})"
 
+    def figure(self, **kwargs):
+        """The permutation distribution with the observed pseudo-F and p-value
+        (:func:`tallyform.render.plots.null_distribution_figure`)."""
+        from ..render.inference_plots import null_distribution_figure  # lazy: plotly
+        return null_distribution_figure(self, **kwargs)
+
 
 def pvalue_from_null(observed: float, null: np.ndarray, *, exact: bool) -> float:
     """Add-one p-value for random permutations, plain proportion for exact enumeration."""

@@ -32,6 +32,7 @@ _BROWSER_NAMES = ("chromium", "chromium-browser", "google-chrome", "google-chrom
                   "chrome")
 _DEFAULT_SIZE = (1000, 650)     # layout pixels of a static image when the figure sets none
 _PNG_SCALE = 2                  # PNGs at twice the layout size: sharp on a projector
+_ATTEMPTS = 2                   # kaleido 1.x sometimes calls into a page not yet loaded
 _probe_cache: dict = {}
 
 _PROBE = """
@@ -97,6 +98,17 @@ def _kill_group(proc: subprocess.Popen) -> None:
 
 
 def _probe(browser: str | None, timeout: float) -> tuple[bool, str]:
+    """Render a tiny PNG in a separate process (a second try after a failure, none after
+    a timeout)."""
+    ok, why = _probe_once(browser, timeout)
+    for _ in range(_ATTEMPTS - 1):
+        if ok or "did not render" in why:
+            break
+        ok, why = _probe_once(browser, timeout)
+    return ok, why
+
+
+def _probe_once(browser: str | None, timeout: float) -> tuple[bool, str]:
     """Render a tiny PNG in a separate process that is killed if it takes too long."""
     env = dict(os.environ)
     if browser:
@@ -213,13 +225,19 @@ def _write_static(fig, targets: dict) -> None:
     try:
         fmts = list(temps)
         scales = [_PNG_SCALE if f == "png" else 1 for f in fmts]
-        if hasattr(pio, "write_images"):          # plotly >= 6.1: one browser for all
-            pio.write_images([fig] * len(fmts), [str(temps[f]) for f in fmts], format=fmts,
-                             width=width, height=height, scale=scales)
-        else:
-            for f, s in zip(fmts, scales):
-                pio.write_image(fig, str(temps[f]), format=f, width=width, height=height,
-                                scale=s)
+        for attempt in range(_ATTEMPTS):
+            try:
+                if hasattr(pio, "write_images"):      # plotly >= 6.1: one browser for all
+                    pio.write_images([fig] * len(fmts), [str(temps[f]) for f in fmts],
+                                     format=fmts, width=width, height=height, scale=scales)
+                else:
+                    for f, s in zip(fmts, scales):
+                        pio.write_image(fig, str(temps[f]), format=f, width=width,
+                                        height=height, scale=s)
+                break
+            except Exception:  # noqa: BLE001 - one more try, then the caller reports it
+                if attempt + 1 == _ATTEMPTS:
+                    raise
         for f in fmts:
             if temps[f].stat().st_size == 0:
                 raise RuntimeError(f"the exporter wrote an empty {f.upper()} file")

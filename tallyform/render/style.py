@@ -8,7 +8,7 @@ from __future__ import annotations
 import pandas as pd
 
 __all__ = ["OKABE_ITO", "FRACTION_COLOURS", "FRACTION_LABELS", "FONT_SIZE", "TITLE_SIZE",
-           "PRESENT_FONT_SIZE", "SYMBOLS", "NEUTRAL", "OBSERVED", "EIGEN_COLOURS",
+           "PRESENT_FONT_SIZE", "SYMBOLS", "NEUTRAL", "MARKER_EDGE", "OBSERVED", "EIGEN_COLOURS",
            "group_colours", "group_levels", "sizes", "base_layout", "subtitle"]
 
 # Colour-blind-safe qualitative palette (Okabe & Ito 2008), for groups.
@@ -30,6 +30,7 @@ SYMBOLS = ["circle", "square", "diamond", "triangle-up", "triangle-down", "cross
            "star", "hexagon", "pentagon"]
 
 NEUTRAL = "#7F7F7F"      # permuted statistics, taxa, anything that is not a group
+MARKER_EDGE = "rgba(0, 0, 0, 0.45)"   # thin dark edge: keeps the yellow group visible
 OBSERVED = "#000000"     # an observed statistic, a nominal rate
 # Eigenvalues in a scree plot: positive axes (constrained darker), negative ones hatched.
 EIGEN_COLOURS = {"constrained": "#0072B2", "positive": "#56B4E9", "negative": "#D55E00"}
@@ -86,14 +87,18 @@ def base_layout(fig, *, title: str | None = None, legend_title: str | None = Non
     sz = sizes(present)
     font_size = sz["font"] if font_size is None else font_size
     n_title_lines = (title or "").count("<br>") + 1 if title else 0
+    # the title hangs from the top of the figure; the top margin grows with its lines
+    line = round(1.35 * (font_size + 4))       # plotly spaces every title line alike
+    top = font_size + 6 + line * n_title_lines + 8 if title else 40
     fig.update_layout(
         template="plotly_white",
         font={"size": font_size, "family": "Arial, Helvetica, sans-serif", "color": "#222222"},
-        title={"text": title, "font": {"size": font_size + 4}, "x": 0.01,
-               "xanchor": "left"} if title else None,
+        title={"text": title, "font": {"size": font_size + 4}, "x": 0.01, "xanchor": "left",
+               "y": 1.0, "yref": "container", "yanchor": "top",
+               "pad": {"t": font_size + 6}} if title else None,
         legend={"title": {"text": legend_title}} if legend_title else {},
         showlegend=True,
-        margin={"l": 70, "r": 30, "t": 40 + 34 * n_title_lines if title else 40, "b": 60},
+        margin={"l": 70, "r": 30, "t": top, "b": 60},
         hoverlabel={"font": {"size": font_size - 2}},
     )
     if height:

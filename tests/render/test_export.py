@@ -94,7 +94,10 @@ def test_failed_static_write_keeps_old_image(tmp_path, fig, monkeypatch):
     (tmp_path / "fig.png").write_bytes(b"OLD PNG")
     monkeypatch.setattr(export, "static_export_available", lambda **kw: (True, "test"))
 
+    calls = []
+
     def half_written(figs, files, **kw):
+        calls.append(files)
         with open(files[0], "wb") as fh:       # a partial image, then the exporter dies
             fh.write(b"\x89PNG partial")
         raise RuntimeError("browser crashed (simulated)")
@@ -105,6 +108,7 @@ def test_failed_static_write_keeps_old_image(tmp_path, fig, monkeypatch):
     assert (tmp_path / "fig.png").read_bytes() == b"OLD PNG"
     assert _only(tmp_path) == ["fig.html", "fig.png"]
     assert "browser crashed" in out.skipped["png"]
+    assert len(calls) == export._ATTEMPTS             # tried again before giving up
 
 
 def test_missing_browser_is_reported_without_probing(monkeypatch, tmp_path):

@@ -31,7 +31,7 @@ class Dashboard(widgets.VBox):
         Projector mode (see :meth:`set_present`).
     """
 
-    def __init__(self, table, *, group: str | None = None, present: bool = False,
+    def __init__(self, table, *, group: str | None = None, spec=None, present: bool = False,
                  core=None):
         self.table = as_table(table)
         self.present = False
@@ -51,9 +51,30 @@ class Dashboard(widgets.VBox):
         self.add_class("tf-dashboard")
         for panel in (self.data, self.shape, self.tests):
             panel.observe(self.report.refresh, names="revision")
+        if spec is not None:
+            self.apply_spec(spec)
         self.report.refresh()
         if present:
             self.set_present(True)
+
+    @property
+    def spec(self):
+        """The current settings as an AnalysisSpec (None while they form no valid spec)."""
+        return self.report.spec
+
+    def apply_spec(self, spec) -> None:
+        """Set every control from an AnalysisSpec (or its dict or JSON text)."""
+        from ..core.spec import AnalysisSpec
+        if isinstance(spec, dict):
+            spec = AnalysisSpec.from_dict(spec)
+        elif isinstance(spec, str):
+            spec = AnalysisSpec.from_json(spec)
+        spec.validate(self.table)
+        if spec.group:
+            self.data.group.value = spec.group          # linked: every panel follows
+        self.tests.apply_spec(spec)
+        self.shape.apply_spec(spec)
+        self.report.refresh()
 
     @property
     def panels(self) -> tuple:
@@ -73,7 +94,7 @@ class Dashboard(widgets.VBox):
             self.remove_class("tf-present")
 
 
-def explore(table, *, group: str | None = None, present: bool = False) -> Dashboard:
+def explore(table, *, group: str | None = None, spec=None, present: bool = False) -> Dashboard:
     """Open the dashboard on a table: data, size and shape, tests, report.
 
     Parameters
@@ -81,6 +102,8 @@ def explore(table, *, group: str | None = None, present: bool = False) -> Dashbo
     table : CommunityTable, DataFrame or array
     group : str, optional
         Sample-information column to compare (default: the first text column).
+    spec : AnalysisSpec, dict or JSON text, optional
+        Start from these settings (e.g. the ``spec.json`` of an earlier export).
     present : bool, default False
         Projector mode: larger fonts, only the transform exponent slider shown.
 
@@ -101,4 +124,4 @@ def explore(table, *, group: str | None = None, present: bool = False) -> Dashbo
     >>> print(dash.shape.calls["partition"].code())
     tly.size_shape(tab, "bray_curtis", transform="sqrt", size="log_total", shape="chi_square")
     """
-    return Dashboard(table, group=group, present=present)
+    return Dashboard(table, group=group, spec=spec, present=present)

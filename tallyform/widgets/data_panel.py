@@ -76,8 +76,9 @@ class DataPanel(widgets.VBox):
             w.observe(self.refresh, names="value")
         self.refresh()
 
-    def settings(self) -> dict:
-        return {"group": self.group.value or None, "per_effort": bool(self.per_effort.value)}
+    def spec_values(self) -> dict:
+        """This panel's choices under their :class:`tallyform.AnalysisSpec` names."""
+        return {"group": self.group.value or None}
 
     def refresh(self, change=None) -> None:
         """Totals by the chosen group: table and figure."""

@@ -191,11 +191,32 @@ class ShapePanel(widgets.VBox):
                                          {"kind": "confidence"}, obj=Ref("o", None))
         return calls
 
-    def settings(self) -> dict:
-        """Current choices, for the spec shown in the Report panel."""
-        return {"transform": self.transform_value(), "measure": self.measure.value,
+    def spec_values(self) -> dict:
+        """This panel's choices under their :class:`tallyform.AnalysisSpec` names."""
+        return {"transform": self.transform_value() or "none", "measure": self.measure.value,
                 "size": self.size.value, "shape": self.shape.value,
-                "shape_dims": self.shape_dims.value or None, "group": self.group.value or None}
+                "shape_dims": self.shape_dims.value or None,
+                "ellipse": "confidence" if self.ellipses.value else None,
+                "group": self.group.value or None}
+
+    def apply_spec(self, spec) -> None:
+        """Set the controls from a spec, with one update (the group is set by the dashboard)."""
+        from ..core.transforms import Power, get_transform
+        tr = get_transform(spec.transform)
+        with self.hold():
+            if isinstance(tr, Power) or tr.name in _POWER_FAMILY:
+                a = tr.a if isinstance(tr, Power) else {"none": 1.0, "sqrt": 0.5,
+                                                       "fourth_root": 0.25,
+                                                       "presence": 0.0}[tr.name]
+                self.transform.value = POWER
+                self.exponent.value = a
+            else:
+                self.transform.value = tr.name
+            self.measure.value = spec.measure
+            self.size.value = spec.size
+            self.shape.value = spec.shape
+            self.shape_dims.value = spec.shape_dims or 0
+            self.ellipses.value = spec.ellipse is not None
 
     # ------------------------------------------------------------------ events
     @contextlib.contextmanager
@@ -209,6 +230,8 @@ class ShapePanel(widgets.VBox):
         self.refresh()
 
     def _exponent_moved(self, change):
+        if self._hold:
+            return
         if self.transform.value != POWER:
             with self.hold():                 # moving the slider means "use the exponent"
                 self.transform.value = POWER

@@ -5,8 +5,12 @@ callbacks so the notebook stays responsive:
 
 * ``tly.compare_groups(tab, group, shape_measure=..., ...)`` (size test, shape test,
   dispersion test and a plain reading);
-* ``tly.pairwise_permanova(tly.dissimilarity(tab, measure, ...), tab, group, ...)``;
-* ``tly.taxon_contributions(tab, group, a, b, measure=..., ...)`` when the core has it.
+* ``tly.pairwise_permanova(tly.dissimilarity(tab, shape_measure), tab, group, ...)``;
+* ``tly.taxon_contributions(tab, group, a, b, measure=..., rng=...)`` when the core has it.
+
+The options are those of :class:`tallyform.AnalysisSpec` (shape measure, size method,
+blocks, permutations, seed, pairwise adjustment, contrast, contribution measure), so the
+panel's settings are always a valid spec and ``tly.run(spec, tab)`` gives the same numbers.
 
 Widgets are updated from the thread by trait assignment only, which ipywidgets supports.
 """
@@ -21,12 +25,11 @@ import ipywidgets as widgets
 import traitlets
 
 from ..core.errors import Cancelled, DesignError
-from ..core.inference import _ADJUST
-from ..core.size_tests import _METHODS
-from ..core.transforms import TRANSFORMS
-from .common import (TABLE, Call, MessageArea, Ref, copy_figure, given, new_figure_widget,
-                     plots, transform_code)
-from .shape_panel import default_group, group_options, measure_options
+from ..core.measures import MEASURES
+from ..core.spec import _CHOICES
+from ..core.taxon_terms import PAIR_MEASURES, SPLIT_MEASURES
+from .common import TABLE, Call, MessageArea, Ref, copy_figure, given, new_figure_widget, plots
+from .shape_panel import default_group, group_options
 
 __all__ = ["TestsPanel", "ANALYSES"]
 
@@ -42,8 +45,8 @@ class TestsPanel(widgets.VBox):
 
     Attributes
     ----------
-    analysis, group, measure, transform, size_method, adjust, blocks, pair_a, pair_b,
-    n_permutations, seed : widgets
+    analysis, group, shape_measure, contribution_measure, size_method, adjust, blocks,
+    pair_a, pair_b, n_permutations, seed : widgets
     run_button, cancel_button : Button
     progress : IntProgress
     results : HTML
@@ -81,19 +84,22 @@ class TestsPanel(widgets.VBox):
         self.group = widgets.Dropdown(options=group_options(table), description="Group",
                                       value=default_group(table) if group is None else group)
         self.group.add_class("tf-group")
-        self.measure = widgets.Dropdown(options=measure_options(), value="chi_square",
-                                        description="Measure")
-        self.measure.add_class("tf-measure")
-        self.transform = widgets.Dropdown(
-            options=[(t.label, name) for name, t in TRANSFORMS.items()], value="none",
-            description="Transform")
-        self.transform.add_class("tf-transform")
+        self.shape_measure = widgets.Dropdown(
+            options=[(MEASURES[m].label, m) for m in _CHOICES["shape_measure"]],
+            value="chi_square", description="Shape measure")
+        self.shape_measure.add_class("tf-shape-measure")
+        self.contribution_measure = widgets.Dropdown(
+            options=[(MEASURES[m].label, m) for m in (*SPLIT_MEASURES, *PAIR_MEASURES)],
+            value="hellinger", description="Measure")
+        self.contribution_measure.add_class("tf-contribution-measure")
         self.size_method = widgets.Dropdown(
-            options=[(_SIZE_METHOD_LABELS.get(m, m), m) for m in _METHODS], value="anova",
+            options=[(_SIZE_METHOD_LABELS.get(m, m), m) for m in _CHOICES["size_method"]],
+            value="anova",
             description="Size test")
         self.size_method.add_class("tf-size-method")
         self.adjust = widgets.Dropdown(
-            options=[(_ADJUST_LABELS.get(a, str(a)), a) for a in _ADJUST], value="holm",
+            options=[(_ADJUST_LABELS.get(a, str(a)), a) for a in _CHOICES["pairwise_adjust"]],
+            value="holm",
             description="Adjust p")
         self.adjust.add_class("tf-adjust")
         self.blocks = widgets.Dropdown(options=group_options(table), value="",
@@ -107,7 +113,8 @@ class TestsPanel(widgets.VBox):
                                                      description="Permutations",
                                                      continuous_update=False)
         self.n_permutations.add_class("tf-permutations")
-        self.seed = widgets.IntText(value=1, description="Seed", continuous_update=False)
+        self.seed = widgets.BoundedIntText(value=1, min=0, max=2**31 - 1, description="Seed",
+                                           continuous_update=False)
         self.seed.add_class("tf-seed")
 
         self.run_button = widgets.Button(description="Run", button_style="primary",
@@ -126,13 +133,13 @@ class TestsPanel(widgets.VBox):
         self._plot_boxes = (widgets.Box([self.plot]), widgets.Box([self.plot2]))
         self.messages = MessageArea()
 
-        self.controls = [self.analysis, self.group, self.measure, self.transform,
-                         self.size_method, self.adjust, self.blocks, self.pair_a, self.pair_b,
+        self.controls = [self.analysis, self.group, self.shape_measure,
+                         self.contribution_measure, self.size_method, self.adjust, self.blocks, self.pair_a, self.pair_b,
                          self.n_permutations, self.seed, self.run_button, self.cancel_button]
         self._options = widgets.VBox([
             self.analysis,
             widgets.HBox([self.group, self.blocks]),
-            widgets.HBox([self.measure, self.transform]),
+            widgets.HBox([self.shape_measure, self.contribution_measure]),
             widgets.HBox([self.size_method, self.adjust, self.pair_a, self.pair_b]),
             widgets.HBox([self.n_permutations, self.seed]),
             widgets.HBox([self.run_button, self.cancel_button, self.progress, self.state])])
@@ -145,8 +152,8 @@ class TestsPanel(widgets.VBox):
         self.cancel_button.on_click(lambda _: self.cancel())
         self.analysis.observe(self._analysis_changed, names="value")
         self.group.observe(self._group_changed, names="value")
-        for w in (self.group, self.measure, self.transform, self.size_method, self.adjust,
-                  self.blocks, self.pair_a, self.pair_b, self.n_permutations, self.seed):
+        for w in (self.group, self.shape_measure, self.contribution_measure, self.size_method,
+                  self.adjust, self.blocks, self.pair_a, self.pair_b, self.n_permutations, self.seed):
             w.observe(lambda change: self._bump(), names="value")
         self._group_changed()
         self._analysis_changed()
@@ -160,6 +167,8 @@ class TestsPanel(widgets.VBox):
     def _analysis_changed(self, change=None) -> None:
         a = self.analysis.value
         vis = {self.size_method: a == "compare", self.adjust: a == "pairwise",
+               self.shape_measure: a != "contributions",
+               self.contribution_measure: a == "contributions",
                self.pair_a: a == "contributions", self.pair_b: a == "contributions",
                self.blocks: a != "contributions", self.n_permutations: a != "contributions"}
         for w, on in vis.items():
@@ -188,28 +197,45 @@ class TestsPanel(widgets.VBox):
         """The one core call the current settings ask for (nothing is run)."""
         tab = Ref(TABLE, self._table)
         group = self.group.value or None
-        tr = transform_code(self.transform.value)
         seed = int(self.seed.value)
         blocks = self.blocks.value or None
         a = self.analysis.value
         if a == "compare":
             return Call("compare_groups", (tab, group), given(
-                shape_measure=self.measure.value, transform=tr,
-                size_method=self.size_method.value, blocks=blocks,
-                n_permutations=int(self.n_permutations.value), rng=seed))
+                shape_measure=self.shape_measure.value, size_method=self.size_method.value,
+                blocks=blocks, n_permutations=int(self.n_permutations.value), rng=seed))
         if a == "pairwise":
-            d = Call("dissimilarity", (tab, self.measure.value), given(transform=tr))
+            d = Call("dissimilarity", (tab, self.shape_measure.value))
             return Call("pairwise_permanova", (d, tab, group), {
                 "adjust": self.adjust.value,           # None (no adjustment) is explicit
                 **given(blocks=blocks, n_permutations=int(self.n_permutations.value),
                         rng=seed)})
         return Call("taxon_contributions", (tab, group, self.pair_a.value, self.pair_b.value),
-                    given(measure=self.measure.value, transform=tr, rng=seed))
+                    given(measure=self.contribution_measure.value, rng=seed))
 
-    def settings(self) -> dict:
-        call = self.build_call()
-        return {"analysis": self.analysis.value, "call": call.func, **call.settings(),
-                "group": self.group.value or None}
+    def spec_values(self) -> dict:
+        """This panel's choices under their :class:`tallyform.AnalysisSpec` names."""
+        a, b = self.pair_a.value, self.pair_b.value
+        return {"group": self.group.value or None, "blocks": self.blocks.value or None,
+                "shape_measure": self.shape_measure.value,
+                "size_method": self.size_method.value,
+                "n_permutations": int(self.n_permutations.value),
+                "seed": int(self.seed.value), "pairwise_adjust": self.adjust.value,
+                "contrast": (a, b) if a and b and a != b else None,
+                "contribution_measure": self.contribution_measure.value}
+
+    def apply_spec(self, spec) -> None:
+        """Set the controls from a spec (the group is set by the dashboard)."""
+        self.blocks.value = spec.blocks or ""
+        self.shape_measure.value = spec.shape_measure
+        self.size_method.value = spec.size_method
+        self.n_permutations.value = max(1, int(spec.n_permutations))
+        self.seed.value = 0 if spec.seed is None else int(spec.seed)
+        self.adjust.value = spec.pairwise_adjust
+        if spec.contribution_measure in [v for _, v in self.contribution_measure.options]:
+            self.contribution_measure.value = spec.contribution_measure
+        if spec.contrast and set(spec.contrast) <= set(self.pair_a.options):
+            self.pair_a.value, self.pair_b.value = spec.contrast
 
     # ------------------------------------------------------------------ running
     @property
@@ -300,7 +326,7 @@ class TestsPanel(widgets.VBox):
                     p.dispersion_figure(result.dispersion, present=self._present)]
         if kind == "PairwiseResult":
             return []
-        if hasattr(result, "figure"):
+        if hasattr(result, "figure"):              # taxon contributions
             return [result.figure(kind="shape"), result.figure(kind="size")]
         return []
 

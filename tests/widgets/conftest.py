@@ -65,29 +65,3 @@ def clean():
     return no_traceback
 
 
-
-# TEMPORARY, until the figures branch has every function: minimal stand-ins for the missing
-# ones, so the panels can be driven now. Removed once tallyform.render.plots has them all.
-_NEEDED = ("partition_bars", "ordination_figure", "totals_figure",
-           "null_distribution_figure", "dispersion_figure")
-
-
-@pytest.fixture(autouse=True)
-def _figures(monkeypatch):
-    import plotly.graph_objects as go
-    from tallyform.render import plots
-    stand_ins = {
-        "ordination_figure": lambda o, *, group=None, ellipses=None, present=False, **kw:
-            go.Figure(go.Scatter(x=list(o.scores.iloc[:, 0]), y=list(o.scores.iloc[:, 1]),
-                                 mode="markers")),
-        "totals_figure": lambda t, g, *, log=True, per_effort=False, present=False:
-            go.Figure(go.Box(y=list(t.totals))),
-        "null_distribution_figure": lambda r, *, term=None, present=False:
-            go.Figure(go.Histogram(x=list(r.null_distribution[term]))),
-        "dispersion_figure": lambda r, *, present=False:
-            go.Figure(go.Box(y=list(r.distances))),
-    }
-    for name in _NEEDED:
-        if not hasattr(plots, name):
-            monkeypatch.setattr(plots, name, stand_ins[name], raising=False)
-    yield

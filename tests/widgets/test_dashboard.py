@@ -1,7 +1,6 @@
 """The dashboard as a whole: tabs, linked groups, data panel, report, export, explore()."""
 from __future__ import annotations
 
-import json
 import subprocess
 import sys
 
@@ -70,21 +69,48 @@ def test_reproduce_code_reruns_to_the_same_numbers(dash):
 
 def test_report_follows_changes(dash):
     dash.shape.measure.value = "chord"
-    assert '"chord"' in dash.report.code
-    assert dash.report.spec["size_shape"]["measure"] == "chord"
+    assert 'tly.size_shape(tab, "chord"' in dash.report.code
+    assert dash.spec.measure == "chord"
     dash.tests.seed.value = 11
-    assert dash.report.spec["tests"]["rng"] == 11
+    assert dash.spec.seed == 11 and "rng=11" in dash.report.code
     assert "(current settings, not run yet)" in dash.report.code
-    assert json.loads(json.dumps(dash.report.spec)) == dash.report.spec
+    assert tly.AnalysisSpec.from_json(dash.spec.to_json()) == dash.spec
+
+
+def test_spec_round_trip_through_a_new_dashboard(mesocosm):
+    first = tly.explore(mesocosm, group="week")
+    with first.shape.hold():
+        first.shape.exponent.value = 0.3
+        first.shape.measure.value = "hellinger"
+        first.shape.shape_dims.value = 4
+    first.tests.shape_measure.value = "aitchison"
+    first.tests.seed.value = 9
+    second = tly.explore(mesocosm, spec=first.spec.to_json())
+    assert second.spec == first.spec
+    assert second.shape.calls["partition"].code() == first.shape.calls["partition"].code()
+    pd.testing.assert_series_equal(second.shape.result.fractions, first.shape.result.fractions)
+
+
+def test_run_of_the_spec_gives_the_numbers_on_screen(mesocosm):
+    dash = tly.explore(mesocosm)
+    dash.shape.exponent.value = 0.5
+    dash.tests.n_permutations.value = 49
+    dash.tests.run(block=True)
+    spec = dash.spec.replace(audit_n_sim=1, audit_n_permutations=19,
+                             scan_measures=("bray_curtis",), scan_transforms=("none",))
+    res = tly.run(spec, mesocosm)
+    pd.testing.assert_series_equal(res.size_shape.fractions, dash.shape.result.fractions)
+    pd.testing.assert_series_equal(res.comparison.pvalue, dash.tests.result.pvalue)
 
 
 def test_export_writes_tables_and_figures(dash, tmp_path):
     written = dash.report.export(tmp_path / "out")
     assert dash.report.error is None, dash.report.messages.text
     names = {p.name for p in written}
-    assert {"partition.csv", "partition.html", "ordination.html", "settings.json",
-            "reproduce.py", "totals_by_group.csv"} <= names
-    frame = pd.read_csv(tmp_path / "out" / "partition.csv", index_col=0)
+    assert {"size_shape.csv", "partition.html", "ordination.html", "spec.json",
+            "reproduce.py", "methods.txt", "totals_by_group.csv", "tables.xlsx"} <= names
+    assert tly.AnalysisSpec.from_json(tmp_path / "out" / "spec.json") == dash.spec
+    frame = pd.read_csv(tmp_path / "out" / "size_shape.csv", index_col=0)
     assert frame["share"].to_dict() == pytest.approx(
         dash.shape.result.to_frame()["share"].to_dict(), rel=1e-12)
     assert not list((tmp_path / "out").glob("*.part"))          # no half-written files

@@ -32,7 +32,7 @@ def test_compare_run_matches_direct_call(mesocosm):
 def test_pairwise_run(mesocosm):
     panel = TestsPanel(mesocosm, group="treatment")
     panel.analysis.value = "pairwise"
-    panel.measure.value = "hellinger"
+    panel.shape_measure.value = "hellinger"
     panel.adjust.value = None
     panel.n_permutations.value = 99
     panel.run(block=True)
@@ -116,15 +116,14 @@ def test_presentation_hides_controls(mesocosm):
     assert panel.adjust.layout.display == "none"            # only for 'pairwise'
 
 
-@pytest.mark.skipif(not hasattr(tly, "taxon_contributions"),
-                    reason="taxon contributions not on this branch yet")
 def test_contributions_run(mesocosm):
     panel = TestsPanel(mesocosm, group="treatment")
     panel.analysis.value = "contributions"
     panel.pair_a.value, panel.pair_b.value = "control", "nutrient_high"
-    panel.measure.value = "hellinger"
+    panel.contribution_measure.value = "chi_square"
     panel.run(block=True)
     assert panel.status == "done", panel.messages.text
     direct = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                     measure="hellinger", rng=1)
+                                     measure="chi_square", rng=1)
     pd.testing.assert_frame_equal(panel.result.to_frame(), direct.to_frame())
+    assert len(panel.plot.data) > 0 and len(panel.plot2.data) > 0

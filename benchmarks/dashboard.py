@@ -85,14 +85,7 @@ def where_time_goes(panel, exponent, top=6):
 
 
 def main(quick=False):
-    from tallyform.render import plots
     from tallyform.widgets import ShapePanel
-    missing = [f for f in ("partition_bars", "ordination_figure") if not hasattr(plots, f)]
-    if missing:
-        print(f"figure functions not available yet: {missing}; stand-ins are used")
-        import plotly.graph_objects as go
-        plots.ordination_figure = lambda o, **kw: go.Figure(
-            go.Scatter(x=o.scores.iloc[:, 0], y=o.scores.iloc[:, 1], mode="markers"))
     import os
     load = ", ".join(f"{x:.1f}" for x in os.getloadavg())
     print(f"load average (1, 5, 15 min): {load} on {os.cpu_count()} cores; BLAS threads: "

@@ -22,8 +22,8 @@ import traitlets
 from ..core.measures import MEASURES
 from ..core.partition import SHAPE_OPTIONS, SIZE_OPTIONS
 from ..core.transforms import TRANSFORMS
-from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, given, new_figure_widget,
-                     plots, transform_code)
+from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, given,
+                     new_figure_widget, plots, transform_code)
 
 __all__ = ["ShapePanel", "LIVE_BUDGET", "POWER", "group_options"]
 
@@ -33,7 +33,8 @@ _POWER_FAMILY = {"none", "sqrt", "fourth_root", "presence"}   # exponents 1, 1/2
 _SIZE_LABELS = {"log_total": "log total", "total": "total",
                 "log_total_per_effort": "log total per effort"}
 _SHAPE_LABELS = {"chi_square": "chi-square profiles", "hellinger": "Hellinger profiles",
-                 "aitchison": "Aitchison (log-ratios)", "same_measure": "same measure, equal totals"}
+                 "aitchison": "Aitchison (log-ratios)",
+                 "same_measure": "same measure, equal totals"}
 _MAX_DIMS_LISTED = 30
 
 
@@ -286,7 +287,7 @@ class ShapePanel(widgets.VBox):
         if self.error is None:
             self.notes.show(list(self.result.notes) + list(self.ordination.notes)
                             + list(getattr(self.ellipse_set, "notes", ())))
-        self.fractions_text.value = _fractions_html(self.result)
+        self.fractions_text.value = _fractions_html(self.result, self._present)
         self.revision += 1
 
     def _attempt(self, name: str, calls: dict, plot, *, key_extra: str = ""):
@@ -318,15 +319,16 @@ class ShapePanel(widgets.VBox):
         self.refresh()
 
 
-def _fractions_html(result) -> str:
+def _fractions_html(result, present: bool = False) -> str:
     """The four shares as a sentence (numbers from the result, formatting only)."""
     if result is None:
         return ""
+    size = "font-size:1.5em;" if present else ""
     f = result.fractions
     parts = [f"{label} <b>{f[key]:.1%}</b>" for key, label in
              (("size_only", "size only"), ("shared", "shared"),
               ("shape_only", "shape only"), ("residual", "residual"))]
-    return (f"<div class='tf-fractions'>{html.escape(result._title())}: "
+    return (f"<div class='tf-fractions' style='{size}'>{html.escape(result._title())}: "
             + ", ".join(parts) + f".<br><small>{html.escape(result.shape_dims_reason)}"
             "</small></div>")
 

@@ -134,8 +134,9 @@ class TestsPanel(widgets.VBox):
         self.messages = MessageArea()
 
         self.controls = [self.analysis, self.group, self.shape_measure,
-                         self.contribution_measure, self.size_method, self.adjust, self.blocks, self.pair_a, self.pair_b,
-                         self.n_permutations, self.seed, self.run_button, self.cancel_button]
+                         self.contribution_measure, self.size_method, self.adjust, self.blocks,
+                         self.pair_a, self.pair_b, self.n_permutations, self.seed,
+                         self.run_button, self.cancel_button]
         self._options = widgets.VBox([
             self.analysis,
             widgets.HBox([self.group, self.blocks]),
@@ -153,7 +154,8 @@ class TestsPanel(widgets.VBox):
         self.analysis.observe(self._analysis_changed, names="value")
         self.group.observe(self._group_changed, names="value")
         for w in (self.group, self.shape_measure, self.contribution_measure, self.size_method,
-                  self.adjust, self.blocks, self.pair_a, self.pair_b, self.n_permutations, self.seed):
+                  self.adjust, self.blocks, self.pair_a, self.pair_b, self.n_permutations,
+                  self.seed):
             w.observe(lambda change: self._bump(), names="value")
         self._group_changed()
         self._analysis_changed()

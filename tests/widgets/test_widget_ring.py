@@ -30,3 +30,27 @@ def test_examples_run():
     for mod in (common, dashboard):
         result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
         assert result.failed == 0 and result.attempted > 0, mod.__name__
+
+
+def test_copy_figure_gives_the_figure_exactly():
+    # successive copies (the fast path reuses the template) leave exactly the new figure
+    import plotly.graph_objects as go
+
+    from tallyform.render.style import base_layout
+    from tallyform.widgets.common import copy_figure, new_figure_widget
+    first = base_layout(go.Figure(go.Bar(x=[1, 2], y=[3, 4])), title="one")
+    first.add_annotation(x=1, y=3, text="only in the first")
+    first.update_layout(xaxis_title="x")
+    second = base_layout(go.Figure(go.Scatter(x=[1], y=[2])), title="two")
+    third = base_layout(go.Figure(go.Scatter(x=[1], y=[2])), title="three", present=True)
+    fw = new_figure_widget("tf-x")
+
+    def drop_empty(layout):     # a reset key reads {} or [], which plotly draws as absent
+        return {k: v for k, v in layout.items() if v not in ({}, [])}
+    for fig in (first, second, third, first, second):
+        copy_figure(fw, fig)
+        got, want = fw.to_plotly_json(), fig.to_plotly_json()
+        for trace in got["data"]:
+            trace.pop("uid", None)
+        assert drop_empty(got["layout"]) == drop_empty(want["layout"])
+        assert got["data"] == want["data"]

@@ -16,7 +16,7 @@ from ..core.errors import Cancelled, TallyformError
 
 __all__ = ["Ref", "Call", "literal", "given", "transform_code", "error_text", "MessageArea",
            "NotesArea", "copy_figure", "new_figure_widget", "plots", "html_table",
-           "TABLE"]
+           "LABEL_STYLE", "TABLE"]
 
 TABLE = "tab"   # the variable name the reproduced code gives the table
 
@@ -210,6 +210,9 @@ def new_figure_widget(css_class: str | None = None):
     if css_class:
         fw.add_class(css_class)
     return fw
+
+
+LABEL_STYLE = {"description_width": "110px"}   # room for "Permutations", "Shape measure"
 
 
 def html_table(frame, *, float_format="{:.4g}".format) -> str:

@@ -58,12 +58,16 @@ class DataPanel(widgets.VBox):
 
         self.facts = widgets.HTML()
         self.facts.add_class("tf-data-summary")
+        self.facts.layout.margin = "0 32px 0 0"
+        self.facts.layout.max_width = "560px"
         self.totals = widgets.HTML()
         self.totals.add_class("tf-totals-table")
         self.totals_plot = new_figure_widget("tf-totals-plot")
         self.messages = MessageArea()
-        super().__init__([self.facts, widgets.HBox(self.controls), self.messages,
-                          widgets.HBox([self.totals, self.totals_plot])])
+        super().__init__([
+            widgets.HBox([self.facts, widgets.VBox([widgets.HBox(self.controls), self.totals])],
+                         layout=widgets.Layout(flex_flow="row wrap")),
+            self.messages, self.totals_plot])
         self.add_class("tf-panel-data")
 
         try:

@@ -13,9 +13,9 @@ from pathlib import Path
 
 import ipywidgets as widgets
 
-from .common import TABLE, MessageArea
+from .common import TABLE, MessageArea, literal
 
-__all__ = ["ReportPanel", "reproduce_code", "dashboard_spec"]
+__all__ = ["ReportPanel", "reproduce_code", "dashboard_spec", "spec_code"]
 
 # variable names in the reproduced code, by core function
 _NAMES = {"size_shape": "s", "pcoa": "o", "ellipses": "e", "group": "groups",
@@ -31,6 +31,17 @@ def dashboard_spec(dashboard):
     return AnalysisSpec(**values).validate(dashboard.table)
 
 
+def spec_code(spec) -> str:
+    """``tly.AnalysisSpec(...)`` with the choices that differ from the defaults."""
+    from dataclasses import fields
+
+    from ..core.spec import AnalysisSpec
+    default = AnalysisSpec()
+    changed = [f"{f.name}={literal(getattr(spec, f.name))}" for f in fields(spec)
+               if getattr(spec, f.name) != getattr(default, f.name)]
+    return f"tly.AnalysisSpec({', '.join(changed)})"
+
+
 def reproduce_code(dashboard, spec=None) -> str:
     """Python that recomputes what the dashboard shows, one core call per line."""
     tab = dashboard.table
@@ -39,7 +50,7 @@ def reproduce_code(dashboard, spec=None) -> str:
     lines = ["import tallyform as tly", "",
              f"{TABLE} = ...  # the CommunityTable given to tly.explore ({origin}"
              f"fingerprint {tab.fingerprint})",
-             f"spec = tly.AnalysisSpec.from_json({spec.to_json(indent=None)!r})",
+             f"spec = {spec_code(spec)}",
              f"# results = tly.run(spec, {TABLE})  # every step at once, scan and audit too",
              "", "# What the dashboard shows, call by call", "# Data"]
     data = dashboard.data.calls

@@ -328,7 +328,5 @@ def _fractions_html(result, present: bool = False) -> str:
     parts = [f"{label} <b>{f[key]:.1%}</b>" for key, label in
              (("size_only", "size only"), ("shared", "shared"),
               ("shape_only", "shape only"), ("residual", "residual"))]
-    return (f"<div class='tf-fractions' style='{size}'>{html.escape(result._title())}: "
-            + ", ".join(parts) + f".<br><small>{html.escape(result.shape_dims_reason)}"
-            "</small></div>")
-
+    return (f"<div class='tf-fractions' style='{size}'>" + ", ".join(parts)
+            + f"<br><small>{html.escape(result.shape_dims_reason)}</small></div>")

@@ -28,7 +28,8 @@ from ..core.errors import Cancelled, DesignError
 from ..core.measures import MEASURES
 from ..core.spec import _CHOICES
 from ..core.taxon_terms import PAIR_MEASURES, SPLIT_MEASURES
-from .common import TABLE, Call, MessageArea, Ref, copy_figure, given, new_figure_widget, plots
+from .common import (LABEL_STYLE, TABLE, Call, MessageArea, Ref, copy_figure, given,
+                     new_figure_widget, plots)
 from .shape_panel import default_group, group_options
 
 __all__ = ["TestsPanel", "ANALYSES"]
@@ -79,42 +80,43 @@ class TestsPanel(widgets.VBox):
 
         analyses = [(label, key) for key, label in ANALYSES.items()
                     if key != "contributions" or self.has_contributions]
-        self.analysis = widgets.ToggleButtons(options=analyses, value="compare")
+        self.analysis = widgets.ToggleButtons(options=analyses, value="compare",
+                                              style={"button_width": "auto"})
         self.analysis.add_class("tf-analysis")
         self.group = widgets.Dropdown(options=group_options(table), description="Group",
-                                      value=default_group(table) if group is None else group)
+                                      value=default_group(table) if group is None else group,
+                                      style=LABEL_STYLE)
         self.group.add_class("tf-group")
         self.shape_measure = widgets.Dropdown(
             options=[(MEASURES[m].label, m) for m in _CHOICES["shape_measure"]],
-            value="chi_square", description="Shape measure")
+            value="chi_square", description="Shape measure", style=LABEL_STYLE)
         self.shape_measure.add_class("tf-shape-measure")
         self.contribution_measure = widgets.Dropdown(
             options=[(MEASURES[m].label, m) for m in (*SPLIT_MEASURES, *PAIR_MEASURES)],
-            value="hellinger", description="Measure")
+            value="hellinger", description="Measure", style=LABEL_STYLE)
         self.contribution_measure.add_class("tf-contribution-measure")
         self.size_method = widgets.Dropdown(
             options=[(_SIZE_METHOD_LABELS.get(m, m), m) for m in _CHOICES["size_method"]],
-            value="anova",
-            description="Size test")
+            value="anova", description="Size test", style=LABEL_STYLE)
         self.size_method.add_class("tf-size-method")
         self.adjust = widgets.Dropdown(
             options=[(_ADJUST_LABELS.get(a, str(a)), a) for a in _CHOICES["pairwise_adjust"]],
-            value="holm",
-            description="Adjust p")
+            value="holm", description="Adjust p", style=LABEL_STYLE)
         self.adjust.add_class("tf-adjust")
         self.blocks = widgets.Dropdown(options=group_options(table), value="",
-                                       description="Blocks")
+                                       description="Blocks", style=LABEL_STYLE)
         self.blocks.add_class("tf-blocks")
-        self.pair_a = widgets.Dropdown(options=[], description="Group A")
-        self.pair_b = widgets.Dropdown(options=[], description="Group B")
+        self.pair_a = widgets.Dropdown(options=[], description="Group A", style=LABEL_STYLE)
+        self.pair_b = widgets.Dropdown(options=[], description="Group B", style=LABEL_STYLE)
         self.pair_a.add_class("tf-pair-a")
         self.pair_b.add_class("tf-pair-b")
         self.n_permutations = widgets.BoundedIntText(value=999, min=1, max=999_999,
                                                      description="Permutations",
-                                                     continuous_update=False)
+                                                     continuous_update=False,
+                                                     style=LABEL_STYLE)
         self.n_permutations.add_class("tf-permutations")
         self.seed = widgets.BoundedIntText(value=1, min=0, max=2**31 - 1, description="Seed",
-                                           continuous_update=False)
+                                           continuous_update=False, style=LABEL_STYLE)
         self.seed.add_class("tf-seed")
 
         self.run_button = widgets.Button(description="Run", button_style="primary",

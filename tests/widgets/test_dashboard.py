@@ -133,3 +133,17 @@ def test_presentation_mode(mesocosm):
     assert "tf-present" in d._dom_classes
     d.set_present(False)
     assert all(w.layout.display != "none" for w in d.shape.controls)
+
+
+def test_bare_array_without_sample_information(clean):
+    # synthetic counts with no sample table: no group, every panel still usable
+    counts = [[3, 0, 1, 5, 2], [1, 1, 0, 2, 4], [0, 4, 2, 2, 1], [6, 1, 1, 0, 3],
+              [2, 2, 2, 2, 2], [5, 0, 3, 1, 1], [1, 3, 0, 4, 2]]
+    d = tly.explore(counts)
+    assert d.shape.group.value == "" and d.shape.error is None
+    assert d.shape.result is not None and "group" not in d.shape.calls
+    assert d.data.result is None and "Choose a group" in d.data.totals.value
+    d.tests.run()
+    assert d.tests.status == "error" and "choose a group" in d.tests.messages.text
+    assert clean(d.tests.messages.value)
+    assert "tly.size_shape(tab" in d.report.code and d.spec.group is None

@@ -182,8 +182,8 @@ def null_distribution_figure(result, *, term: str | None = None,
                               "bgcolor": "rgba(255,255,255,0.8)"},
                   annotation_position="top right")
     notes = [f"p = {p:.3g} from {perms}"]
-    base_layout(fig, title=subtitle(what, *notes), legend_title=None, present=present,
-                height=500)
+    base_layout(fig, title=subtitle(what, *notes), legend_title="permutation test",
+                present=present, height=500)
     fig.update_layout(bargap=0.04, legend={"orientation": "h", "yref": "container", "y": 0.0,
                                            "yanchor": "bottom", "x": 0.0},
                       margin={"b": 70 + 2 * sz["font"] + 10})

@@ -251,7 +251,7 @@ def ordination_figure(ordination, *, group=None, symbol=None, ellipses=None, axe
     if taxa is not None or top_taxa:
         _add_taxa(fig, o, taxa, top_taxa, arrows, xa, ya, x, y, sz)
     default_title, lines = _title_lines(o, ellipses)
-    legend_title = g.name if g is not None else None
+    legend_title = g.name if g is not None else "samples"
     base_layout(fig, title=subtitle(title or default_title, *lines), legend_title=legend_title,
                 present=present, height=680 if present else 620)
     fig.update_layout(legend={"groupclick": "togglegroup", "tracegroupgap": 4})

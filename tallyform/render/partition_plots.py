@@ -134,8 +134,8 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
     --------
     >>> import tallyform as tly
     >>> fig = partition_bars(tly.size_shape(tly.demo("mesocosm"), "bray_curtis"))
-    >>> [t.name for t in fig.data]
-    ['size only', 'shared (size and shape)', 'shape only', 'residual']
+    >>> [t.meta["fraction"] for t in fig.data]
+    ['size_only', 'shared', 'shape_only', 'residual']
     """
     rows = _rows(results)
     sz = sizes(present)
@@ -324,5 +324,6 @@ def scan_heatmap(scan: ScanResult, *, value: str = "size_only",
     fig.update_layout(plot_bgcolor="#D9D9D9")      # the gaps between cells show as a grid
     fig.update_xaxes(title_text="transform (applied before the measure)", side="bottom",
                      type="category")
-    fig.update_yaxes(title_text="measure", autorange="reversed", type="category")
+    fig.update_yaxes(title_text="measure", autorange="reversed", type="category",
+                     ticksuffix="  ")
     return fig

@@ -5,6 +5,7 @@ The functions live in topic modules and are gathered here, so ``tly.plots.<name>
 """
 from __future__ import annotations
 
+from .taxa_plots import taxon_shape_figure, taxon_size_figure  # noqa: F401
 from .export import SavedFiles, StaticExportWarning, save, static_export_available  # noqa: F401
 from .partition_plots import dims_figure, partition_bars, scan_heatmap  # noqa: F401
 from .style import (FRACTION_COLOURS, OKABE_ITO, base_layout, group_colours,  # noqa: F401
@@ -12,4 +13,3 @@ from .style import (FRACTION_COLOURS, OKABE_ITO, base_layout, group_colours,  # 
 from .ordination_plots import ordination_figure, scree_figure  # noqa: F401
 from .inference_plots import (audit_figure, dispersion_figure,  # noqa: F401
                               null_distribution_figure, totals_figure)
-from .taxa_plots import taxon_shape_figure, taxon_size_figure  # noqa: F401

@@ -129,3 +129,21 @@ def test_figure_methods_match_functions(partition):
     a = partition.figure()
     b = plots.partition_bars(partition)
     assert a.to_dict() == b.to_dict()
+
+
+def test_undefined_cells_are_said_not_hidden(grid):
+    import dataclasses
+    frame = grid.frame.copy()
+    frame.loc[1, ["size_only", "shared", "shape_only", "residual", "negative_share"]] = np.nan
+    frame.loc[1, "error"] = "undefined for zeros (synthetic)"
+    broken = dataclasses.replace(grid, frame=frame,
+                                 results={k: v for k, v in grid.results.items()
+                                          if k != tuple(frame.loc[1, ["transform", "measure"]])})
+    bars = plots.partition_bars(broken)
+    assert "undefined for these data" in bars.layout.yaxis.ticktext[1]
+    assert "undefined for zeros" in bars.data[0].hovertext[1]
+    heat = plots.scan_heatmap(broken)
+    row = list(heat.data[0].y).index(frame.loc[1, "measure"])
+    col = list(heat.data[0].x).index(frame.loc[1, "transform"])
+    assert heat.data[0].text[row][col] == "n/a"
+    assert "undefined for zeros" in heat.data[0].hovertext[row][col]

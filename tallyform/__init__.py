@@ -39,6 +39,9 @@ def __getattr__(name):
     if name in ("report", "write_outputs"):
         from .render import report as _report
         return getattr(_report, name)
+    if name == "explore":
+        from .widgets import explore
+        return explore
     raise AttributeError(f"module 'tallyform' has no attribute {name!r}")
 
 __all__ = [
@@ -52,5 +55,5 @@ __all__ = [
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
     "permanova", "pairwise_permanova", "dispersion_test", "size_test", "compare_groups",
-    "taxon_contributions", "TaxonContributions",
+    "taxon_contributions", "TaxonContributions", "explore",
 ]

@@ -206,6 +206,27 @@ class Dissimilarity:
             self._cache["gower"] = g
         return self._cache["gower"]
 
+    def spectrum(self, *, compute: bool = True) -> np.ndarray | None:
+        """All eigenvalues of G, largest first (negatives included), cached.
+
+        From the SVD of the centred features when there are features (no negatives), else
+        from G. With ``compute=False`` returns the cached spectrum or None, so that callers
+        that only need it for a note can use it when it is already known.
+        """
+        if "eigenvalues" not in self._cache:
+            if not compute:
+                return None
+            if self._features is not None:
+                f = self._features - self._features.mean(axis=0)
+                s = np.linalg.svd(f, compute_uv=False)
+                ev = np.zeros(self.n)
+                ev[: s.size] = s * s
+            else:
+                ev = np.linalg.eigvalsh(self.gower())[::-1].copy()
+            ev.setflags(write=False)
+            self._cache["eigenvalues"] = ev
+        return self._cache["eigenvalues"]
+
     def total_ss(self) -> float:
         """Total sum of squares: sum of squared distances / n = trace(G)."""
         if self._features is not None:

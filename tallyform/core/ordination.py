@@ -439,7 +439,9 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
                 prov["path"] = "squared distances as an operator (leading axes, ARPACK)"
             complete = False
             if correction is None and not d.properties.get("euclidean", False):
-                lmin = smallest_eigenvalue(G, tol=1e-6)  # for a note: 6 digits suffice
+                known = d.spectrum(compute=False)    # full spectrum, if already computed
+                lmin = (float(known[-1]) if known is not None
+                        else smallest_eigenvalue(G, tol=1e-6))  # for a note: 6 digits
                 if lmin < -ZERO_RTOL * max(values[0], 1e-300):
                     notes.append(f"the smallest eigenvalue is {lmin:.4g} ({100 * -lmin / values[0]:.2g} "
                                  "% of the largest): the measure is not Euclidean; only the "

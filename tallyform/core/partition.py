@@ -92,24 +92,8 @@ class Variation:
         return float(np.sum((self.g @ q) * q))
 
     def eigenvalues(self) -> np.ndarray:
-        """All eigenvalues of G, largest first (zero negatives when D is Euclidean on features).
-
-        Kept on the Dissimilarity object, so a repeated call with the same D is free.
-        """
-        cache = self._d._cache
-        if "eigenvalues" not in cache:
-            ev = self._eigenvalues()
-            ev.setflags(write=False)
-            cache["eigenvalues"] = ev
-        return cache["eigenvalues"]
-
-    def _eigenvalues(self) -> np.ndarray:
-        if self.fc is not None:
-            s = np.linalg.svd(self.fc, compute_uv=False)
-            ev = np.zeros(self.n)
-            ev[: s.size] = s * s
-            return ev
-        return np.linalg.eigvalsh(self.g)[::-1]
+        """All eigenvalues of G, largest first (cached on the Dissimilarity)."""
+        return self._d.spectrum()
 
 
 def negative_share(eigenvalues: np.ndarray) -> float:

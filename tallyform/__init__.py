@@ -55,5 +55,5 @@ __all__ = [
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
     "permanova", "pairwise_permanova", "dispersion_test", "size_test", "compare_groups",
-    "taxon_contributions", "TaxonContributions", "explore",
+    "taxon_contributions", "TaxonContributions", "explore", "report", "write_outputs",
 ]

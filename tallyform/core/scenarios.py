@@ -20,6 +20,7 @@ test suite regenerates them and compares.
 """
 from __future__ import annotations
 
+import dataclasses
 from pathlib import Path
 
 import numpy as np
@@ -37,6 +38,7 @@ SCENARIOS = {
     "moths": "Light-trap moth survey along a land-use gradient with varying trap nights "
              "(synthetic).",
 }
+DEMO_LABEL = "bundled synthetic demo"
 _SEED = {"mesocosm": 20261201, "moths": 20261202}
 
 
@@ -75,9 +77,15 @@ def demo(name: str = "mesocosm") -> CommunityTable:
     d = demo_dir()
     taxa = pd.read_csv(d / f"{name}_taxa.csv", index_col=0, dtype=str)
     if name == "mesocosm":
-        return read_counts(d / "mesocosm_counts.csv", d / "mesocosm_samples.csv", taxa=taxa)
-    return read_counts(d / "moths_counts.csv", d / "moths_samples.csv", taxa=taxa,
-                       effort="trap_nights")
+        tab = read_counts(d / "mesocosm_counts.csv", d / "mesocosm_samples.csv", taxa=taxa)
+    else:
+        tab = read_counts(d / "moths_counts.csv", d / "moths_samples.csv", taxa=taxa,
+                          effort="trap_nights")
+    # name the bundled file, not this machine's install path (it ends up in shared outputs)
+    tab._origin = dataclasses.replace(tab.origin, file=f"{name}_counts.csv ({DEMO_LABEL})")
+    tab._notes = tuple(n.replace(str(d / f"{name}_counts.csv"), f"{name}_counts.csv")
+                       for n in tab.notes)
+    return tab
 
 
 # ---------------------------------------------------------------------------- generators

@@ -554,16 +554,19 @@ class CommunityTable:
         v = self._values
         t = v.sum(axis=1)
         occ = (v > 0).sum(axis=0)
+        def num(x):            # whole numbers as int, others to 4 significant digits
+            x = float(x)
+            return int(x) if x.is_integer() and abs(x) < 2**53 else float(f"{x:.4g}")
         facts = {
             "samples": self.n_samples,
             "taxa": self.n_taxa,
-            "grand total": float(v.sum()),
+            "grand total": num(v.sum()),
             "whole-number counts": self.is_integer,
-            "sample total, min": float(t.min()),
-            "sample total, median": float(np.median(t)),
-            "sample total, max": float(t.max()),
-            "max/min total ratio": float(t.max() / t.min()) if t.min() > 0 else float("inf"),
-            "zero cells (%)": float(100.0 * np.mean(v == 0)),
+            "sample total, min": num(t.min()),
+            "sample total, median": num(np.median(t)),
+            "sample total, max": num(t.max()),
+            "max/min total ratio": num(t.max() / t.min()) if t.min() > 0 else float("inf"),
+            "zero cells (%)": round(float(100.0 * np.mean(v == 0)), 1),
             "taxa in one sample only": int((occ == 1).sum()),
             "samples dropped (empty)": len(self._dropped["samples"]),
             "taxa dropped (empty)": len(self._dropped["taxa"]),
@@ -571,8 +574,8 @@ class CommunityTable:
             "effort column": self._effort_name or "(none)",
         }
         if self._effort_values is not None:
-            facts["effort, min"] = float(self._effort_values.min())
-            facts["effort, max"] = float(self._effort_values.max())
+            facts["effort, min"] = num(self._effort_values.min())
+            facts["effort, max"] = num(self._effort_values.max())
         if self._origin.file:
             facts["file"] = self._origin.file
         return pd.Series(facts, name="table", dtype=object)

@@ -8,6 +8,8 @@ small because plotly.js is not embedded.
 """
 from __future__ import annotations
 
+import os
+
 __all__ = ["show"]
 
 _STATIC: tuple[bool, str] | None = None
@@ -15,6 +17,8 @@ _STATIC: tuple[bool, str] | None = None
 
 def _static_ok() -> bool:
     global _STATIC
+    if os.environ.get("TALLYFORM_STATIC_FIGURES", "1") == "0":   # e.g. quick test runs
+        return False
     if _STATIC is None:
         try:
             from .export import static_export_available
@@ -28,7 +32,14 @@ def show(fig, *, static: bool = True, width: int = 900, height: int | None = Non
     """Display ``fig`` interactively, with a PNG copy for viewers without a kernel."""
     renderer = "plotly_mimetype+png" if static and _static_ok() else "plotly_mimetype"
     kw = {"width": width, "height": height or fig.layout.height or 520}
-    try:
+    if renderer == "plotly_mimetype":
         fig.show(renderer=renderer, **kw)
-    except Exception:                                       # exporter failed mid-way
-        fig.show(renderer="plotly_mimetype")
+        return
+    for attempt in range(2):               # the exporter's browser can stumble once under load
+        try:
+            fig.show(renderer=renderer, **kw)
+            return
+        except Exception as err:                            # noqa: BLE001
+            last = err
+    fig.show(renderer="plotly_mimetype", **kw)
+    print(f"(no static copy of this figure was stored: {type(last).__name__}: {last})")

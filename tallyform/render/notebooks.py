@@ -1,6 +1,7 @@
 """The walkthrough notebooks: where they are, and executing one into an output folder."""
 from __future__ import annotations
 
+import os
 import shutil
 import tempfile
 from pathlib import Path
@@ -47,7 +48,12 @@ def execute_notebook(source, target, *, cwd=None, timeout: int = 900, progress=N
         done = 0
         if progress is not None:
             progress(0, total)
-        with client.setup_kernel():
+        # the kernel imports the same tallyform as this process (not another install)
+        pkg_parent = str(Path(__file__).resolve().parents[2])
+        env = dict(os.environ)
+        env["PYTHONPATH"] = os.pathsep.join(p for p in (pkg_parent, env.get("PYTHONPATH"))
+                                            if p)
+        with client.setup_kernel(env=env):
             for index, cell in enumerate(nb.cells):
                 if cell.cell_type != "code":
                     continue
@@ -70,3 +76,21 @@ def execute_walkthrough(out, *, progress=None) -> Path:
         return execute_notebook(src, out / "walkthrough.ipynb", cwd=work, progress=progress)
     finally:
         shutil.rmtree(work, ignore_errors=True)
+
+
+def refresh_notebooks(folder=None, *, progress=None) -> list[Path]:
+    """Re-execute every bundled notebook in place (for maintainers: run after API changes).
+
+    Each runs in a temporary working folder, so files it writes (reports) stay out of the
+    sources; static PNG copies of the figures are stored when an exporter works.
+    """
+    folder = Path(folder) if folder is not None else notebook_dir()
+    done = []
+    for nb in sorted(folder.glob("[0-9][0-9]_*.ipynb")):
+        done.append(execute_notebook(nb, nb, progress=progress))
+    return done
+
+
+if __name__ == "__main__":        # python -m tallyform.render.notebooks
+    for p in refresh_notebooks():
+        print("executed", p)

@@ -118,7 +118,8 @@ def report_html(results: AnalysisResults, *, title: str | None = None) -> str:
 
     sections: list[tuple[str, str, str]] = []     # (anchor, title, body)
     src = tab.origin.file or "(in-memory table)"
-    synthetic = "demo_data" in str(src)
+    from ..core.scenarios import DEMO_LABEL
+    synthetic = DEMO_LABEL in str(src)
 
     # 1. data
     body = _table(results.summary.to_frame("value"))

@@ -94,22 +94,27 @@ class Dashboard(widgets.VBox):
             self.remove_class("tf-present")
 
 
-def explore(table, *, group: str | None = None, spec=None, present: bool = False) -> Dashboard:
-    """Open the dashboard on a table: data, size and shape, tests, report.
+def explore(table=None, *, group: str | None = None, spec=None, present: bool = False,
+            counts=None, samples=None, **read_options):
+    """Open the dashboard on a table, or on files: data, size and shape, tests, report.
 
     Parameters
     ----------
-    table : CommunityTable, DataFrame or array
+    table : CommunityTable, DataFrame or array, optional
     group : str, optional
         Sample-information column to compare (default: the first text column).
     spec : AnalysisSpec, dict or JSON text, optional
         Start from these settings (e.g. the ``spec.json`` of an earlier export).
     present : bool, default False
         Projector mode: larger fonts, only the transform exponent slider shown.
+    counts, samples : path, optional
+        Instead of ``table``: files read by ``tly.read_counts`` inside the dashboard, so a
+        problem in them is shown in the panel (file, line, column) rather than raised;
+        ``read_options`` (``rows``, ``effort``, ``sheet``, ``encoding``...) are passed on.
 
     Returns
     -------
-    Dashboard
+    Dashboard (or FileDashboard when opened on files)
         An ipywidgets container; display it in a notebook. Its panels keep their last
         results (``dash.shape.result``, ``dash.tests.result``...), and the Report panel
         shows the core calls behind them as code.
@@ -124,4 +129,11 @@ def explore(table, *, group: str | None = None, spec=None, present: bool = False
     >>> print(dash.shape.calls["partition"].code())
     tly.size_shape(tab, "bray_curtis", transform="sqrt", size="log_total", shape="chi_square")
     """
+    if counts is not None:
+        if table is not None:
+            from ..core.errors import InputError
+            raise InputError("give either a table or counts=... (a file), not both.")
+        from .loader import FileDashboard
+        return FileDashboard(counts, samples, group=group, spec=spec, present=present,
+                             **read_options)
     return Dashboard(table, group=group, spec=spec, present=present)

@@ -147,3 +147,21 @@ def test_bare_array_without_sample_information(clean):
     assert d.tests.status == "error" and "choose a group" in d.tests.messages.text
     assert clean(d.tests.messages.value)
     assert "tly.size_shape(tab" in d.report.code and d.spec.group is None
+
+
+def test_explore_on_files_shows_reader_errors_in_the_panel(tmp_path):
+    import tallyform as tly
+    from tallyform.core.scenarios import demo_dir
+    good = tly.explore(counts=demo_dir() / "moths_counts.csv",
+                       samples=demo_dir() / "moths_samples.csv", effort="trap_nights",
+                       group="habitat")
+    assert good.dashboard is not None and good.messages.text == ""
+    bad = tmp_path / "bad.csv"
+    bad.write_text("sample,Ta,Tb\ns1,3,-1\ns2,1,1\n")
+    dash = tly.explore(counts=bad, rows="samples")
+    assert dash.dashboard is None
+    assert "line 2" in dash.messages.text and "column 3 ('Tb')" in dash.messages.text
+    assert "Traceback" not in dash.messages.value
+    bad.write_text("sample,Ta,Tb\ns1,3,1\ns2,1,1\n")          # fix the file, press Load
+    dash.load_button.click()
+    assert dash.dashboard is not None and dash.messages.text == ""

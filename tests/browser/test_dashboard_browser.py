@@ -340,3 +340,45 @@ def test_demo_report_opens_offline_without_console_errors(file_page, tmp_path):
     p.shot("6b_demo_report_ordination")
     assert p.blocked == [], f"the report asked the network for {p.blocked[:5]}"
     assert p.console_errors == [] and p.page_errors == []
+
+
+# ------------------------------------------------------------------ shipped notebooks
+def test_executed_notebooks_show_their_figures_offline(file_page, tmp_path):
+    """nbconvert HTML of the shipped notebooks, opened with the network cut: every figure is
+    an image drawn from the file itself (the PNG copy stored beside each plotly output)."""
+    import nbformat
+    from nbconvert import HTMLExporter
+
+    from tallyform.render.notebooks import notebook_dir
+
+    exporter = HTMLExporter()
+    # what the exporter's page template asks the network for whatever the notebook holds
+    empty, _ = exporter.from_notebook_node(nbformat.v4.new_notebook())
+    p = file_page
+    refused = 0
+    for path in sorted(notebook_dir().glob("0[1-3]_*.ipynb")):
+        nb = nbformat.read(str(path), as_version=4)
+        n_figures = sum("application/vnd.plotly.v1+json" in o.get("data", {})
+                        for c in nb.cells if c.cell_type == "code" for o in c.outputs)
+        assert n_figures >= 3, path.name
+        body, _ = exporter.from_notebook_node(nb)
+        html_path = tmp_path / f"{path.stem}.html"
+        html_path.write_text(body)
+        p.blocked.clear()
+        p.page.goto(html_path.as_uri())
+        p.page.wait_for_load_state("load")
+        drawn = p.page.evaluate(
+            "() => [...document.querySelectorAll('img')].filter(i => i.src.startsWith("
+            "'data:image/png') && i.complete && i.naturalWidth > 300).length")
+        assert drawn >= n_figures, path.name
+        # the only requests refused are the exporter template's own (script loaders for
+        # interactive outputs and maths), none from the notebook's content
+        assert all(u.split("?")[0] in empty for u in p.blocked), p.blocked
+        refused += len(p.blocked)
+        if path.name.startswith("01"):
+            p.page.locator("img[src^='data:image/png']").nth(1).scroll_into_view_if_needed()
+            p.shot("7_quickstart_nbconvert_offline")
+    assert p.page_errors == []
+    # the console's only complaints are those refused template requests
+    assert len(p.console_errors) == refused
+    assert all("Failed to load resource" in e for e in p.console_errors)

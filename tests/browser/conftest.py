@@ -157,9 +157,14 @@ def pytest_runtest_makereport(item, call):
                 p.shot(name)
             except Exception:                  # the page may be gone: the report says why
                 pass
+            try:                               # the dashboard's DOM, for the post-mortem
+                dom = p.page.evaluate("() => { const d = document.querySelector("
+                                      "'.tf-dashboard'); return d ? d.outerHTML : ''; }")
+            except Exception as err:
+                dom = f"(no DOM: {err})"
             (SHOTS / f"{name}.txt").write_text("\n".join(
                 ["console errors:", *p.console_errors, "page errors:", *p.page_errors,
-                 "blocked:", *p.blocked]))
+                 "blocked:", *p.blocked, "dashboard DOM:", dom[:50_000]]))
 
 
 class Page:

@@ -87,7 +87,13 @@ def _group(tab: CommunityTable, group) -> pd.Series:
                                             else g)]
     if len(levels) < 2:
         raise DesignError(f"column {g.name!r} has a single level ({levels[0]!r}); a size test "
-                          "compares at least 2 groups.", location=Location(column=repr(g.name)))
+                          "compares at least 2 groups.", location=Location(column=repr(g.name)),
+                          hint="Pick a column that splits the samples into groups.")
+    if len(levels) == tab.n_samples:
+        raise DesignError(f"column {g.name!r} gives every sample its own level ({len(levels)} "
+                          f"levels for {tab.n_samples} samples), so there is no group to "
+                          "compare.", location=Location(column=repr(g.name)),
+                          hint="Is this an identifier column? Use a grouping column instead.")
     counts = g.value_counts()
     small = [lv for lv in levels if counts.get(lv, 0) < 2]
     if small:
@@ -187,6 +193,23 @@ def _welch_df(y, codes, k) -> float:
     return float((k ** 2 - 1) / (3 * lam))
 
 
+def _check_whole_counts(tab: CommunityTable) -> None:
+    """The negative-binomial model is a model of counts: refuse anything else, naming the
+    first value that is not a whole number (its file, line and column when read from one)."""
+    v = tab.values
+    frac = v != np.floor(v)
+    if frac.any():
+        i, j = np.argwhere(frac)[0]
+        raise InputError(
+            f"the negative-binomial model needs whole-number counts, but {int(frac.sum())} "
+            f"value(s) are not whole numbers, e.g. {float(v[i, j]):g} (biomass, cover or "
+            "rescaled counts?).",
+            location=tab.origin.cell(tab.sample_labels[i], tab.taxon_labels[j]),
+            hint="Use method='anova' or 'welch' (log totals) or 'kruskal' for such "
+                 "values; for counts rescaled by effort, give the raw counts and pass the "
+                 "effort with effort=...")
+
+
 def _negbin(totals, codes, levels, offset, level):
     from statsmodels.discrete.discrete_model import NegativeBinomial
     k = len(levels)
@@ -252,7 +275,8 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
     DesignError
         Unknown column, one level, a level with a single sample.
     InputError
-        Zero totals for a log-based method, non-integer totals for negbin, bad effort.
+        Zero totals for a log-based method, a count that is not a whole number for negbin
+        (naming its sample, taxon and, when read from a file, line and column), bad effort.
 
     References
     ----------
@@ -330,10 +354,7 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
         effect = f"ratio of geometric means to {levels[0]!r} (no interval)"
         measure = "log " + measure
     else:
-        if not np.allclose(totals, np.round(totals)):
-            raise InputError("the negative-binomial model needs whole-number counts; these "
-                             "totals are not whole numbers (biomass or cover?).",
-                             hint="Use method='anova' or 'welch' on log totals instead.")
+        _check_whole_counts(tab)
         offset = None if e is None else np.log(e)
         stat, p, df, rows, nb_notes = _negbin(totals, codes, levels, offset, level)
         notes.extend(nb_notes)

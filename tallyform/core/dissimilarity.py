@@ -63,7 +63,7 @@ class Dissimilarity:
                  properties: Mapping | None = None, notes: tuple = (), dtype=np.float64):
         self._dtype = np.dtype(dtype)
         if features is not None:
-            features = np.array(features, dtype=np.float64, copy=True)
+            features = _numbers(features, np.float64, "`features`")
             if features.ndim != 2:
                 raise InputError("`features` must be a 2-D array (samples x features).")
             if not np.isfinite(features).all():
@@ -73,7 +73,7 @@ class Dissimilarity:
             raise InputError("give condensed distances or a feature matrix.")
         n = features.shape[0] if features is not None else None
         if condensed is not None:
-            condensed = np.array(condensed, dtype=self._dtype, copy=True).ravel()
+            condensed = _numbers(condensed, self._dtype, "the condensed distances").ravel()
             m = condensed.size
             nn = int(round((1 + np.sqrt(1 + 8 * m)) / 2))
             if nn * (nn - 1) // 2 != m:
@@ -116,7 +116,11 @@ class Dissimilarity:
         if isinstance(matrix, pd.DataFrame):
             labels = list(matrix.index) if labels is None else labels
             matrix = matrix.to_numpy()
-        a = np.asarray(matrix, dtype=np.float64)
+        try:
+            a = np.asarray(matrix, dtype=np.float64)
+        except (TypeError, ValueError):
+            raise InputError("a dissimilarity matrix must hold numbers only.",
+                             hint="Convert the matrix to numbers first.") from None
         if a.ndim != 2 or a.shape[0] != a.shape[1]:
             raise InputError(f"a dissimilarity matrix must be square; got shape {a.shape}.")
         scale = max(float(np.nanmax(np.abs(a))) if a.size else 0.0, 1e-300)
@@ -254,6 +258,15 @@ class Dissimilarity:
         c = self.condensed
         return head + (f"<p>min {c.min():.4g}, median {np.median(c):.4g}, "
                        f"max {c.max():.4g}</p>")
+
+
+def _numbers(values, dtype, what: str) -> np.ndarray:
+    """A new array of numbers, or an InputError (never numpy's conversion message)."""
+    try:
+        return np.array(values, dtype=dtype, copy=True)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} must be numbers.",
+                         hint="Convert them to numbers first.") from None
 
 
 def _pair_of(n: int, k: int) -> tuple[int, int]:

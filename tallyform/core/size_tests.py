@@ -5,7 +5,6 @@ abundance effects are multiplicative, so groups are compared by ratios of geomet
 """
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 from typing import Callable
 
@@ -210,33 +209,6 @@ def _check_whole_counts(tab: CommunityTable) -> None:
                  "effort with effort=...")
 
 
-def _negbin(totals, codes, levels, offset, level):
-    from statsmodels.discrete.discrete_model import NegativeBinomial
-    k = len(levels)
-    X = np.column_stack([np.ones(totals.size)] + [(codes == j).astype(float)
-                                                  for j in range(1, k)])
-    notes = []
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        full = NegativeBinomial(totals, X, loglike_method="nb2", offset=offset).fit(
-            disp=0, maxiter=200)
-        null = NegativeBinomial(totals, np.ones((totals.size, 1)), loglike_method="nb2",
-                                offset=offset).fit(disp=0, maxiter=200)
-    if any("converge" in str(w.message).lower() for w in caught) or \
-            not full.mle_retvals.get("converged", True):
-        notes.append("The negative-binomial fit did not fully converge; treat its p-value "
-                      "and intervals with caution.")
-    lr = max(2.0 * (full.llf - null.llf), 0.0)
-    p = float(stats.chi2.sf(lr, k - 1))
-    ci = np.asarray(full.conf_int(alpha=1 - level))
-    beta = np.asarray(full.params)
-    rows = [(1.0, np.nan, np.nan)] + [(np.exp(beta[j]), np.exp(ci[j, 0]), np.exp(ci[j, 1]))
-                                      for j in range(1, k)]
-    alpha = float(np.asarray(full.params)[-1])
-    notes.append(f"Negative-binomial dispersion (NB2 alpha) estimated at {alpha:.3g}.")
-    return lr, p, (k - 1,), rows, notes
-
-
 def size_test(table, group, *, method: str = "anova", effort=None, level: float = 0.95,
               n_permutations: int = 999, rng=None, blocks=None,
               progress: Callable[[int, int], None] | None = None,
@@ -252,7 +224,8 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
         One-way ANOVA, Welch's (1951) ANOVA for unequal variances, or a permutation F test
         on log totals; Kruskal & Wallis (1952) on the ranks of the totals; or a
         negative-binomial (NB2) regression of the totals with log effort as offset, tested
-        by a likelihood ratio (statsmodels).
+        by a likelihood ratio (fitted in a numerically stable form that stays exact for
+        totals of 10^15, see :mod:`tallyform.core.negbin`).
     effort : None, False, str or array_like
         None: per unit of the table's effort when it has one; False: raw totals; a column
         name or one positive value per sample.
@@ -355,8 +328,14 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
         measure = "log " + measure
     else:
         _check_whole_counts(tab)
-        offset = None if e is None else np.log(e)
-        stat, p, df, rows, nb_notes = _negbin(totals, codes, levels, offset, level)
+        from .negbin import nb2_oneway_test
+        empty = [lv for j, lv in enumerate(levels) if totals[codes == j].sum() == 0]
+        if empty:
+            raise DesignError(f"level(s) {empty} of {g.name!r} have a total of 0 in every "
+                              "sample, so their expected total is 0 and no ratio exists.",
+                              location=Location(column=repr(g.name)),
+                              hint="Use method='kruskal', or drop those samples.")
+        stat, p, df, rows, nb_notes = nb2_oneway_test(totals, codes, len(levels), e, level)
         notes.extend(nb_notes)
         effect = (f"ratio of expected totals{' per ' + e_name if e_name else ''} to "
                   f"{levels[0]!r}, with {level:.0%} Wald intervals")

@@ -138,6 +138,15 @@ def _numeric_values(df: pd.DataFrame, origin: Origin) -> np.ndarray:
     out = np.empty((n, p), dtype=np.float64)
     for j, col in enumerate(df.columns):
         s = df.iloc[:, j]
+        kind = getattr(s.dtype, "kind", "O")
+        if kind in "cmM" or isinstance(s.dtype, (pd.DatetimeTZDtype, pd.PeriodDtype,
+                                                 pd.IntervalDtype)):
+            what = {"c": "complex numbers", "m": "time spans", "M": "dates"}.get(
+                kind, f"values of type {s.dtype}")
+            raise InputError(f"taxon column {str(col)!r} holds {what}, not counts.",
+                             location=origin.cell(df.index[0], col) if len(df) else None,
+                             hint="Counts must be real numbers >= 0; convert the column "
+                                  "first, or leave it out of the counts.")
         if pd.api.types.is_bool_dtype(s.dtype):
             out[:, j] = s.to_numpy(dtype=np.float64)
             continue
@@ -350,8 +359,11 @@ class CommunityTable:
             return counts.copy()
         try:
             arr = np.asarray(counts)
-        except Exception as exc:  # ragged lists and the like
-            raise InputError(f"counts could not be read as a table: {exc}.") from None
+        except (ValueError, TypeError):  # ragged lists and the like
+            raise InputError("counts could not be read as a table (rows of different "
+                             "lengths, or cells that are not single values).",
+                             hint="Give a DataFrame or a 2-D array of numbers, one row per "
+                                  "sample.") from None
         if arr.ndim != 2:
             raise InputError(f"counts must be 2-dimensional (samples x taxa); got "
                              f"{arr.ndim} dimension(s) with shape {arr.shape}.")

@@ -20,6 +20,7 @@ from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
 from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
 from .core.measures import MEASURES, Measure, get_measure
+from .core.memory import memory_limit, set_memory_limit
 from .core.size_tests import compare_groups, size_test
 from .core.table import CommunityTable
 from .core.transforms import (TRANSFORMS, Chord, Clr, Hellinger, Identity, Log1p, Power,
@@ -45,4 +46,5 @@ __all__ = [
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
     "permanova", "pairwise_permanova", "dispersion_test", "size_test", "compare_groups",
+    "set_memory_limit", "memory_limit",
 ]

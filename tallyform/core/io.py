@@ -63,14 +63,16 @@ def _check_number_options(decimal, thousands):
 # ---------------------------------------------------------------------------- sample tables
 def read_samples(path, *, id_column: str | None = None, sheet=None,
                  encoding: str | None = None, sep: str | None = None,
+                 decimal: str = ".", thousands: str | None = None,
                  header_row: int = 1) -> pd.DataFrame:
     """Read a sample-information table (one row per sample) from CSV, TSV or XLSX.
 
     The sample label is the first column, or ``id_column``. Columns whose every value is a
-    number become numeric; everything else stays text. Labels must be unique.
-    ``header_row`` is the line (or spreadsheet row) of the header; lines above it are
-    ignored.
+    number (written with ``decimal`` and ``thousands`` as in :func:`read_counts`) become
+    numeric; everything else stays text. Labels must be unique. ``header_row`` is the line
+    (or spreadsheet row) of the header; lines above it are ignored.
     """
+    _check_number_options(decimal, thousands)
     cells = _start(read_cells(path, sheet=sheet, encoding=encoding, sep=sep), header_row)
     head = _header(cells, "sample")
     id_j = _id_column(cells, head, id_column)
@@ -97,10 +99,9 @@ def read_samples(path, *, id_column: str | None = None, sheet=None,
         seen[h] = j
         col = body.iloc[:, j]
         texts = col.map(_to_text)
-        nums = pd.to_numeric(texts.where(texts != "", None), errors="coerce")
-        is_num = (texts == "") | nums.notna()
-        if is_num.all() and (texts != "").any():
-            out[h] = nums.to_numpy(dtype=float)
+        nums, unreadable, _ = parse_numbers(col.to_frame(), decimal, thousands)
+        if not unreadable.any() and (texts != "").any():
+            out[h] = nums[:, 0]
         else:
             out[h] = pd.array(texts.where(texts != "", None).to_numpy(dtype=object),
                               dtype="object")
@@ -136,10 +137,11 @@ def _check_ids(cells: Cells, ids: list[str], j: int, header: str, what: str):
         seen[x] = i
 
 
-def _sample_frame(samples, sheet, encoding, sep, id_column=None):
+def _sample_frame(samples, sheet, encoding, sep, id_column=None, decimal=".", thousands=None):
     if samples is None or isinstance(samples, pd.DataFrame):
         return samples
-    return read_samples(samples, sheet=sheet, encoding=encoding, sep=sep, id_column=id_column)
+    return read_samples(samples, sheet=sheet, encoding=encoding, sep=sep, id_column=id_column,
+                        decimal=decimal, thousands=thousands)
 
 
 # ---------------------------------------------------------------------------- wide tables
@@ -173,7 +175,8 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
         Text encoding (default UTF-8, with or without byte-order mark; UTF-16 with a
         byte-order mark is recognised).
     decimal, thousands : str
-        Decimal mark ('.' or ',') and thousands separator used in the count cells. A cell
+        Decimal mark ('.' or ',') and thousands separator used in the count cells (and in
+        the numeric columns of a sample table read from a file). A cell
         that does not follow them (a comma under ``decimal='.'``, a point under
         ``decimal=','``, a separator not between groups of three digits) is an error,
         never a guess.
@@ -201,7 +204,8 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
                          hint="'samples' when each line is a sample, 'taxa' when each line "
                               "is a taxon.")
     _check_number_options(decimal, thousands)
-    info = _sample_frame(samples, samples_sheet, encoding, sep, samples_id_column)
+    info = _sample_frame(samples, samples_sheet, encoding, sep, samples_id_column, decimal,
+                         thousands)
     cells = _start(read_cells(path, sheet=sheet, encoding=encoding, sep=sep), header_row)
     head = _header(cells, "data")
     id_j = _id_column(cells, head, id_column)
@@ -375,7 +379,7 @@ def read_long(path, samples=None, *, sample: str = "sample", taxon: str = "taxon
     ``thousands`` and ``header_row`` are as in :func:`read_counts`.
     """
     _check_number_options(decimal, thousands)
-    info = _sample_frame(samples, samples_sheet, encoding, sep)
+    info = _sample_frame(samples, samples_sheet, encoding, sep, None, decimal, thousands)
     cells = _start(read_cells(path, sheet=sheet, encoding=encoding, sep=sep), header_row)
     head = _header(cells, "data")
     cols = {}

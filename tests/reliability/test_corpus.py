@@ -157,3 +157,16 @@ def test_a_cell_is_never_guessed():
     assert isinstance(parse_number("1_000"), BadCell)                  # Python-only syntax
     assert isinstance(parse_number(True), BadCell)
     assert parse_number("-3") == -3.0                                  # refused later, by value
+
+
+def test_sample_table_numbers_follow_the_declared_decimal_mark(tmp_path):
+    # a covariate written with decimal commas is numeric only when decimal=',' says so;
+    # otherwise it stays text (a factor), never a guess
+    p = tmp_path / "info.csv"
+    p.write_text("sample;depth;site\ns1;1,5;a\ns2;2,25;b\ns3;10;a\n")
+    assert tly.read_samples(p, decimal=",")["depth"].tolist() == [1.5, 2.25, 10.0]
+    assert tly.read_samples(p)["depth"].tolist() == ["1,5", "2,25", "10"]
+    c = tmp_path / "c.csv"
+    c.write_text("sample;Ta;Tb\ns1;1,5;2\ns2;3;0,5\ns3;1;1\n")
+    tab = tly.read_counts(c, p, decimal=",")
+    assert tab.samples["depth"].dtype == float and tab.values[0, 0] == 1.5

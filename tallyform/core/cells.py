@@ -20,7 +20,6 @@ import io
 import math
 import os
 import re
-import zipfile
 from pathlib import Path
 
 import numpy as np

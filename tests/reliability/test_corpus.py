@@ -170,3 +170,10 @@ def test_sample_table_numbers_follow_the_declared_decimal_mark(tmp_path):
     c.write_text("sample;Ta;Tb\ns1;1,5;2\ns2;3;0,5\ns3;1;1\n")
     tab = tly.read_counts(c, p, decimal=",")
     assert tab.samples["depth"].dtype == float and tab.values[0, 0] == 1.5
+
+
+def test_label_shared_by_a_row_and_a_column_is_accepted_once_rows_is_given():
+    # numbered samples and numbered taxa share labels legitimately; rows= settles it
+    tab = tly.read_counts(BAD / "taxon_named_like_sample.csv", rows="samples")
+    assert list(tab.taxon_labels) == ["Ta", "s2", "Tc"]
+    assert any("also row labels" in n and "'s2'" in n for n in tab.notes)

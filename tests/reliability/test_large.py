@@ -113,3 +113,26 @@ def test_float32_storage_gives_the_float64_analysis():
     f32 = tly.permanova(d32, tab, ["group"], n_permutations=99, rng=2)
     assert f32.table.loc["group", "pseudo_f"] == pytest.approx(
         f64.table.loc["group", "pseudo_f"], rel=1e-5)
+
+
+def test_distances_are_not_copied_on_the_way_out():
+    # the condensed vector is the one big array of a pairwise measure: computing it must
+    # not hold a second copy, nor full-length boolean checks (traced peak, n = 3000)
+    tab = _sparse_counts(3000, 20, np.random.default_rng(5))
+    size = 3000 * 2999 // 2 * 4
+    tly.dissimilarity(tab.subset(tab.sample_labels[:400]), "bray_curtis", dtype="float32")
+    tracemalloc.start()                   # (after a first call: compiling is not counted)
+    try:
+        d = tly.dissimilarity(tab, "bray_curtis", dtype="float32")
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert peak < 1.3 * size
+    assert d.condensed.nbytes == size
+    # a NaN produced by a measure is still caught, chunk by chunk (the first bad pair named)
+    from tallyform.core.dissimilarity import first_invalid
+    v = np.zeros(10_000_001, dtype=np.float32)
+    v[9_999_999] = np.nan
+    assert first_invalid(v, chunk=1 << 20) == 9_999_999
+    v[5] = -1
+    assert first_invalid(v) == 5

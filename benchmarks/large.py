@@ -17,8 +17,9 @@ with the time ratio compared with the ratio the algorithm's complexity predicts:
    the size and the alternatives in the message.
 
 Peak memory: the traced peak (tracemalloc) of each step, and the process's maximum resident
-set (ru_maxrss) after it. The machine may be shared with other work: times are single runs
-(the full-size steps take minutes), so read ratios to within about 30 %.
+set (ru_maxrss) after it. The machine may be shared with other work: reference steps are
+the best of three runs (all shown), full-size steps single runs (they take minutes), so read
+ratios to within about 30 %.
 """
 from __future__ import annotations
 
@@ -68,15 +69,22 @@ def rss() -> str:
     return format_bytes(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
 
 
-def step(name, fn):
-    tracemalloc.start()
-    t = time.perf_counter()
-    out = fn()
-    dt = time.perf_counter() - t
-    _, peak = tracemalloc.get_traced_memory()
-    tracemalloc.stop()
+def step(name, fn, repeats=1):
+    """Run ``fn`` (``repeats`` times: the reference steps are short, so the best of three
+    shields their ratio from a busy moment of a shared machine); time, traced peak."""
+    runs = []
+    for _ in range(repeats):
+        tracemalloc.start()
+        t = time.perf_counter()
+        out = fn()
+        runs.append(time.perf_counter() - t)
+        _, peak = tracemalloc.get_traced_memory()
+        tracemalloc.stop()
+    dt = min(runs)
+    shown = ", ".join(f"{r:.2f}" for r in runs)
     print(f"  {name:<44s} {dt:8.2f} s   traced peak {format_bytes(peak):>9s}   "
-          f"max RSS so far {rss()}", flush=True)
+          f"max RSS so far {rss()}" + (f"   (runs: {shown})" if repeats > 1 else ""),
+          flush=True)
     return out, dt, peak
 
 
@@ -106,7 +114,8 @@ def main():
     print(f"1. Bray-Curtis, float32: estimate {format_bytes(need)} "
           f"({100 * need / memory_limit():.0f} % of the limit)")
     d_ref, t_ref, _ = step(f"n = {n_ref}", lambda: tly.dissimilarity(ref, "bray_curtis",
-                                                                     dtype="float32"))
+                                                                     dtype="float32"),
+                           repeats=3)
     d_big, t_big, _ = step(f"n = {n}", lambda: tly.dissimilarity(big, "bray_curtis",
                                                                  dtype="float32"))
     print(f"   time ratio {t_big / t_ref:.0f} (n^2 predicts {scale ** 2:.0f}): "
@@ -138,7 +147,8 @@ def main():
     ordmod.gower_operator, ordmod.smallest_eigenvalue = counted, smallest
     try:
         counter.update(n=0, leading=None)
-        _, t_ref, _ = step(f"n = {n_ref}", lambda: tly.pcoa(d_ref, dims=10))
+        _, t_ref, _ = step(f"n = {n_ref}", lambda: (counter.update(n=0, leading=None),
+                                                     tly.pcoa(d_ref, dims=10))[1], repeats=3)
         k_ref, lead_ref = counter["n"], counter["leading"]
         counter.update(n=0, leading=None)
         o, t_big, _ = step(f"n = {n}", lambda: tly.pcoa(d_big, dims=10))
@@ -164,7 +174,7 @@ def main():
     print("3. PERMANOVA, Hellinger feature path, 999 permutations")
     h_ref, h_big = tly.dissimilarity(ref, "hellinger"), tly.dissimilarity(big, "hellinger")
     r_ref, t_ref, _ = step(f"n = {n_ref}", lambda: tly.permanova(
-        h_ref, ref, ["group"], n_permutations=999, rng=1))
+        h_ref, ref, ["group"], n_permutations=999, rng=1), repeats=3)
     r_big, t_big, peak = step(f"n = {n}", lambda: tly.permanova(
         h_big, big, ["group"], n_permutations=999, rng=1))
     print(f"   time ratio {t_big / t_ref:.1f} (n predicts {scale:.0f}): "

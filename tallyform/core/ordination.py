@@ -404,6 +404,11 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
     notes: list[str] = []
     prov = {"method": "PCoA", **d.provenance, "correction": correction,
             "correction_constant": 0.0, "dims": dims, "path": None}
+    if not d.has_features:              # refuse before any O(n^2) work
+        check_memory((5 if dims is None else 2) * n * n * 8,
+                     f"PCoA of {n} samples (the Gower matrix and its eigenvectors)",
+                     alternatives="Ask for the leading axes only with dims=..., or use a "
+                                  "measure with a feature matrix (no n x n matrix needed).")
     total = d.total_ss()
     if d.has_features:
         if correction is not None:
@@ -413,10 +418,6 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
         prov["path"] = "features (SVD)"
         complete = True
     else:
-        check_memory((5 if dims is None else 2) * n * n * 8,
-                     f"PCoA of {n} samples (the Gower matrix and its eigenvectors)",
-                     alternatives="Ask for the leading axes only with dims=..., or use a "
-                                  "measure with a feature matrix (no n x n matrix needed).")
         if dims is not None and correction is None and 300 < n and dims < n - 1:
             G, c = gower_operator(d), 0.0  # D^2 only: no centred n x n copy
         else:

@@ -442,7 +442,7 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
             if correction is None and not d.properties.get("euclidean", False):
                 known = d.spectrum(compute=False)    # full spectrum, if already computed
                 lmin = (float(known[-1]) if known is not None
-                        else smallest_eigenvalue(G, tol=1e-6))  # for a note: 6 digits
+                        else smallest_eigenvalue(G, tol=1e-3))  # for a note: 3 digits
                 if lmin < -ZERO_RTOL * max(values[0], 1e-300):
                     notes.append(f"the smallest eigenvalue is {lmin:.4g} ({100 * -lmin / values[0]:.2g} "
                                  "% of the largest): the measure is not Euclidean; only the "

@@ -13,6 +13,7 @@ import pandas as pd
 from scipy import stats
 
 from .design import factor_levels
+from .random import as_rng
 from .errors import DesignError, InputError, Location
 from .inference import check_n_permutations, check_option
 from .permutation import permutation_f_test
@@ -549,7 +550,7 @@ def compare_groups(table, group, *, shape_measure="chi_square", transform=None,
         from .dissimilarity import dissimilarity
         d = dissimilarity(tab, shape_measure, transform=transform)
     size_free = bool(d.properties.get("size_free", False))
-    streams = np.random.default_rng(rng).spawn(3)
+    streams = as_rng(rng).spawn(3)
     stage = [0]
     n_stages = 3
 

@@ -23,6 +23,7 @@ from .core.simulate import simulate_community
 from .core.spec import AnalysisSpec
 from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
 from .core.measures import MEASURES, Measure, get_measure
+from .core.memory import memory_limit, set_memory_limit
 from .core.size_tests import compare_groups, size_test
 from .core.table import CommunityTable
 from .core.transforms import (TRANSFORMS, Chord, Clr, Hellinger, Identity, Log1p, Power,
@@ -56,4 +57,5 @@ __all__ = [
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
     "permanova", "pairwise_permanova", "dispersion_test", "size_test", "compare_groups",
     "taxon_contributions", "TaxonContributions", "explore", "report", "write_outputs",
+    "set_memory_limit", "memory_limit",
 ]

@@ -65,3 +65,15 @@ def test_import_is_fast():
              if any(f"| {m}" in ln for m in ("plotly", "ipywidgets", "statsmodels", "sklearn",
                                               "numba", "matplotlib"))]
     assert not heavy, heavy[:5]
+
+
+def test_no_pickle_or_dynamic_code_anywhere():
+    # a shared spec or table must never be able to run code: JSON and CSV only
+    for f in PKG.rglob("*.py"):
+        for name in _imports(f) | _imports(f, lazy_figure=True):
+            assert name.split(".")[0] not in {"pickle", "dill", "cloudpickle", "shelve",
+                                              "marshal"}, (f, name)
+        tree = ast.parse(f.read_text())
+        calls = {n.func.id for n in ast.walk(tree)
+                 if isinstance(n, ast.Call) and isinstance(n.func, ast.Name)}
+        assert not calls & {"eval", "exec"}, f

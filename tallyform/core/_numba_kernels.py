@@ -148,8 +148,67 @@ def _canberra_rows(X, i, m, out):
 
 
 @nb.njit(fastmath=_FM, cache=True)
+def _kul_rows(X, i, m, out, t):
+    """Kulczynski for rows i..i+m-1 against all j > i, from the one-sided sums
+    p = sum_k max(x_ik - x_jk, 0) and q = sum_k max(x_jk - x_ik, 0):
+    d = (p / t_i + q / t_j) / 2, two sums of non-negative terms (no cancellation)."""
+    n, p = X.shape
+    for j in range(i + 1, n):
+        p0 = 0.0
+        p1 = 0.0
+        p2 = 0.0
+        p3 = 0.0
+        q0 = 0.0
+        q1 = 0.0
+        q2 = 0.0
+        q3 = 0.0
+        if m == 4:
+            for k in range(p):
+                y = X[j, k]
+                a = X[i, k] - y
+                p0 += a if a > 0.0 else 0.0
+                q0 += -a if a < 0.0 else 0.0
+                a = X[i + 1, k] - y
+                p1 += a if a > 0.0 else 0.0
+                q1 += -a if a < 0.0 else 0.0
+                a = X[i + 2, k] - y
+                p2 += a if a > 0.0 else 0.0
+                q2 += -a if a < 0.0 else 0.0
+                a = X[i + 3, k] - y
+                p3 += a if a > 0.0 else 0.0
+                q3 += -a if a < 0.0 else 0.0
+        else:
+            for k in range(p):
+                a = X[i, k] - X[j, k]
+                p0 += a if a > 0.0 else 0.0
+                q0 += -a if a < 0.0 else 0.0
+        tj = t[j]
+        out[_start(i, n) + j] = 0.5 * (p0 / t[i] + q0 / tj)
+        if m == 4:
+            if j > i + 1:
+                out[_start(i + 1, n) + j] = 0.5 * (p1 / t[i + 1] + q1 / tj)
+            if j > i + 2:
+                out[_start(i + 2, n) + j] = 0.5 * (p2 / t[i + 2] + q2 / tj)
+            if j > i + 3:
+                out[_start(i + 3, n) + j] = 0.5 * (p3 / t[i + 3] + q3 / tj)
+
+
+@nb.njit(inline="always", fastmath=_FM)
+def _js_g(d):
+    """g(d) = (1 + d) log(1 + d) + (1 - d) log(1 - d) for 0 <= d <= 1 (series below 0.1)."""
+    if d < 0.1:
+        d2 = d * d
+        return d2 * (1.0 + d2 * (1.0 / 6.0 + d2 * (1.0 / 15.0 + d2 * (1.0 / 28.0 + d2 * (
+            1.0 / 45.0 + d2 * (1.0 / 66.0 + d2 * (1.0 / 91.0 + d2 / 120.0)))))))
+    if d >= 1.0:
+        return 2.0 * np.log(2.0)
+    return (1.0 + d) * np.log1p(d) + (1.0 - d) * np.log1p(-d)
+
+
+@nb.njit(fastmath=_FM, cache=True)
 def _js_row(P, i, out):
-    """Jensen-Shannon distances (natural log) from profile row i to every j > i."""
+    """Jensen-Shannon distances (natural log) from profile row i to every j > i, as
+    sqrt(sum_k m_k g(d_k) / 2), m = (a + b) / 2, d = |a - b| / (a + b) (see kernels.py)."""
     n, p = P.shape
     base = _start(i, n)
     for j in range(i + 1, n):
@@ -157,11 +216,9 @@ def _js_row(P, i, out):
         for k in range(p):
             a = P[i, k]
             b = P[j, k]
-            h = 0.5 * (a + b)
-            if a > 0.0:
-                s += a * np.log(a / h)
-            if b > 0.0:
-                s += b * np.log(b / h)
+            t = a + b
+            if t > 0.0:
+                s += 0.5 * t * _js_g(abs(a - b) / t)
         s *= 0.5
         out[base + j] = np.sqrt(s) if s > 0.0 else 0.0
 
@@ -177,6 +234,20 @@ def abs_condensed(X, out, mode, t, scale):
             _abs_rows(X, 4 * c, 4, out, mode, t, scale)
     for i in range(4 * nblk, n):
         _abs_rows(X, i, 1, out, mode, t, scale)
+    return out
+
+
+@nb.njit(parallel=True, cache=True)
+def kulczynski_condensed(X, out, t):
+    n = X.shape[0]
+    nblk = n // 4
+    for b in nb.prange((nblk + 1) // 2):
+        _kul_rows(X, 4 * b, 4, out, t)
+        c = nblk - 1 - b
+        if c != b:
+            _kul_rows(X, 4 * c, 4, out, t)
+    for i in range(4 * nblk, n):
+        _kul_rows(X, i, 1, out, t)
     return out
 
 

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .random import as_rng
 from .errors import Cancelled, DesignError, InputError
 from .results import ResultMixin, readonly
 from .table import CommunityTable, as_table
@@ -59,7 +60,7 @@ def estimate_overdispersion(counts: np.ndarray, groups: np.ndarray) -> float:
 def null_shape_tables(table: CommunityTable, n_sim: int, *, model: str = "dirichlet_multinomial",
                       rho: float = 0.0, rng=None):
     """Yield ``n_sim`` count arrays with the observed totals and one shared profile."""
-    rng = np.random.default_rng(rng)
+    rng = as_rng(rng)
     x = table.values
     totals = np.rint(x.sum(axis=1)).astype(np.int64)
     pooled = x.sum(axis=0)
@@ -218,7 +219,7 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
                           "needs at least 2 per group.")
     from .design import model_matrix
     X = model_matrix(pd.DataFrame({group: g}), [group]).X
-    rng = np.random.default_rng(rng)
+    rng = as_rng(rng)
     groups = g.to_numpy()
     rho = estimate_overdispersion(table.values, groups) if model != "multinomial" else 0.0
     labels = np.asarray(table.sample_labels, dtype=object)

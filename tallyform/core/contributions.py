@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .random import as_rng
 from .errors import DesignError, InputError
 from .results import ResultMixin
 from .table import CommunityTable, _listing, as_table
@@ -353,7 +354,7 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
     if isinstance(pseudocount, bool) or not isinstance(pseudocount, (int, float)) or \
             not (np.isfinite(pseudocount) and pseudocount >= 0):
         raise InputError(f"`pseudocount` must be a number >= 0; got {pseudocount!r}.")
-    rng = np.random.default_rng(rng)
+    rng = as_rng(rng)
 
     g = labels.to_numpy()
     rows = np.flatnonzero((g == a) | (g == b))

@@ -61,10 +61,13 @@ class Dissimilarity:
 
     def __init__(self, condensed=None, labels=None, *, measure: str, transform: str | None = None,
                  params: Mapping | None = None, features=None,
-                 properties: Mapping | None = None, notes: tuple = (), dtype=np.float64):
+                 properties: Mapping | None = None, notes: tuple = (), dtype=np.float64,
+                 _owned: bool = False):
+        # _owned: ``condensed`` was just computed by tallyform and is referenced nowhere
+        # else, so it is kept as it is instead of copied (a copy of 10^8 distances is 0.8 GB)
         self._dtype = np.dtype(dtype)
         if features is not None:
-            features = np.array(features, dtype=np.float64, copy=True)
+            features = _numbers(features, np.float64, "`features`")
             if features.ndim != 2:
                 raise InputError("`features` must be a 2-D array (samples x features).")
             if not np.isfinite(features).all():
@@ -74,7 +77,10 @@ class Dissimilarity:
             raise InputError("give condensed distances or a feature matrix.")
         n = features.shape[0] if features is not None else None
         if condensed is not None:
-            condensed = np.array(condensed, dtype=self._dtype, copy=True).ravel()
+            if _owned and isinstance(condensed, np.ndarray) and condensed.dtype == self._dtype:
+                condensed = condensed.ravel()
+            else:
+                condensed = _numbers(condensed, self._dtype, "the condensed distances").ravel()
             m = condensed.size
             nn = int(round((1 + np.sqrt(1 + 8 * m)) / 2))
             if nn * (nn - 1) // 2 != m:
@@ -83,9 +89,8 @@ class Dissimilarity:
             if n is not None and nn != n:
                 raise InputError(f"{nn} samples in the distances but {n} feature rows.")
             n = nn
-            bad = ~np.isfinite(condensed) | (condensed < 0)
-            if bad.any():
-                k = int(np.flatnonzero(bad)[0])
+            k = first_invalid(condensed)
+            if k >= 0:
                 i, j = _pair_of(n, k)
                 lab = list(labels) if labels is not None else [f"s{x + 1}" for x in range(n)]
                 raise InputError(f"dissimilarity between {lab[i]!r} and {lab[j]!r} is "
@@ -117,7 +122,11 @@ class Dissimilarity:
         if isinstance(matrix, pd.DataFrame):
             labels = list(matrix.index) if labels is None else labels
             matrix = matrix.to_numpy()
-        a = np.asarray(matrix, dtype=np.float64)
+        try:
+            a = np.asarray(matrix, dtype=np.float64)
+        except (TypeError, ValueError):
+            raise InputError("a dissimilarity matrix must hold numbers only.",
+                             hint="Convert the matrix to numbers first.") from None
         if a.ndim != 2 or a.shape[0] != a.shape[1]:
             raise InputError(f"a dissimilarity matrix must be square; got shape {a.shape}.")
         scale = max(float(np.nanmax(np.abs(a))) if a.size else 0.0, 1e-300)
@@ -174,12 +183,30 @@ class Dissimilarity:
         return self._condensed
 
     def square(self, dtype=None) -> np.ndarray:
-        """The full symmetric n x n matrix (a new array)."""
-        from scipy.spatial.distance import squareform
+        """The full symmetric n x n matrix (a new array).
+
+        Filled from the condensed vector block of rows by block of rows, so no converted
+        copy of the condensed vector is made (float32 distances into a float64 matrix).
+        """
         dt = np.dtype(dtype or self._dtype)
-        check_memory(self.n ** 2 * dt.itemsize, f"a {self.n} x {self.n} distance matrix",
+        n = self.n
+        check_memory(n ** 2 * dt.itemsize, f"a {n} x {n} distance matrix",
                      alternatives="Use the condensed vector, or dtype='float32'.")
-        return squareform(np.asarray(self.condensed, dtype=dt), checks=False)
+        c = self.condensed
+        a = np.empty((n, n), dtype=dt)
+        pos = 0
+        for i in range(n):
+            a[i, i] = 0
+            a[i, i + 1:] = c[pos:pos + n - 1 - i]
+            pos += n - 1 - i
+        block = 512
+        for i0 in range(0, n, block):                 # lower triangle from the upper one
+            i1 = min(i0 + block, n)
+            a[i0:i1, :i0] = a[:i0, i0:i1].T
+            sub = a[i0:i1, i0:i1]
+            low = np.tril_indices(i1 - i0, -1)
+            sub[low] = sub.T[low]
+        return a
 
     def gower(self) -> np.ndarray:
         """Gower-centred matrix G = -1/2 C D^2 C (Gower 1966), float64, cached, read-only.
@@ -232,8 +259,12 @@ class Dissimilarity:
         if self._features is not None:
             f = self._features - self._features.mean(axis=0)
             return float(np.sum(f * f))
-        c = np.asarray(self.condensed, dtype=np.float64)
-        return float(np.dot(c, c) / self.n)
+        c = self.condensed
+        total = 0.0
+        for k in range(0, c.size, 1 << 20):    # in float64, chunk by chunk (no full copy)
+            part = np.asarray(c[k:k + (1 << 20)], dtype=np.float64)
+            total += float(np.dot(part, part))
+        return total / self.n
 
     def subset(self, which) -> "Dissimilarity":
         """Dissimilarities among some samples (labels or a boolean mask), same provenance."""
@@ -276,6 +307,30 @@ class Dissimilarity:
         c = self.condensed
         return head + (f"<p>min {c.min():.4g}, median {np.median(c):.4g}, "
                        f"max {c.max():.4g}</p>")
+
+
+def _numbers(values, dtype, what: str) -> np.ndarray:
+    """A new array of numbers, or an InputError (never numpy's conversion message)."""
+    try:
+        return np.array(values, dtype=dtype, copy=True)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} must be numbers.",
+                         hint="Convert them to numbers first.") from None
+
+
+def first_invalid(values: np.ndarray, *, chunk: int = 1 << 20) -> int:
+    """Position of the first value that is not finite or is negative, or -1.
+
+    Checked in chunks, so that no boolean array of the full length is formed.
+    """
+    flat = values.ravel()
+    for s in range(0, flat.size, chunk):
+        part = flat[s:s + chunk]
+        ok = np.isfinite(part)
+        ok &= part >= 0
+        if not ok.all():
+            return s + int(np.argmin(ok))
+    return -1
 
 
 def _pair_of(n: int, k: int) -> tuple[int, int]:
@@ -436,15 +491,16 @@ def dissimilarity(data, measure, *, transform=None, dtype="float64", **params) -
                                   "subset of the samples.")
         cond = rec.pairwise(x, ctx)
         feats = None
-        if not np.all(np.isfinite(cond)):   # never let a NaN leave: name the pair
-            bad = int(np.flatnonzero(~np.isfinite(cond))[0])
+        bad = first_invalid(cond)
+        if bad >= 0:                        # never let a NaN leave: name the pair
             i, j = _pair_of(n, bad)
             raise InputError(f"the {rec.label} dissimilarity between {tab.sample_labels[i]!r} "
                              f"and {tab.sample_labels[j]!r} is undefined for these data.")
     opts = {k: ctx.params.get(k, v) for k, v in rec.options.items()}
     opts.update(ctx.record)
     out = Dissimilarity(cond, tab.sample_labels, features=feats, params=opts,
-                        properties=_properties(rec, tr, ctx), notes=tuple(ctx.notes), **kw)
+                        properties=_properties(rec, tr, ctx), notes=tuple(ctx.notes),
+                        _owned=True, **kw)
     if key is not None:
         size = (n * (n - 1) / 2 * dt.itemsize + 8.0 * n * n      # distances + G when asked
                 + (0 if feats is None else feats.nbytes))

@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from .random import as_rng
 from .errors import DesignError, InputError
 from .results import ResultMixin
 
@@ -251,7 +252,7 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
     if kind == "bootstrap":
         if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 20:
             raise InputError(f"`n_boot` must be a whole number of at least 20; got {n_boot!r}.")
-        rng = np.random.default_rng(rng)
+        rng = as_rng(rng)
     g = _aligned_groups(group, labels)
     levels = list(dict.fromkeys(g))  # order of first appearance
     rows, no_ellipse, notes = {}, {}, []

@@ -58,8 +58,9 @@ class TallyformError(ValueError):
         self.hint = hint
         self.detail = message
         text = message
-        if location is not None and str(location):
-            text = f"{location}: {text}"
+        where = str(location) if location is not None else ""
+        if where and where not in message:      # no "'site': column 'site' is ..." echoes
+            text = f"{where}: {text}"
         if hint:
             text = f"{text} {hint}"
         super().__init__(text)

@@ -14,6 +14,7 @@ import pandas as pd
 
 from .design import as_samples, factor_levels, model_matrix
 from .dissimilarity import Dissimilarity
+from .random import as_rng
 from .errors import DesignError, InputError, Location
 from .permutation import (Permutations, PermutationTest, nested_bases, permutation_f_test,
                           prepare_response)
@@ -280,7 +281,7 @@ def permanova(d, samples, terms, *, blocks=None, n_permutations: int = 999, rng=
     frame, notes = align_samples(samples, d.labels)
     mm = model_matrix(frame, terms)
     block_codes, block_name = block_labels(frame, blocks)
-    rng = np.random.default_rng(rng)
+    rng = as_rng(rng)
     terms = list(mm.terms)
     n = d.n
 
@@ -471,7 +472,7 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", b
                           location=Location(column=repr(group)),
                           hint="Merge or drop those levels first.")
     block_codes, block_name = block_labels(frame, blocks)
-    rng = np.random.default_rng(rng)
+    rng = as_rng(rng)
     pairs = [(a, b) for i, a in enumerate(levels) for b in levels[i + 1:]]
     streams = rng.spawn(len(pairs))
     rows = []

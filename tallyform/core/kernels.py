@@ -12,7 +12,8 @@ never launch two parallel regions at once.
 Euclidean distances use the Gram form d^2 = |x|^2 + |y|^2 - 2 x.y on BLAS, in blocks of rows
 (no n x n temporary), on column-centred features (distances do not change, cancellation
 shrinks); pairs where cancellation could still cost precision (d^2 below 1 % of
-|x|^2 + |y|^2) are recomputed directly, and tiny negative squares are clamped to 0.
+|x|^2 + |y|^2) are recomputed directly from the uncentred rows, and tiny negative squares
+are clamped to 0.
 """
 from __future__ import annotations
 
@@ -22,6 +23,7 @@ import threading
 import numpy as np
 
 __all__ = ["euclidean_condensed", "sqeuclidean_condensed", "abs_condensed",
+           "kulczynski_condensed",
            "canberra_condensed", "jensen_shannon_condensed", "use_numba", "numba_enabled",
            "RAW", "RATIO", "RUZICKA", "KULCZYNSKI", "SQRT", "SCALE"]
 
@@ -127,6 +129,31 @@ def abs_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
     return _rowwise(x, out, lambda a, b: np.abs(b - a).sum(axis=1), mode, t, scale)
 
 
+def kulczynski_condensed(x, t, *, dtype=np.float64) -> np.ndarray:
+    """Quantitative Kulczynski, 1 - (m / t_i + m / t_j) / 2 with m = sum_k min(x_ik, x_jk),
+    computed as (p / t_i + q / t_j) / 2 from the one-sided sums p = sum_k (x_ik - x_jk)+ and
+    q = sum_k (x_jk - x_ik)+ (t_i - m = p exactly): sums of non-negative terms, so a pair of
+    very unequal totals (10^15 against 10) keeps full precision, which the algebraic form
+    (s (t_i + t_j) - (t_i - t_j)^2) / (4 t_i t_j) loses to cancellation."""
+    x = _prepare(x)
+    n = x.shape[0]
+    t = _totals(t, n)
+    out = _empty_out(n, dtype)
+    nbk = _numba(_work(x))
+    if nbk is not None:
+        with _LOCK:
+            return nbk.kulczynski_condensed(x, out, t)
+    pos = 0
+    for i in range(n - 1):
+        d = x[i] - x[i + 1:]
+        p = np.where(d > 0, d, 0.0).sum(axis=1)
+        q = np.where(d < 0, -d, 0.0).sum(axis=1)
+        k = n - 1 - i
+        out[pos:pos + k] = 0.5 * (p / t[i] + q / t[i + 1:])
+        pos += k
+    return out
+
+
 def sqeuclidean_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
                           dtype=np.float64) -> np.ndarray:
     """Per-pair s = sum_k (x_ik - x_jk)^2 computed directly (no cancellation), then ``mode``
@@ -164,8 +191,14 @@ def canberra_condensed(x, *, dtype=np.float64) -> np.ndarray:
 
 def jensen_shannon_condensed(profiles, *, dtype=np.float64) -> np.ndarray:
     """Jensen-Shannon distance (square root of the divergence, natural log) between rows
-    that each sum to 1, in the form sum_k [a log(a / m) + b log(b / m)] / 2, m = (a + b) / 2,
-    which stays exact for near-identical rows."""
+    that each sum to 1.
+
+    With m = (a + b) / 2 and d = (a - b) / (a + b) per taxon, a log(a / m) + b log(b / m)
+    = m g(d), g(d) = (1 + d) log(1 + d) + (1 - d) log(1 - d) >= 0, so the divergence is
+    sum_k m_k g(d_k) / 2: a sum of non-negative terms that depend only on the differences.
+    The first-order terms of the plain form, which cancel in exact arithmetic but not after
+    rounding (a near-identical pair of samples dominated by one taxon), never appear; g is
+    summed from its series for |d| < 0.1."""
     p = _prepare(profiles)
     n = p.shape[0]
     out = _empty_out(n, dtype)
@@ -177,11 +210,26 @@ def jensen_shannon_condensed(profiles, *, dtype=np.float64) -> np.ndarray:
     def sums(a, b):
         m = 0.5 * (a + b)
         with np.errstate(divide="ignore", invalid="ignore"):
-            ta = np.where(a > 0, a * np.log(np.where(a > 0, a, 1.0) / m), 0.0)
-            tb = np.where(b > 0, b * np.log(np.where(b > 0, b, 1.0) / m), 0.0)
-        s = 0.5 * (ta + tb).sum(axis=1)
+            delta = np.where(m > 0, 0.5 * (a - b) / np.where(m > 0, m, 1.0), 0.0)
+        s = 0.5 * (m * _js_g(delta)).sum(axis=1)
         return np.sqrt(np.maximum(s, 0.0))
     return _rowwise(p, out, sums, RAW, np.zeros(n), 1.0)
+
+
+# g(delta) = sum_k delta^(2k) / (k (2k - 1)): coefficients for |delta| < 0.1 (8 terms reach
+# 1e-16 relative there)
+_JS_SERIES = np.array([1.0 / (k * (2 * k - 1)) for k in range(8, 0, -1)])
+
+
+def _js_g(delta: np.ndarray) -> np.ndarray:
+    """g(d) = (1 + d) log(1 + d) + (1 - d) log(1 - d), exact also for tiny |d|."""
+    d = np.abs(delta)
+    inner = d < 1.0
+    direct = (1 + d) * np.log1p(d) + np.where(inner, (1 - d) * np.log1p(-np.where(inner, d, 0.0)),
+                                              0.0)
+    d2 = d * d
+    series = np.polyval(np.append(_JS_SERIES, 0.0), d2)
+    return np.where(d < 0.1, series, direct)
 
 
 def euclidean_condensed(features, *, dtype=np.float64) -> np.ndarray:
@@ -193,22 +241,25 @@ def euclidean_condensed(features, *, dtype=np.float64) -> np.ndarray:
     dtype : float64 or float32
         Type of the returned vector (the arithmetic is always float64).
     """
-    f = _prepare(features)
-    n, q = f.shape
+    raw = _prepare(features)
+    n, q = raw.shape
     out = _empty_out(n, dtype)
     if n < 2:
         return out
-    f = f - f.mean(axis=0)                     # translation leaves distances unchanged
+    f = raw - raw.mean(axis=0)                 # translation leaves distances unchanged
     sq = np.einsum("ij,ij->i", f, f)
     block = int(max(16, min(256, _BLOCK_BYTES // (8 * n))))
     nbk = _numba(_work(f))
     for i0 in range(0, n - 1, block):
         i1 = min(i0 + block, n - 1)
         g = f[i0:i1] @ f[i0:].T                # (b, n - i0): rows i0..i1-1 against j >= i0
+        # doubtful pairs are recomputed from the rows as given, not the centred ones:
+        # centring rounds too, and a column in which one sample is huge would blur the
+        # small differences between the others
         if nbk is not None:
-            nbk.gram_fill(g, i0, sq, f, out, _GRAM_TOL)
+            nbk.gram_fill(g, i0, sq, raw, out, _GRAM_TOL)
         else:
-            _gram_fill_numpy(g, i0, sq, f, out)
+            _gram_fill_numpy(g, i0, sq, raw, out)
     return out
 
 

@@ -159,7 +159,10 @@ def _f_chi_square(x, ctx):
         masses = col / col.sum()
         ctx.record["column_masses"] = "table"
     else:
-        masses = np.asarray(masses, dtype=np.float64).ravel()
+        try:
+            masses = np.asarray(masses, dtype=np.float64).ravel()
+        except (TypeError, ValueError):
+            masses = np.array([np.nan])
         if masses.shape != (x.shape[1],) or not np.all(np.isfinite(masses)) or np.any(masses <= 0):
             raise InputError(f"`column_masses` must hold {x.shape[1]} positive numbers, one "
                              "per taxon.")
@@ -214,7 +217,7 @@ def _p_sorensen(x, ctx):
 
 
 def _p_kulczynski(x, ctx):
-    return K.abs_condensed(x, mode=K.KULCZYNSKI, t=_totals(x), dtype=ctx.dtype)
+    return K.kulczynski_condensed(x, _totals(x), dtype=ctx.dtype)
 
 
 def _p_canberra(x, ctx):

@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 from scipy.spatial.distance import pdist
 
+from .random import as_rng
 from .errors import Cancelled, InputError
 from .ordination import Ordination, _labels_index, as_dissimilarity, axis_names, flip_signs
 
@@ -141,7 +142,7 @@ def nmds(d, *, n_axes: int = 2, n_starts: int = 20, rng=None, max_iter: int = 30
     if not (isinstance(tol, (int, float)) and tol > 0):
         raise InputError(f"`tol` must be a positive number; got {tol!r}.")
     seed_given = int(rng) if isinstance(rng, (int, np.integer)) else None
-    rng = np.random.default_rng(rng)
+    rng = as_rng(rng)
     seeds = rng.integers(0, 2 ** 31 - 1, size=int(n_starts))
     from sklearn.manifold import MDS  # lazy: scikit-learn is heavy
 

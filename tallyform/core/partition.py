@@ -27,6 +27,7 @@ import numpy as np
 import pandas as pd
 
 from .dissimilarity import Dissimilarity
+from .random import as_rng
 from .errors import DesignError, InputError
 from .results import ResultMixin
 from .table import CommunityTable, as_table
@@ -485,7 +486,7 @@ def _size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
 def _fraction_tests(d, z, u, *, n_permutations, rng, progress, cancel) -> pd.DataFrame:
     """Partial db-RDA permutation tests of [a] (size | shape) and [c] (shape | size)."""
     from .permutation import permutation_f_test
-    rng = np.random.default_rng(rng)
+    rng = as_rng(rng)
     n = d.n
     one = np.ones((n, 1))
     zs = np.empty((n, 0)) if z is None else z[:, None]

@@ -64,6 +64,7 @@ import pandas as pd
 
 import scipy.linalg
 
+from .random import as_rng
 from .errors import Cancelled, DesignError, InputError, Location
 from .memory import check_memory
 from .results import ResultMixin, readonly
@@ -591,7 +592,7 @@ def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=Non
     observed = (ss_t / df_t) / (ss_res / df_res) if ss_res > 0 else float("inf")
 
     if permutations is None:
-        rng = np.random.default_rng(rng)
+        rng = as_rng(rng)
         design = np.hstack([np.asarray(X_reduced if X_reduced is not None else
                                        np.empty((n, 0)), dtype=float).reshape(n, -1),
                             X_full,

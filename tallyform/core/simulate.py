@@ -20,6 +20,7 @@ from typing import Mapping
 import numpy as np
 import pandas as pd
 
+from .random import as_rng
 from .errors import DesignError, InputError
 from .table import CommunityTable
 
@@ -31,7 +32,7 @@ def lognormal_profile(n_taxa: int, *, sd: float = 1.5, rng=None) -> np.ndarray:
 
     Preston's (1948) lognormal is the common shape of species-abundance distributions.
     """
-    rng = np.random.default_rng(rng)
+    rng = as_rng(rng)
     if n_taxa < 1:
         raise InputError(f"`n_taxa` must be at least 1; got {n_taxa}.")
     w = np.sort(rng.lognormal(0.0, sd, n_taxa))[::-1]
@@ -110,7 +111,7 @@ def simulate_community(design, *, n_taxa: int = 40, mean_total: float = 400.0,
         With the design as sample information (plus the effort) and a taxon table holding
         each taxon's ``base_share``. Samples whose draw is empty are kept (``empty='keep'``).
     """
-    rng = np.random.default_rng(rng)
+    rng = as_rng(rng)
     if isinstance(design, (int, np.integer)):
         design = pd.DataFrame(index=[f"s{i + 1:03d}" for i in range(int(design))])
     if not isinstance(design, pd.DataFrame):

@@ -5,7 +5,6 @@ abundance effects are multiplicative, so groups are compared by ratios of geomet
 """
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 from typing import Callable
 
@@ -14,6 +13,7 @@ import pandas as pd
 from scipy import stats
 
 from .design import factor_levels
+from .random import as_rng
 from .errors import DesignError, InputError, Location
 from .inference import check_n_permutations, check_option
 from .permutation import permutation_f_test
@@ -87,7 +87,13 @@ def _group(tab: CommunityTable, group) -> pd.Series:
                                             else g)]
     if len(levels) < 2:
         raise DesignError(f"column {g.name!r} has a single level ({levels[0]!r}); a size test "
-                          "compares at least 2 groups.", location=Location(column=repr(g.name)))
+                          "compares at least 2 groups.", location=Location(column=repr(g.name)),
+                          hint="Pick a column that splits the samples into groups.")
+    if len(levels) == tab.n_samples:
+        raise DesignError(f"column {g.name!r} gives every sample its own level ({len(levels)} "
+                          f"levels for {tab.n_samples} samples), so there is no group to "
+                          "compare.", location=Location(column=repr(g.name)),
+                          hint="Is this an identifier column? Use a grouping column instead.")
     counts = g.value_counts()
     small = [lv for lv in levels if counts.get(lv, 0) < 2]
     if small:
@@ -187,31 +193,21 @@ def _welch_df(y, codes, k) -> float:
     return float((k ** 2 - 1) / (3 * lam))
 
 
-def _negbin(totals, codes, levels, offset, level):
-    from statsmodels.discrete.discrete_model import NegativeBinomial
-    k = len(levels)
-    X = np.column_stack([np.ones(totals.size)] + [(codes == j).astype(float)
-                                                  for j in range(1, k)])
-    notes = []
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        full = NegativeBinomial(totals, X, loglike_method="nb2", offset=offset).fit(
-            disp=0, maxiter=200)
-        null = NegativeBinomial(totals, np.ones((totals.size, 1)), loglike_method="nb2",
-                                offset=offset).fit(disp=0, maxiter=200)
-    if any("converge" in str(w.message).lower() for w in caught) or \
-            not full.mle_retvals.get("converged", True):
-        notes.append("The negative-binomial fit did not fully converge; treat its p-value "
-                      "and intervals with caution.")
-    lr = max(2.0 * (full.llf - null.llf), 0.0)
-    p = float(stats.chi2.sf(lr, k - 1))
-    ci = np.asarray(full.conf_int(alpha=1 - level))
-    beta = np.asarray(full.params)
-    rows = [(1.0, np.nan, np.nan)] + [(np.exp(beta[j]), np.exp(ci[j, 0]), np.exp(ci[j, 1]))
-                                      for j in range(1, k)]
-    alpha = float(np.asarray(full.params)[-1])
-    notes.append(f"Negative-binomial dispersion (NB2 alpha) estimated at {alpha:.3g}.")
-    return lr, p, (k - 1,), rows, notes
+def _check_whole_counts(tab: CommunityTable) -> None:
+    """The negative-binomial model is a model of counts: refuse anything else, naming the
+    first value that is not a whole number (its file, line and column when read from one)."""
+    v = tab.values
+    frac = v != np.floor(v)
+    if frac.any():
+        i, j = np.argwhere(frac)[0]
+        raise InputError(
+            f"the negative-binomial model needs whole-number counts, but {int(frac.sum())} "
+            f"value(s) are not whole numbers, e.g. {float(v[i, j]):g} (biomass, cover or "
+            "rescaled counts?).",
+            location=tab.origin.cell(tab.sample_labels[i], tab.taxon_labels[j]),
+            hint="Use method='anova' or 'welch' (log totals) or 'kruskal' for such "
+                 "values; for counts rescaled by effort, give the raw counts and pass the "
+                 "effort with effort=...")
 
 
 def size_test(table, group, *, method: str = "anova", effort=None, level: float = 0.95,
@@ -229,7 +225,8 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
         One-way ANOVA, Welch's (1951) ANOVA for unequal variances, or a permutation F test
         on log totals; Kruskal & Wallis (1952) on the ranks of the totals; or a
         negative-binomial (NB2) regression of the totals with log effort as offset, tested
-        by a likelihood ratio (statsmodels).
+        by a likelihood ratio (fitted in a numerically stable form that stays exact for
+        totals of 10^15, see :mod:`tallyform.core.negbin`).
     effort : None, False, str or array_like
         None: per unit of the table's effort when it has one; False: raw totals; a column
         name or one positive value per sample.
@@ -252,7 +249,8 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
     DesignError
         Unknown column, one level, a level with a single sample.
     InputError
-        Zero totals for a log-based method, non-integer totals for negbin, bad effort.
+        Zero totals for a log-based method, a count that is not a whole number for negbin
+        (naming its sample, taxon and, when read from a file, line and column), bad effort.
 
     References
     ----------
@@ -330,12 +328,15 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
         effect = f"ratio of geometric means to {levels[0]!r} (no interval)"
         measure = "log " + measure
     else:
-        if not np.allclose(totals, np.round(totals)):
-            raise InputError("the negative-binomial model needs whole-number counts; these "
-                             "totals are not whole numbers (biomass or cover?).",
-                             hint="Use method='anova' or 'welch' on log totals instead.")
-        offset = None if e is None else np.log(e)
-        stat, p, df, rows, nb_notes = _negbin(totals, codes, levels, offset, level)
+        _check_whole_counts(tab)
+        from .negbin import nb2_oneway_test
+        empty = [lv for j, lv in enumerate(levels) if totals[codes == j].sum() == 0]
+        if empty:
+            raise DesignError(f"level(s) {empty} of {g.name!r} have a total of 0 in every "
+                              "sample, so their expected total is 0 and no ratio exists.",
+                              location=Location(column=repr(g.name)),
+                              hint="Use method='kruskal', or drop those samples.")
+        stat, p, df, rows, nb_notes = nb2_oneway_test(totals, codes, len(levels), e, level)
         notes.extend(nb_notes)
         effect = (f"ratio of expected totals{' per ' + e_name if e_name else ''} to "
                   f"{levels[0]!r}, with {level:.0%} Wald intervals")
@@ -549,7 +550,7 @@ def compare_groups(table, group, *, shape_measure="chi_square", transform=None,
         from .dissimilarity import dissimilarity
         d = dissimilarity(tab, shape_measure, transform=transform)
     size_free = bool(d.properties.get("size_free", False))
-    streams = np.random.default_rng(rng).spawn(3)
+    streams = as_rng(rng).spawn(3)
     stage = [0]
     n_stages = 3
 

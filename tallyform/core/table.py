@@ -116,6 +116,15 @@ def _labels(index: pd.Index, what: str, origin: Origin | None) -> pd.Index:
     return labels
 
 
+def _shown(x) -> str:
+    """A value as a person would write it (3, 0.5, 'abc'; never np.float64(3.0))."""
+    if isinstance(x, (bool, np.bool_)):
+        return repr(bool(x))
+    if isinstance(x, (int, float, np.integer, np.floating)):
+        return f"{float(x):g}"
+    return repr(x)
+
+
 def _is_missing(x) -> bool:
     try:
         return bool(pd.isna(x))
@@ -129,6 +138,15 @@ def _numeric_values(df: pd.DataFrame, origin: Origin) -> np.ndarray:
     out = np.empty((n, p), dtype=np.float64)
     for j, col in enumerate(df.columns):
         s = df.iloc[:, j]
+        kind = getattr(s.dtype, "kind", "O")
+        if kind in "cmM" or isinstance(s.dtype, (pd.DatetimeTZDtype, pd.PeriodDtype,
+                                                 pd.IntervalDtype)):
+            what = {"c": "complex numbers", "m": "time spans", "M": "dates"}.get(
+                kind, f"values of type {s.dtype}")
+            raise InputError(f"taxon column {str(col)!r} holds {what}, not counts.",
+                             location=origin.cell(df.index[0], col) if len(df) else None,
+                             hint="Counts must be real numbers >= 0; convert the column "
+                                  "first, or leave it out of the counts.")
         if pd.api.types.is_bool_dtype(s.dtype):
             out[:, j] = s.to_numpy(dtype=np.float64)
             continue
@@ -197,6 +215,9 @@ def _align(info, labels: pd.Index, what: str, origin: Origin | None,
         if extra:
             msg.append(f"{len(extra)} {what}(s) in `{info_name}` are not in the counts: "
                        f"{_listing(extra)}")
+        source = info.attrs.get("file")
+        if source:
+            msg[-1] += f" (sample information read from {source!r})"
         raise InputError("; ".join(msg) + ".",
                          location=Location(file=origin.file) if origin else None,
                          hint=f"Labels are matched exactly (case and spaces count); make both "
@@ -338,8 +359,11 @@ class CommunityTable:
             return counts.copy()
         try:
             arr = np.asarray(counts)
-        except Exception as exc:  # ragged lists and the like
-            raise InputError(f"counts could not be read as a table: {exc}.") from None
+        except (ValueError, TypeError):  # ragged lists and the like
+            raise InputError("counts could not be read as a table (rows of different "
+                             "lengths, or cells that are not single values).",
+                             hint="Give a DataFrame or a 2-D array of numbers, one row per "
+                                  "sample.") from None
         if arr.ndim != 2:
             raise InputError(f"counts must be 2-dimensional (samples x taxa); got "
                              f"{arr.ndim} dimension(s) with shape {arr.shape}.")
@@ -355,7 +379,10 @@ class CommunityTable:
                 raise DesignError(
                     f"effort column {effort!r} is not in the sample table "
                     f"(columns: {_listing(info.columns)}).",
-                    location=Location(file=origin.file, column=repr(effort)))
+                    location=Location(file=info.attrs.get("file", origin.file),
+                                      column=repr(effort)),
+                    hint="Name one of the sample table's columns (case counts), or pass one "
+                         "positive value per sample.")
             raw, name = info[effort], effort
         else:
             raw, name = effort, getattr(effort, "name", None) or "effort"
@@ -373,11 +400,16 @@ class CommunityTable:
         bad = ~np.isfinite(num) | (num <= 0)
         if bad.any():
             i = int(np.flatnonzero(bad)[0])
+            # a sample table read from a file knows its lines and columns (read_samples)
+            attrs = getattr(info, "attrs", {}) if isinstance(effort, str) else {}
+            line = attrs.get("lines", {}).get(labels[i])
+            col = attrs.get("columns", {}).get(name)
             raise InputError(
                 f"sampling effort must be a positive number; sample {labels[i]!r} has "
-                f"{raw.iloc[i]!r} ({int(bad.sum())} such sample(s)).",
-                location=Location(file=origin.file, row=f"sample {labels[i]!r}",
-                                  column=repr(name)),
+                f"{_shown(raw.iloc[i])} ({int(bad.sum())} such sample(s)).",
+                location=Location(file=attrs.get("file", origin.file),
+                                  row=(f"line {line} " if line else "") + f"(sample {labels[i]!r})",
+                                  column=(f"column {col} " if col else "") + f"({name!r})"),
                 hint="Effort (trap nights, volume, reads...) divides the totals; it cannot be "
                      "zero, negative or missing.")
         return num, name
@@ -526,7 +558,8 @@ class CommunityTable:
         if n_levels < min_levels:
             raise DesignError(f"column {name!r} has {n_levels} level(s) "
                               f"({_listing(out.unique())}); this needs at least {min_levels}.",
-                              location=Location(column=repr(name)))
+                              location=Location(column=repr(name)),
+                              hint="Pick a column that splits the samples into groups.")
         return out
 
     def totals_by(self, group, *, per_effort: bool = False) -> pd.DataFrame:

@@ -320,6 +320,13 @@ class Wisconsin(Transform):
 _ZEROS = ("multiplicative", "pseudocount", "error")
 
 
+def _as_float(value, name: str) -> float:
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"`{name}` must be a number; got {value!r}.") from None
+
+
 @dataclass(frozen=True, eq=False)
 class Clr(Transform):
     """Centred log-ratio: log(x) - mean_j log(x) per sample, after replacing zeros.
@@ -365,12 +372,12 @@ class Clr(Transform):
     def __post_init__(self):
         if self.zeros not in _ZEROS:
             raise InputError(f"`zeros` must be one of {list(_ZEROS)}; got {self.zeros!r}.")
-        pc = float(self.pseudocount)
+        pc = _as_float(self.pseudocount, "pseudocount")
         if not (np.isfinite(pc) and pc > 0):
             raise InputError(f"`pseudocount` must be a positive number; got {self.pseudocount!r}.")
         object.__setattr__(self, "pseudocount", pc)
         if self.delta is not None:
-            d = float(self.delta)
+            d = _as_float(self.delta, "delta")
             if not (np.isfinite(d) and 0 < d < 1):
                 raise InputError(f"`delta` must lie in (0, 1); got {self.delta!r}.")
             object.__setattr__(self, "delta", d)

@@ -134,7 +134,8 @@ def lab(tmp_path_factory, chromium_path):
 
 @pytest.fixture(scope="session")
 def browser(chromium_path):
-    from playwright.sync_api import sync_playwright
+    from playwright.sync_api import expect, sync_playwright
+    expect.set_options(timeout=60_000)      # conditions, not sleeps: a busy machine is slow
     with sync_playwright() as pw:
         b = pw.chromium.launch(executable_path=chromium_path, headless=True,
                                args=CHROMIUM_ARGS)

@@ -147,6 +147,7 @@ def quickstart(open_page, lab):
 
 
 def test_quickstart_run_all_shows_the_dashboard(quickstart):
+    from playwright.sync_api import expect
     p = quickstart
     assert p.page.evaluate(ERROR_OUTPUTS) == []
     show_tab(p, DASH, "Size & shape")
@@ -161,14 +162,17 @@ def test_quickstart_run_all_shows_the_dashboard(quickstart):
     points = p.page.wait_for_function(ORDINATION, arg=DASH).json_value()
     assert_same_points(points, "bray_curtis", 1.0)
     # drawn, not only held as data: the bars and points are SVG in the page
-    assert p.page.locator(f"{DASH} .tf-partition-plot .bars path").count() >= 4
-    assert p.page.locator(f"{DASH} .tf-ordination-plot .scatterlayer .point").count() \
-        == MESOCOSM.n_samples
+    p.page.wait_for_function(
+        "(root) => document.querySelectorAll(root + ' .tf-partition-plot .bars path').length"
+        " >= 4", arg=DASH)
+    expect(p.page.locator(f"{DASH} .tf-ordination-plot .scatterlayer .point")).to_have_count(
+        MESOCOSM.n_samples)
     p.page.locator(f"{DASH} .tf-panel-shape").scroll_into_view_if_needed()
     p.shot("1_quickstart_size_and_shape")
 
 
 def test_exponent_slider_by_keyboard_redraws_to_the_core_numbers(quickstart):
+    from playwright.sync_api import expect
     p = quickstart
     show_tab(p, DASH, "Size & shape")
     slider = f"{DASH} .tf-exponent-slider"
@@ -199,8 +203,9 @@ def test_exponent_slider_by_keyboard_redraws_to_the_core_numbers(quickstart):
         "!== old; }", arg=[DASH, next(iter(before_points.values()))[0]])
     points = p.page.evaluate(ORDINATION, DASH)
     assert_same_points(points, "bray_curtis", value)
-    summary = p.page.locator(f"{DASH} .tf-partition-summary").inner_text()
-    assert f"size only {100 * s.fractions['size_only']:.1f}%" in summary
+    # the sentence under the controls follows (a message of its own, after the figures)
+    expect(p.page.locator(f"{DASH} .tf-partition-summary")).to_contain_text(
+        f"size only {100 * s.fractions['size_only']:.1f}%")
     p.shot("2_exponent_slider_moved")
 
 
@@ -231,6 +236,7 @@ def _progress(p) -> float:
 
 
 def test_tests_panel_progress_results_and_cancel(quickstart):
+    from playwright.sync_api import expect       # waits for the condition (no sleeps)
     p = quickstart
     show_tab(p, DASH, "Tests")
     panel = f"{DASH} .tf-panel-tests"
@@ -251,14 +257,17 @@ def test_tests_panel_progress_results_and_cancel(quickstart):
         "([sel, v]) => parseFloat(document.querySelector(sel).style.width) > v",
         arg=[bar, first])
     assert first < _progress(p) < 100
-    assert cancel.is_enabled() and run.is_disabled()
+    expect(cancel).to_be_enabled()
+    expect(run).to_be_disabled()
     p.shot("4a_tests_running")
     cancel.click()
     p.page.wait_for_function("(sel) => document.querySelector(sel).textContent === 'cancelled'",
                              arg=f"{panel} .tf-run-state")
     assert _progress(p) < 100
-    assert "Cancelled" in p.page.locator(f"{panel} .tf-error").inner_text()
-    assert run.is_enabled() and cancel.is_disabled()
+    expect(p.page.locator(f"{panel} .tf-error")).to_contain_text("Cancelled")
+    # (each widget change is its own message: wait for the buttons, not only the text)
+    expect(run).to_be_enabled()
+    expect(cancel).to_be_disabled()
     assert p.page.locator(f"{panel} .tf-test-results table").count() == 0
     p.shot("4b_tests_cancelled")
 
@@ -269,6 +278,7 @@ def test_tests_panel_progress_results_and_cancel(quickstart):
     p.page.locator(f"{panel} .tf-test-results table").first.wait_for(state="visible")
     p.page.wait_for_function("(sel) => document.querySelector(sel).textContent.startsWith('done')",
                              arg=f"{panel} .tf-run-state")
+    expect(run).to_be_enabled()
     assert _progress(p) == 100
     assert p.page.locator(f"{panel} .tf-error").inner_text().strip() == ""
     # the table shows what the same core call gives here (same options, same seed)
@@ -291,6 +301,7 @@ def test_tests_panel_progress_results_and_cancel(quickstart):
 
 # ------------------------------------------------------------------ the template notebook
 def test_template_bad_file_shows_readable_error(open_page, lab):
+    from playwright.sync_api import expect
     lines = (demo_dir() / "moths_counts.csv").read_text().splitlines()
     header = lines[0].split(",")
     row = lines[3].split(",")
@@ -312,7 +323,7 @@ def test_template_bad_file_shows_readable_error(open_page, lab):
     text = message.inner_text()
     assert "bad_counts.csv" in text and "line 4" in text
     assert "column 6" in text and header[5] in text and "negative" in text
-    assert p.page.locator(f"{root} .tf-dashboard").count() == 0   # no stale dashboard
+    expect(p.page.locator(f"{root} .tf-dashboard")).to_have_count(0)   # no stale dashboard
     assert "Traceback" not in p.page.locator("body").inner_text()
     assert p.page.evaluate(ERROR_OUTPUTS) == []
     message.scroll_into_view_if_needed()

@@ -85,6 +85,18 @@ def _print_findings(results) -> None:
         print(f"\nnot run: {step}: {why}")
 
 
+def _analyse(spec, tab):
+    """tly.run with a progress bar, then the findings printed."""
+    from .core.analysis import run
+    bar = Progress("analysis")
+    try:
+        results = run(spec, tab, progress=bar)
+    finally:
+        bar.close()
+    _print_findings(results)
+    return results
+
+
 def _write_all(results, out: Path, *, notebook: bool, title: str) -> None:
     from .render.report import write_outputs
     written = write_outputs(results, out, title=title)
@@ -102,7 +114,6 @@ def _write_all(results, out: Path, *, notebook: bool, title: str) -> None:
 
 
 def _cmd_demo(args) -> int:
-    from .core.analysis import run
     from .core.scenarios import SCENARIOS, demo
     from .core.spec import AnalysisSpec
     tab = demo(args.name)
@@ -121,19 +132,13 @@ def _cmd_demo(args) -> int:
                             size_method="negbin", contrast=("woodland", "arable"))
     if args.spec:
         spec = AnalysisSpec.from_json(args.spec)
-    bar = Progress("analysis")
-    try:
-        results = run(spec, tab, progress=bar)
-    finally:
-        bar.close()
-    _print_findings(results)
+    results = _analyse(spec, tab)
     _write_all(results, Path(args.out), notebook=not args.no_notebook,
                title=f"tallyform report: {args.name} demo (synthetic data)")
     return 0
 
 
 def _cmd_report(args) -> int:
-    from .core.analysis import run
     from .core.io import read_counts
     from .core.spec import AnalysisSpec
     tab = read_counts(args.counts, args.samples, rows=args.rows, effort=args.effort,
@@ -146,12 +151,7 @@ def _cmd_report(args) -> int:
     if args.transform:
         spec = spec.replace(transform=args.transform)
     _print_table_overview(tab, spec.group)
-    bar = Progress("analysis")
-    try:
-        results = run(spec, tab, progress=bar)
-    finally:
-        bar.close()
-    _print_findings(results)
+    results = _analyse(spec, tab)
     _write_all(results, Path(args.out), notebook=False,
                title=f"tallyform report: {Path(args.counts).name}")
     return 0

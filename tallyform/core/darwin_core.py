@@ -15,7 +15,7 @@ from .cells import display_name as _display_name
 from .cells import parse_numbers, read_cells
 from .cells import to_text as _to_text
 from .errors import InputError, Location
-from .io import _check_ids, _header
+from .io import _check_ids, _header, records_to_wide
 from .table import CommunityTable, Origin, _listing
 
 __all__ = ["read_darwin_core"]
@@ -187,22 +187,13 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
                          location=oc_cells.where(i + 1, lower_oc["eventid"], "eventID"),
                          hint="Every occurrence must belong to a listed event.")
     frame = pd.DataFrame({"s": oc_ev, "t": oc_tx, "v": qty, "line": line})
-    dup = frame.duplicated(["s", "t"], keep=False)
-    notes = [f"quantity type: {kinds[0] if kinds else '(none)'}"]
-    if dup.any():
-        pairs = frame[dup].groupby(["s", "t"], sort=False)["line"].apply(list)
-        if not sum_duplicates:
-            shown = "; ".join(f"({s!r}, {t!r}) on lines {ls}" for (s, t), ls in
-                              list(pairs.items())[:5])
-            later = frame[dup].groupby(["s", "t"], sort=False)["line"].nth(1).iloc[0]
-            raise InputError(f"{len(pairs)} (event, taxon) pair(s) have several records: "
-                             f"{shown}.", location=Location(file=oc_cells.file,
-                                                            row=f"line {int(later)}"),
-                             hint="Pass sum_duplicates=True to add them up.")
-        notes.append(f"{len(pairs)} (event, taxon) pair(s) with several records were summed")
-    wide = frame.pivot_table(index="s", columns="t", values="v", aggfunc="sum",
-                             fill_value=0.0, sort=False)
-    wide = wide.reindex(index=ev_ids, columns=list(dict.fromkeys(oc_tx)), fill_value=0.0)
+    wide, notes = records_to_wide(
+        frame, ev_ids, list(dict.fromkeys(oc_tx)), what="event",
+        sum_duplicates=sum_duplicates,
+        where=lambda ln, s, t: Location(file=oc_cells.file, row=f"line {ln}"),
+        hint="Several records of one taxon in one event (sexes, life stages) are usually "
+             "meant to be added: pass sum_duplicates=True.")
+    notes.insert(0, f"quantity type: {kinds[0] if kinds else '(none)'}")
 
     eff = None
     if effort == "auto":

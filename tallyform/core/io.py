@@ -429,8 +429,31 @@ def read_long(path, samples=None, *, sample: str = "sample", taxon: str = "taxon
         raise InputError(f"the count {what} ({int(bad.sum())} bad count(s) in all).",
                          location=cells.where(i + 1, cols["count"], count),
                          hint="Counts must be numbers >= 0; write 0 or leave the pair out.")
-    frame = pd.DataFrame({"s": s_ids, "t": t_ids, "v": vals,
-                          "line": cells.lines[1:]})
+    frame = pd.DataFrame({"s": s_ids, "t": t_ids, "v": vals, "line": cells.lines[1:]})
+
+    def where(line, s, t):
+        return Location(file=cells.file, row=f"line {line}",
+                        column=f"columns {cells.column_name(cols['sample'])} and "
+                               f"{cells.column_name(cols['taxon'])} ({s!r}, {t!r})")
+    wide, notes = records_to_wide(frame, list(dict.fromkeys(s_ids)),
+                                  list(dict.fromkeys(t_ids)), what="sample",
+                                  sum_duplicates=sum_duplicates, where=where,
+                                  hint="Fix the duplicates, or pass sum_duplicates=True to "
+                                       "add their counts.")
+    table = CommunityTable(wide.astype(float), info, effort=effort, empty=empty,
+                           origin=Origin(file=cells.file, sheet=cells.sheet))
+    table._notes = tuple(notes)
+    return table
+
+
+def records_to_wide(frame: pd.DataFrame, rows: list, columns: list, *, what: str,
+                    sum_duplicates: bool, where, hint: str):
+    """(s, t, v, line) records -> a rows x columns table, zeros for absent pairs.
+
+    A (s, t) pair listed more than once is an InputError that lists the pairs with their
+    lines (``where(line, s, t)`` locates the first repeat), unless ``sum_duplicates``: then
+    the records are added and a note says how many pairs were summed.
+    """
     dup = frame.duplicated(["s", "t"], keep=False)
     notes = []
     if dup.any():
@@ -438,23 +461,14 @@ def read_long(path, samples=None, *, sample: str = "sample", taxon: str = "taxon
         if not sum_duplicates:
             shown = "; ".join(f"({s!r}, {t!r}) on lines {ls}" for (s, t), ls in
                               list(pairs.items())[:5])
-            later = frame[dup].groupby(["s", "t"], sort=False)["line"].nth(1).iloc[0]
-            raise InputError(f"{len(pairs)} (sample, taxon) pair(s) appear more than once: "
+            (s0, t0), lines0 = next(iter(pairs.items()))
+            raise InputError(f"{len(pairs)} ({what}, taxon) pair(s) appear more than once: "
                              f"{shown}{' ...' if len(pairs) > 5 else ''}.",
-                             location=Location(file=cells.file, row=f"line {int(later)}",
-                                               column=f"columns {cells.column_name(cols['sample'])}"
-                                                      f" and {cells.column_name(cols['taxon'])} "
-                                                      f"({sample!r}, {taxon!r})"),
-                             hint="Fix the duplicates, or pass sum_duplicates=True to add "
-                                  "their counts.")
-        notes.append(f"{len(pairs)} repeated (sample, taxon) pair(s) summed")
+                             location=where(int(lines0[1]), s0, t0), hint=hint)
+        notes.append(f"{len(pairs)} repeated ({what}, taxon) pair(s) summed")
     wide = frame.pivot_table(index="s", columns="t", values="v", aggfunc="sum",
                              fill_value=0.0, sort=False)
-    wide = wide.reindex(index=list(dict.fromkeys(s_ids)), columns=list(dict.fromkeys(t_ids)))
-    table = CommunityTable(wide.astype(float), info, effort=effort, empty=empty,
-                           origin=Origin(file=cells.file, sheet=cells.sheet))
-    table._notes = tuple(notes)
-    return table
+    return wide.reindex(index=rows, columns=columns, fill_value=0.0), notes
 
 
 from .darwin_core import read_darwin_core  # noqa: E402  (re-exported)

@@ -36,6 +36,7 @@ import pandas as pd
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import tallyform as tly  # noqa: E402
+from tallyform.core.cache import clear_cache  # noqa: E402
 from tallyform.core.errors import format_bytes  # noqa: E402
 from tallyform.core.memory import memory_limit  # noqa: E402
 
@@ -74,6 +75,7 @@ def step(name, fn, repeats=1):
     shields their ratio from a busy moment of a shared machine); time, traced peak."""
     runs = []
     for _ in range(repeats):
+        clear_cache()                 # time the computation, not tallyform's result cache
         tracemalloc.start()
         t = time.perf_counter()
         out = fn()

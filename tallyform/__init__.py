@@ -24,7 +24,8 @@ from .core.spec import AnalysisSpec
 from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
 from .core.measures import MEASURES, Measure, get_measure
 from .core.memory import memory_limit, set_memory_limit
-from .core.size_tests import compare_groups, size_test
+from .core.comparison import compare_groups
+from .core.size_tests import size_test
 from .core.table import CommunityTable
 from .core.transforms import (TRANSFORMS, Chord, Clr, Hellinger, Identity, Log1p, Power,
                               Presence, Profile, Transform, Wisconsin, get_transform)

@@ -121,7 +121,7 @@ def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisRes
     from .ordination import pcoa
     from .partition import size_shape
     from .scan import scan
-    from .size_tests import compare_groups
+    from .comparison import compare_groups
     if isinstance(spec, dict):
         spec = AnalysisSpec.from_dict(spec)
     elif isinstance(spec, str):

@@ -16,8 +16,8 @@ from .design import as_samples, factor_levels, model_matrix
 from .dissimilarity import Dissimilarity
 from .random import as_rng
 from .errors import DesignError, InputError, Location
-from .permutation import (Permutations, PermutationTest, nested_bases, permutation_f_test,
-                          prepare_response)
+from .permutation import (Permutations, PermutationTest, _clean, nested_bases,
+                          permutation_f_test, prepare_response)
 from .results import ResultMixin, readonly
 
 __all__ = ["permanova", "pairwise_permanova", "adjust_pvalues", "PermanovaResult",
@@ -291,7 +291,7 @@ def permanova(d, samples, terms, *, blocks=None, n_permutations: int = 999, rng=
     _, q_model, _ = nested_bases(None, mm.X)
     total = resp.total()
     df_res = n - 1 - q_model.shape[1]
-    ss_res = total - float(resp.quad(q_model).sum())
+    ss_res = _clean(total - float(resp.quad(q_model).sum()), total)
 
     def cols(ts):
         idx = [c for u in terms if u in ts for c in mm.term_columns[u]]

@@ -489,11 +489,42 @@ class PermutationTest(ResultMixin):
         return null_distribution_figure(self, **kwargs)
 
 
+#: Sums of squares below this share of the total are rounding noise, and are set to 0.
+SS_RTOL = 1e-12
+
+
+def _clean(ss, total):
+    """Sums of squares within rounding error of 0 (relative to ``total``) become 0."""
+    tol = SS_RTOL * abs(float(total))
+    if np.ndim(ss) == 0:
+        return 0.0 if abs(ss) <= tol else float(ss)
+    ss = np.asarray(ss, dtype=np.float64)
+    return np.where(np.abs(ss) <= tol, 0.0, ss)
+
+
+def _pseudo_f(ss_t, ss_res, df_t, df_res):
+    """(ss_t / df_t) / (ss_res / df_res), with a perfect fit (no residual) giving +inf when
+    the term explains something and NaN when it explains nothing either."""
+    ss_t = np.asarray(ss_t, dtype=np.float64)
+    ss_res = np.asarray(ss_res, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        f = (ss_t / df_t) / (ss_res / df_res)
+    f = np.where(ss_res > 0, f, np.where(ss_t > 0, np.inf, np.nan))
+    return float(f) if f.ndim == 0 else f
+
+
 def pvalue_from_null(observed: float, null: np.ndarray, *, exact: bool) -> float:
-    """Add-one p-value for random permutations, plain proportion for exact enumeration."""
-    if not np.isfinite(observed) or null.size == 0:
+    """Add-one p-value for random permutations, plain proportion for exact enumeration.
+
+    An infinite observed statistic (a perfect fit) ties with every infinite permuted one;
+    NaN permuted statistics never count as at least the observed one.
+    """
+    if np.isnan(observed) or null.size == 0:
         return float("nan")
-    hits = int(np.count_nonzero(null >= observed - TIE_RTOL * abs(observed)))
+    if np.isinf(observed):
+        hits = int(np.count_nonzero(null == observed))
+    else:
+        hits = int(np.count_nonzero(null >= observed - TIE_RTOL * abs(observed)))
     if exact:
         return hits / null.size
     return (1 + hits) / (1 + null.size)
@@ -589,7 +620,8 @@ def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=Non
     total = resp.total()
     ss_t = float(resp.quad(qt).sum())
     ss_res = total - float(resp.quad(qz).sum()) - ss_t - float(resp.quad(qw).sum())
-    observed = (ss_t / df_t) / (ss_res / df_res) if ss_res > 0 else float("inf")
+    ss_t, ss_res = (_clean(v, total) for v in (ss_t, ss_res))
+    observed = _pseudo_f(ss_t, ss_res, df_t, df_res)
 
     if permutations is None:
         rng = as_rng(rng)
@@ -630,8 +662,8 @@ def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=Non
         tr = tr.reshape(k, b)
         num = tr[nz:nz + nt].sum(axis=0)
         den = trace_r - tr[:nz].sum(axis=0) - num - tr[nz + nt:].sum(axis=0)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            null[done:done + b] = (num / df_t) / (den / df_res)
+        null[done:done + b] = _pseudo_f(_clean(num, trace_r), _clean(den, trace_r),
+                                        df_t, df_res)
         done += b
         if progress is not None:
             progress(done, perms.total)

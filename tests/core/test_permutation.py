@@ -282,3 +282,28 @@ def test_gower_matrix_matches_squared_distances():
     rng = np.random.default_rng(2)
     d = Dissimilarity(pdist(rng.random((10, 4)), "braycurtis"), measure="bray_curtis")
     assert np.trace(d.gower()) == pytest.approx((squareform(d.condensed) ** 2).sum() / 20)
+
+
+def test_perfect_fit_ties_and_rounding_noise():
+    # regression (found by the property tests): Hellinger profiles identical within groups,
+    # so the residual sum of squares is rounding noise; the observed pseudo-F is +inf, it
+    # ties with every permutation that also fits perfectly, and scaling the distances by a
+    # constant changes nothing
+    import pandas as pd
+    import tallyform as tly
+    from tallyform.core.dissimilarity import Dissimilarity
+    x = np.array([[1.0, 0.0], [8.19544318e-04, 0.0], [0.0, 1e-12],
+                  [1.0, 0.0], [1e-12, 0.0], [0.0, 1e-12]])
+    labels = [f"s{i}" for i in range(6)]
+    d = tly.dissimilarity(x, "hellinger")
+    d = Dissimilarity(d.condensed, labels, measure="hellinger")
+    info = pd.DataFrame({"g": ["a", "a", "b", "a", "a", "b"]}, index=labels)
+    base = tly.permanova(d, info, ["g"], n_permutations=5000, rng=1)
+    assert base.exact and np.isinf(base.table.loc["g", "pseudo_f"])
+    # exact: the 15 relabellings that keep {s2, s5} together in one group fit perfectly
+    assert base.pvalue["g"] == pytest.approx(1 / 15)
+    for c in (1e-6, 1e6):
+        other = tly.permanova(Dissimilarity(d.condensed * c, labels, measure="hellinger"),
+                              info, ["g"], n_permutations=5000, rng=1)
+        assert other.pvalue["g"] == base.pvalue["g"]
+        np.testing.assert_allclose(other.table["ss"], base.table["ss"] * c * c, rtol=1e-9)

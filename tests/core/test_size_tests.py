@@ -177,7 +177,7 @@ def _size_result(p):
     (0.40, 0.40, "not evidence that the groups are the same", "The groups differ"),
 ])
 def test_reading_never_overstates(shape_p, spread_p, must, must_not):
-    from tallyform.core.size_tests import reading_text
+    from tallyform.core.comparison import reading_text
     text = reading_text(_size_result(0.2), shape_p, spread_p, group="g", measure="chi_square")
     assert must in text and must_not not in text
     assert "does not show that the totals are equal" in text
@@ -185,7 +185,7 @@ def test_reading_never_overstates(shape_p, spread_p, must, must_not):
 
 
 def test_reading_of_size_and_of_a_measure_that_is_not_size_free():
-    from tallyform.core.size_tests import reading_text
+    from tallyform.core.comparison import reading_text
     text = reading_text(_size_result(0.001), 0.5, 0.5, group="g", measure="bray_curtis",
                         size_free=False)
     assert "Total abundance differs" in text and "'low' has 0.5 times" in text
@@ -195,7 +195,7 @@ def test_reading_of_size_and_of_a_measure_that_is_not_size_free():
 
 def test_compare_groups_with_a_given_dissimilarity():
     from tallyform.core.dissimilarity import Dissimilarity
-    from tallyform.core.size_tests import compare_groups
+    from tallyform.core.comparison import compare_groups
     design = pd.DataFrame({"treatment": np.repeat(["ctl", "low"], 10)},
                           index=[f"s{i:02d}" for i in range(20)])
     tab = simulate_community(design, n_taxa=12, size_effects={"treatment": {"low": 0.3}},

@@ -25,7 +25,7 @@ import numpy as np
 __all__ = ["euclidean_condensed", "sqeuclidean_condensed", "abs_condensed",
            "kulczynski_condensed",
            "canberra_condensed", "jensen_shannon_condensed", "use_numba", "numba_enabled",
-           "RAW", "RATIO", "RUZICKA", "KULCZYNSKI", "SQRT", "SCALE"]
+           "RAW", "RATIO", "RUZICKA", "KULCZYNSKI", "SQRT", "SCALE", "SPARSE_DENSITY"]
 
 # post-processing modes for the per-pair sums (same values as in _numba_kernels)
 RAW, RATIO, RUZICKA, KULCZYNSKI, SQRT, SCALE = 0, 1, 2, 3, 4, 5
@@ -109,6 +109,68 @@ def _totals(t, n):
     return np.zeros(n) if t is None else np.ascontiguousarray(t, dtype=np.float64)
 
 
+# ---------------------------------------------------------------------- sparse tables
+#: Share of non-zero cells under which the sparse kernels are used (measured on
+#: benchmarks/measures.py at 2000 x 300: the dense kernels win above about a fifth).
+SPARSE_DENSITY = 0.2
+
+
+def _sparse_parts(x):
+    """CSR + CSC arrays (with each CSR entry's position in its column) of a non-negative
+    table when the sparse kernels should be used for it, else None.
+
+    Used when numba is available, the table is large enough to bother, every value is
+    non-negative and at most ``SPARSE_DENSITY`` of the cells are non-zero; ``x`` may be a
+    numpy array or a scipy.sparse matrix.
+    """
+    import scipy.sparse as sp
+    n, p = x.shape
+    if n < 3:
+        return None
+    if sp.issparse(x):
+        if x.nnz > SPARSE_DENSITY * n * p or _numba(_work(x)) is None:
+            return None
+        coo = sp.coo_matrix(x)
+        coo.sum_duplicates()                    # row-major order, zeros kept out below
+        keep = coo.data != 0
+        rows, cols = coo.row[keep].astype(np.int64), coo.col[keep].astype(np.int64)
+        data = np.ascontiguousarray(coo.data[keep], dtype=np.float64)
+    else:
+        x = np.asarray(x)
+        if np.count_nonzero(x) > SPARSE_DENSITY * n * p or _numba(_work(x)) is None:
+            return None
+        rows, cols = np.nonzero(x)              # row-major: CSR order, columns sorted
+        data = np.ascontiguousarray(x[rows, cols], dtype=np.float64)
+    if data.size and (data.min() < 0 or not np.isfinite(data).all()):
+        return None
+    indptr = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(np.bincount(rows, minlength=n), out=indptr[1:])
+    order = np.argsort(cols, kind="stable")     # column-major, rows still ascending
+    cptr = np.zeros(p + 1, dtype=np.int64)
+    np.cumsum(np.bincount(cols, minlength=p), out=cptr[1:])
+    cpos = np.empty(data.size, dtype=np.int64)
+    cpos[order] = np.arange(data.size, dtype=np.int64)
+    r = np.bincount(rows, weights=data, minlength=n)
+    return (n, indptr, np.ascontiguousarray(cols, dtype=np.int64), data, cptr,
+            np.ascontiguousarray(rows[order]), np.ascontiguousarray(data[order]), cpos, r)
+
+
+def _sparse_run(parts, *, mode, t, scale, kind, dtype):
+    import numba
+    from . import _numba_sparse
+    n = parts[0]
+    out = _empty_out(n, dtype)
+    t = parts[-1] if t is None else np.ascontiguousarray(t, dtype=np.float64)
+    with _LOCK:
+        return _numba_sparse.sparse_abs_condensed(*parts, t, mode, float(scale), kind, out,
+                                                  numba.get_num_threads())
+
+
+def _dense(x) -> np.ndarray:
+    import scipy.sparse as sp
+    return _prepare(x.toarray() if sp.issparse(x) else x)
+
+
 def abs_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
                   dtype=np.float64) -> np.ndarray:
     """Per-pair s = sum_k |x_ik - x_jk|, post-processed by ``mode``.
@@ -116,9 +178,13 @@ def abs_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
     Modes: RAW s (Manhattan); RATIO s / (t_i + t_j) (Bray-Curtis with t the totals);
     RUZICKA 2 s / (t_i + t_j + s) (= 1 - sum min / sum max); KULCZYNSKI
     (s (t_i + t_j) - (t_i - t_j)^2) / (4 t_i t_j) (= 1 - (m / t_i + m / t_j) / 2, m the sum of
-    minima, using 2 m = t_i + t_j - s); SCALE s * scale.
+    minima, using 2 m = t_i + t_j - s); SCALE s * scale. A sparse non-negative table (numpy
+    or scipy.sparse) takes the sparse kernels (work proportional to shared taxa).
     """
-    x = _prepare(x)
+    parts = _sparse_parts(x)
+    if parts is not None:
+        return _sparse_run(parts, mode=mode, t=t, scale=scale, kind=0, dtype=dtype)
+    x = _dense(x)
     n = x.shape[0]
     t = _totals(t, n)
     out = _empty_out(n, dtype)
@@ -134,8 +200,12 @@ def kulczynski_condensed(x, t, *, dtype=np.float64) -> np.ndarray:
     computed as (p / t_i + q / t_j) / 2 from the one-sided sums p = sum_k (x_ik - x_jk)+ and
     q = sum_k (x_jk - x_ik)+ (t_i - m = p exactly): sums of non-negative terms, so a pair of
     very unequal totals (10^15 against 10) keeps full precision, which the algebraic form
-    (s (t_i + t_j) - (t_i - t_j)^2) / (4 t_i t_j) loses to cancellation."""
-    x = _prepare(x)
+    (s (t_i + t_j) - (t_i - t_j)^2) / (4 t_i t_j) loses to cancellation. Sparse tables take
+    the sparse kernels (p = t_i - m recomputed directly where it is small)."""
+    parts = _sparse_parts(x)
+    if parts is not None:
+        return _sparse_run(parts, mode=RAW, t=t, scale=1.0, kind=1, dtype=dtype)
+    x = _dense(x)
     n = x.shape[0]
     t = _totals(t, n)
     out = _empty_out(n, dtype)
@@ -174,8 +244,12 @@ def sqeuclidean_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
 
 
 def canberra_condensed(x, *, dtype=np.float64) -> np.ndarray:
-    """Canberra: sum_k |x_ik - x_jk| / (|x_ik| + |x_jk|), terms with both 0 omitted."""
-    x = _prepare(x)
+    """Canberra: sum_k |x_ik - x_jk| / (|x_ik| + |x_jk|), terms with both 0 omitted (a
+    sparse non-negative table takes the sparse kernels)."""
+    parts = _sparse_parts(x)
+    if parts is not None:
+        return _sparse_run(parts, mode=RAW, t=None, scale=1.0, kind=2, dtype=dtype)
+    x = _dense(x)
     n = x.shape[0]
     out = _empty_out(n, dtype)
     nbk = _numba(_work(x))

@@ -1,0 +1,254 @@
+"""Progress of long calls: a bar by default where someone is watching, an estimate before a
+long run, and a clean stop on interruption.
+
+Every public call that loops (permutations, simulations, resamples, the scan grid, ``run``)
+is wrapped by :func:`reports_progress`. Its ``progress`` argument means:
+
+- ``None`` (the default): the session default, :func:`set_progress` (initially ``True``);
+- ``True``: a bar where someone is watching: an ipywidgets bar in a notebook, one line on
+  stderr in a terminal, nothing when output goes to a file, a pipe or a log (scripts, CI);
+- ``False``: nothing;
+- a callable ``progress(done, total)``: called as the work advances (what the dashboard and
+  the command line use).
+
+Nested work shows one bar: a public call made inside another one's run (a scan whose cells
+run permutations) reports nothing of its own unless it was handed a callable.
+
+Before a run predicted to take more than ``ESTIMATE_AFTER`` seconds, one line says the
+estimate and, when the call has an obvious knob (``n_permutations``, ``n_sim``, ``n_boot``),
+what a smaller value would take. The estimate is measured, not guessed: it is projected from
+the time the first few percent of the work took (at least ``WARMUP`` seconds of it).
+
+Interrupting (KeyboardInterrupt, a notebook's stop button) or cancelling (``cancel()``
+returning True) stops the call at its next step and raises :class:`Cancelled`, saying how
+far it got; nothing partial is returned, and files are only ever written atomically.
+"""
+from __future__ import annotations
+
+import contextvars
+import functools
+import inspect
+import math
+import sys
+import time
+from typing import Callable
+
+from .errors import Cancelled, InputError
+
+__all__ = ["set_progress", "get_progress", "reports_progress", "Reporter", "format_seconds",
+           "ESTIMATE_AFTER"]
+
+#: A run predicted to take longer than this (seconds) announces its estimate.
+ESTIMATE_AFTER = 30.0
+#: Seconds of work measured before the estimate is trusted.
+WARMUP = 1.0
+
+_default: dict = {"progress": True}
+_active: contextvars.ContextVar = contextvars.ContextVar("tallyform_progress", default=None)
+
+
+def set_progress(value) -> None:
+    """Set the session default for ``progress=None``: True (bars where someone is watching),
+    False (never), or a callable ``progress(done, total)``.
+
+    Examples
+    --------
+    >>> set_progress(False); get_progress()
+    False
+    >>> set_progress(True)
+    """
+    if not (isinstance(value, bool) or callable(value)):
+        raise InputError(f"`progress` must be True, False or a callable(done, total); got "
+                         f"{value!r}.")
+    _default["progress"] = value
+
+
+def get_progress():
+    """The session default set by :func:`set_progress`."""
+    return _default["progress"]
+
+
+def format_seconds(s: float) -> str:
+    """``'45 s'``, ``'4 min'``, ``'1.5 h'``: a duration as a person says it."""
+    if not math.isfinite(s):
+        return "?"
+    if s < 90:
+        return f"{max(s, 0):.0f} s"
+    if s < 5400:
+        return f"{s / 60:.0f} min"
+    return f"{s / 3600:.1f} h"
+
+
+# ---------------------------------------------------------------------------- displays
+def _in_notebook() -> bool:
+    shell = sys.modules.get("IPython")
+    if shell is None or "ipykernel" not in sys.modules:
+        return False
+    try:
+        ip = shell.get_ipython()
+    except Exception:
+        return False
+    return ip is not None and type(ip).__name__ == "ZMQInteractiveShell"
+
+
+def _stderr_is_terminal() -> bool:
+    try:
+        return bool(sys.stderr.isatty())
+    except (AttributeError, ValueError):
+        return False
+
+
+class _TerminalLine:
+    """One line on stderr, redrawn in place (at most ten times a second)."""
+
+    def __init__(self, label: str):
+        self.label = label
+        self._last = 0.0
+
+    def show(self, done, total, rate, left, *, final=False):
+        now = time.monotonic()
+        if not final and now - self._last < 0.1:
+            return
+        self._last = now
+        pct = 100.0 * done / total if total else 100.0
+        text = (f"\r{self.label}: {done}/{total} ({pct:3.0f} %), {rate:.3g}/s, "
+                f"{format_seconds(left)} left" if not final else
+                f"\r{self.label}: {done}/{total} done in {format_seconds(left)}")
+        sys.stderr.write(text.ljust(72) + ("\n" if final else ""))
+        sys.stderr.flush()
+
+    def message(self, text):
+        sys.stderr.write("\r" + text.ljust(72) + "\n")
+        sys.stderr.flush()
+
+    def close(self, *, failed=False):
+        if failed:
+            sys.stderr.write("\n")
+            sys.stderr.flush()
+
+
+def _display_for(label: str):
+    if _in_notebook():
+        try:
+            from ..widgets.progress import NotebookBar   # lazy: the interaction ring
+            return NotebookBar(label)
+        except Exception:                                 # no widgets: a terminal line
+            pass
+    if _stderr_is_terminal():
+        return _TerminalLine(label)
+    return None
+
+
+# ---------------------------------------------------------------------------- reporter
+class Reporter:
+    """What a running call reports to: counts, rate, time left, the one-off estimate, the
+    cancel check. Built by :func:`reports_progress`; passed down as ``progress``."""
+
+    def __init__(self, label: str, display=None, callback: Callable | None = None,
+                 cancel: Callable | None = None, knob: tuple | None = None):
+        self.label = label
+        self.display = display
+        self.callback = callback
+        self.cancel = cancel
+        self.knob = knob                     # (name, value) of the call's main repetitions
+        self.done = 0
+        self.total = 0
+        self.started = time.monotonic()
+        self.estimated = False
+        self.estimate_text: str | None = None
+
+    def __call__(self, done, total):
+        self.done, self.total = done, total
+        if self.callback is not None:
+            self.callback(done, total)
+        if self.display is not None or not self.estimated:
+            elapsed = time.monotonic() - self.started
+            rate = done / elapsed if elapsed > 0 else float("inf")
+            left = (total - done) / rate if rate > 0 else float("inf")
+            if not self.estimated and done and elapsed >= WARMUP:
+                self._estimate(elapsed, done, total)
+            if self.display is not None:
+                self.display.show(done, total, rate, left)
+        if self.cancel is not None and self.cancel():
+            raise Cancelled(self.stopped_text("cancelled"))
+
+    def _estimate(self, elapsed, done, total):
+        self.estimated = True
+        projected = elapsed * total / done
+        if projected <= ESTIMATE_AFTER:
+            return
+        text = f"{self.label}: about {format_seconds(projected)} in all"
+        if self.knob is not None:
+            name, value = self.knob
+            if isinstance(value, int) and value > 100:
+                smaller = 999 if value > 999 else max(99, value // 10)
+                text += (f"; {name}={smaller} would take about "
+                         f"{format_seconds(projected * smaller / value)}")
+        self.estimate_text = text + "."
+        if self.display is not None:
+            self.display.message(self.estimate_text)
+
+    def stopped_text(self, how: str) -> str:
+        where = (f" after {self.done} of {self.total} steps" if self.total else
+                 " before its first step")
+        return f"{self.label} was {how}{where}; no result was kept."
+
+    def finish(self):
+        if self.display is not None:
+            self.display.show(self.total, self.total, 0.0,
+                              time.monotonic() - self.started, final=True)
+            self.display.close()
+
+    def fail(self):
+        if self.display is not None:
+            self.display.close(failed=True)
+
+
+def reports_progress(label: str, *, knob: str | None = None):
+    """Decorator for a public call with ``progress`` and ``cancel`` keyword arguments.
+
+    Resolves ``progress`` (see the module notes) into a :class:`Reporter` passed to the call
+    as its ``progress`` callable, shows one bar for nested calls, and turns an interruption
+    into :class:`Cancelled`. ``knob`` names the argument that sets the amount of work (for
+    the estimate's advice).
+    """
+    def wrap(fn):
+        sig = inspect.signature(fn)
+        if "progress" not in sig.parameters:
+            raise TypeError(f"{fn.__name__} has no `progress` argument")
+
+        @functools.wraps(fn)
+        def inner(*args, **kwargs):
+            bound = sig.bind_partial(*args, **kwargs)
+            progress = bound.arguments.get("progress")
+            if progress is None:
+                progress = _default["progress"] if _active.get() is None else False
+            if not (isinstance(progress, bool) or callable(progress)):
+                raise InputError(f"`progress` must be None, True, False or a "
+                                 f"callable(done, total); got {progress!r}.")
+            display = _display_for(label) if progress is True else None
+            callback = None if isinstance(progress, bool) else progress
+            value = bound.arguments.get(knob) if knob else None
+            if value is None and knob and knob in sig.parameters:
+                value = sig.parameters[knob].default
+            rep = Reporter(label, display, callback, bound.arguments.get("cancel"),
+                           (knob, value) if knob else None)
+            kwargs = dict(kwargs)
+            kwargs["progress"] = rep
+            token = _active.set(rep)
+            try:
+                out = fn(*args, **kwargs)
+            except KeyboardInterrupt:
+                rep.fail()
+                raise Cancelled(rep.stopped_text("interrupted")) from None
+            except BaseException:
+                rep.fail()
+                raise
+            finally:
+                _active.reset(token)
+            rep.finish()
+            return out
+
+        inner.__wrapped__ = fn
+        return inner
+    return wrap

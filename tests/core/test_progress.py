@@ -1,0 +1,94 @@
+"""Progress by default where someone watches, one bar for nested work, an estimate before a
+long run, and interruption turned into Cancelled with how far the call got."""
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import pytest
+
+from tallyform.core import progress as P
+from tallyform.errors import Cancelled, InputError
+
+
+@P.reports_progress("Counting", knob="n_steps")
+def count(n_steps=10, *, progress=None, cancel=None, boom_at=None, inner=None):
+    for i in range(n_steps):
+        if boom_at is not None and i == boom_at:
+            raise KeyboardInterrupt
+        if inner is not None:
+            inner()
+        progress(i + 1, n_steps)
+    return n_steps
+
+
+@pytest.fixture(autouse=True)
+def _reset():
+    yield
+    P.set_progress(True)
+
+
+def test_callable_false_and_session_default():
+    seen = []
+    assert count(3, progress=lambda d, t: seen.append((d, t))) == 3
+    assert seen == [(1, 3), (2, 3), (3, 3)]
+    assert count(3, progress=False) == 3
+    P.set_progress(lambda d, t: seen.append(("default", d)))
+    count(2)
+    assert seen[-2:] == [("default", 1), ("default", 2)]
+    with pytest.raises(InputError, match="`progress` must be"):
+        P.set_progress("yes")
+    with pytest.raises(InputError, match="`progress` must be"):
+        count(2, progress="yes")
+
+
+def test_nested_calls_report_once():
+    seen = []
+    inner_seen = []
+    count(2, progress=lambda d, t: seen.append(d),
+          inner=lambda: count(5, inner=None))                 # inner: progress=None
+    assert seen == [1, 2]
+    count(2, progress=lambda d, t: seen.append(d),
+          inner=lambda: count(3, progress=lambda d, t: inner_seen.append(d)))
+    assert inner_seen == [1, 2, 3] * 2                        # a callable is always honoured
+
+
+def test_interrupt_and_cancel_say_how_far():
+    with pytest.raises(Cancelled, match="Counting was interrupted after 4 of 10 steps"):
+        count(10, progress=False, boom_at=4)
+    calls = iter([False, False, True])
+    with pytest.raises(Cancelled, match="Counting was cancelled after 3 of 10 steps"):
+        count(10, progress=False, cancel=lambda: next(calls))
+
+
+def test_estimate_after_warmup_names_the_knob(monkeypatch):
+    clock = iter(range(0, 10_000, 2))                        # every call: 2 s later
+    monkeypatch.setattr(P.time, "monotonic", lambda: float(next(clock)))
+    rep = P.Reporter("PERMANOVA", None, None, None, ("n_permutations", 9999))
+    rep(10, 9999)           # 2 s for 10 of 9999: about 2000 s in all
+    assert rep.estimate_text.startswith("PERMANOVA: about 33 min in all")
+    assert "n_permutations=999 would take about 3 min" in rep.estimate_text
+    quick = P.Reporter("scan", None, None, None, None)
+    quick(900, 1000)
+    assert quick.estimated and quick.estimate_text is None   # short runs say nothing
+
+
+def test_terminal_line_and_silence_without_terminal(monkeypatch, capsys):
+    monkeypatch.setattr(P, "_stderr_is_terminal", lambda: True)
+    count(3, progress=True)
+    err = capsys.readouterr().err
+    assert "Counting: 3/3 done in" in err
+    # a script whose stderr is not a terminal prints nothing
+    code = ("from tallyform.core.progress import reports_progress\n"
+            "@reports_progress('x')\n"
+            "def f(*, progress=None, cancel=None):\n"
+            "    [progress(i + 1, 50) for i in range(50)]\n"
+            "f()\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stderr == "" and out.stdout == ""
+
+
+def test_format_seconds():
+    assert [P.format_seconds(s) for s in (3, 89.4, 240, 7200)] == \
+        ["3 s", "89 s", "4 min", "2.0 h"]

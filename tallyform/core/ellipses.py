@@ -276,6 +276,44 @@ def groups_choose_axes(fitted_scores, group) -> bool:
     return bool(np.min(angles) < 1e-6)
 
 
+def _cautions(kind: str, level: float, chosen_by_groups: str, constrained: str):
+    """(withheld, warning, notes) for a set of ellipses: regions for the centres on axes
+    chosen by the groups, and what a data or bootstrap ellipse is."""
+    notes: list[str] = []
+    withheld = warning = ""
+    if chosen_by_groups:
+        if kind in CENTRE_KINDS and constrained == "withhold":
+            withheld = (f"{kind} ellipses not drawn: {chosen_by_groups}, so regions for the "
+                        "group centres look separated even when the groups do not differ. "
+                        "Test the constraints by permutation (tly.constraint_test), or draw "
+                        "these ellipses on unconstrained axes (tly.ca, tly.pcoa), where they "
+                        "are honest; constrained='draw' draws them anyway, with this warning.")
+        elif kind in CENTRE_KINDS:
+            warning = (f"not evidence of a difference: {chosen_by_groups}, so these regions "
+                       "for the group centres look separated even when the groups do not "
+                       "differ (test with tly.constraint_test)")
+        else:
+            notes.append(f"{chosen_by_groups}: the groups are spread apart by construction "
+                         "on these axes, so the ellipses show the samples' spread on axes "
+                         "that favour separation, not evidence of a difference.")
+    if withheld:
+        notes.insert(0, withheld)
+    elif warning:
+        notes.insert(0, f"drawn on request, {warning}.")
+    if kind == "bootstrap":
+        notes.append("the bootstrap constant is multiplied by the small-sample factor "
+                     "2n F(2, n-2) / ((n-2) chi-square_2) (3.5 at n = 6, 1.9 at n = 10, "
+                     "1.2 at n = 30 for 0.95), which brings its coverage of the true centre "
+                     "to the level on normal data.")
+    if kind == "data":
+        notes.append("a data ellipse shows the spread of the samples (sample covariance, "
+                     f"radius {np.sqrt(stats.chi2.ppf(level, 2)):.2f} SD); it is not a region "
+                     "that holds a stated share of new samples (on normal data one sized at "
+                     "0.95 held about 70 % of new samples at n = 5 and 82 % at n = 8); "
+                     "kind='prediction' is.")
+    return withheld, warning, notes
+
+
 def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.95,
                    n_boot: int = 999, rng=None, source: str = "", chosen_by_groups: str = "",
                    constrained: str = "withhold") -> EllipseSet:
@@ -357,38 +395,9 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
     g = _aligned_groups(group, labels)
     levels = list(dict.fromkeys(g))  # order of first appearance
     rows, no_ellipse, notes = {}, {}, []
-    withheld = warning = ""
-    if chosen_by_groups:
-        if kind in CENTRE_KINDS and constrained == "withhold":
-            withheld = (f"{kind} ellipses not drawn: {chosen_by_groups}, so regions for the "
-                        "group centres look separated even when the groups do not differ. "
-                        "Test the constraints by permutation (tly.constraint_test), or draw "
-                        "these ellipses on unconstrained axes (tly.ca, tly.pcoa), where they "
-                        "are honest; constrained='draw' draws them anyway, with this warning.")
-            levels = []
-        elif kind in CENTRE_KINDS:
-            warning = (f"not evidence of a difference: {chosen_by_groups}, so these regions "
-                       "for the group centres look separated even when the groups do not "
-                       "differ (test with tly.constraint_test)")
-        else:
-            notes.append(f"{chosen_by_groups}: the groups are spread apart by construction "
-                         "on these axes, so the ellipses show the samples' spread on axes "
-                         "that favour separation, not evidence of a difference.")
+    withheld, warning, notes = _cautions(kind, level, chosen_by_groups, constrained)
     if withheld:
-        notes.insert(0, withheld)
-    elif warning:
-        notes.insert(0, f"drawn on request, {warning}.")
-    if kind == "bootstrap":
-        notes.append("the bootstrap constant is multiplied by the small-sample factor "
-                     "2n F(2, n-2) / ((n-2) chi-square_2) (3.5 at n = 6, 1.6 at n = 10, "
-                     "1.1 at n = 30 for 0.95), which brings its coverage of the true centre "
-                     "to the level on normal data.")
-    if kind == "data":
-        notes.append("a data ellipse shows the spread of the samples (sample covariance, "
-                     f"radius {np.sqrt(stats.chi2.ppf(level, 2)):.2f} SD); it is not a region "
-                     "that holds a stated share of new samples (on normal data one sized at "
-                     "0.95 held about 70 % of new samples at n = 5 and 82 % at n = 8); "
-                     "kind='prediction' is.")
+        levels = []
     for lv in levels:
         x = pts[g == lv]
         n = len(x)

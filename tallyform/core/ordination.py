@@ -245,7 +245,7 @@ class Ordination(ResultMixin):
         cols = [self._axis(a) for a in axes]
         if len(cols) != 2 or cols[0] == cols[1]:
             raise InputError(f"`axes` must name two different axes; got {axes!r}.")
-        chosen = ""
+        chosen, extra = "", ""
         constrained_cols = [c for c in cols if c in self.constrained_axes]
         if self.fitted_scores is not None and len(self.fitted_scores.columns):
             labels = pd.Index([str(x) for x in self.scores.index])
@@ -258,9 +258,17 @@ class Ordination(ResultMixin):
                               f"({', '.join(constrained_cols)}) were chosen to separate the "
                               f"levels of its constraints, and {what} is one of them or is "
                               "nested with one")
+                else:
+                    extra = (f"{cols[0]} and {cols[1]} are unconstrained axes: the variation "
+                             f"explained by the constraints, which include {what}, was "
+                             "removed from them, so the groups' centres nearly coincide here "
+                             "by construction.")
         out = group_ellipses(self.scores[cols], group, kind=kind, level=level,
                              n_boot=n_boot, rng=rng, source=f"{self.method} ({self.scaling})",
                              chosen_by_groups=chosen, constrained=constrained)
+        if extra:
+            import dataclasses
+            out = dataclasses.replace(out, notes=out.notes + (extra,))
         return out
 
     def _axis(self, a) -> str:

@@ -145,7 +145,8 @@ def test_constrained_by_the_groups_withholds_confidence_ellipses():
     # spread of samples: drawn, with the note; unconstrained axes of the same CCA: drawn
     pred = o.ellipses(tab.samples["g"], kind="prediction")
     assert len(pred.table) == 3 and any("not evidence" in n for n in pred.notes)
-    assert not o.ellipses(tab.samples["g"], axes=("CA1", "CA2")).withheld
+    residual = o.ellipses(tab.samples["g"], axes=("CA1", "CA2"))
+    assert not residual.withheld and any("unconstrained axes" in n for n in residual.notes)
     # a grouping nested in the constraint (halves of each group) is caught too
     halves = pd.Series(np.repeat([f"h{k}" for k in range(6)], 4), index=tab.sample_labels)
     assert o.ellipses(halves).withheld

@@ -8,13 +8,28 @@ the constant named, so that a plot legend can say what the ellipse means.
 - ``confidence``: region for the group's true centre. S = sample covariance (divisor
   n - 1), c = 2 (n - 1) / (n (n - 2)) F_{2, n-2}(level) (Hotelling 1931).
 - ``prediction``: region for one new sample of the group: (n + 1) times that constant.
-- ``data``: normal-theory region holding ``level`` of the samples: c = chi-square_2(level)
-  (5.991 at 95 %).
+- ``data``: the spread of the samples: S = sample covariance, c = chi-square_2(level)
+  (5.991 at 0.95, a radius of 2.45 standard deviations). It is drawn and labelled as a
+  spread with no coverage level: with S estimated from few samples it holds far fewer new
+  samples than the level says (about 70 % at n = 5 and 82 % at n = 8 for 0.95 on normal
+  data); the region that holds a stated share of new samples is ``prediction``.
 - ``bootstrap``: S = covariance of bootstrap centroids (resampling the group's samples
   with replacement), c = the ``level`` quantile of their squared Mahalanobis distances to
-  the observed centre (Efron & Tibshirani 1993).
+  the observed centre (Efron & Tibshirani 1993), times the small-sample factor
+  2 n F_{2,n-2}(level) / ((n - 2) chi-square_2(level)): the ratio of the exact
+  normal-theory constant to the one the plain bootstrap reproduces (the bootstrap
+  covariance has divisor n, and its quantile tends to chi-square_2). Without it the region
+  covered the true centre of normal data in 71 % of studies at n = 6 and 88 % at n = 10.
 
 Groups with fewer than 3 samples get no ellipse; they are listed in ``notes``.
+
+On the constrained axes of a CCA, RDA or db-RDA whose constraints include the grouping (or
+a factor nested in it, or one it is nested in), the axes were chosen to separate exactly
+these groups, so regions for the group centres look separated on pure noise (81 of 100
+one-composition data sets showed two non-overlapping 95 % confidence ellipses, 3 groups of
+8, CCA). Confidence and bootstrap ellipses are then withheld unless asked for
+(``constrained='draw'``, with the warning kept for the figure); data and prediction
+ellipses are drawn with the same note.
 """
 from __future__ import annotations
 
@@ -29,15 +44,28 @@ from .errors import DesignError, InputError
 from .results import ResultMixin
 
 __all__ = ["EllipseSet", "group_ellipses", "ellipse_constant", "ellipse_from_shape",
-           "ellipse_outline", "inside_ellipse", "ELLIPSE_KINDS"]
+           "ellipse_outline", "inside_ellipse", "bootstrap_factor", "describe",
+           "groups_choose_axes", "ELLIPSE_KINDS", "CONSTRAINED_OPTIONS"]
 
 ELLIPSE_KINDS = ("confidence", "prediction", "data", "bootstrap")
+CONSTRAINED_OPTIONS = ("withhold", "draw")
 _CONSTANT_NAMES = {
     "confidence": "Hotelling T^2: 2(n-1)/(n(n-2)) F(2, n-2)",
     "prediction": "Hotelling T^2 for a new sample: 2(n-1)(n+1)/(n(n-2)) F(2, n-2)",
-    "data": "chi-square, 2 df",
-    "bootstrap": "bootstrap quantile of squared Mahalanobis distances of centroids",
+    "data": "sample covariance, radius sqrt(chi-square_2)",
+    "bootstrap": ("bootstrap quantile of squared Mahalanobis distances of centroids x "
+                  "2n F(2, n-2) / ((n-2) chi-square_2)"),
 }
+#: what each kind of ellipse covers, for legends and hover text (``{pct}``: the level)
+COVERS = {
+    "confidence": "{pct} confidence ellipse: region for the group's true centre",
+    "prediction": "{pct} prediction ellipse: holds a new sample of the group with "
+                  "probability {pct}",
+    "data": "data ellipse: spread of the group's samples ({sd:.2f} SD; no coverage level)",
+    "bootstrap": "{pct} bootstrap ellipse: region for the group's true centre",
+}
+#: kinds that are regions for a group's centre (withheld on axes chosen by the groups)
+CENTRE_KINDS = ("confidence", "bootstrap")
 _MIN_N = 3
 
 
@@ -60,6 +88,27 @@ def ellipse_constant(kind: str, n: int, level: float) -> float:
     if kind == "prediction":
         return c * (n + 1)
     raise InputError(f"no closed-form constant for kind {kind!r}.")
+
+
+def bootstrap_factor(n: int, level: float) -> float:
+    """Small-sample factor of the bootstrap ellipse: 2 n F_{2,n-2}(level) /
+    ((n - 2) chi-square_2(level)), which tends to 1 as n grows.
+
+    Examples
+    --------
+    >>> round(bootstrap_factor(6, 0.95), 2), round(bootstrap_factor(10_000, 0.95), 3)
+    (3.48, 1.0)
+    """
+    if n < _MIN_N:
+        return float("nan")
+    f = float(stats.f.ppf(level, 2, n - 2))
+    return 2.0 * n * f / ((n - 2) * float(stats.chi2.ppf(level, 2)))
+
+
+def describe(kind: str, level: float) -> str:
+    """What an ellipse of this kind covers, in words (the legend of a figure)."""
+    pct = f"{100 * level:g} %"
+    return COVERS[kind].format(pct=pct, sd=float(np.sqrt(stats.chi2.ppf(level, 2))))
 
 
 def ellipse_from_shape(centre, shape, constant) -> tuple[np.ndarray, np.ndarray, float]:
@@ -129,6 +178,11 @@ class EllipseSet(ResultMixin):
         Groups without an ellipse and their sizes.
     source : str
         The ordination and scaling the scores came from.
+    withheld : str
+        Why no ellipse was computed although groups were large enough (regions for the
+        group centres on axes chosen to separate the same groups); empty otherwise.
+    warning : str
+        A warning that belongs in the figure itself (such regions drawn on request).
     notes : tuple of str
     """
 
@@ -139,18 +193,26 @@ class EllipseSet(ResultMixin):
     table: pd.DataFrame
     no_ellipse: dict = field(default_factory=dict)
     source: str = ""
+    withheld: str = ""
+    warning: str = ""
     notes: tuple = ()
 
     @property
     def groups(self) -> list[str]:
         return list(self.table.index)
 
+    @property
+    def covers(self) -> str:
+        """What each ellipse covers, in words (used by legends and hover text)."""
+        return describe(self.kind, self.level)
+
     def to_frame(self) -> pd.DataFrame:
         return self.table.copy()
 
     def _title(self) -> str:
-        return (f"{self.kind} ellipses, level {self.level:g}, on {self.axes[0]} x "
-                f"{self.axes[1]} ({self.constant_name})")
+        level = "" if self.kind == "data" else f", level {self.level:g}"
+        return (f"{self.kind} ellipses{level}, on {self.axes[0]} x {self.axes[1]} "
+                f"({self.constant_name}): {self.covers}")
 
     def outline(self, group, k: int = 100) -> tuple[np.ndarray, np.ndarray]:
         """(x, y) outline of one group's ellipse (see :func:`ellipse_outline`)."""
@@ -189,8 +251,72 @@ def _aligned_groups(group, labels: pd.Index) -> np.ndarray:
     return np.array([str(v) for v in values], dtype=object)
 
 
+def groups_choose_axes(fitted_scores, group) -> bool:
+    """True when the grouping shares a direction with the constraints of an ordination.
+
+    ``fitted_scores`` (n x k) are the fitted (linear-combination) sample scores of the
+    constrained axes, which lie in the span of the intercept and the coded constraints. The
+    grouping's centred indicator columns share a direction with their centred span when the
+    grouping is a constraint, is nested in one (each group inside one level) or has one
+    nested in it (each level inside one group): the smallest principal angle between the
+    two spans is then 0 (Bjorck & Golub 1973, via scipy.linalg.subspace_angles).
+    """
+    import scipy.linalg
+    L = np.asarray(fitted_scores, dtype=float)
+    g = np.asarray(group, dtype=object)
+    levels = list(dict.fromkeys(g))
+    if L.size == 0 or len(levels) < 2:
+        return False
+    G = np.column_stack([(g == lv).astype(float) for lv in levels[1:]])
+    Lc, Gc = L - L.mean(axis=0), G - G.mean(axis=0)
+    Lc = Lc[:, np.linalg.norm(Lc, axis=0) > 1e-12 * max(np.abs(L).max(), 1e-300)]
+    if Lc.shape[1] == 0:
+        return False
+    angles = scipy.linalg.subspace_angles(Lc, Gc)
+    return bool(np.min(angles) < 1e-6)
+
+
+def _cautions(kind: str, level: float, chosen_by_groups: str, constrained: str):
+    """(withheld, warning, notes) for a set of ellipses: regions for the centres on axes
+    chosen by the groups, and what a data or bootstrap ellipse is."""
+    notes: list[str] = []
+    withheld = warning = ""
+    if chosen_by_groups:
+        if kind in CENTRE_KINDS and constrained == "withhold":
+            withheld = (f"{kind} ellipses not drawn: {chosen_by_groups}, so regions for the "
+                        "group centres look separated even when the groups do not differ. "
+                        "Test the constraints by permutation (tly.constraint_test), or draw "
+                        "these ellipses on unconstrained axes (tly.ca, tly.pcoa), where they "
+                        "are honest; constrained='draw' draws them anyway, with this warning.")
+        elif kind in CENTRE_KINDS:
+            warning = (f"not evidence of a difference: {chosen_by_groups}, so these regions "
+                       "for the group centres look separated even when the groups do not "
+                       "differ (test with tly.constraint_test)")
+        else:
+            notes.append(f"{chosen_by_groups}: the groups are spread apart by construction "
+                         "on these axes, so the ellipses show the samples' spread on axes "
+                         "that favour separation, not evidence of a difference.")
+    if withheld:
+        notes.insert(0, withheld)
+    elif warning:
+        notes.insert(0, f"drawn on request, {warning}.")
+    if kind == "bootstrap":
+        notes.append("the bootstrap constant is multiplied by the small-sample factor "
+                     "2n F(2, n-2) / ((n-2) chi-square_2) (3.5 at n = 6, 1.9 at n = 10, "
+                     "1.2 at n = 30 for 0.95), which brings its coverage of the true centre "
+                     "to the level on normal data.")
+    if kind == "data":
+        notes.append("a data ellipse shows the spread of the samples (sample covariance, "
+                     f"radius {np.sqrt(stats.chi2.ppf(level, 2)):.2f} SD); it is not a region "
+                     "that holds a stated share of new samples (on normal data one sized at "
+                     "0.95 held about 70 % of new samples at n = 5 and 82 % at n = 8); "
+                     "kind='prediction' is.")
+    return withheld, warning, notes
+
+
 def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.95,
-                   n_boot: int = 999, rng=None, source: str = "") -> EllipseSet:
+                   n_boot: int = 999, rng=None, source: str = "", chosen_by_groups: str = "",
+                   constrained: str = "withhold") -> EllipseSet:
     """Ellipses per group for two columns of sample scores.
 
     Parameters
@@ -207,6 +333,14 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
         Seed for the bootstrap.
     source : str
         What the scores are (kept for the legend).
+    chosen_by_groups : str
+        Non-empty when the two axes were chosen to separate these groups (constrained axes
+        whose constraints include the grouping): the reason, in words. Set by
+        :meth:`Ordination.ellipses`.
+    constrained : {'withhold', 'draw'}, default 'withhold'
+        With ``chosen_by_groups``: ``'withhold'`` computes no confidence or bootstrap
+        ellipse (the result says why), ``'draw'`` computes them and keeps the warning for
+        the figure. Data and prediction ellipses are drawn either way, with the note.
 
     Returns
     -------
@@ -216,8 +350,10 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
     -----
     Confidence region of a bivariate-normal mean (Hotelling 1931):
     n (m - mu)' S^{-1} (m - mu) <= 2 (n - 1) / (n - 2) F_{2, n-2}; prediction region for a
-    new observation: (n + 1)/n times the same bound on (x - m)' S^{-1} (x - m); data ellipse:
-    chi-square_2(level). Groups under 3 samples have no ellipse.
+    new observation: (n + 1)/n times the same bound on (x - m)' S^{-1} (x - m); data ellipse
+    (a spread, no coverage): chi-square_2(level); bootstrap: the quantile of the bootstrap
+    centroids' squared Mahalanobis distances times :func:`bootstrap_factor`. Groups under 3
+    samples have no ellipse.
 
     References
     ----------
@@ -236,6 +372,9 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
         raise InputError(f"`kind` must be one of {list(ELLIPSE_KINDS)}; got {kind!r}.")
     if not (isinstance(level, (float, int)) and 0 < float(level) < 1):
         raise InputError(f"`level` must be a number between 0 and 1 (e.g. 0.95); got {level!r}.")
+    if constrained not in CONSTRAINED_OPTIONS:
+        raise InputError(f"`constrained` must be one of {list(CONSTRAINED_OPTIONS)}; got "
+                         f"{constrained!r}.")
     level = float(level)
     if isinstance(scores, pd.DataFrame):
         labels = pd.Index([str(x) for x in scores.index])
@@ -256,6 +395,9 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
     g = _aligned_groups(group, labels)
     levels = list(dict.fromkeys(g))  # order of first appearance
     rows, no_ellipse, notes = {}, {}, []
+    withheld, warning, notes = _cautions(kind, level, chosen_by_groups, constrained)
+    if withheld:
+        levels = []
     for lv in levels:
         x = pts[g == lv]
         n = len(x)
@@ -270,7 +412,7 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
             S = np.cov(cents, rowvar=False, ddof=1)
             dev = cents - m
             q = np.einsum("ij,jk,ik->i", dev, np.linalg.pinv(S), dev)
-            c = float(np.quantile(q, level))
+            c = float(np.quantile(q, level)) * bootstrap_factor(n, level)
         else:
             c = ellipse_constant(kind, n, level)
         centre, semi, angle = ellipse_from_shape(m, S, c)
@@ -289,4 +431,5 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
     table.index = pd.Index(list(rows), dtype=object, name="group")
     table["n"] = table["n"].astype(int)
     return EllipseSet(kind=kind, level=level, axes=axes, constant_name=_CONSTANT_NAMES[kind],
-                      table=table, no_ellipse=no_ellipse, source=source, notes=tuple(notes))
+                      table=table, no_ellipse=no_ellipse, source=source, withheld=withheld,
+                      warning=warning, notes=tuple(notes))

@@ -212,7 +212,7 @@ class Ordination(ResultMixin):
 
     # ------------------------------------------------------------------ derived results
     def ellipses(self, group, *, kind: str = "confidence", level: float = 0.95,
-                 axes=(0, 1), n_boot: int = 999, rng=None):
+                 axes=(0, 1), n_boot: int = 999, rng=None, constrained: str = "withhold"):
         """Per-group ellipses on two axes of the sample scores.
 
         See :func:`tallyform.core.ellipses.group_ellipses` for the kinds and constants.
@@ -222,24 +222,54 @@ class Ordination(ResultMixin):
         group : Series or sequence, length n_samples
             Group of each sample (a Series is aligned by sample label).
         kind : {'confidence', 'prediction', 'data', 'bootstrap'}, default 'confidence'
+            'confidence' and 'bootstrap': regions for each group's true centre;
+            'prediction': holds a new sample of the group with probability ``level``;
+            'data': the spread of the samples (no coverage level).
         level : float, default 0.95
         axes : pair of int or str, default (0, 1)
         n_boot : int, default 999
             Bootstrap resamples (``kind='bootstrap'`` only).
         rng : None, int or numpy.random.Generator
             Seed for the bootstrap.
+        constrained : {'withhold', 'draw'}, default 'withhold'
+            When a plotted axis is a constrained axis and the grouping is a constraint (or
+            nested in one, or has one nested in it), the axes were chosen to separate these
+            groups: confidence and bootstrap ellipses are then withheld (``withheld`` says
+            why) unless ``'draw'``, which draws them with the warning in the figure.
 
         Returns
         -------
         EllipseSet
         """
-        from .ellipses import group_ellipses
+        from .ellipses import _aligned_groups, group_ellipses, groups_choose_axes
         cols = [self._axis(a) for a in axes]
         if len(cols) != 2 or cols[0] == cols[1]:
             raise InputError(f"`axes` must name two different axes; got {axes!r}.")
-        return group_ellipses(self.scores[cols], group, kind=kind, level=level,
-                              n_boot=n_boot, rng=rng,
-                              source=f"{self.method} ({self.scaling})")
+        chosen, extra = "", ""
+        constrained_cols = [c for c in cols if c in self.constrained_axes]
+        if self.fitted_scores is not None and len(self.fitted_scores.columns):
+            labels = pd.Index([str(x) for x in self.scores.index])
+            g = _aligned_groups(group, labels)
+            if groups_choose_axes(self.fitted_scores.to_numpy(dtype=float), g):
+                name = getattr(group, "name", None)
+                what = f"{name!r}" if name is not None else "the groups"
+                if constrained_cols:
+                    chosen = (f"the constrained axes of this {self.method} "
+                              f"({', '.join(constrained_cols)}) were chosen to separate the "
+                              f"levels of its constraints, and {what} is one of them or is "
+                              "nested with one")
+                else:
+                    extra = (f"{cols[0]} and {cols[1]} are unconstrained axes: the variation "
+                             f"explained by the constraints, which include {what}, was "
+                             "removed from them, so the groups' centres nearly coincide here "
+                             "by construction.")
+        out = group_ellipses(self.scores[cols], group, kind=kind, level=level,
+                             n_boot=n_boot, rng=rng, source=f"{self.method} ({self.scaling})",
+                             chosen_by_groups=chosen, constrained=constrained)
+        if extra:
+            import dataclasses
+            out = dataclasses.replace(out, notes=out.notes + (extra,))
+        return out
 
     def _axis(self, a) -> str:
         if isinstance(a, (int, np.integer)):

@@ -22,12 +22,7 @@ __all__ = ["ordination_figure", "scree_figure"]
 
 MISSING = "(no value)"
 TAXON_COLOUR = "#444444"
-_ELLIPSE_WORDS = {
-    "confidence": "region for each group's centre",
-    "prediction": "region for one new sample of each group",
-    "data": "region holding that share of each group's samples (normal theory)",
-    "bootstrap": "bootstrap region for each group's centre",
-}
+WARNING_COLOUR = "#B00020"
 
 
 def _check_ordination(o) -> Ordination:
@@ -115,9 +110,11 @@ def _title_lines(o: Ordination, ellipses) -> tuple[str, list[str]]:
     if o.negative_share > 0:
         lines.append(f"negative eigenvalues hold {100 * o.negative_share:.1f} % of the total: "
                      "no axis shows that part")
-    if ellipses is not None:
-        lines.append(f"ellipses: {100 * ellipses.level:g} % {ellipses.kind} "
-                     f"{_ELLIPSE_WORDS.get(ellipses.kind, '')}")
+    if ellipses is not None and ellipses.withheld:
+        lines.append(f"{ellipses.kind} ellipses withheld: the axes were chosen to separate "
+                     "these groups")
+    elif ellipses is not None:
+        lines.append(f"ellipses: {ellipses.covers}")
     return title, lines
 
 
@@ -262,22 +259,46 @@ def ordination_figure(ordination, *, group=None, symbol=None, ellipses=None, axe
     return fig
 
 
+def _wrap(text: str, width: int = 95) -> str:
+    import textwrap
+    return "<br>".join(textwrap.wrap(text, width))
+
+
 def _add_ellipses(fig: go.Figure, e: EllipseSet, colours: dict, sz: dict) -> None:
-    pct = f"{100 * e.level:g} %"
+    """Outlines in the group colours; legend and hover say what each ellipse covers; a
+    withheld set or a warning is written into the figure itself."""
+    covers = e.covers
     for lv, row in e.table.iterrows():
         ex, ey = e.outline(lv, k=120)
-        text = (f"<b>{lv}</b>: {pct} {e.kind} ellipse<br>n = {int(row['n'])}<br>"
-                f"{e.constant_name}")
+        text = (f"<b>{lv}</b>: {covers}<br>n = {int(row['n'])}<br>{e.constant_name}"
+                + (f"<br><b>{e.warning}</b>" if e.warning else ""))
         fig.add_trace(go.Scatter(
             x=ex, y=ey, mode="lines", name=f"{lv} ellipse", legendgroup=f"group:{lv}",
             showlegend=False, line={"color": colours.get(str(lv), NEUTRAL),
-                                    "width": sz["line"]},
+                                    "width": sz["line"],
+                                    "dash": "dash" if e.warning else "solid"},
             hovertext=[text] * len(ex), hovertemplate="%{hovertext}<extra></extra>",
-            meta={"role": "ellipse", "group": str(lv)}))
-    fig.add_trace(_legend_only(
-        mode="lines", name=f"{pct} {e.kind} ellipse", legendgroup="ellipses",
-        legendgrouptitle={"text": "ellipses"}, line={"color": "#555555", "width": sz["line"]},
-        meta={"role": "ellipse legend"}))
+            meta={"role": "ellipse", "group": str(lv), "kind": e.kind,
+                  "covers": covers}))
+    if e.withheld:
+        fig.add_trace(_legend_only(
+            mode="lines", name=f"{e.kind} ellipses withheld<br>(see the note below)",
+            legendgroup="ellipses", legendgrouptitle={"text": "ellipses"},
+            line={"color": WARNING_COLOUR, "width": sz["line"], "dash": "dot"},
+            meta={"role": "ellipse withheld"}))
+        _note_in_figure(fig, e.withheld, sz)
+    else:
+        name = _wrap(covers, 34)
+        if e.warning:
+            name = "drawn on request, not evidence:<br>" + name
+        fig.add_trace(_legend_only(
+            mode="lines", name=name, legendgroup="ellipses",
+            legendgrouptitle={"text": "ellipses"},
+            line={"color": "#555555", "width": sz["line"],
+                  "dash": "dash" if e.warning else "solid"},
+            meta={"role": "ellipse legend", "covers": covers}))
+        if e.warning:
+            _note_in_figure(fig, e.warning[0].upper() + e.warning[1:] + ".", sz)
     for lv, n in e.no_ellipse.items():
         fig.add_trace(_legend_only(
             mode="markers", name=f"no ellipse: {lv} (n = {n}, fewer than 3)",
@@ -285,6 +306,15 @@ def _add_ellipses(fig: go.Figure, e: EllipseSet, colours: dict, sz: dict) -> Non
             marker={"color": colours.get(str(lv), NEUTRAL), "symbol": "circle",
                     "size": sz["marker"], "line": {"color": MARKER_EDGE, "width": 0.7}},
             meta={"role": "no ellipse", "group": str(lv)}))
+
+
+def _note_in_figure(fig: go.Figure, text: str, sz: dict) -> None:
+    """A warning written into the plotting area (top left), so it travels with the image."""
+    fig.add_annotation(text=_wrap(text, 70), xref="paper", yref="paper", x=0.01, y=0.99,
+                       xanchor="left", yanchor="top", showarrow=False, align="left",
+                       font={"size": sz["small"], "color": WARNING_COLOUR},
+                       bgcolor="rgba(255,255,255,0.85)", bordercolor=WARNING_COLOUR,
+                       borderwidth=1, name="ellipse warning")
 
 
 def _add_taxa(fig, o, taxa, top_taxa, arrows, xa, ya, x, y, sz) -> None:

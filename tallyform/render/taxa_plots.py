@@ -41,7 +41,8 @@ def _num(v) -> str:
 
 def taxon_shape_figure(result, *, top: int = 15, title: str | None = None) -> go.Figure:
     """Diverging bars: each taxon's share of the shape difference, towards the group where
-    it is higher, with its bootstrap interval.
+    it is higher; a diamond at its noise-corrected share with the interval for its share of
+    the true difference.
 
     Parameters
     ----------
@@ -65,23 +66,16 @@ def taxon_shape_figure(result, *, top: int = 15, title: str | None = None) -> go
         if part.empty:
             continue
         share = part["share_pct"].to_numpy(dtype=float)
-        lo = part["ci_low"].to_numpy(dtype=float)
-        hi = part["ci_high"].to_numpy(dtype=float)
-        has_ci = bool(np.isfinite(lo).any())
-        # bars point left (a) or right (b); the interval is mirrored with the bar
-        err = dict(type="data", symmetric=False, visible=has_ci, thickness=1.5, width=4,
-                   color="#333333",
-                   array=(hi - share) if sign > 0 else (share - lo),
-                   arrayminus=(share - lo) if sign > 0 else (hi - share))
-        hover = [f"<b>{t}</b><br>share {_pct(s)} (interval {_pct(l)} to {_pct(h)})"
+        hover = [f"<b>{t}</b><br>share of the observed difference {_pct(s)}"
                  f"<br>term {_num(tm)}<br>mean relative abundance: {a} {_pct(100 * ma)}, "
                  f"{b} {_pct(100 * mb)}<br>higher in {grp}"
-                 for t, s, l, h, tm, ma, mb in zip(part.index, share, lo, hi, part["term"],
-                                                   part["mean_a"], part["mean_b"])]
+                 for t, s, tm, ma, mb in zip(part.index, share, part["term"],
+                                             part["mean_a"], part["mean_b"])]
         fig.add_trace(go.Bar(
             x=sign * share, y=[str(t) for t in part.index], orientation="h", name=grp,
-            marker={"color": colours[grp]}, error_x=err, hovertext=hover,
-            hoverinfo="text"))
+            marker={"color": colours[grp]}, hovertext=hover, hoverinfo="text",
+            meta={"role": "share"}))
+    _add_true_share(fig, result, tab, a)
     if "noise_pct" in tab and np.isfinite(tab["noise_pct"].to_numpy(dtype=float)).any():
         sign = np.where(tab["higher_in"] == a, -1.0, 1.0)
         noise = tab["noise_pct"].to_numpy(dtype=float)
@@ -90,11 +84,13 @@ def taxon_shape_figure(result, *, top: int = 15, title: str | None = None) -> go
             marker={"symbol": "line-ns-open", "size": 18, "color": "#333333",
                     "line": {"width": 2}},
             hovertext=[f"<b>{t}</b><br>expected share if the groups had the same centroid: "
-                       f"{_pct(v)}" for t, v in zip(taxa, noise)], hoverinfo="text"))
+                       f"{_pct(v)}" for t, v in zip(taxa, noise)], hoverinfo="text",
+            meta={"role": "noise"}))
     if result.exact:
         kind = f"{result.measure}, exact split of D² = {_num(result.total)}"
         if result.noise is not None:
-            kind += f" (noise level {_num(result.noise)})"
+            kind += (f" (noise level {_num(result.noise)}; corrected "
+                     f"{_num(result.total_corrected)})")
     else:
         kind = (f"{result.measure}, average over between-group pairs (not an exact split), "
                 f"mean {_num(result.total)}")
@@ -113,11 +109,40 @@ def taxon_shape_figure(result, *, top: int = 15, title: str | None = None) -> go
                      categoryarray=taxa, autorange="reversed")
     head = title or f"Which taxa make the shape difference: {a} vs {b}"
     base_layout(fig, title=head, legend_title="higher in", height=_height(len(taxa)))
-    ci = (f"{result.level:.0%} bootstrap intervals" if result.n_boot else "no intervals")
+    ci = (f"{result.level:.0%} jackknife intervals for each taxon's share of the true "
+          "difference" if result.interval_method != "none" else "no intervals")
     fig.update_layout(title_subtitle_text=(
         f"{kind}<br>top {len(taxa)} of {len(result.shape)} taxa ({shown:.1f} % of the "
         f"total); {ci}"), title_subtitle_font_size=FONT_SIZE - 2, margin_t=120)
     return fig
+
+
+def _add_true_share(fig: go.Figure, result, tab, a: str) -> None:
+    """Diamonds at the noise-corrected shares with the intervals for the true shares,
+    mirrored like the bars."""
+    lo = tab["ci_low"].to_numpy(dtype=float)
+    hi = tab["ci_high"].to_numpy(dtype=float)
+    est = tab["share_net_pct"].to_numpy(dtype=float)
+    if not (np.isfinite(lo).any() or np.isfinite(est).any()):
+        return
+    sign = np.where(tab["higher_in"] == a, -1.0, 1.0)
+    centre = np.where(np.isfinite(est), np.clip(est, 0.0, 100.0), (lo + hi) / 2)
+    x = sign * centre
+    # the far end (away from 0) is the upper bound on both sides
+    far, near = hi - centre, centre - lo
+    has_ci = bool(np.isfinite(lo).any())
+    label = ("share of the true difference<br>(noise removed), with interval" if result.exact
+             else "share of the population mean,<br>with interval")
+    hover = [f"<b>{t}</b><br>estimated share of the true difference {_pct(e)}"
+             f"<br>{result.level:.0%} interval {_pct(l)} to {_pct(h)}"
+             for t, e, l, h in zip(tab.index, est, lo, hi)]
+    fig.add_trace(go.Scatter(
+        x=x, y=[str(t) for t in tab.index], mode="markers", name=label,
+        marker={"symbol": "diamond", "size": 9, "color": "#333333"},
+        error_x=dict(type="data", symmetric=False, visible=has_ci, thickness=1.5, width=4,
+                     color="#333333", array=np.where(sign > 0, far, near),
+                     arrayminus=np.where(sign > 0, near, far)),
+        hovertext=hover, hoverinfo="text", meta={"role": "true share"}))
 
 
 def _mirrored_ticks(extent: float) -> tuple[list, list]:
@@ -209,8 +234,8 @@ def taxon_size_figure(result, *, top: int = 15, title: str | None = None) -> go.
                      categoryarray=taxa, autorange="reversed")
     head = title or f"Which taxa carry the size difference: {b} / {a}"
     base_layout(fig, title=head, legend_title="log2 ratio", height=_height(len(taxa)))
-    ci = (f"{result.level:.0%} bootstrap intervals (shaded: the total's)" if result.n_boot
-          else "no intervals")
+    ci = (f"{result.level:.0%} jackknife intervals for the true ratios (shaded: the total's)"
+          if result.interval_method != "none" else "no intervals")
     fig.update_layout(title_subtitle_text=(
         f"top {len(taxa)} of {len(result.size)} taxa by change in mean abundance{unit}; "
         f"{ci}"), title_subtitle_font_size=FONT_SIZE - 2, margin_t=110)

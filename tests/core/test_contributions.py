@@ -11,7 +11,7 @@ import tallyform as tly
 from tallyform.core.contributions import PAIR_MEASURES, SPLIT_MEASURES
 from tallyform.core.dissimilarity import Dissimilarity
 from tallyform.core.errors import Cancelled, DesignError, InputError
-from tallyform.core.taxon_terms import centroid_noise, interval
+from tallyform.core.taxon_terms import centroid_noise, jackknife_interval
 from tallyform.core.transforms import Clr
 
 
@@ -60,7 +60,7 @@ def test_terms_sum_to_squared_centroid_distance(mesocosm, measure):
     # identity: ||fbar_b - fbar_a||^2 = sum_j (fbar_bj - fbar_aj)^2, features from
     # tly.feature_matrix on the two groups' samples
     k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                measure=measure, n_boot=0)
+                                measure=measure, intervals=False)
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
     F = tly.feature_matrix(sub, measure)
     d2 = float(np.sum((F[ib].mean(axis=0) - F[ia].mean(axis=0)) ** 2))
@@ -78,7 +78,7 @@ def test_centroid_distance_from_pairwise_distances(mesocosm, measure):
     # ||fbar_a - fbar_b||^2 = mean_{i in a, k in b} d_ik^2 - (W_a + W_b) / 2, W_g the mean of
     # d^2 over all n_g^2 ordered pairs of g; distances from tly.dissimilarity (kernel path)
     k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                measure=measure, n_boot=0)
+                                measure=measure, intervals=False)
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
     D2 = tly.dissimilarity(sub, measure).square() ** 2
     rhs = D2[np.ix_(ia, ib)].mean() - 0.5 * (D2[np.ix_(ia, ia)].mean()
@@ -98,7 +98,7 @@ def test_chi_square_equals_distance_between_mean_profiles(mesocosm):
     # chi-square features are profiles / sqrt(c): linear in the profile, so the centroid
     # distance is the chi-square distance between the two mean profiles with the same masses
     k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                measure="chi_square", n_boot=0)
+                                measure="chi_square", intervals=False)
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
     x = sub.to_numpy()
     masses = x.sum(axis=0) / x.sum()
@@ -111,7 +111,7 @@ def test_chi_square_equals_distance_between_mean_profiles(mesocosm):
 
 def test_profile_euclidean_equals_distance_between_mean_profiles(mesocosm):
     k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                measure="euclidean", transform="profile", n_boot=0)
+                                measure="euclidean", transform="profile", intervals=False)
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
     prof = sub.to_numpy() / sub.to_numpy().sum(axis=1, keepdims=True)
     two = np.vstack([prof[ia].mean(axis=0), prof[ib].mean(axis=0)])
@@ -124,7 +124,7 @@ def test_aitchison_equals_distance_between_geometric_means(mesocosm):
     # Aitchison distance between the groups' geometric-mean compositions (after the same
     # zero replacement)
     k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                measure="aitchison", n_boot=0)
+                                measure="aitchison", intervals=False)
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
     z = Clr().replace_zeros(sub.to_numpy())
     gm = np.vstack([np.exp(np.log(z[ia]).mean(axis=0)), np.exp(np.log(z[ib]).mean(axis=0))])
@@ -134,7 +134,7 @@ def test_aitchison_equals_distance_between_geometric_means(mesocosm):
 
 def test_hellinger_centroid_is_not_the_mean_profile_feature(mesocosm):
     # the note-worthy difference: sqrt of the mean profile is not the mean sqrt profile
-    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", n_boot=0)
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", intervals=False)
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
     prof = sub.to_numpy() / sub.to_numpy().sum(axis=1, keepdims=True)
     two = np.vstack([prof[ia].mean(axis=0), prof[ib].mean(axis=0)])
@@ -153,7 +153,7 @@ _SCIPY = {"bray_curtis": ("braycurtis", False), "manhattan": ("cityblock", False
 @pytest.mark.parametrize("measure", list(PAIR_MEASURES))
 def test_average_terms_sum_to_mean_between_group_dissimilarity(mesocosm, measure):
     k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                measure=measure, n_boot=0)
+                                measure=measure, intervals=False)
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
     D = tly.dissimilarity(sub, measure).square()
     mean_between = D[np.ix_(ia, ib)].mean()
@@ -175,54 +175,59 @@ def test_bray_curtis_terms_by_hand():
     tab = tly.CommunityTable(pd.DataFrame([[6, 7, 4], [10, 0, 6]], index=["p", "q"],
                                           columns=["x", "y", "z"]),
                              pd.DataFrame({"g": ["a", "b"]}, index=["p", "q"]))
-    k = tly.taxon_contributions(tab, "g", "a", "b", measure="bray_curtis", n_boot=0)
+    k = tly.taxon_contributions(tab, "g", "a", "b", measure="bray_curtis", intervals=False)
     assert k.total == pytest.approx(13 / 33, rel=1e-12)
     assert k.shape.loc[["x", "y", "z"], "term"].tolist() == pytest.approx(
         [4 / 33, 7 / 33, 2 / 33], rel=1e-12)
     assert k.shape.loc["y", "higher_in"] == "a"
 
 
-def test_bootstrap_of_average_matches_direct_resampling(mesocosm):
-    # the weighted form (counts of draws) equals recomputing on the resampled samples
+def _leave_one_out_interval(theta, ja, jb, level=0.95):
+    """Textbook two-group jackknife-t (Efron & Tibshirani 1993, ch. 11; Welch df), typed
+    out with plain loops as the reference for the vectorised form."""
+    va = (len(ja) - 1) / len(ja) * sum((v - np.mean(ja)) ** 2 for v in ja)
+    vb = (len(jb) - 1) / len(jb) * sum((v - np.mean(jb)) ** 2 for v in jb)
+    df = (va + vb) ** 2 / (va ** 2 / (len(ja) - 1) + vb ** 2 / (len(jb) - 1))
+    t = stats.t.ppf(0.5 + level / 2, df)
+    return theta - t * np.sqrt(va + vb), theta + t * np.sqrt(va + vb)
+
+
+def test_jackknife_of_average_matches_direct_leave_one_out(mesocosm):
+    # leave each sample out, recompute the mean between-group Bray-Curtis with scipy's cdist
     k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                measure="bray_curtis", n_boot=7, rng=3)
+                                measure="bray_curtis")
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
-    rng = np.random.default_rng(3)
-    na, nb = ia.sum(), ib.sum()
-    Wa = rng.multinomial(na, np.full(na, 1 / na), size=7)
-    Wb = rng.multinomial(nb, np.full(nb, 1 / nb), size=7)
     x = sub.to_numpy()
     xa, xb = x[ia], x[ib]
-    totals = []
-    for wa, wb in zip(Wa, Wb):
-        ra, rb = np.repeat(xa, wa, axis=0), np.repeat(xb, wb, axis=0)
-        totals.append(cdist(ra, rb, "braycurtis").mean())
-    lo, hi = interval(np.array(totals), 0.95)
-    assert k.total_ci == pytest.approx((float(lo), float(hi)), rel=1e-12)
+    ja = [cdist(np.delete(xa, i, axis=0), xb, "braycurtis").mean() for i in range(len(xa))]
+    jb = [cdist(xa, np.delete(xb, i, axis=0), "braycurtis").mean() for i in range(len(xb))]
+    lo, hi = _leave_one_out_interval(cdist(xa, xb, "braycurtis").mean(), ja, jb)
+    assert k.total_ci == pytest.approx((lo, hi), rel=1e-10)
+    assert k.total_corrected == k.total and k.interval_method == "jackknife-t"
 
 
 # ---------------------------------------------------------------------------- which taxa
 @pytest.mark.parametrize("measure", ["hellinger", "chi_square", "aitchison", "bray_curtis"])
 def test_changed_taxa_come_first(shape_table, measure):
-    k = tly.taxon_contributions(shape_table, "g", "a", "b", measure=measure, n_boot=0)
+    k = tly.taxon_contributions(shape_table, "g", "a", "b", measure=measure, intervals=False)
     assert set(k.shape.index[:3]) == {"t01", "t02", "t03"}
     assert k.shape.loc["t01", "higher_in"] == "b"
     assert k.shape.loc["t03", "higher_in"] == "a"
 
 
 def test_shape_change_is_well_above_noise(shape_table):
-    k = tly.taxon_contributions(shape_table, "g", "a", "b", n_boot=199, rng=2)
+    k = tly.taxon_contributions(shape_table, "g", "a", "b")
     assert k.total > 10 * k.noise
-    assert not any("sampling noise" in n for n in k.notes)
+    assert not any("mostly describe noise" in n for n in k.notes)
     top = k.shape.iloc[:3]
     assert (top["ci_low"] > top["noise_pct"]).all()
 
 
 def test_pure_size_change(size_table):
-    k = tly.taxon_contributions(size_table, "g", "a", "b", n_boot=499, rng=4)
+    k = tly.taxon_contributions(size_table, "g", "a", "b")
     # shape: the centroid distance is at the level expected from sampling noise alone
     assert k.total < 2 * k.noise
-    assert any("sampling noise" in n for n in k.notes)
+    assert any("mostly describe noise" in n for n in k.notes)
     # size: the total's ratio is near log2(0.4) and nearly every taxon agrees with it
     assert k.size_reference["ci_low"] < np.log2(0.4) < k.size_reference["ci_high"]
     inside = (k.size["ci_low"] <= k.size_reference["log2_ratio"]) & \
@@ -242,7 +247,7 @@ def test_exact_scaling_gives_equal_ratios_and_no_shape():
     idx = [f"s{i}" for i in range(12)]
     tab = tly.CommunityTable(pd.DataFrame(x, index=idx),
                              pd.DataFrame({"g": ["a"] * 6 + ["b"] * 6}, index=idx))
-    k = tly.taxon_contributions(tab, "g", "a", "b", n_boot=50, rng=1)
+    k = tly.taxon_contributions(tab, "g", "a", "b")
     assert k.total == pytest.approx(0.0, abs=1e-28)
     np.testing.assert_allclose(k.size["log2_ratio"], np.log2(3), rtol=0, atol=1e-12)
     assert k.size_reference["log2_ratio"] == pytest.approx(np.log2(3), abs=1e-12)
@@ -251,10 +256,8 @@ def test_exact_scaling_gives_equal_ratios_and_no_shape():
 
 def test_pseudocount_pulls_towards_the_total_never_away(mesocosm):
     # the ratio with the pseudocount is a mediant of the raw ratio and the total's ratio
-    raw = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                  n_boot=0, pseudocount=0)
-    sm = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                 n_boot=0, pseudocount=0.5)
+    raw = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", intervals=False, pseudocount=0)
+    sm = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", intervals=False, pseudocount=0.5)
     ref = sm.size_reference["log2_ratio"]
     r0 = raw.size["log2_ratio"].loc[sm.size.index].to_numpy()
     r1 = sm.size["log2_ratio"].to_numpy()
@@ -268,8 +271,7 @@ def test_size_ratio_matches_glm_coefficients(mesocosm):
     # negative-binomial (any alpha) or Poisson regression of one taxon's counts on the group
     # is log(mean_b / mean_a)
     import statsmodels.api as sm
-    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                n_boot=0, pseudocount=0)
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", intervals=False, pseudocount=0)
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
     X = sm.add_constant(ib.astype(float))
     for taxon in ["grazer_04", "shredder_07", "collector_03"]:
@@ -284,7 +286,7 @@ def test_effort_adjusted_ratio_matches_poisson_offset():
     # log(sum x_b / sum e_b) - log(sum x_a / sum e_a)
     import statsmodels.api as sm
     tab = tly.demo("moths")
-    k = tly.taxon_contributions(tab, "habitat", "woodland", "arable", n_boot=0,
+    k = tly.taxon_contributions(tab, "habitat", "woodland", "arable", intervals=False,
                                 pseudocount=0)
     g = tab.group("habitat").to_numpy()
     rows = (g == "woodland") | (g == "arable")
@@ -300,82 +302,98 @@ def test_effort_adjusted_ratio_matches_poisson_offset():
 
 
 # ---------------------------------------------------------------------------- intervals
-def test_interval_is_the_order_statistic_rule():
-    # percentile interval with B = 999 at 95 %: the 25th and 975th ordered draws
-    # (the (B + 1) alpha rule, Efron & Tibshirani 1993)
-    draws = np.random.default_rng(0).normal(size=999)
-    lo, hi = interval(draws, 0.95)
-    s = np.sort(draws)
-    assert (float(lo), float(hi)) == (s[24], s[974])
+def test_jackknife_interval_of_a_mean_difference_is_welchs():
+    # identity: for a difference of two means the delete-one jackknife variance is
+    # s_a^2/n_a + s_b^2/n_b, so the jackknife-t interval with Welch-Satterthwaite df is
+    # Welch's interval (outside reference: scipy.stats.ttest_ind(equal_var=False))
+    rng = np.random.default_rng(0)
+    ya, yb = rng.normal(0, 1, 7), rng.normal(1, 3, 11)
+    ja = np.array([[np.mean(yb) - np.mean(np.delete(ya, i))] for i in range(7)])
+    jb = np.array([[np.mean(np.delete(yb, i)) - np.mean(ya)] for i in range(11)])
+    lo, hi, se, df = jackknife_interval(np.array([yb.mean() - ya.mean()]), ja, jb, 0.9)
+    ref = stats.ttest_ind(yb, ya, equal_var=False).confidence_interval(0.9)
+    assert (float(lo[0]), float(hi[0])) == pytest.approx((ref.low, ref.high), rel=1e-10)
 
 
-def test_share_and_ratio_intervals_agree_with_scipy_bootstrap(shape_table):
-    # outside reference: scipy.stats.bootstrap (percentile method, each group resampled
-    # independently); Monte Carlo noise only, so compare with a tolerance of the width
-    B = 3000
-    k = tly.taxon_contributions(shape_table, "g", "a", "b", n_boot=B, rng=8)
+def test_exact_split_intervals_match_direct_leave_one_out(shape_table):
+    # the vectorised leave-one-out updates against recomputing the noise-corrected terms
+    # on each reduced group (features from tly.feature_matrix)
+    k = tly.taxon_contributions(shape_table, "g", "a", "b")
     sub, ia, ib = _sub(shape_table, "g", "a", "b")
     F = tly.feature_matrix(sub, "hellinger")
+    Fa, Fb = F[ia], F[ib]
+
+    def net(fa, fb):
+        d = fb.mean(axis=0) - fa.mean(axis=0)
+        return d * d - fa.var(axis=0, ddof=1) / len(fa) - fb.var(axis=0, ddof=1) / len(fb)
+
+    full = net(Fa, Fb)
+    ja = np.array([net(np.delete(Fa, i, axis=0), Fb) for i in range(len(Fa))])
+    jb = np.array([net(Fa, np.delete(Fb, i, axis=0)) for i in range(len(Fb))])
+    lo, hi = _leave_one_out_interval(full.sum(), ja.sum(axis=1), jb.sum(axis=1))
+    assert k.total_corrected == pytest.approx(full.sum(), rel=1e-10)
+    assert k.total_ci == pytest.approx((max(lo, 0), hi), rel=1e-9)
     j = list(sub.columns).index("t01")
-
-    def share(fa, fb, axis):
-        # scipy passes (taxa, resamples, samples) here: taxa on the first axis
-        d = fb.mean(axis=axis) - fa.mean(axis=axis)
-        d2 = d * d
-        return 100 * d2[j] / d2.sum(axis=0)
-
-    res = stats.bootstrap((F[ia], F[ib]), share, n_resamples=B, method="percentile",
-                          vectorized=True, axis=0, rng=np.random.default_rng(9))
-    width = res.confidence_interval.high - res.confidence_interval.low
-    assert k.shape.loc["t01", "ci_low"] == pytest.approx(res.confidence_interval.low,
-                                                         abs=0.15 * width)
-    assert k.shape.loc["t01", "ci_high"] == pytest.approx(res.confidence_interval.high,
-                                                          abs=0.15 * width)
+    share = 100 * full[j] / full.sum()
+    slo, shi = _leave_one_out_interval(share, 100 * ja[:, j] / ja.sum(axis=1),
+                                       100 * jb[:, j] / jb.sum(axis=1))
+    assert k.shape.loc["t01", "share_net_pct"] == pytest.approx(share, rel=1e-10)
+    assert (k.shape.loc["t01", "ci_low"], k.shape.loc["t01", "ci_high"]) == pytest.approx(
+        (max(slo, 0), min(shi, 100)), rel=1e-9)
+    # size side: log2 ratio of group sums (pseudocount scaled by the full-data mean total)
     x = sub.to_numpy()
     t = list(sub.columns).index("t05")
-    pc = 0.5 * x.sum(axis=1) / x.sum(axis=1).mean()
-    xt = x[:, t] + pc
-
-    def lr(ya, yb, axis):
-        return np.log2(yb.mean(axis=axis) / ya.mean(axis=axis))
-
-    res = stats.bootstrap((xt[ia], xt[ib]), lr, n_resamples=B, method="percentile",
-                          vectorized=True, rng=np.random.default_rng(10))
-    width = res.confidence_interval.high - res.confidence_interval.low
-    assert k.size.loc["t05", "ci_low"] == pytest.approx(res.confidence_interval.low,
-                                                        abs=0.15 * width)
-    assert k.size.loc["t05", "ci_high"] == pytest.approx(res.confidence_interval.high,
-                                                         abs=0.15 * width)
+    xt = x[:, t] + 0.5 * x.sum(axis=1) / x.sum(axis=1).mean()
+    lr = np.log2(xt[ib].mean() / xt[ia].mean())
+    ja = [np.log2(xt[ib].mean() / np.delete(xt[ia], i).mean()) for i in range(ia.sum())]
+    jb = [np.log2(np.delete(xt[ib], i).mean() / xt[ia].mean()) for i in range(ib.sum())]
+    rlo, rhi = _leave_one_out_interval(lr, ja, jb)
+    assert (k.size.loc["t05", "ci_low"], k.size.loc["t05", "ci_high"]) == pytest.approx(
+        (rlo, rhi), rel=1e-9)
 
 
-def test_same_seed_same_answer(mesocosm):
-    k1 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low",
-                                 n_boot=60, rng=7)
-    k2 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low",
-                                 n_boot=60, rng=np.random.default_rng(7))
+def test_corrected_total_is_the_two_sample_u_statistic():
+    # identity (Chen & Qin 2010): ||xbar_b - xbar_a||^2 - s2_a/n_a - s2_b/n_b equals the
+    # average over distinct pairs i != i' of a and k != k' of b of (x_bk - x_ai).(x_bk' -
+    # x_ai'), an unbiased estimate of ||mu_b - mu_a||^2; checked with Euclidean features
+    rng = np.random.default_rng(3)
+    x = rng.poisson(rng.uniform(1, 20, 6), size=(9, 6)).astype(float) + 1
+    idx = [f"s{i}" for i in range(9)]
+    tab = tly.CommunityTable(pd.DataFrame(x, index=idx),
+                             pd.DataFrame({"g": ["a"] * 4 + ["b"] * 5}, index=idx))
+    k = tly.taxon_contributions(tab, "g", "a", "b", measure="euclidean")
+    A, B = x[:4], x[4:]
+    vals = [(B[k1] - A[i1]) @ (B[k2] - A[i2]) for i1 in range(4) for i2 in range(4)
+            for k1 in range(5) for k2 in range(5) if i1 != i2 and k1 != k2]
+    assert k.total_corrected == pytest.approx(np.mean(vals), rel=1e-10)
+    assert k.total - k.noise == pytest.approx(k.total_corrected, rel=1e-12)
+
+
+def test_intervals_use_no_random_numbers(mesocosm):
+    k1 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low", rng=7)
+    k2 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low", rng=8)
     pd.testing.assert_frame_equal(k1.shape, k2.shape)
     pd.testing.assert_frame_equal(k1.size, k2.size)
-    k3 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low",
-                                 n_boot=60, rng=8)
-    assert not np.allclose(k1.shape["ci_low"], k3.shape["ci_low"].loc[k1.shape.index])
+    k3 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low", n_boot=0)
+    assert k3.shape["ci_low"].isna().all() and k3.interval_method == "none"
+    k4 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low", n_boot=99)
+    assert any("n_boot is no longer used" in n for n in k4.notes)
+    pd.testing.assert_frame_equal(k1.shape, k4.shape)
 
 
 def test_progress_and_cancel(mesocosm):
     seen = []
-    tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", n_boot=40,
-                            rng=1, progress=lambda d, t: seen.append((d, t)))
-    assert seen and seen[-1] == (80, 80)
+    tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
+                            progress=lambda d, t: seen.append((d, t)))
+    assert seen and seen[-1] == (2, 2)
     with pytest.raises(Cancelled):
-        tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                n_boot=40, rng=1, cancel=lambda: True)
+        tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", cancel=lambda: True)
 
 
 # ---------------------------------------------------------------------------- the demo
 def test_mesocosm_low_nutrients_is_a_size_change(mesocosm):
-    low = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low",
-                                  n_boot=299, rng=1)
-    high = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                   n_boot=299, rng=1)
+    low = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low")
+    high = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high")
     # shape: nutrient_low's Hellinger centroid distance is small next to nutrient_high's
     assert low.total < 0.15 * high.total
     assert low.total_ci[1] < high.total_ci[0]
@@ -390,15 +408,15 @@ def test_mesocosm_low_nutrients_is_a_size_change(mesocosm):
 def test_chi_square_masses_come_from_the_two_groups(mesocosm):
     # the answer for a vs b does not depend on other groups in the table
     k1 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                 measure="chi_square", n_boot=0)
+                                 measure="chi_square", intervals=False)
     two = mesocosm.subset(lambda s: s.treatment != "nutrient_low")
     k2 = tly.taxon_contributions(two, "treatment", "control", "nutrient_high",
-                                 measure="chi_square", n_boot=0)
+                                 measure="chi_square", intervals=False)
     assert k1.total == pytest.approx(k2.total, rel=1e-12)
     # whole-table masses may be passed; their length is that of the full table
     v = mesocosm.values
     k3 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                 measure="chi_square", n_boot=0,
+                                 measure="chi_square", intervals=False,
                                  column_masses=v.sum(axis=0) / v.sum())
     assert k3.total != pytest.approx(k1.total, rel=1e-6)
     assert not any("pooled" in n for n in k3.notes)
@@ -421,7 +439,7 @@ def test_unsupported_measure_and_bad_options(mesocosm):
     with pytest.raises(InputError, match="no option"):
         tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low",
                                 measure="hellinger", zeros="error")
-    for kw in ({"n_boot": -1}, {"n_boot": 2.5}, {"level": 1.5}, {"pseudocount": -1}):
+    for kw in ({"n_boot": -1}, {"n_boot": 2.5}, {"intervals": "yes"}, {"level": 1.5}, {"pseudocount": -1}):
         with pytest.raises(InputError):
             tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low", **kw)
 
@@ -431,12 +449,12 @@ def test_group_with_one_sample_has_no_interval():
     idx = ["p", "q", "r", "s"]
     tab = tly.CommunityTable(pd.DataFrame(x, index=idx, columns=list("wxyz")),
                              pd.DataFrame({"g": ["a", "a", "a", "b"]}, index=idx))
-    k = tly.taxon_contributions(tab, "g", "a", "b", n_boot=99, rng=1)
+    k = tly.taxon_contributions(tab, "g", "a", "b")
     assert k.shape[["ci_low", "ci_high"]].isna().all().all()
     assert k.size[["ci_low", "ci_high"]].isna().all().all()
     assert k.size["differs_from_total"].isna().all()
-    assert np.isnan(k.total_ci[0]) and k.noise is None and k.n_boot == 0
-    assert any("'b' has only one sample" in n and "no intervals" in n for n in k.notes)
+    assert np.isnan(k.total_ci[0]) and k.noise is None and k.interval_method == "none"
+    assert any("'b' has fewer than 3 samples" in n and "no intervals" in n for n in k.notes)
     assert np.isfinite(k.shape["share_pct"]).all()
     assert np.isfinite(k.size["log2_ratio"]).all()
 
@@ -447,7 +465,7 @@ def test_taxon_absent_from_both_groups_is_excluded(mesocosm):
     counts["ghost"] = np.where(g == "nutrient_low", 3.0, 0.0)   # only in the third group
     tab = tly.CommunityTable(counts, mesocosm.samples)
     k = tly.taxon_contributions(tab, "treatment", "control", "nutrient_high",
-                                measure="chi_square", n_boot=20, rng=1)
+                                measure="chi_square")
     assert k.excluded == ("ghost",)
     assert "ghost" not in k.shape.index and "ghost" not in k.size.index
     assert any("ghost" in n and "left out" in n for n in k.notes)
@@ -455,18 +473,21 @@ def test_taxon_absent_from_both_groups_is_excluded(mesocosm):
 
 
 def test_taxon_in_one_group_only_without_pseudocount():
-    x = np.array([[5, 3, 2], [4, 4, 1], [6, 2, 3], [1, 9, 0], [2, 7, 0.0]])
-    idx = list("pqrst")
+    x = np.array([[5, 3, 2], [4, 4, 1], [6, 2, 3], [1, 9, 0], [2, 7, 0.0], [1, 8, 0]])
+    idx = list("pqrstu")
     tab = tly.CommunityTable(pd.DataFrame(x, index=idx, columns=list("xyz")),
-                             pd.DataFrame({"g": ["a", "a", "a", "b", "b"]}, index=idx))
-    k = tly.taxon_contributions(tab, "g", "a", "b", n_boot=50, rng=1, pseudocount=0)
+                             pd.DataFrame({"g": ["a"] * 3 + ["b"] * 3}, index=idx))
+    k = tly.taxon_contributions(tab, "g", "a", "b", pseudocount=0)
     assert k.size.loc["z", "log2_ratio"] == -np.inf
     assert k.size.loc["z", "only_in"] == "a"
-    assert not k.size[["log2_ratio", "ci_low", "ci_high", "departure"]].isna().any().any()
-    assert bool(k.size.loc["z", "differs_from_total"])
-    assert any("infinite log2 ratio" in n for n in k.notes)
-    k2 = tly.taxon_contributions(tab, "g", "a", "b", n_boot=50, rng=1)
+    # an infinite estimate has no interval; the finite ones do
+    assert k.size.loc["z", ["ci_low", "ci_high"]].isna().all()
+    assert pd.isna(k.size.loc["z", "differs_from_total"])
+    assert not k.size.loc[["x", "y"], ["log2_ratio", "ci_low", "ci_high"]].isna().any().any()
+    assert any("infinite log2 ratio (and no interval)" in n for n in k.notes)
+    k2 = tly.taxon_contributions(tab, "g", "a", "b")
     assert np.isfinite(k2.size["log2_ratio"]).all()
+    assert np.isfinite(k2.size[["ci_low", "ci_high"]]).all().all()
 
 
 def test_group_with_no_individuals():
@@ -482,7 +503,7 @@ def test_group_with_no_individuals():
 def test_labels_as_a_sequence_and_inputs_untouched(small_counts):
     before = small_counts.copy()
     k = tly.taxon_contributions(small_counts, ["a", "a", "b", "b"], "a", "b",
-                                measure="bray_curtis", n_boot=30, rng=1)
+                                measure="bray_curtis")
     pd.testing.assert_frame_equal(small_counts, before)
     assert k.group == "group" and k.n == {"a": 2, "b": 2}
     with pytest.raises(DesignError, match="one label per sample"):
@@ -490,8 +511,7 @@ def test_labels_as_a_sequence_and_inputs_untouched(small_counts):
 
 
 def test_result_views(mesocosm):
-    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                n_boot=30, rng=1)
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high")
     f = k.to_frame()
     f.iloc[0, 0] = -1.0
     assert k.shape.iloc[0, 0] != -1.0               # to_frame is a copy
@@ -505,15 +525,13 @@ def test_result_views(mesocosm):
     assert k.distance == pytest.approx(np.sqrt(k.total))
     with pytest.raises(InputError, match="kind"):
         k.figure("bars")
-    assert k.provenance["measure"] == "hellinger" and k.provenance["n_boot"] == 30
+    assert k.provenance["measure"] == "hellinger" and k.provenance["intervals"] == "jackknife-t"
 
 
 # ---------------------------------------------------------------------------- units
 def test_units_of_one_sample_each_change_nothing(mesocosm):
-    k1 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                 n_boot=40, rng=3)
-    k2 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                 n_boot=40, rng=3, units=list(mesocosm.sample_labels))
+    k1 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high")
+    k2 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", units=list(mesocosm.sample_labels))
     pd.testing.assert_frame_equal(k1.shape, k2.shape)
     pd.testing.assert_frame_equal(k1.size, k2.size)
     assert k1.noise == pytest.approx(k2.noise, rel=1e-12)
@@ -534,36 +552,45 @@ def test_centroid_noise_forms():
     assert np.isnan(centroid_noise(F, np.zeros(12, dtype=int))).all()
 
 
-def test_unit_bootstrap_matches_resampling_units_directly(mesocosm):
-    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                measure="bray_curtis", n_boot=6, rng=5, units="tank")
+def test_unit_jackknife_matches_leaving_units_out_directly(mesocosm):
     sub, ia, ib = _sub(mesocosm, "treatment", "control", "nutrient_high")
     tank = mesocosm.samples["tank"].loc[sub.index].to_numpy()
     x = sub.to_numpy()
-    rng = np.random.default_rng(5)
-    ua, ca = np.unique(tank[ia], return_inverse=True)
-    ub, cb = np.unique(tank[ib], return_inverse=True)
-    Da = rng.multinomial(len(ua), np.full(len(ua), 1 / len(ua)), size=6)
-    Db = rng.multinomial(len(ub), np.full(len(ub), 1 / len(ub)), size=6)
-    xa, xb = x[ia], x[ib]
-    totals = []
-    for da, db in zip(Da, Db):
-        ra = np.vstack([xa[ca == u] for u in range(len(ua)) for _ in range(da[u])])
-        rb = np.vstack([xb[cb == u] for u in range(len(ub)) for _ in range(db[u])])
-        totals.append(cdist(ra, rb, "braycurtis").mean())
-    lo, hi = interval(np.array(totals), 0.95)
-    assert k.total_ci == pytest.approx((float(lo), float(hi)), rel=1e-12)
+    xa, xb, ta, tb = x[ia], x[ib], tank[ia], tank[ib]
+    # average over pairs: leave each tank out, recompute with scipy's cdist
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
+                                measure="bray_curtis", units="tank")
+    ja = [cdist(xa[ta != u], xb, "braycurtis").mean() for u in np.unique(ta)]
+    jb = [cdist(xa, xb[tb != u], "braycurtis").mean() for u in np.unique(tb)]
+    lo, hi = _leave_one_out_interval(cdist(xa, xb, "braycurtis").mean(), ja, jb)
+    assert k.total_ci == pytest.approx((lo, hi), rel=1e-10)
     assert any("units of 'tank'" in n for n in k.notes)
-    assert any("too narrow" in n for n in k.notes)
+    # exact split: the noise of each reduced group from its remaining tanks
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
+                                units="tank")
+    F = tly.feature_matrix(sub, "hellinger")
+    Fa, Fb = F[ia], F[ib]
+
+    def net(fa, ca, fb, cb):
+        d = fb.mean(axis=0) - fa.mean(axis=0)
+        codes_a = np.unique(ca, return_inverse=True)[1]
+        codes_b = np.unique(cb, return_inverse=True)[1]
+        return float(np.sum(d * d - centroid_noise(fa, codes_a) - centroid_noise(fb, codes_b)))
+
+    full = net(Fa, ta, Fb, tb)
+    ja = [net(Fa[ta != u], ta[ta != u], Fb, tb) for u in np.unique(ta)]
+    jb = [net(Fa, ta, Fb[tb != u], tb[tb != u]) for u in np.unique(tb)]
+    lo, hi = _leave_one_out_interval(full, ja, jb)
+    assert k.total_corrected == pytest.approx(full, rel=1e-10)
+    assert k.total_ci == pytest.approx((max(lo, 0.0), hi), rel=1e-9)
 
 
 def test_one_unit_per_group_has_no_interval(mesocosm):
     block = np.where(mesocosm.group("treatment") == "control", "c", "other")
-    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                n_boot=20, rng=1, units=block)
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", units=block)
     assert k.shape["ci_low"].isna().all() and k.noise is None
-    assert any("'control' and 'nutrient_high' each have only one unit" in n for n in k.notes)
-    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                n_boot=20, rng=1, units=np.where(block == "c", "c",
+    assert any("'control' and 'nutrient_high' each have fewer than 3 units" in n
+               for n in k.notes)
+    k = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high", units=np.where(block == "c", "c",
                                                                  mesocosm.samples["tank"]))
-    assert any("group 'control' has only one unit" in n for n in k.notes)
+    assert any("group 'control' has fewer than 3 units" in n for n in k.notes)

@@ -82,7 +82,79 @@ def test_ellipses_in_group_colours_and_small_group_said(meso, ordination):
         np.testing.assert_allclose(t.y, y)
     missing = _role(fig, "no ellipse")
     assert len(missing) == 1 and "pilot (n = 2" in missing[0].name
-    assert _role(fig, "ellipse legend")[0].name == "95 % data ellipse"
+    # a data ellipse is labelled as the spread of the samples, with no coverage level
+    legend = _role(fig, "ellipse legend")[0].name.replace("<br>", " ")
+    assert "spread of the group's samples" in legend and "%" not in legend
+    assert "no coverage level" in legend
+    assert "%" not in fig.layout.title.text.split("ellipses:")[1]
+    # groups with fewer than 3 samples get no ellipse, and the figure says so
+    assert "pilot" not in e.groups and e.no_ellipse == {"pilot": 2}
+
+
+@pytest.mark.parametrize("kind, words", [
+    ("confidence", "95 % confidence ellipse: region for the group's true centre"),
+    ("bootstrap", "95 % bootstrap ellipse: region for the group's true centre"),
+    ("prediction", "95 % prediction ellipse: holds a new sample of the group with "
+                   "probability 95 %"),
+    ("data", "data ellipse: spread of the group's samples (2.45 SD; no coverage level)"),
+])
+def test_legend_and_hover_name_what_each_ellipse_covers(meso, ordination, kind, words):
+    group = meso.samples["treatment"]
+    e = ordination.ellipses(group, kind=kind, n_boot=199, rng=1)
+    fig = plots.ordination_figure(ordination, group=group, ellipses=e)
+    spec = fig.to_plotly_json()            # what is written to the HTML / notebook
+    legend = [t for t in spec["data"] if (t.get("meta") or {}).get("role") == "ellipse legend"]
+    assert legend[0]["name"].replace("<br>", " ") == words
+    outlines = [t for t in spec["data"] if (t.get("meta") or {}).get("role") == "ellipse"]
+    assert len(outlines) == 3
+    assert all(words in t["hovertext"][0] for t in outlines)
+    assert words in fig.layout.title.text
+
+
+def _one_composition(seed, n=8, groups=3, p=25):
+    # synthetic: every sample drawn from one composition (log-normal variation, counting)
+    rng = np.random.default_rng(seed)
+    base = rng.lognormal(0, 1.2, p)
+    share = base * np.exp(0.5 * rng.standard_normal((n * groups, p)))
+    share /= share.sum(axis=1, keepdims=True)
+    x = rng.multinomial(rng.integers(300, 2000, n * groups), share).astype(float)
+    labels = [f"s{i}" for i in range(n * groups)]
+    info = pd.DataFrame({"g": np.repeat([f"g{k}" for k in range(groups)], n)}, index=labels)
+    return tly.CommunityTable(pd.DataFrame(x, index=labels), info, empty="keep")
+
+
+def test_constrained_by_the_groups_withholds_confidence_ellipses():
+    tab = _one_composition(1)
+    o = tly.cca(tab, terms=["g"])
+    e = o.ellipses(tab.samples["g"])
+    assert e.table.empty and "tly.constraint_test" in e.withheld and "tly.ca" in e.withheld
+    assert e.notes[0] == e.withheld
+    fig = o.figure(group=tab.samples["g"], ellipses=e)
+    assert not _role(fig, "ellipse")
+    assert _role(fig, "ellipse withheld")
+    notes = [a.text for a in fig.layout.annotations if a.name == "ellipse warning"]
+    assert notes and "constraint_test" in notes[0].replace("<br>", " ")
+    # asked for explicitly: drawn, with the warning in the figure itself
+    drawn = o.ellipses(tab.samples["g"], constrained="draw")
+    assert len(drawn.table) == 3 and drawn.warning
+    fig = o.figure(group=tab.samples["g"], ellipses=drawn)
+    assert len(_role(fig, "ellipse")) == 3
+    assert any(a.name == "ellipse warning" and "not evidence" in a.text.lower()
+               for a in fig.layout.annotations)
+    assert "not evidence" in _role(fig, "ellipse legend")[0].name
+    # spread of samples: drawn, with the note; unconstrained axes of the same CCA: drawn
+    pred = o.ellipses(tab.samples["g"], kind="prediction")
+    assert len(pred.table) == 3 and any("not evidence" in n for n in pred.notes)
+    residual = o.ellipses(tab.samples["g"], axes=("CA1", "CA2"))
+    assert not residual.withheld and any("unconstrained axes" in n for n in residual.notes)
+    # a grouping nested in the constraint (halves of each group) is caught too
+    halves = pd.Series(np.repeat([f"h{k}" for k in range(6)], 4), index=tab.sample_labels)
+    assert o.ellipses(halves).withheld
+    # an unrelated grouping is not
+    other = pd.Series(np.tile(["p", "q"], 12), index=tab.sample_labels)
+    assert not o.ellipses(other).withheld
+    with pytest.raises(InputError, match="constrained"):
+        o.ellipses(tab.samples["g"], constrained="yes")
 
 
 def test_ellipses_on_other_axes_are_refused(meso, ordination):

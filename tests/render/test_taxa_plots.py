@@ -14,13 +14,13 @@ from tallyform.render.style import FRACTION_COLOURS
 @pytest.fixture(scope="module")
 def high():
     return tly.taxon_contributions(tly.demo("mesocosm"), "treatment", "control",
-                                   "nutrient_high", n_boot=99, rng=1)
+                                   "nutrient_high")
 
 
 @pytest.fixture(scope="module")
 def low():
     return tly.taxon_contributions(tly.demo("mesocosm"), "treatment", "control",
-                                   "nutrient_low", n_boot=99, rng=1)
+                                   "nutrient_low")
 
 
 def _fonts_ok(fig):
@@ -47,11 +47,15 @@ def test_shape_figure_reads_the_result(high):
     for taxon, v in drawn.items():
         assert v == pytest.approx(top.loc[taxon, "share_pct"], rel=1e-12)
     assert list(fig.layout.yaxis.categoryarray) == list(top.index)
-    # intervals mirrored with the bars: the far end is the upper bound
-    b = next(t for t in bars if t.name == "control")
-    i = 0
-    assert -b.x[i] + b.error_x.arrayminus[i] == pytest.approx(
-        top.loc[b.y[i], "ci_high"], rel=1e-12)
+    # diamonds at the noise-corrected shares, intervals for the true shares mirrored with
+    # the bars: the far end is the upper bound
+    d = next(t for t in fig.data if (t.meta or {}).get("role") == "true share")
+    for y, x, plus, minus in zip(d.y, d.x, d.error_x.array, d.error_x.arrayminus):
+        row = top.loc[y]
+        assert abs(x) == pytest.approx(row["share_net_pct"], rel=1e-12)
+        lo, hi = (x - minus, x + plus) if x > 0 else (-(x + plus), -(x - minus))
+        assert (lo, hi) == pytest.approx((row["ci_low"], row["ci_high"]), rel=1e-9, abs=1e-9)
+    assert "true difference" in d.name and "jackknife" in fig.layout.title.subtitle.text
     # the noise markers come from the result's noise_pct column
     noise = next(t for t in fig.data if t.name == "expected from noise alone")
     assert np.abs(np.asarray(noise.x)) == pytest.approx(top["noise_pct"].to_numpy())
@@ -65,7 +69,7 @@ def test_shape_figure_reads_the_result(high):
 
 def test_shape_figure_for_an_average_says_so():
     k = tly.taxon_contributions(tly.demo("mesocosm"), "treatment", "control",
-                                "nutrient_high", measure="bray_curtis", n_boot=0)
+                                "nutrient_high", measure="bray_curtis", intervals=False)
     fig = k.figure("shape", top=5)
     assert "not an exact split" in fig.layout.title.subtitle.text
     assert "no intervals" in fig.layout.title.subtitle.text
@@ -103,11 +107,11 @@ def test_size_figure_reads_the_result(low):
 
 
 def test_size_figure_draws_infinite_ratios_at_the_edge():
-    x = np.array([[5, 3, 2], [4, 4, 1], [6, 2, 3], [1, 9, 0], [2, 7, 0.0]])
-    idx = list("pqrst")
+    x = np.array([[5, 3, 2], [4, 4, 1], [6, 2, 3], [1, 9, 0], [2, 7, 0.0], [1, 8, 0]])
+    idx = list("pqrstu")
     tab = tly.CommunityTable(pd.DataFrame(x, index=idx, columns=list("xyz")),
-                             pd.DataFrame({"g": ["a", "a", "a", "b", "b"]}, index=idx))
-    k = tly.taxon_contributions(tab, "g", "a", "b", n_boot=30, rng=1, pseudocount=0)
+                             pd.DataFrame({"g": ["a"] * 3 + ["b"] * 3}, index=idx))
+    k = tly.taxon_contributions(tab, "g", "a", "b", pseudocount=0)
     fig = k.figure("size")
     xs = np.concatenate([np.asarray(t.x, dtype=float) for t in fig.data
                          if t.mode == "markers" and t.x[0] is not None])
@@ -133,7 +137,7 @@ def test_one_sample_group_draws_without_intervals():
     idx = ["p", "q", "r", "s"]
     tab = tly.CommunityTable(pd.DataFrame(x, index=idx, columns=list("wxyz")),
                              pd.DataFrame({"g": ["a", "a", "a", "b"]}, index=idx))
-    k = tly.taxon_contributions(tab, "g", "a", "b", n_boot=50, rng=1)
+    k = tly.taxon_contributions(tab, "g", "a", "b")
     size = k.figure("size")
     assert any(t.name == "no interval" for t in size.data)
     assert not any(s.type == "rect" for s in size.layout.shapes)

@@ -8,223 +8,18 @@ point at the file, line and column the user typed.
 from __future__ import annotations
 
 import hashlib
-from dataclasses import dataclass, field
-from typing import Iterable, Mapping
 
 import numpy as np
 import pandas as pd
 
 from .errors import DesignError, InputError, Location
+from .origin import Origin, _column_letter, _listing  # noqa: F401  (re-exported)
+from .table_checks import (_align, _check_values, _labels, _numeric_values,
+                           per_sample_values)
 
 __all__ = ["CommunityTable", "Origin", "as_table", "EMPTY_POLICIES"]
 
 EMPTY_POLICIES = ("error", "drop", "keep")
-_MAX_LISTED = 8
-
-
-def _listing(items: Iterable, limit: int = _MAX_LISTED) -> str:
-    items = [str(x) for x in items]
-    shown = ", ".join(repr(x) for x in items[:limit])
-    more = len(items) - limit
-    return shown + (f" and {more} more" if more > 0 else "")
-
-
-def _column_letter(j: int) -> str:
-    """0-based column index -> spreadsheet letters (0 -> 'A', 26 -> 'AA')."""
-    letters = ""
-    j += 1
-    while j:
-        j, r = divmod(j - 1, 26)
-        letters = chr(65 + r) + letters
-    return letters
-
-
-@dataclass(frozen=True)
-class Origin:
-    """Where a table's cells came from, so errors can name the place the user can open.
-
-    Parameters
-    ----------
-    file : str or None
-        File name as the user gave it.
-    sheet : str or None
-        Spreadsheet sheet name (XLSX only).
-    rows : {'samples', 'taxa'}
-        What the rows of the file were.
-    row_numbers : mapping label -> int
-        1-based line (text) or row (spreadsheet) number of each row label.
-    column_numbers : mapping label -> int
-        0-based column index of each column label in the file.
-    spreadsheet : bool
-        Report cells as spreadsheet references (``C7``) rather than line and column.
-    """
-
-    file: str | None = None
-    sheet: str | None = None
-    rows: str = "samples"
-    row_numbers: Mapping[str, int] = field(default_factory=dict)
-    column_numbers: Mapping[str, int] = field(default_factory=dict)
-    spreadsheet: bool = False
-
-    def cell(self, sample: str, taxon: str) -> Location:
-        row_label, col_label = (sample, taxon) if self.rows == "samples" else (taxon, sample)
-        r = self.row_numbers.get(row_label)
-        c = self.column_numbers.get(col_label)
-        if self.file is None:  # an in-memory table: name cells by label and position
-            return Location(row=f"sample {sample!r}" + (f" (row {r})" if r else ""),
-                            column=f"taxon {taxon!r}" + (f" (column {c + 1})" if c is not None
-                                                         else ""))
-        what = f"(sample {sample!r}, taxon {taxon!r})"
-        if self.spreadsheet and r is not None and c is not None:
-            return Location(file=self.file, sheet=self.sheet,
-                            cell=f"{_column_letter(c)}{r} {what}")
-        row = f"line {r}" if r is not None else f"row {row_label!r}"
-        col = (f"column {c + 1} ({col_label!r})" if c is not None else f"column {col_label!r}")
-        return Location(file=self.file, sheet=self.sheet, row=f"{row} {what}", column=col)
-
-    def label(self, label: str, axis: str) -> Location:
-        """Location of a whole sample or taxon (``axis`` is 'samples' or 'taxa')."""
-        if self.file is None:
-            return Location(row=f"{'sample' if axis == 'samples' else 'taxon'} {label!r}")
-        if axis == self.rows:
-            r = self.row_numbers.get(label)
-            return Location(file=self.file, sheet=self.sheet,
-                            row=f"line {r} ({label!r})" if r is not None else repr(label))
-        c = self.column_numbers.get(label)
-        col = (_column_letter(c) if self.spreadsheet else c + 1) if c is not None else None
-        return Location(file=self.file, sheet=self.sheet,
-                        column=f"column {col} ({label!r})" if col is not None else repr(label))
-
-
-def _labels(index: pd.Index, what: str, origin: Origin | None) -> pd.Index:
-    """Labels as unique, non-blank strings, or an InputError that lists the offenders."""
-    labels = pd.Index([str(x).strip() if not _is_missing(x) else "" for x in index],
-                      dtype=object)
-    file = origin.file if origin else None
-    blank = [i for i, x in enumerate(labels) if x == ""]
-    if blank:
-        raise InputError(
-            f"{len(blank)} {what} label(s) are blank (position(s) {_listing([b + 1 for b in blank])}).",
-            location=Location(file=file), hint=f"Give every {what} a name.")
-    dup = labels[labels.duplicated()].unique()
-    if len(dup):
-        pos = {d: [i + 1 for i, x in enumerate(labels) if x == d] for d in dup[:_MAX_LISTED]}
-        where = "; ".join(f"{d!r} at positions {p}" for d, p in pos.items())
-        raise InputError(f"{what} labels must be unique; repeated: {where}.",
-                         location=Location(file=file),
-                         hint=f"Rename or merge the repeated {what}s before loading.")
-    return labels
-
-
-def _shown(x) -> str:
-    """A value as a person would write it (3, 0.5, 'abc'; never np.float64(3.0))."""
-    if isinstance(x, (bool, np.bool_)):
-        return repr(bool(x))
-    if isinstance(x, (int, float, np.integer, np.floating)):
-        return f"{float(x):g}"
-    return repr(x)
-
-
-def _is_missing(x) -> bool:
-    try:
-        return bool(pd.isna(x))
-    except (TypeError, ValueError):
-        return False
-
-
-def _numeric_values(df: pd.DataFrame, origin: Origin) -> np.ndarray:
-    """float64 copy of the cells; an InputError naming the first bad cell otherwise."""
-    n, p = df.shape
-    out = np.empty((n, p), dtype=np.float64)
-    for j, col in enumerate(df.columns):
-        s = df.iloc[:, j]
-        kind = getattr(s.dtype, "kind", "O")
-        if kind in "cmM" or isinstance(s.dtype, (pd.DatetimeTZDtype, pd.PeriodDtype,
-                                                 pd.IntervalDtype)):
-            what = {"c": "complex numbers", "m": "time spans", "M": "dates"}.get(
-                kind, f"values of type {s.dtype}")
-            raise InputError(f"taxon column {str(col)!r} holds {what}, not counts.",
-                             location=origin.cell(df.index[0], col) if len(df) else None,
-                             hint="Counts must be real numbers >= 0; convert the column "
-                                  "first, or leave it out of the counts.")
-        if pd.api.types.is_bool_dtype(s.dtype):
-            out[:, j] = s.to_numpy(dtype=np.float64)
-            continue
-        if pd.api.types.is_numeric_dtype(s.dtype):
-            out[:, j] = s.to_numpy(dtype=np.float64, na_value=np.nan)
-            continue
-        num = pd.to_numeric(s, errors="coerce")
-        text = s.astype(object)
-        bad = num.isna() & ~text.map(_is_blank)
-        if bad.any():
-            i = int(np.flatnonzero(bad.to_numpy())[0])
-            sample, taxon = (df.index[i], col)
-            raise InputError(
-                f"count cell holds text {text.iloc[i]!r}, not a number "
-                f"({int(bad.sum())} such cell(s) in this column).",
-                location=origin.cell(sample, taxon),
-                hint="Counts must be numbers; fix the cell (decimal commas and thousands "
-                     "separators can be declared with decimal=',' / thousands=' ').")
-        out[:, j] = num.to_numpy(dtype=np.float64, na_value=np.nan)
-    return out
-
-
-def _is_blank(x) -> bool:
-    return _is_missing(x) or (isinstance(x, str) and x.strip() == "")
-
-
-def _check_values(values: np.ndarray, samples: pd.Index, taxa: pd.Index, origin: Origin):
-    finite = np.isfinite(values)
-    if not finite.all():
-        i, j = np.argwhere(~finite)[0]
-        v = values[i, j]
-        kind = "a blank or missing value" if np.isnan(v) else f"an infinite value ({v})"
-        n_bad = int((~finite).sum())
-        raise InputError(f"count cell holds {kind} ({n_bad} non-finite cell(s) in all).",
-                         location=origin.cell(samples[i], taxa[j]),
-                         hint="Write 0 for an absent taxon; remove or fix unknown values.")
-    neg = values < 0
-    if neg.any():
-        i, j = np.argwhere(neg)[0]
-        raise InputError(f"count cell holds a negative number ({values[i, j]:g}); "
-                         f"{int(neg.sum())} negative cell(s) in all.",
-                         location=origin.cell(samples[i], taxa[j]),
-                         hint="Counts and biomass must be >= 0.")
-
-
-def _align(info, labels: pd.Index, what: str, origin: Origin | None,
-           info_name: str) -> pd.DataFrame:
-    """Sample or taxon information aligned to ``labels`` (by label, never by position)."""
-    if info is None:
-        return pd.DataFrame(index=pd.Index(labels, name=what))
-    if isinstance(info, pd.Series):
-        info = info.to_frame()
-    if not isinstance(info, pd.DataFrame):
-        raise InputError(f"`{info_name}` must be a DataFrame indexed by {what} label; "
-                         f"got {type(info).__name__}.")
-    info = info.copy()
-    info.index = _labels(info.index, f"{what} (in `{info_name}`)", None)
-    have, want = set(info.index), set(labels)
-    missing = [x for x in labels if x not in have]
-    extra = [x for x in info.index if x not in want]
-    if missing or extra:
-        msg = []
-        if missing:
-            msg.append(f"{len(missing)} {what}(s) in the counts are missing from `{info_name}`: "
-                       f"{_listing(missing)}")
-        if extra:
-            msg.append(f"{len(extra)} {what}(s) in `{info_name}` are not in the counts: "
-                       f"{_listing(extra)}")
-        source = info.attrs.get("file")
-        if source:
-            msg[-1] += f" (sample information read from {source!r})"
-        raise InputError("; ".join(msg) + ".",
-                         location=Location(file=origin.file) if origin else None,
-                         hint=f"Labels are matched exactly (case and spaces count); make both "
-                              f"tables list the same {what}s.")
-    out = info.loc[list(labels)]
-    out.index = pd.Index(labels, name=what)
-    return out
 
 
 class CommunityTable:
@@ -374,45 +169,10 @@ class CommunityTable:
     def _effort(effort, info: pd.DataFrame, labels: pd.Index, origin: Origin):
         if effort is None:
             return None, None
-        if isinstance(effort, str):
-            if effort not in info.columns:
-                raise DesignError(
-                    f"effort column {effort!r} is not in the sample table "
-                    f"(columns: {_listing(info.columns)}).",
-                    location=Location(file=info.attrs.get("file", origin.file),
-                                      column=repr(effort)),
-                    hint="Name one of the sample table's columns (case counts), or pass one "
-                         "positive value per sample.")
-            raw, name = info[effort], effort
-        else:
-            raw, name = effort, getattr(effort, "name", None) or "effort"
-            if isinstance(raw, pd.Series):
-                raw = raw.copy()
-                raw.index = [str(i) for i in raw.index]
-                if set(raw.index) == set(labels):
-                    raw = raw.loc[list(labels)]
-            raw = pd.Series(np.asarray(raw).ravel() if not isinstance(raw, pd.Series) else
-                            raw.to_numpy(), index=None)
-            if len(raw) != len(labels):
-                raise InputError(f"effort has {len(raw)} value(s) for {len(labels)} samples.")
-            raw.index = labels
-        num = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
-        bad = ~np.isfinite(num) | (num <= 0)
-        if bad.any():
-            i = int(np.flatnonzero(bad)[0])
-            # a sample table read from a file knows its lines and columns (read_samples)
-            attrs = getattr(info, "attrs", {}) if isinstance(effort, str) else {}
-            line = attrs.get("lines", {}).get(labels[i])
-            col = attrs.get("columns", {}).get(name)
-            raise InputError(
-                f"sampling effort must be a positive number; sample {labels[i]!r} has "
-                f"{_shown(raw.iloc[i])} ({int(bad.sum())} such sample(s)).",
-                location=Location(file=attrs.get("file", origin.file),
-                                  row=(f"line {line} " if line else "") + f"(sample {labels[i]!r})",
-                                  column=(f"column {col} " if col else "") + f"({name!r})"),
-                hint="Effort (trap nights, volume, reads...) divides the totals; it cannot be "
-                     "zero, negative or missing.")
-        return num, name
+        return per_sample_values(
+            effort, info, labels, origin, role="effort", noun="sampling effort",
+            hint="Effort (trap nights, volume, reads...) divides the totals; it cannot be "
+                 "zero, negative or missing.")
 
     # ------------------------------------------------------------------ views
     @property

@@ -30,6 +30,7 @@ import pandas as pd
 from .random import as_rng
 from .errors import DesignError, InputError
 from .results import ResultMixin
+from .abundance import require_absolute
 from .table import CommunityTable, _listing, as_table
 from .taxon_terms import (PAIR_MEASURES, SPLIT_MEASURES, Ticker, boot_weights, interval,
                           pair_terms, size_ratios, split_terms)
@@ -325,6 +326,7 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
 
     # ------------------------------------------------------------------ validate
     tab = as_table(table)
+    require_absolute(tab, "the size side of taxon_contributions")
     labels = _group_labels(tab, group)
     unit_labels = None if units is None else _group_labels(tab, units, "units")
     gname = str(labels.name)

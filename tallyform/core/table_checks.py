@@ -181,3 +181,35 @@ def per_sample_values(value, info: pd.DataFrame, labels: pd.Index, origin: Origi
                               column=(f"column {col} " if col else "") + f"({name!r})"),
             hint=hint)
     return num, name
+
+
+def empty_policy(values: np.ndarray, sample_labels: pd.Index, taxon_labels: pd.Index,
+                 origin: Origin, empty: str):
+    """Rows and columns to keep under the empty policy: (row mask, column mask, dropped
+    samples, dropped taxa); an InputError naming them under ``empty='error'``."""
+    n, p = values.shape
+    keep_r, keep_c = np.ones(n, dtype=bool), np.ones(p, dtype=bool)
+    if empty == "keep":
+        return keep_r, keep_c, [], []
+    row_zero = values.sum(axis=1) == 0
+    col_zero = values.sum(axis=0) == 0
+    if empty == "error" and row_zero.any():
+        bad = sample_labels[row_zero]
+        raise InputError(
+            f"{len(bad)} sample(s) have a total of 0: {_listing(bad)}.",
+            location=origin.label(bad[0], "samples"),
+            hint="Remove them, or load with empty='drop' (they are then listed in "
+                 "table.dropped).")
+    if empty == "error" and col_zero.any():
+        bad = taxon_labels[col_zero]
+        raise InputError(
+            f"{len(bad)} taxon/taxa are never observed (all counts 0): {_listing(bad)}.",
+            location=origin.label(bad[0], "taxa"),
+            hint="Remove them, or load with empty='drop' (they are then listed in "
+                 "table.dropped).")
+    if not (row_zero.any() or col_zero.any()):
+        return keep_r, keep_c, [], []
+    keep_r = ~row_zero
+    # taxa seen only in dropped samples become empty too
+    keep_c = values[keep_r].sum(axis=0) != 0
+    return keep_r, keep_c, list(sample_labels[row_zero]), list(taxon_labels[~keep_c])

@@ -122,13 +122,17 @@ def _cmd_demo(args) -> int:
     print(f"Demo scenario '{args.name}': {SCENARIOS[args.name]}")
     print("All demo data are invented (synthetic); see demo_data/README.md.")
     print()
-    group = args.group or ("treatment" if args.name == "mesocosm" else "habitat")
+    group = args.group or {"mesocosm": "treatment", "moths": "habitat",
+                           "soil": "land_use"}[args.name]
     _print_table_overview(tab, group)
     if args.summary_only:
         return 0
     if args.name == "mesocosm":
         spec = AnalysisSpec(group=group, terms=(group, "week"), blocks="tank_block",
                             contrast=("control", "nutrient_high"))
+    elif args.name == "soil":
+        spec = AnalysisSpec(group=group, size_method="welch", contrast=("forest", "pasture"),
+                            **AnalysisSpec.options_of(tab))
     else:
         spec = AnalysisSpec(group=group, size="log_total_per_effort",
                             size_method="negbin", contrast=("woodland", "arable"))
@@ -191,7 +195,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--version", action="version", version=f"tallyform {__version__}")
     sub = p.add_subparsers(dest="command", required=True)
     d = sub.add_parser("demo", help="full analysis of a bundled synthetic demo scenario")
-    d.add_argument("name", nargs="?", default="mesocosm", choices=["mesocosm", "moths"])
+    d.add_argument("name", nargs="?", default="mesocosm", choices=["mesocosm", "moths", "soil"])
     d.add_argument("--out", default="tallyform-demo",
                    help="folder for the report, tables and notebook (default: tallyform-demo)")
     d.add_argument("--group", help="sample column whose groups are compared")

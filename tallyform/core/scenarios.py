@@ -101,7 +101,8 @@ def demo(name: str = "mesocosm") -> CommunityTable:
                           abundance="relative", load=SOIL_LOAD)
         notes = tab.notes
         tab = tab.subset(taxa=lambda t: t.index != SOIL_SPIKE)
-        tab._notes = notes + (f"spike-in taxon {SOIL_SPIKE!r} left out of the profiles",)
+        tab._notes = notes + (f"spike-in taxon {SOIL_SPIKE!r} left out of the profiles: the "
+                              "loads are the qPCR loads less the spike-in's copies",)
     else:
         tab = read_counts(d / "moths_counts.csv", d / "moths_samples.csv", taxa=taxa,
                           effort="trap_nights")

@@ -14,6 +14,8 @@ meaningful again when each sample's absolute abundance (its *load*) is known:
 
 References
 ----------
+Warton DI, Wright ST, Wang Y (2012) Distance-based multivariate analyses confound location and
+dispersion effects. Methods Ecol Evol 3:89-101.
 Stammler F, Glasner J, Hiergeist A, et al. (2016) Adjusting microbiome profiles for
 differences in microbial load by spike-in bacteria. Microbiome 4:28.
 Vandeputte D, Kathagen G, D'hoe K, et al. (2017) Quantitative microbiome profiling links gut
@@ -32,6 +34,7 @@ __all__ = ["ABUNDANCE", "require_absolute", "counting_basis", "totals_meaning",
 
 ABUNDANCE = ("absolute", "relative")
 FEW_SPIKE_READS = 20          # below this, a spike-in load has a relative SE above ~22 %
+DEPTH_RATIO_NOTE = 3.0        # depths more than 3-fold apart get a note
 
 _LOAD_HINT = ("Give each sample's absolute abundance: load='column' (qPCR copies, cell counts "
               "or biomass per sample, from the sample table) or spike_in={'taxon': name, "
@@ -149,6 +152,20 @@ def absolute_from_reads(reads, load, sample_labels, origin, *, spike=None, added
             hint="Remove the sample, or load with empty='drop'.")
     values = reads / depth[:, None] * load[:, None]
     return values, np.asarray(load, dtype=np.float64), notes
+
+
+def depth_note(reads: np.ndarray) -> str | None:
+    """A note when sequencing depths differ widely: counting noise shrinks as depth grows, so
+    groups sequenced to different depths differ in profile spread (Warton et al. 2012)."""
+    depth = reads.sum(axis=1)
+    depth = depth[depth > 0]
+    if depth.size < 2 or depth.max() <= DEPTH_RATIO_NOTE * depth.min():
+        return None
+    return (f"sequencing depths range from {depth.min():,.0f} to {depth.max():,.0f} reads "
+            f"({depth.max() / depth.min():.1f}-fold): counting noise falls with depth, so "
+            "composition and spread tests between groups sequenced to different depths can "
+            "report differences made by depth alone (Warton et al. 2012); compare the depths "
+            "of the groups (tab.depth) before reading them.")
 
 
 def require_absolute(table, what: str, *, counts: bool = False) -> tuple[str, ...]:

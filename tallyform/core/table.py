@@ -14,8 +14,8 @@ import pandas as pd
 
 from .errors import DesignError, InputError, Location
 from .origin import Origin, _column_letter, _listing  # noqa: F401  (re-exported)
-from .abundance import (absolute_from_reads, check_abundance, load_values, relative_summary,
-                        sequencing_hint, split_spike_in)
+from .abundance import (absolute_from_reads, check_abundance, depth_note, load_values,
+                        relative_summary, sequencing_hint, split_spike_in)
 from .table_checks import (_align, _check_values, _labels, _numeric_values, empty_policy,
                            per_sample_values)
 
@@ -166,11 +166,13 @@ class CommunityTable:
         reads = loads = None
         if abundance == "relative":
             reads = _frozen(values, copy=False)
+            notes += [n for n in [depth_note(reads)] if n]
             if load_name is not None:
-                values, loads, notes = absolute_from_reads(
+                values, loads, load_notes = absolute_from_reads(
                     reads, per_sample.get("load"), sample_labels, origin,
                     spike=per_sample.get("spike"), added=per_sample.get("added"),
                     spike_taxon=None if spike is None else spike["taxon"], load_name=load_name)
+                notes += load_notes
         self._values = _frozen(values, copy=False)
         self._sample_labels = pd.Index(sample_labels, name="sample", dtype=object)
         self._taxon_labels = pd.Index(taxon_labels, name="taxon", dtype=object)

@@ -205,6 +205,17 @@ def test_sequencing_like_table_gets_a_note_and_nothing_else():
     assert not tly.CommunityTable(reads / 7).notes        # not whole numbers
 
 
+def test_depths_far_apart_get_a_note():
+    # counting noise ~ 1 / depth (Warton et al. 2012): composition tests see depth too
+    deep = READS.copy()
+    deep.loc[["s4", "s5", "s6"]] *= 4
+    tab = tly.CommunityTable(deep, INFO, abundance="relative", load="copies")
+    (note,) = [n for n in tab.notes if "sequencing depths range" in n]
+    # by hand: the smallest depth is s1's 100 reads, the largest s5's 4 x 125
+    assert "from 100 to 500 reads (5.0-fold)" in note and "tab.depth" in note
+    assert not relative().notes                         # 100 to 200: no note
+
+
 # ---------------------------------------------------------------------------- refusals
 def test_size_results_refused_without_load():
     tab = relative()

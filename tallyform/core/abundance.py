@@ -244,14 +244,14 @@ def counting_basis(table) -> tuple[np.ndarray, np.ndarray]:
     return reads, table.load.to_numpy() / reads.sum(axis=1)
 
 
-def sequencing_hint(values: np.ndarray, is_integer: bool) -> str | None:
+def sequencing_hint(values: np.ndarray, is_integer) -> str | None:
     """A note when an absolute table looks like sequencing output (whole numbers, hundreds of
-    taxa, thousands per sample); nothing is changed."""
+    taxa, thousands per sample); nothing is changed. ``is_integer()`` is asked last."""
     n_taxa = values.shape[1]
-    if not is_integer or n_taxa < 100:
+    if n_taxa < 100:
         return None
     median = float(np.median(values.sum(axis=1)))
-    if median < 1000:
+    if median < 1000 or not is_integer():
         return None
     return (f"these look like sequencing reads ({n_taxa} taxa, a median of {median:,.0f} per "
             "sample, whole numbers): if so, the totals are sequencing depths, not abundances. "

@@ -192,7 +192,7 @@ class CommunityTable:
         self._origin = origin
         self._cache: dict = {}
         if abundance == "absolute":
-            hint = sequencing_hint(self._values, self.is_integer)
+            hint = sequencing_hint(self._values, lambda: self.is_integer)
             notes += [hint] if hint else []
         self._notes: tuple[str, ...] = tuple(notes)
 

@@ -16,7 +16,7 @@ from pathlib import Path
 import pandas as pd
 
 from . import __version__
-from .core.errors import Cancelled, TallyformError
+from .core.errors import Cancelled, InputError, TallyformError
 
 
 class Progress:
@@ -48,8 +48,10 @@ def _print_table_overview(tab, group: str | None) -> None:
     facts = tab.summary().map(lambda v: f"{v:,.4g}" if isinstance(v, float) else v)
     print(facts.to_string())
     if group:
+        from .core.abundance import totals_meaning
         print()
-        print(f"Sample totals (size) by {group}:")
+        what = "size" if tab.abundance == "absolute" else totals_meaning(tab, short=True)
+        print(f"Sample totals ({what}) by {group}:")
         with pd.option_context("display.float_format", "{:,.1f}".format,
                                "display.width", 120):
             print(tab.totals_by(group).to_string())
@@ -120,13 +122,17 @@ def _cmd_demo(args) -> int:
     print(f"Demo scenario '{args.name}': {SCENARIOS[args.name]}")
     print("All demo data are invented (synthetic); see demo_data/README.md.")
     print()
-    group = args.group or ("treatment" if args.name == "mesocosm" else "habitat")
+    group = args.group or {"mesocosm": "treatment", "moths": "habitat",
+                           "soil": "land_use"}[args.name]
     _print_table_overview(tab, group)
     if args.summary_only:
         return 0
     if args.name == "mesocosm":
         spec = AnalysisSpec(group=group, terms=(group, "week"), blocks="tank_block",
                             contrast=("control", "nutrient_high"))
+    elif args.name == "soil":
+        spec = AnalysisSpec(group=group, size_method="welch", contrast=("forest", "pasture"),
+                            **AnalysisSpec.options_of(tab))
     else:
         spec = AnalysisSpec(group=group, size="log_total_per_effort",
                             size_method="negbin", contrast=("woodland", "arable"))
@@ -141,9 +147,20 @@ def _cmd_demo(args) -> int:
 def _cmd_report(args) -> int:
     from .core.io import read_counts
     from .core.spec import AnalysisSpec
-    tab = read_counts(args.counts, args.samples, rows=args.rows, effort=args.effort,
-                      sheet=args.sheet, encoding=args.encoding)
     spec = AnalysisSpec.from_json(args.spec) if args.spec else AnalysisSpec()
+    if args.spike_in or args.spike_added:
+        if not (args.spike_in and args.spike_added):
+            raise InputError("--spike-in (the spike-in taxon) and --spike-added (the sample "
+                             "column with the amount added) go together.")
+        spec = spec.replace(spike_in={"taxon": args.spike_in, "added": args.spike_added},
+                            load=None, abundance=args.abundance or "relative")
+    if args.load:
+        spec = spec.replace(load=args.load, spike_in=None,
+                            abundance=args.abundance or "relative")
+    if args.abundance:
+        spec = spec.replace(abundance=args.abundance)
+    tab = read_counts(args.counts, args.samples, rows=args.rows, effort=args.effort,
+                      sheet=args.sheet, encoding=args.encoding, **spec.table_options())
     if args.group:
         spec = spec.replace(group=args.group)
     if args.measure:
@@ -178,7 +195,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--version", action="version", version=f"tallyform {__version__}")
     sub = p.add_subparsers(dest="command", required=True)
     d = sub.add_parser("demo", help="full analysis of a bundled synthetic demo scenario")
-    d.add_argument("name", nargs="?", default="mesocosm", choices=["mesocosm", "moths"])
+    d.add_argument("name", nargs="?", default="mesocosm", choices=["mesocosm", "moths", "soil"])
     d.add_argument("--out", default="tallyform-demo",
                    help="folder for the report, tables and notebook (default: tallyform-demo)")
     d.add_argument("--group", help="sample column whose groups are compared")
@@ -197,6 +214,14 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--transform", help="transformation (none, sqrt, fourth_root, log1p...)")
     r.add_argument("--effort", help="sampling-effort column of the sample table")
     r.add_argument("--rows", choices=["samples", "taxa"], help="what the rows of the counts are")
+    r.add_argument("--abundance", choices=["absolute", "relative"],
+                   help="what the totals mean: absolute (counts of individuals, biomass; the "
+                        "default) or relative (sequencing reads, percentages: size results "
+                        "need --load or --spike-in)")
+    r.add_argument("--load", help="sample column of absolute abundance per sample (qPCR "
+                                  "copies, cell counts) for relative data")
+    r.add_argument("--spike-in", help="taxon added in a known amount (relative data)")
+    r.add_argument("--spike-added", help="sample column with the amount of spike-in added")
     r.add_argument("--sheet", help="spreadsheet sheet of the counts")
     r.add_argument("--encoding", help="text encoding of the files (default UTF-8)")
     r.add_argument("--out", required=True, help="output folder")

@@ -24,8 +24,8 @@ def key_numbers(nb) -> dict:
     raise AssertionError("no cell tagged 'key-numbers'")
 
 
-def test_four_notebooks_are_shipped():
-    assert [p.name[:2] for p in NOTEBOOKS] == ["01", "02", "03", "04"]
+def test_five_notebooks_are_shipped():
+    assert [p.name[:2] for p in NOTEBOOKS] == ["01", "02", "03", "04", "05"]
 
 
 @pytest.mark.parametrize("path", NOTEBOOKS, ids=lambda p: p.stem)

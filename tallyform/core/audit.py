@@ -16,6 +16,7 @@ import pandas as pd
 from .random import as_rng
 from .errors import Cancelled, DesignError, InputError
 from .results import ResultMixin, readonly
+from .abundance import counting_basis, require_absolute
 from .table import CommunityTable, as_table
 
 __all__ = ["audit", "AuditResult", "null_shape_tables", "estimate_overdispersion"]
@@ -59,9 +60,10 @@ def estimate_overdispersion(counts: np.ndarray, groups: np.ndarray) -> float:
 
 def null_shape_tables(table: CommunityTable, n_sim: int, *, model: str = "dirichlet_multinomial",
                       rho: float = 0.0, rng=None):
-    """Yield ``n_sim`` count arrays with the observed totals and one shared profile."""
+    """Yield ``n_sim`` count arrays with the observed totals and one shared profile (for a
+    relative table with loads: reads drawn at the observed depths, scaled to the loads)."""
     rng = as_rng(rng)
-    x = table.values
+    x, scale = counting_basis(table)        # reads of relative tables, drawn then scaled
     totals = np.rint(x.sum(axis=1)).astype(np.int64)
     pooled = x.sum(axis=0)
     present = pooled > 0
@@ -77,7 +79,7 @@ def null_shape_tables(table: CommunityTable, n_sim: int, *, model: str = "dirich
         draw = rng.multinomial(totals, p)
         out = np.zeros(x.shape)
         out[:, present] = draw
-        yield out
+        yield out * scale[:, None]
 
 
 @dataclass(frozen=True, eq=False)
@@ -207,7 +209,8 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
         raise InputError("`n_sim` must be at least 1 and `n_permutations` at least 19 "
                          f"(got {n_sim} and {n_permutations}).")
     table = as_table(table)
-    if not table.is_integer:
+    require_absolute(table, "the audit (it keeps every sample's total)")
+    if not np.all(counting_basis(table)[0] % 1 == 0):
         raise InputError("the audit simulates counts, so it needs whole-number counts; these "
                          "data hold fractions (biomass, cover or rarefied values?).",
                          hint="Run it on the raw counts.")
@@ -221,7 +224,8 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
     X = model_matrix(pd.DataFrame({group: g}), [group]).X
     rng = as_rng(rng)
     groups = g.to_numpy()
-    rho = estimate_overdispersion(table.values, groups) if model != "multinomial" else 0.0
+    rho = (estimate_overdispersion(counting_basis(table)[0], groups)
+           if model != "multinomial" else 0.0)
     labels = np.asarray(table.sample_labels, dtype=object)
     taxa = np.asarray(table.taxon_labels, dtype=object)
     p_main = np.empty(n_sim)

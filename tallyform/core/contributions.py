@@ -34,6 +34,7 @@ import pandas as pd
 
 from .errors import DesignError, InputError
 from .results import ResultMixin
+from .abundance import require_absolute
 from .table import CommunityTable, _listing, as_table
 from .contribution_tables import (Prepared, shape_notes, shape_part, size_notes,
                                   size_part)
@@ -405,6 +406,7 @@ def _prepare(table, group, a, b, *, measure, transform, intervals, level, pseudo
              units, n_boot, params, get_measure, get_transform):
     """Validate the inputs; the two groups' counts, units and the first notes."""
     tab = as_table(table)
+    require_absolute(tab, "the size side of taxon_contributions")
     labels = _group_labels(tab, group)
     unit_labels = None if units is None else _group_labels(tab, units, "units")
     gname = str(labels.name)

@@ -64,7 +64,8 @@ def _dwc_frame(name, data, encoding, sep):
 
 def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates: bool = True,
                      encoding: str | None = None, sep: str | None = None,
-                     empty: str = "error") -> CommunityTable:
+                     empty: str = "error", abundance: str = "absolute", load=None,
+                     spike_in: dict | None = None) -> CommunityTable:
     """Read Darwin Core (TDWG) sampling events and the occurrences recorded in them.
 
     Parameters
@@ -83,6 +84,11 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
     sum_duplicates : bool, default True
         Several occurrence records of one taxon in one event (sexes, life stages) are
         added up, and the number is noted in ``table.notes``.
+    abundance, load, spike_in
+        What the totals mean (see :class:`CommunityTable`): ``abundance='relative'`` for
+        quantities of type 'DNA sequence reads' (a note suggests it when they are read as
+        absolute), with ``load`` an event column of absolute abundance per event or
+        ``spike_in={'taxon': scientificName, 'added': event column}``.
     """
     (ev_name, ev_data), (oc_name, oc_data) = _dwc_sources(events, occurrences)
     ev_cells, ev_head, ev_body = _dwc_frame(ev_name, ev_data, encoding, sep)
@@ -114,6 +120,10 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
         info[h] = (nums.to_numpy(float) if ((texts == "") | nums.notna()).all()
                    and (texts != "").any() else texts.where(texts != "", None).to_numpy(object))
     info = pd.DataFrame(info, index=pd.Index(ev_ids, name="sample"))
+    # lines and columns of the event table, for errors about effort or load values
+    info.attrs.update(file=ev_cells.file,
+                      lines={x: int(ev_cells.lines[i + 1]) for i, x in enumerate(ev_ids)},
+                      columns={h: ev_cells.column_name(j) for j, h in enumerate(ev_head) if h})
 
     # quantities
     n = len(oc_body)
@@ -205,7 +215,12 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
             notes.append(f"effort: sampleSizeValue ({', '.join(map(str, unit)) or 'no unit'})")
     elif effort is not None:
         eff = effort
+    if abundance == "absolute" and any("read" in k for k in kinds):
+        notes.append(f"quantity type {kinds[0]!r}: sequencing reads are relative (their "
+                     "totals are sequencing depths); load with abundance='relative' (and "
+                     "load= or spike_in= to compare sizes). Nothing was changed.")
     table = CommunityTable(wide.astype(float), info, effort=eff, empty=empty,
-                           origin=Origin(file=ev_cells.file))
-    table._notes = tuple(notes)
+                           origin=Origin(file=ev_cells.file), abundance=abundance, load=load,
+                           spike_in=spike_in)
+    table._notes = tuple(notes) + table.notes
     return table

@@ -147,7 +147,8 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
                 taxa=None, effort=None, sheet=None, samples_sheet=None,
                 samples_id_column: str | None = None, encoding: str | None = None,
                 sep: str | None = None, decimal: str = ".", thousands: str | None = None,
-                header_row: int = 1, empty: str = "error") -> CommunityTable:
+                header_row: int = 1, empty: str = "error", abundance: str = "absolute",
+                load=None, spike_in: dict | None = None) -> CommunityTable:
     """Read a wide table of counts (CSV, TSV or XLSX) and, optionally, sample information.
 
     Parameters
@@ -184,6 +185,12 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
         the lines above it.
     empty : {'error', 'drop', 'keep'}
         Policy for all-zero samples and taxa (see :class:`CommunityTable`).
+    abundance : {'absolute', 'relative'}, default 'absolute'
+        What the totals mean: counts of individuals or biomass, or sequencing reads and
+        percentages (see :class:`CommunityTable`).
+    load, spike_in : optional
+        With ``abundance='relative'``: a sample column of absolute abundance per sample, or
+        ``{'taxon': label, 'added': column}`` for a spike-in (see :class:`CommunityTable`).
 
     Returns
     -------
@@ -265,14 +272,15 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
                          location=origin.cell(sample, taxon), hint=cell.hint)
     frame = pd.DataFrame(values, index=row_ids, columns=col_ids)
     counts = frame if rows == "samples" else frame.T
-    table = CommunityTable(counts, info, taxa, effort=effort, empty=empty, origin=origin)
+    table = CommunityTable(counts, info, taxa, effort=effort, empty=empty, origin=origin,
+                           abundance=abundance, load=load, spike_in=spike_in)
     notes = [f"rows of {cells.file!r} read as {rows} ({why})"]
     if header_row != 1:
         notes.append(f"header read from line {header_row}; the lines above it were ignored")
     if clash:
         notes.append(f"{len(clash)} column label(s) are also row labels (e.g. {clash[0]!r}); "
                      f"read with rows={rows!r} as requested")
-    table._notes = tuple(notes)
+    table._notes = tuple(notes) + table.notes
     return table
 
 
@@ -381,12 +389,14 @@ def read_long(path, samples=None, *, sample: str = "sample", taxon: str = "taxon
               count: str = "count", sum_duplicates: bool = False, effort=None, sheet=None,
               samples_sheet=None, encoding: str | None = None, sep: str | None = None,
               decimal: str = ".", thousands: str | None = None, header_row: int = 1,
-              empty: str = "error") -> CommunityTable:
+              empty: str = "error", abundance: str = "absolute", load=None,
+              spike_in: dict | None = None) -> CommunityTable:
     """Read a long (tidy) table: one row per (sample, taxon, count).
 
     Pairs absent from the file are zeros. A (sample, taxon) pair listed twice is an error
     that lists the pairs and their lines, unless ``sum_duplicates=True``. ``decimal``,
-    ``thousands`` and ``header_row`` are as in :func:`read_counts`.
+    ``thousands`` and ``header_row`` are as in :func:`read_counts`; so are ``abundance``,
+    ``load`` and ``spike_in`` (what the totals mean, see :class:`CommunityTable`).
     """
     _check_number_options(decimal, thousands)
     info = _sample_frame(samples, samples_sheet, encoding, sep, None, decimal, thousands)
@@ -441,8 +451,9 @@ def read_long(path, samples=None, *, sample: str = "sample", taxon: str = "taxon
                                   hint="Fix the duplicates, or pass sum_duplicates=True to "
                                        "add their counts.")
     table = CommunityTable(wide.astype(float), info, effort=effort, empty=empty,
-                           origin=Origin(file=cells.file, sheet=cells.sheet))
-    table._notes = tuple(notes)
+                           origin=Origin(file=cells.file, sheet=cells.sheet),
+                           abundance=abundance, load=load, spike_in=spike_in)
+    table._notes = tuple(notes) + table.notes
     return table
 
 

@@ -30,6 +30,7 @@ from .dissimilarity import Dissimilarity
 from .random import as_rng
 from .errors import DesignError, InputError
 from .results import ResultMixin
+from .abundance import require_absolute
 from .table import CommunityTable, as_table
 
 __all__ = ["size_shape", "SizeShapeResult", "SIZE_OPTIONS", "SHAPE_OPTIONS", "FRACTIONS",
@@ -110,6 +111,7 @@ def negative_share(eigenvalues: np.ndarray) -> float:
 # ---------------------------------------------------------------------------- predictors
 def size_predictor(table: CommunityTable, size: str = "log_total") -> tuple[np.ndarray, str]:
     """The size column and a description of it."""
+    require_absolute(table, "the size fraction of a size and shape partition")
     _check_option("size", size, SIZE_OPTIONS)
     totals = table.totals.to_numpy()
     if (totals <= 0).any():

@@ -15,6 +15,16 @@
     totals are partly effort: the ``trap_nights`` column says how many nights each trap ran.
     The counts file has taxa as rows (a common export layout).
 
+``soil``
+    Amplicon-like read counts of 200 invented bacterial sequence variants in 24 soil cores from
+    two land uses (forest, pasture; 4 sites each, 3 cores per site). By construction pasture
+    soil holds *fewer* bacteria (about 0.45 times the forest load) with a shifted composition,
+    but the pasture libraries were mostly sequenced in a deeper run (about 2.5 times the
+    reads): read totals say the opposite of the truth. Each core has a qPCR load (16S copies
+    per g of soil, counted in the spiked extract) and a synthetic spike-in sequence added in
+    a known amount per g (``spike_in`` taxon), so the loads can be supplied two ways.
+    The counts file has taxa (sequence variants) as rows.
+
 The files in ``demo_data/`` are written by :func:`write_demo_data` from a fixed seed; the
 test suite regenerates them and compares.
 """
@@ -37,9 +47,12 @@ SCENARIOS = {
                 "4 weeks x 5 tank blocks (synthetic).",
     "moths": "Light-trap moth survey along a land-use gradient with varying trap nights "
              "(synthetic).",
+    "soil": "Soil bacteria of two land uses: amplicon read counts with a sequencing-depth "
+            "batch effect, qPCR loads and a spike-in (synthetic).",
 }
 DEMO_LABEL = "bundled synthetic demo"
-_SEED = {"mesocosm": 20261201, "moths": 20261202}
+_SEED = {"mesocosm": 20261201, "moths": 20261202, "soil": 20261203}
+SOIL_LOAD, SOIL_SPIKE = "qpcr_copies_per_g", "spike_in"
 
 
 def demo_names() -> list[str]:
@@ -63,7 +76,10 @@ def demo(name: str = "mesocosm") -> CommunityTable:
 
     Parameters
     ----------
-    name : {'mesocosm', 'moths'}
+    name : {'mesocosm', 'moths', 'soil'}
+        ``'soil'`` is read as relative data (reads) with the qPCR load as each core's size,
+        the spike-in taxon left out (``abundance='relative', load='qpcr_copies_per_g'``,
+        then ``subset``); read ``soil_counts.csv`` yourself for other readings.
 
     Examples
     --------
@@ -78,6 +94,15 @@ def demo(name: str = "mesocosm") -> CommunityTable:
     taxa = pd.read_csv(d / f"{name}_taxa.csv", index_col=0, dtype=str)
     if name == "mesocosm":
         tab = read_counts(d / "mesocosm_counts.csv", d / "mesocosm_samples.csv", taxa=taxa)
+    elif name == "soil":
+        # the qPCR counted every 16S copy of the spiked extract; leaving out the spike-in
+        # taxon keeps every other taxon's absolute abundance (see CommunityTable.subset)
+        tab = read_counts(d / "soil_counts.csv", d / "soil_samples.csv", taxa=taxa,
+                          abundance="relative", load=SOIL_LOAD)
+        notes = tab.notes
+        tab = tab.subset(taxa=lambda t: t.index != SOIL_SPIKE)
+        tab._notes = notes + (f"spike-in taxon {SOIL_SPIKE!r} left out of the profiles: the "
+                              "loads are the qPCR loads less the spike-in's copies",)
     else:
         tab = read_counts(d / "moths_counts.csv", d / "moths_samples.csv", taxa=taxa,
                           effort="trap_nights")
@@ -146,6 +171,56 @@ def _moths() -> tuple[CommunityTable, pd.DataFrame]:
     return tab, taxa
 
 
+def _soil() -> tuple[CommunityTable, pd.DataFrame]:
+    """Reads of 200 sequence variants + a spike-in in 24 cores; the truth is in the module
+    notes. Absolute abundance = load x profile; reads = multinomial(depth, shares of the
+    spiked extract)."""
+    rng = np.random.default_rng(_SEED["soil"])
+    rows = []
+    for use, prefix in (("forest", "F"), ("pasture", "P")):
+        for s in range(1, 5):
+            for c in range(1, 4):
+                rows.append({"sample": f"{prefix}{s}_c{c}", "land_use": use,
+                             "site": f"{prefix}{s}"})
+    design = pd.DataFrame(rows).set_index("sample")
+    n, p = len(design), 200
+    pasture = (design["land_use"] == "pasture").to_numpy()
+    site_codes = pd.factorize(design["site"])[0]
+    # true loads: 16S copies per g of soil (pasture about 0.45 x forest), site + core noise
+    site_eff = rng.normal(0.0, 0.15, site_codes.max() + 1)[site_codes]
+    load = 2e9 * np.where(pasture, 0.45, 1.0) * np.exp(site_eff + rng.normal(0.0, 0.3, n))
+    # composition: one base profile, a shift of six invented clades in pasture soil
+    clades = np.repeat([f"clade_{c}" for c in "ABCDEFGH"], 25)
+    base = rng.permutation(lognormal_profile(p, sd=1.8, rng=rng))
+    fold = dict(zip([f"clade_{c}" for c in "ABCDEFGH"], [3.0, 2.0, 1.0, 1.0, 1.0, 1.0, 0.4,
+                                                         0.25]))
+    shift = np.array([fold[c] for c in clades])
+    share = base[None, :] * np.where(pasture[:, None], shift[None, :], 1.0)
+    site_noise = rng.normal(0.0, 0.3, (site_codes.max() + 1, p))[site_codes]
+    share = share * np.exp(site_noise + rng.normal(0.0, 0.6, (n, p)))
+    share /= share.sum(axis=1, keepdims=True)
+    # extraction: 0.2-0.3 g of soil, 2e7 spike-in copies added to each extract
+    soil_g = np.round(rng.uniform(0.20, 0.30, n), 3)
+    spike_per_g = 2e7 / soil_g
+    qpcr = (load + spike_per_g) * np.exp(rng.normal(0.0, 0.1, n))   # 16S copies, spike too
+    # sequencing: run 2 (10 pasture cores, 2 forest cores) about 2.5 x deeper than run 1
+    run2 = pasture.copy()
+    run2[np.flatnonzero(pasture)[:2]] = False
+    run2[np.flatnonzero(~pasture)[:2]] = True
+    depth = np.rint(25000 * np.where(run2, 2.5, 1.0) * np.exp(rng.normal(0, 0.25, n)))
+    extract = np.column_stack([share * load[:, None], spike_per_g])
+    reads = rng.multinomial(depth.astype(np.int64), extract / extract.sum(axis=1)[:, None])
+    labels = [f"asv_{j + 1:03d}" for j in range(p)] + [SOIL_SPIKE]
+    info = design.assign(run=np.where(run2, "run2", "run1"), soil_g=soil_g,
+                         qpcr_copies_per_g=np.round(qpcr, -4),
+                         spike_copies_per_g=np.round(spike_per_g, -2))
+    tab = CommunityTable(pd.DataFrame(reads.astype(float), index=design.index, columns=labels),
+                         info, empty="keep")
+    taxa = pd.DataFrame({"clade": list(clades) + ["spike-in (synthetic, added)"]},
+                        index=pd.Index(labels, name="taxon"))
+    return tab, taxa
+
+
 def _running(groups):
     seen: dict[str, int] = {}
     for g in groups:
@@ -159,6 +234,8 @@ def build_scenario(name: str) -> tuple[CommunityTable, pd.DataFrame]:
         return _mesocosm()
     if name == "moths":
         return _moths()
+    if name == "soil":
+        return _soil()
     raise InputError(f"unknown demo {name!r}; choose one of {demo_names()}.")
 
 
@@ -173,9 +250,9 @@ def write_demo_data(folder) -> list[Path]:
         tab = tab.subset(taxa=tab.values.sum(axis=0) > 0, empty="drop")
         taxa = taxa.loc[list(tab.taxon_labels)]
         counts = tab.counts.astype(np.int64)
-        if name == "moths":                     # exported with taxa as rows
+        if name in ("moths", "soil"):           # exported with taxa as rows
             counts = counts.T
-            counts.index.name = "taxon"
+            counts.index.name = "taxon" if name == "moths" else "asv"
         else:
             counts.index.name = "sample"
         paths = {"counts": counts, "samples": tab.samples.rename_axis("sample"),

@@ -19,6 +19,7 @@ from .errors import DesignError, InputError, Location
 from .inference import check_n_permutations, check_option
 from .permutation import permutation_f_test
 from .results import ResultMixin
+from .abundance import require_absolute
 from .table import CommunityTable, as_table
 
 __all__ = ["size_test", "SizeTestResult", "size_measure", "group_factor", "SIZE_METHODS"]
@@ -277,6 +278,7 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
     if not 0 < level < 1:
         raise InputError(f"`level` must be between 0 and 1; got {level!r}.")
     tab = as_table(table)
+    load_notes = require_absolute(tab, "a size test", counts=(method == "negbin"))
     g = group_factor(tab, group)
     levels = list(g.cat.categories)
     codes = g.cat.codes.to_numpy()
@@ -284,7 +286,7 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
     totals = tab.totals.to_numpy(dtype=float)
     size = totals if e is None else totals / e
     measure = "total" + (f" per {e_name}" if e_name else "")
-    notes: list[str] = []
+    notes: list[str] = list(load_notes)
     if e_name and effort is None:
         notes.append(f"The table's sampling effort {e_name!r} was used ("
                      + ("log effort as an offset" if method == "negbin" else

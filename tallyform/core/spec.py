@@ -77,6 +77,11 @@ class AnalysisSpec:
         The audit: simulated tables, permutations per test, sampling model, reference.
     alpha : float
         Level used in the plain-language readings (p-values are always reported as they are).
+    abundance : {'absolute', 'relative'}, optional
+        What the table's totals mean, as the table was read (None: not recorded). With
+        ``load`` (a sample column) or ``spike_in`` (``{'taxon': ..., 'added': ...}``) it
+        says where the absolute sizes of relative data come from. The table is read with
+        these keywords (``spec.table_options()``); ``run`` checks that it was.
     """
 
     group: str | None = None
@@ -107,6 +112,9 @@ class AnalysisSpec:
     audit_model: str = "dirichlet_multinomial"
     audit_reference: str = "chi_square"
     alpha: float = 0.05
+    abundance: str | None = None
+    load: str | None = None
+    spike_in: dict | None = None
     version: int = field(default=SPEC_VERSION)
 
     def __post_init__(self):
@@ -114,6 +122,8 @@ class AnalysisSpec:
             v = getattr(self, name)
             if isinstance(v, list):
                 object.__setattr__(self, name, tuple(v))
+        if isinstance(self.spike_in, dict):             # a private copy
+            object.__setattr__(self, "spike_in", dict(self.spike_in))
         self.validate()
 
     # ------------------------------------------------------------------ checks
@@ -160,6 +170,7 @@ class AnalysisSpec:
         if self.contrast is not None and (len(self.contrast) != 2 or
                                           self.contrast[0] == self.contrast[1]):
             raise InputError("spec key 'contrast' must name two different groups.")
+        self._validate_abundance(table)
         if table is not None:
             cols = set(table.samples.columns)
             named = [self.group, self.blocks] + [p for t in self.model_terms
@@ -169,6 +180,48 @@ class AnalysisSpec:
                     raise InputError(f"the spec names column {c!r}, which is not in the "
                                      f"sample table (columns: {sorted(map(str, cols))}).")
         return self
+
+    def _validate_abundance(self, table) -> None:
+        """``abundance``, ``load`` and ``spike_in`` are valid, and describe ``table``."""
+        if self.abundance not in (None, "absolute", "relative"):
+            raise InputError("spec key 'abundance' must be 'absolute', 'relative' or null; got "
+                             f"{self.abundance!r}.")
+        if self.load is not None and not isinstance(self.load, str):
+            raise InputError(f"spec key 'load' must be a column name (text); got {self.load!r}.")
+        if self.spike_in is not None and not (
+                isinstance(self.spike_in, dict) and set(self.spike_in) == {"taxon", "added"}
+                and all(isinstance(v, str) for v in self.spike_in.values())):
+            raise InputError("spec key 'spike_in' must be {\"taxon\": label, \"added\": column}; "
+                             f"got {self.spike_in!r}.")
+        if (self.load is not None or self.spike_in is not None) and self.abundance != "relative":
+            raise InputError("spec keys 'load' and 'spike_in' go with abundance 'relative'; got "
+                             f"abundance {self.abundance!r}.")
+        if self.load is not None and self.spike_in is not None:
+            raise InputError("the spec gives both 'load' and 'spike_in'; keep one.")
+        if table is None or self.abundance is None:
+            return
+        have = self.options_of(table)
+        want = {"abundance": self.abundance, "load": self.load, "spike_in": self.spike_in}
+        if have != want:
+            shown = ", ".join(f"{k}={v!r}" for k, v in self.table_options().items())
+            raise InputError(
+                f"the spec says the table was read with {shown}, but it was read with "
+                + ", ".join(f"{k}={v!r}" for k, v in have.items() if v is not None) + ".",
+                hint=f"Read the table with {shown} (e.g. tly.read_counts(..., {shown})), or "
+                     "change the spec.")
+
+    def table_options(self) -> dict:
+        """Keywords for the readers and CommunityTable that read the table as the spec says
+        (``abundance``, ``load``, ``spike_in``; empty when the spec does not record them)."""
+        out = {"abundance": self.abundance, "load": self.load, "spike_in": self.spike_in}
+        return {k: v for k, v in out.items() if v is not None}
+
+    @classmethod
+    def options_of(cls, table) -> dict:
+        """The ``abundance``, ``load``, ``spike_in`` spec values that describe ``table``."""
+        return {"abundance": table.abundance,
+                "load": table.load_name if table.spike_in is None else None,
+                "spike_in": table.spike_in}
 
     @property
     def model_terms(self) -> tuple:
@@ -253,6 +306,9 @@ class AnalysisSpec:
             "import tallyform as tly",
             "",
             f"spec = tly.AnalysisSpec.from_json({self.to_json(indent=None)!r})",
+            *([f"# {table_name} is read with "
+               + ", ".join(f"{k}={v!r}" for k, v in self.table_options().items())
+               + " (what its totals mean)"] if self.table_options() else []),
             f"results = tly.run(spec, {table_name})          # everything below at once",
             "",
             "# or step by step:",

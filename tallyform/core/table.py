@@ -8,223 +8,30 @@ point at the file, line and column the user typed.
 from __future__ import annotations
 
 import hashlib
-from dataclasses import dataclass, field
-from typing import Iterable, Mapping
 
 import numpy as np
 import pandas as pd
 
 from .errors import DesignError, InputError, Location
+from .origin import Origin, _column_letter, _listing  # noqa: F401  (re-exported)
+from .abundance import (absolute_from_reads, check_abundance, depth_note, load_values,
+                        relative_summary, sequencing_hint, split_spike_in)
+from .table_checks import (_align, _check_values, _labels, _numeric_values, empty_policy,
+                           per_sample_values)
 
 __all__ = ["CommunityTable", "Origin", "as_table", "EMPTY_POLICIES"]
 
 EMPTY_POLICIES = ("error", "drop", "keep")
-_MAX_LISTED = 8
 
 
-def _listing(items: Iterable, limit: int = _MAX_LISTED) -> str:
-    items = [str(x) for x in items]
-    shown = ", ".join(repr(x) for x in items[:limit])
-    more = len(items) - limit
-    return shown + (f" and {more} more" if more > 0 else "")
-
-
-def _column_letter(j: int) -> str:
-    """0-based column index -> spreadsheet letters (0 -> 'A', 26 -> 'AA')."""
-    letters = ""
-    j += 1
-    while j:
-        j, r = divmod(j - 1, 26)
-        letters = chr(65 + r) + letters
-    return letters
-
-
-@dataclass(frozen=True)
-class Origin:
-    """Where a table's cells came from, so errors can name the place the user can open.
-
-    Parameters
-    ----------
-    file : str or None
-        File name as the user gave it.
-    sheet : str or None
-        Spreadsheet sheet name (XLSX only).
-    rows : {'samples', 'taxa'}
-        What the rows of the file were.
-    row_numbers : mapping label -> int
-        1-based line (text) or row (spreadsheet) number of each row label.
-    column_numbers : mapping label -> int
-        0-based column index of each column label in the file.
-    spreadsheet : bool
-        Report cells as spreadsheet references (``C7``) rather than line and column.
-    """
-
-    file: str | None = None
-    sheet: str | None = None
-    rows: str = "samples"
-    row_numbers: Mapping[str, int] = field(default_factory=dict)
-    column_numbers: Mapping[str, int] = field(default_factory=dict)
-    spreadsheet: bool = False
-
-    def cell(self, sample: str, taxon: str) -> Location:
-        row_label, col_label = (sample, taxon) if self.rows == "samples" else (taxon, sample)
-        r = self.row_numbers.get(row_label)
-        c = self.column_numbers.get(col_label)
-        if self.file is None:  # an in-memory table: name cells by label and position
-            return Location(row=f"sample {sample!r}" + (f" (row {r})" if r else ""),
-                            column=f"taxon {taxon!r}" + (f" (column {c + 1})" if c is not None
-                                                         else ""))
-        what = f"(sample {sample!r}, taxon {taxon!r})"
-        if self.spreadsheet and r is not None and c is not None:
-            return Location(file=self.file, sheet=self.sheet,
-                            cell=f"{_column_letter(c)}{r} {what}")
-        row = f"line {r}" if r is not None else f"row {row_label!r}"
-        col = (f"column {c + 1} ({col_label!r})" if c is not None else f"column {col_label!r}")
-        return Location(file=self.file, sheet=self.sheet, row=f"{row} {what}", column=col)
-
-    def label(self, label: str, axis: str) -> Location:
-        """Location of a whole sample or taxon (``axis`` is 'samples' or 'taxa')."""
-        if self.file is None:
-            return Location(row=f"{'sample' if axis == 'samples' else 'taxon'} {label!r}")
-        if axis == self.rows:
-            r = self.row_numbers.get(label)
-            return Location(file=self.file, sheet=self.sheet,
-                            row=f"line {r} ({label!r})" if r is not None else repr(label))
-        c = self.column_numbers.get(label)
-        col = (_column_letter(c) if self.spreadsheet else c + 1) if c is not None else None
-        return Location(file=self.file, sheet=self.sheet,
-                        column=f"column {col} ({label!r})" if col is not None else repr(label))
-
-
-def _labels(index: pd.Index, what: str, origin: Origin | None) -> pd.Index:
-    """Labels as unique, non-blank strings, or an InputError that lists the offenders."""
-    labels = pd.Index([str(x).strip() if not _is_missing(x) else "" for x in index],
-                      dtype=object)
-    file = origin.file if origin else None
-    blank = [i for i, x in enumerate(labels) if x == ""]
-    if blank:
-        raise InputError(
-            f"{len(blank)} {what} label(s) are blank (position(s) {_listing([b + 1 for b in blank])}).",
-            location=Location(file=file), hint=f"Give every {what} a name.")
-    dup = labels[labels.duplicated()].unique()
-    if len(dup):
-        pos = {d: [i + 1 for i, x in enumerate(labels) if x == d] for d in dup[:_MAX_LISTED]}
-        where = "; ".join(f"{d!r} at positions {p}" for d, p in pos.items())
-        raise InputError(f"{what} labels must be unique; repeated: {where}.",
-                         location=Location(file=file),
-                         hint=f"Rename or merge the repeated {what}s before loading.")
-    return labels
-
-
-def _shown(x) -> str:
-    """A value as a person would write it (3, 0.5, 'abc'; never np.float64(3.0))."""
-    if isinstance(x, (bool, np.bool_)):
-        return repr(bool(x))
-    if isinstance(x, (int, float, np.integer, np.floating)):
-        return f"{float(x):g}"
-    return repr(x)
-
-
-def _is_missing(x) -> bool:
-    try:
-        return bool(pd.isna(x))
-    except (TypeError, ValueError):
-        return False
-
-
-def _numeric_values(df: pd.DataFrame, origin: Origin) -> np.ndarray:
-    """float64 copy of the cells; an InputError naming the first bad cell otherwise."""
-    n, p = df.shape
-    out = np.empty((n, p), dtype=np.float64)
-    for j, col in enumerate(df.columns):
-        s = df.iloc[:, j]
-        kind = getattr(s.dtype, "kind", "O")
-        if kind in "cmM" or isinstance(s.dtype, (pd.DatetimeTZDtype, pd.PeriodDtype,
-                                                 pd.IntervalDtype)):
-            what = {"c": "complex numbers", "m": "time spans", "M": "dates"}.get(
-                kind, f"values of type {s.dtype}")
-            raise InputError(f"taxon column {str(col)!r} holds {what}, not counts.",
-                             location=origin.cell(df.index[0], col) if len(df) else None,
-                             hint="Counts must be real numbers >= 0; convert the column "
-                                  "first, or leave it out of the counts.")
-        if pd.api.types.is_bool_dtype(s.dtype):
-            out[:, j] = s.to_numpy(dtype=np.float64)
-            continue
-        if pd.api.types.is_numeric_dtype(s.dtype):
-            out[:, j] = s.to_numpy(dtype=np.float64, na_value=np.nan)
-            continue
-        num = pd.to_numeric(s, errors="coerce")
-        text = s.astype(object)
-        bad = num.isna() & ~text.map(_is_blank)
-        if bad.any():
-            i = int(np.flatnonzero(bad.to_numpy())[0])
-            sample, taxon = (df.index[i], col)
-            raise InputError(
-                f"count cell holds text {text.iloc[i]!r}, not a number "
-                f"({int(bad.sum())} such cell(s) in this column).",
-                location=origin.cell(sample, taxon),
-                hint="Counts must be numbers; fix the cell (decimal commas and thousands "
-                     "separators can be declared with decimal=',' / thousands=' ').")
-        out[:, j] = num.to_numpy(dtype=np.float64, na_value=np.nan)
-    return out
-
-
-def _is_blank(x) -> bool:
-    return _is_missing(x) or (isinstance(x, str) and x.strip() == "")
-
-
-def _check_values(values: np.ndarray, samples: pd.Index, taxa: pd.Index, origin: Origin):
-    finite = np.isfinite(values)
-    if not finite.all():
-        i, j = np.argwhere(~finite)[0]
-        v = values[i, j]
-        kind = "a blank or missing value" if np.isnan(v) else f"an infinite value ({v})"
-        n_bad = int((~finite).sum())
-        raise InputError(f"count cell holds {kind} ({n_bad} non-finite cell(s) in all).",
-                         location=origin.cell(samples[i], taxa[j]),
-                         hint="Write 0 for an absent taxon; remove or fix unknown values.")
-    neg = values < 0
-    if neg.any():
-        i, j = np.argwhere(neg)[0]
-        raise InputError(f"count cell holds a negative number ({values[i, j]:g}); "
-                         f"{int(neg.sum())} negative cell(s) in all.",
-                         location=origin.cell(samples[i], taxa[j]),
-                         hint="Counts and biomass must be >= 0.")
-
-
-def _align(info, labels: pd.Index, what: str, origin: Origin | None,
-           info_name: str) -> pd.DataFrame:
-    """Sample or taxon information aligned to ``labels`` (by label, never by position)."""
-    if info is None:
-        return pd.DataFrame(index=pd.Index(labels, name=what))
-    if isinstance(info, pd.Series):
-        info = info.to_frame()
-    if not isinstance(info, pd.DataFrame):
-        raise InputError(f"`{info_name}` must be a DataFrame indexed by {what} label; "
-                         f"got {type(info).__name__}.")
-    info = info.copy()
-    info.index = _labels(info.index, f"{what} (in `{info_name}`)", None)
-    have, want = set(info.index), set(labels)
-    missing = [x for x in labels if x not in have]
-    extra = [x for x in info.index if x not in want]
-    if missing or extra:
-        msg = []
-        if missing:
-            msg.append(f"{len(missing)} {what}(s) in the counts are missing from `{info_name}`: "
-                       f"{_listing(missing)}")
-        if extra:
-            msg.append(f"{len(extra)} {what}(s) in `{info_name}` are not in the counts: "
-                       f"{_listing(extra)}")
-        source = info.attrs.get("file")
-        if source:
-            msg[-1] += f" (sample information read from {source!r})"
-        raise InputError("; ".join(msg) + ".",
-                         location=Location(file=origin.file) if origin else None,
-                         hint=f"Labels are matched exactly (case and spaces count); make both "
-                              f"tables list the same {what}s.")
-    out = info.loc[list(labels)]
-    out.index = pd.Index(labels, name=what)
-    return out
+def _frozen(a, *, copy: bool = True):
+    """A contiguous read-only float64 array (a copy unless ``copy=False``); None stays None."""
+    if a is None:
+        return None
+    a = np.array(a, dtype=np.float64, order="C") if copy else \
+        np.ascontiguousarray(a, dtype=np.float64)
+    a.setflags(write=False)
+    return a
 
 
 class CommunityTable:
@@ -250,13 +57,48 @@ class CommunityTable:
         that are undefined for them will say so).
     origin : Origin, optional
         Where the cells came from (set by the readers, used in error messages).
+    abundance : {'absolute', 'relative'}, default 'absolute'
+        What the totals mean. ``'absolute'``: counts of individuals or biomass, so a
+        sample's total is its size. ``'relative'``: sequencing reads or percentages, whose
+        totals are technical (sequencing depth): size results (size tests, the size fraction
+        of a partition, the size side of taxon contributions, the audit) are refused unless
+        a ``load`` or ``spike_in`` gives each sample's absolute abundance. Shape and spread
+        analyses run as usual. Nothing is ever switched for you; a table that looks like
+        sequencing output gets a note.
+    load : str or array_like, optional
+        With ``abundance='relative'``: each sample's absolute abundance (qPCR copies, cell
+        counts, biomass per sample), a column of ``samples`` or one positive value per
+        sample. The table's :attr:`values` become profile x load (Vandeputte et al. 2017)
+        and :attr:`totals` the loads; the reads stay in :attr:`reads`.
+    spike_in : dict, optional
+        With ``abundance='relative'``: ``{'taxon': label, 'added': column}``, a taxon added
+        to every sample in a known amount (column of ``samples`` or values). Each sample's
+        load is added x (reads - spike-in reads) / spike-in reads (Stammler et al. 2016);
+        the spike-in taxon is then removed from the taxa.
 
     Raises
     ------
     InputError
         A cell is not a finite number >= 0, labels repeat or are blank, the sample or taxon
         tables do not list the same labels, the effort is not positive, an empty sample or
-        taxon is found under ``empty='error'``, or fewer than 2 samples remain.
+        taxon is found under ``empty='error'``, or fewer than 2 samples remain. A load or
+        spike-in amount that is zero, negative or missing, a spike-in taxon that is not in
+        the counts or has no reads in a sample, ``load``/``spike_in`` with
+        ``abundance='absolute'``, or both together.
+
+    Notes
+    -----
+    What each view holds, by kind of table:
+
+    ============================  ===============  ==================  ===================
+    view                          absolute         relative            relative + load
+    ============================  ===============  ==================  ===================
+    ``values`` / ``counts``       as given         reads               profile x load
+    ``totals``                    row sums         depths (technical)  loads
+    ``profiles``                  values / totals  reads / depth       reads / depth
+    ``reads``, ``depth``          None             reads, depth        reads, depth
+    ``load``                      None             None                loads
+    ============================  ===============  ==================  ===================
 
     Examples
     --------
@@ -268,9 +110,11 @@ class CommunityTable:
     """
 
     def __init__(self, counts, samples=None, taxa=None, *, effort=None, empty: str = "error",
-                 origin: Origin | None = None):
+                 origin: Origin | None = None, abundance: str = "absolute", load=None,
+                 spike_in: dict | None = None):
         if empty not in EMPTY_POLICIES:
             raise InputError(f"`empty` must be one of {list(EMPTY_POLICIES)}; got {empty!r}.")
+        check_abundance(abundance, load, spike_in)
         origin = origin or Origin()
         df = self._as_frame(counts)
         sample_labels = _labels(df.index, "sample", origin)
@@ -286,40 +130,27 @@ class CommunityTable:
         sample_info = _align(samples, sample_labels, "sample", origin, "samples")
         taxon_info = _align(taxa, taxon_labels, "taxon", origin, "taxa")
         effort_values, effort_name = self._effort(effort, sample_info, sample_labels, origin)
+        per_sample = {"effort": effort_values}
+        spike = None
+        if spike_in is not None:
+            values, taxon_labels, taxon_info, per_sample["spike"], per_sample["added"], spike = \
+                split_spike_in(values, taxon_labels, taxon_info, sample_info, sample_labels,
+                               origin, spike_in)
+        load_name = None
+        if load is not None:
+            per_sample["load"], load_name = load_values(load, sample_info, sample_labels,
+                                                        origin)
+        elif spike is not None:
+            load_name = f"load from spike-in {spike['taxon']!r}"
 
-        dropped_samples: list[str] = []
-        dropped_taxa: list[str] = []
-        if empty != "keep":
-            row_zero = values.sum(axis=1) == 0
-            col_zero = values.sum(axis=0) == 0
-            if empty == "error" and row_zero.any():
-                bad = sample_labels[row_zero]
-                raise InputError(
-                    f"{len(bad)} sample(s) have a total of 0: {_listing(bad)}.",
-                    location=origin.label(bad[0], "samples"),
-                    hint="Remove them, or load with empty='drop' (they are then listed in "
-                         "table.dropped).")
-            if empty == "error" and col_zero.any():
-                bad = taxon_labels[col_zero]
-                raise InputError(
-                    f"{len(bad)} taxon/taxa are never observed (all counts 0): {_listing(bad)}.",
-                    location=origin.label(bad[0], "taxa"),
-                    hint="Remove them, or load with empty='drop' (they are then listed in "
-                         "table.dropped).")
-            if row_zero.any() or col_zero.any():
-                dropped_samples = list(sample_labels[row_zero])
-                keep_r = ~row_zero
-                # taxa seen only in dropped samples become empty too
-                col_zero = values[keep_r].sum(axis=0) == 0
-                dropped_taxa = list(taxon_labels[col_zero])
-                keep_c = ~col_zero
-                values = values[keep_r][:, keep_c]
-                sample_labels = sample_labels[keep_r]
-                taxon_labels = taxon_labels[keep_c]
-                sample_info = sample_info.loc[list(sample_labels)]
-                taxon_info = taxon_info.loc[list(taxon_labels)]
-                if effort_values is not None:
-                    effort_values = effort_values[keep_r]
+        keep_r, keep_c, dropped_samples, dropped_taxa = empty_policy(
+            values, sample_labels, taxon_labels, origin, empty)
+        if dropped_samples or dropped_taxa:
+            values = values[keep_r][:, keep_c]
+            sample_labels, taxon_labels = sample_labels[keep_r], taxon_labels[keep_c]
+            sample_info = sample_info.loc[list(sample_labels)]
+            taxon_info = taxon_info.loc[list(taxon_labels)]
+            per_sample = {k: (None if v is None else v[keep_r]) for k, v in per_sample.items()}
         if values.shape[0] < 2:
             raise InputError(
                 f"the table has {values.shape[0]} sample(s); comparing samples needs at least 2"
@@ -331,24 +162,39 @@ class CommunityTable:
             raise InputError("the table has no taxa with a count above 0.",
                              location=Location(file=origin.file))
 
-        values = np.ascontiguousarray(values)
-        values.setflags(write=False)
-        self._values = values
+        notes: list[str] = []
+        reads = loads = None
+        if abundance == "relative":
+            reads = _frozen(values, copy=False)
+            notes += [n for n in [depth_note(reads)] if n]
+            if load_name is not None:
+                values, loads, load_notes = absolute_from_reads(
+                    reads, per_sample.get("load"), sample_labels, origin,
+                    spike=per_sample.get("spike"), added=per_sample.get("added"),
+                    spike_taxon=None if spike is None else spike["taxon"], load_name=load_name)
+                notes += load_notes
+        self._values = _frozen(values, copy=False)
         self._sample_labels = pd.Index(sample_labels, name="sample", dtype=object)
         self._taxon_labels = pd.Index(taxon_labels, name="taxon", dtype=object)
         sample_info.index = self._sample_labels
         taxon_info.index = self._taxon_labels
         self._samples = sample_info
         self._taxa = taxon_info
-        if effort_values is not None:
-            effort_values = effort_values.copy()
-            effort_values.setflags(write=False)
-        self._effort_values = effort_values
+        self._effort_values = _frozen(per_sample["effort"])
         self._effort_name = effort_name
+        self._abundance = abundance
+        self._reads = reads
+        self._load_values = _frozen(loads)
+        self._load_name = load_name
+        self._spike_in = spike
+        self._spike_reads = _frozen(per_sample.get("spike"))
         self._dropped = {"samples": tuple(dropped_samples), "taxa": tuple(dropped_taxa)}
         self._origin = origin
-        self._notes: tuple[str, ...] = ()
         self._cache: dict = {}
+        if abundance == "absolute":
+            hint = sequencing_hint(self._values, lambda: self.is_integer)
+            notes += [hint] if hint else []
+        self._notes: tuple[str, ...] = tuple(notes)
 
     # ------------------------------------------------------------------ construction helpers
     @staticmethod
@@ -374,55 +220,24 @@ class CommunityTable:
     def _effort(effort, info: pd.DataFrame, labels: pd.Index, origin: Origin):
         if effort is None:
             return None, None
-        if isinstance(effort, str):
-            if effort not in info.columns:
-                raise DesignError(
-                    f"effort column {effort!r} is not in the sample table "
-                    f"(columns: {_listing(info.columns)}).",
-                    location=Location(file=info.attrs.get("file", origin.file),
-                                      column=repr(effort)),
-                    hint="Name one of the sample table's columns (case counts), or pass one "
-                         "positive value per sample.")
-            raw, name = info[effort], effort
-        else:
-            raw, name = effort, getattr(effort, "name", None) or "effort"
-            if isinstance(raw, pd.Series):
-                raw = raw.copy()
-                raw.index = [str(i) for i in raw.index]
-                if set(raw.index) == set(labels):
-                    raw = raw.loc[list(labels)]
-            raw = pd.Series(np.asarray(raw).ravel() if not isinstance(raw, pd.Series) else
-                            raw.to_numpy(), index=None)
-            if len(raw) != len(labels):
-                raise InputError(f"effort has {len(raw)} value(s) for {len(labels)} samples.")
-            raw.index = labels
-        num = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
-        bad = ~np.isfinite(num) | (num <= 0)
-        if bad.any():
-            i = int(np.flatnonzero(bad)[0])
-            # a sample table read from a file knows its lines and columns (read_samples)
-            attrs = getattr(info, "attrs", {}) if isinstance(effort, str) else {}
-            line = attrs.get("lines", {}).get(labels[i])
-            col = attrs.get("columns", {}).get(name)
-            raise InputError(
-                f"sampling effort must be a positive number; sample {labels[i]!r} has "
-                f"{_shown(raw.iloc[i])} ({int(bad.sum())} such sample(s)).",
-                location=Location(file=attrs.get("file", origin.file),
-                                  row=(f"line {line} " if line else "") + f"(sample {labels[i]!r})",
-                                  column=(f"column {col} " if col else "") + f"({name!r})"),
-                hint="Effort (trap nights, volume, reads...) divides the totals; it cannot be "
-                     "zero, negative or missing.")
-        return num, name
+        return per_sample_values(
+            effort, info, labels, origin, role="effort", noun="sampling effort",
+            hint="Effort (trap nights, volume, reads...) divides the totals; it cannot be "
+                 "zero, negative or missing.")
 
     # ------------------------------------------------------------------ views
     @property
     def values(self) -> np.ndarray:
-        """Counts as a read-only float64 array, shape (n_samples, n_taxa)."""
+        """The abundances analyses use, as a read-only float64 array (n_samples, n_taxa).
+
+        The counts as given, except for a relative table with loads: there, the absolute
+        abundances profile x load (the reads are in :attr:`reads`).
+        """
         return self._values
 
     @property
     def counts(self) -> pd.DataFrame:
-        """Counts as a DataFrame (a copy: editing it never changes the table)."""
+        """:attr:`values` as a DataFrame (a copy: editing it never changes the table)."""
         return pd.DataFrame(self._values.copy(), index=self._sample_labels.copy(),
                             columns=self._taxon_labels.copy())
 
@@ -458,19 +273,29 @@ class CommunityTable:
 
     @property
     def totals(self) -> pd.Series:
-        """Sample totals r_i = sum_j x_ij: each sample's *size*."""
+        """Sample totals r_i = sum_j x_ij: each sample's *size*.
+
+        For a relative table with loads, the loads themselves (the absolute sizes that size
+        tests use); for a relative table without loads, the sequencing depths, which size
+        results refuse (see :attr:`abundance`).
+        """
         if "totals" not in self._cache:
-            t = self._values.sum(axis=1)
+            t = (self._values.sum(axis=1) if self._load_values is None
+                 else self._load_values.copy())
             t.setflags(write=False)
             self._cache["totals"] = t
         return pd.Series(self._cache["totals"].copy(), index=self._sample_labels, name="total")
 
     @property
     def profiles(self) -> pd.DataFrame:
-        """Relative abundances a_ij = x_ij / r_i: each sample's *shape* (rows sum to 1)."""
-        t = self._values.sum(axis=1, keepdims=True)
+        """Relative abundances a_ij = x_ij / r_i: each sample's *shape* (rows sum to 1).
+
+        The same for every reading of the totals (from the reads in a relative table).
+        """
+        v = self._values if self._reads is None else self._reads
+        t = v.sum(axis=1, keepdims=True)
         with np.errstate(invalid="ignore", divide="ignore"):
-            prof = np.where(t > 0, self._values / np.where(t > 0, t, 1.0), 0.0)
+            prof = np.where(t > 0, v / np.where(t > 0, t, 1.0), 0.0)
         return pd.DataFrame(prof, index=self._sample_labels.copy(),
                             columns=self._taxon_labels.copy())
 
@@ -485,6 +310,54 @@ class CommunityTable:
     @property
     def effort_name(self) -> str | None:
         return self._effort_name
+
+    @property
+    def abundance(self) -> str:
+        """'absolute' (totals are sizes) or 'relative' (reads, percentages: totals are
+        technical unless a load is given)."""
+        return self._abundance
+
+    @property
+    def load(self) -> pd.Series | None:
+        """Absolute abundance per sample of a relative table (measured, or from the
+        spike-in), or None."""
+        if self._load_values is None:
+            return None
+        return pd.Series(self._load_values.copy(), index=self._sample_labels,
+                         name=self._load_name)
+
+    @property
+    def load_name(self) -> str | None:
+        return self._load_name
+
+    @property
+    def spike_in(self) -> dict | None:
+        """``{'taxon': label, 'added': column}`` of the spike-in (removed from the taxa)."""
+        return None if self._spike_in is None else dict(self._spike_in)
+
+    @property
+    def spike_reads(self) -> pd.Series | None:
+        """Reads of the spike-in taxon per sample, or None."""
+        if self._spike_reads is None:
+            return None
+        return pd.Series(self._spike_reads.copy(), index=self._sample_labels,
+                         name=f"{self._spike_in['taxon']} reads")
+
+    @property
+    def reads(self) -> pd.DataFrame | None:
+        """The reads of a relative table as given (spike-in removed), or None for an
+        absolute table. Methods that need counts (rarefaction, counting noise) use them."""
+        if self._reads is None:
+            return None
+        return pd.DataFrame(self._reads.copy(), index=self._sample_labels.copy(),
+                            columns=self._taxon_labels.copy())
+
+    @property
+    def depth(self) -> pd.Series | None:
+        """Reads per sample (sequencing depth, spike-in excluded) of a relative table."""
+        if self._reads is None:
+            return None
+        return pd.Series(self._reads.sum(axis=1), index=self._sample_labels, name="reads")
 
     @property
     def dropped(self) -> dict[str, tuple[str, ...]]:
@@ -520,6 +393,10 @@ class CommunityTable:
                      .to_numpy().tobytes())
             if self._effort_values is not None:
                 h.update(self._effort_values.tobytes())
+            if self._abundance != "absolute":
+                h.update(f"{self._abundance}\x1d{self._load_name}\x1d{self._spike_in}".encode())
+                if self._reads is not None and self._load_values is not None:
+                    h.update(self._reads.tobytes())
             self._cache["fingerprint"] = h.hexdigest()[:16]
         return self._cache["fingerprint"]
 
@@ -605,6 +482,8 @@ class CommunityTable:
             "taxa dropped (empty)": len(self._dropped["taxa"]),
             "sample information columns": ", ".join(map(str, self._samples.columns)) or "(none)",
             "effort column": self._effort_name or "(none)",
+            **{k: num(x) if isinstance(x, float) else x
+               for k, x in relative_summary(self).items()},
         }
         if self._effort_values is not None:
             facts["effort, min"] = num(self._effort_values.min())
@@ -628,14 +507,28 @@ class CommunityTable:
         """
         rows = self._select(samples, self._sample_labels, self._samples, "sample")
         cols = self._select(taxa, self._taxon_labels, self._taxa, "taxon")
-        counts = pd.DataFrame(self._values[np.ix_(rows, cols)],
-                              index=self._sample_labels[rows], columns=self._taxon_labels[cols])
+        labels = self._sample_labels[rows]
+        source = self._values if self._reads is None else self._reads
+        counts = pd.DataFrame(source[np.ix_(rows, cols)], index=labels,
+                              columns=self._taxon_labels[cols])
         effort = None if self._effort_values is None else self._effort_values[rows]
+        relative = {}
+        if self._abundance == "relative":
+            relative["abundance"] = "relative"
+        if self._load_values is not None:
+            # the kept taxa keep their absolute abundances: the load is their sum (samples
+            # left without reads get a placeholder, then follow the empty policy)
+            kept = self._values[np.ix_(rows, cols)].sum(axis=1)
+            relative["load"] = pd.Series(np.where(kept > 0, kept, 1.0), index=labels,
+                                         name=self._load_name)
         out = CommunityTable(counts, self._samples.iloc[rows], self._taxa.iloc[cols],
                              effort=None if effort is None else pd.Series(
-                                 effort, index=self._sample_labels[rows],
-                                 name=self._effort_name),
-                             empty=empty, origin=self._origin)
+                                 effort, index=labels, name=self._effort_name),
+                             empty=empty, origin=self._origin, **relative)
+        if self._spike_in is not None:
+            at = {s: i for i, s in enumerate(self._sample_labels)}
+            out._spike_in = dict(self._spike_in)
+            out._spike_reads = _frozen(self._spike_reads[[at[s] for s in out.sample_labels]])
         prev = self._dropped
         out._dropped = {"samples": tuple(prev["samples"]) + out._dropped["samples"],
                         "taxa": tuple(prev["taxa"]) + out._dropped["taxa"]}
@@ -669,6 +562,10 @@ class CommunityTable:
     def __repr__(self) -> str:
         src = f" from {self._origin.file!r}" if self._origin.file else ""
         eff = f", effort={self._effort_name!r}" if self._effort_name else ""
+        if self._abundance != "absolute":
+            eff += f", abundance={self._abundance!r}"
+            eff += (f", spike_in={self._spike_in!r}" if self._spike_in is not None else
+                    f", load={self._load_name!r}" if self._load_name else "")
         return (f"CommunityTable({self.n_samples} samples x {self.n_taxa} taxa{src}; "
                 f"sample information: {list(self._samples.columns)}{eff})")
 

@@ -52,6 +52,12 @@ REFERENCES = {
                      "Chapman & Hall, London.",
     "hotelling1931": "Hotelling H (1931) The generalization of Student's ratio. Annals of "
                      "Mathematical Statistics 2:360-378.",
+    "vandeputte2017": "Vandeputte D, Kathagen G, D'hoe K, et al. (2017) Quantitative "
+                      "microbiome profiling links gut community variation to microbial load. "
+                      "Nature 551:507-511.",
+    "stammler2016": "Stammler F, Glasner J, Hiergeist A, et al. (2016) Adjusting microbiome "
+                    "profiles for differences in microbial load by spike-in bacteria. "
+                    "Microbiome 4:28.",
 }
 
 _TRANSFORM_WORDS = {
@@ -100,6 +106,28 @@ def _measure_label(name: str) -> str:
     return getattr(rec, "label", name) if rec is not None else name
 
 
+def _abundance_words(spec) -> list[str]:
+    """What the totals were taken to mean (``spec.abundance``, ``load``, ``spike_in``)."""
+    if spec.abundance is None:
+        return []
+    if spec.abundance == "absolute":
+        return ["Sample totals were taken as absolute abundances (sizes)."]
+    text = ("Counts were treated as relative abundances (sequencing reads), whose totals are "
+            "technical")
+    if spec.load is not None:
+        return [text + f"; each sample's absolute abundance was its measured load "
+                       f"({spec.load}), and absolute abundances were profile x load "
+                       "(Vandeputte et al. 2017)."]
+    if spec.spike_in is not None:
+        return [text + f"; each sample's absolute abundance was estimated from a spike-in "
+                       f"({spec.spike_in['taxon']}) added in a known amount "
+                       f"({spec.spike_in['added']}) as added x (reads - spike-in reads) / "
+                       "spike-in reads (Stammler et al. 2016), the spike-in was removed from "
+                       "the profiles, and absolute abundances were profile x load "
+                       "(Vandeputte et al. 2017)."]
+    return [text + ", so sizes were not compared; composition and spread were."]
+
+
 def methods_text(spec, results=None, *, software: dict | None = None) -> str:
     """A methods paragraph naming every choice of ``spec`` (and, with ``results``, the
     numbers decided from the data, such as the shape dimensions used)."""
@@ -115,6 +143,7 @@ def methods_text(spec, results=None, *, software: dict | None = None) -> str:
     parts[-1] += (f" (Python {sw.get('python', '?')}, numpy {sw.get('numpy', '?')}, scipy "
                   f"{sw.get('scipy', '?')}, pandas {sw.get('pandas', '?')}, statsmodels "
                   f"{sw.get('statsmodels', '?')}).")
+    parts.extend(_abundance_words(spec))
     measure = _measure_label(spec.measure)
     parts.append(f"Abundances were {_transform_words(spec.transform)} and compared with the "
                  f"{measure} dissimilarity.")

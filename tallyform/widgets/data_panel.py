@@ -1,4 +1,5 @@
-"""The Data panel: what the table holds, totals by group, empty and rare taxa, effort.
+"""The Data panel: what the table holds, what its totals mean (absolute abundances,
+sequencing depths, or loads), totals by group, empty and rare taxa, effort.
 
 Core calls: ``tab.summary()``, ``tab.totals_by(column, per_effort=...)``; the figure is
 ``tly.plots.totals_figure(tab, column, per_effort=...)``.
@@ -60,12 +61,16 @@ class DataPanel(widgets.VBox):
         self.facts.add_class("tf-data-summary")
         self.facts.layout.margin = "0 32px 0 0"
         self.facts.layout.max_width = "560px"
+        self.meaning = widgets.HTML(_meaning_html(table))
+        self.meaning.add_class("tf-abundance")
+        self.meaning.layout.max_width = "640px"
         self.totals = widgets.HTML()
         self.totals.add_class("tf-totals-table")
         self.totals_plot = new_figure_widget("tf-totals-plot")
         self.messages = MessageArea()
         super().__init__([
-            widgets.HBox([self.facts, widgets.VBox([widgets.HBox(self.controls), self.totals])],
+            widgets.HBox([self.facts, widgets.VBox([self.meaning, widgets.HBox(self.controls),
+                                                    self.totals])],
                          layout=widgets.Layout(flex_flow="row wrap")),
             self.messages, self.totals_plot])
         self.add_class("tf-panel-data")
@@ -81,8 +86,13 @@ class DataPanel(widgets.VBox):
         self.refresh()
 
     def spec_values(self) -> dict:
-        """This panel's choices under their :class:`tallyform.AnalysisSpec` names."""
-        return {"group": self.group.value or None}
+        """This panel's choices under their :class:`tallyform.AnalysisSpec` names (with how
+        a relative table was read: ``abundance``, ``load``, ``spike_in``)."""
+        from ..core.spec import AnalysisSpec
+        out = {"group": self.group.value or None}
+        if self._table.abundance != "absolute":
+            out.update(AnalysisSpec.options_of(self._table))
+        return out
 
     def refresh(self, change=None) -> None:
         """Totals by the chosen group: table and figure."""
@@ -112,7 +122,9 @@ class DataPanel(widgets.VBox):
             with self.totals_plot.batch_update():
                 self.totals_plot.data = ()
         else:
-            what = "totals per effort" if per_effort else "sample totals"
+            what = {"absolute": "sample totals", "relative": "sequencing depths",
+                    "load": "absolute loads"}[_kind(self._table)]
+            what = f"{what} per effort" if per_effort else what
             self.totals.value = (f"<p><b>{html.escape(what.capitalize())} by "
                                  f"{html.escape(column)}</b></p>" + html_table(self.result))
             copy_figure(self.totals_plot, fig)
@@ -124,6 +136,28 @@ class DataPanel(widgets.VBox):
             w.layout.display = "none" if on or (w is self.per_effort
                                                  and self._table.effort is None) else None
         self.refresh()
+
+
+def _kind(table) -> str:
+    if table.abundance == "absolute":
+        return "absolute"
+    return "relative" if table.load is None else "load"
+
+
+def _meaning_html(table) -> str:
+    """What the totals mean, in words (the core's phrase), with what follows from it."""
+    from ..core.abundance import totals_meaning
+    text = html.escape(totals_meaning(table).replace("totals are ", "", 1))
+    kind = _kind(table)
+    if kind == "absolute":
+        return f"<p><b>Totals</b> are {text}, so sizes can be compared.</p>"
+    if kind == "relative":
+        return ("<p class='tf-warning' style='color:#A33'><b>Totals are not sizes</b>: they "
+                f"are {text}. Give each sample's absolute abundance when reading the table "
+                "(<code>load='column'</code> or <code>spike_in={'taxon': ..., 'added': "
+                "'column'}</code>) to test size; composition and spread tests run as "
+                "usual.</p>")
+    return f"<p><b>Totals</b> are {text}.</p>"
 
 
 def _facts_html(table, summary) -> str:

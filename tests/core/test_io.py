@@ -207,6 +207,9 @@ def test_demo_scenarios_load():
     assert set(tab.samples["treatment"]) == {"control", "nutrient_low", "nutrient_high"}
     moths = tly.demo("moths")
     assert moths.effort_name == "trap_nights" and moths.n_samples == 48
+    soil = tly.demo("soil")
+    assert soil.shape == (24, 200) and soil.abundance == "relative"
+    assert soil.load_name == "qpcr_copies_per_g" and "spike_in" not in soil.taxon_labels
     with pytest.raises(InputError, match="unknown demo"):
         tly.demo("coral")
 
@@ -223,6 +226,12 @@ def test_demo_effects_are_as_designed():
     gm = tab.totals_by("treatment")["geometric_mean"]
     assert gm["nutrient_low"] < 0.6 * gm["control"]
     assert 0.7 * gm["control"] < gm["nutrient_high"] < 1.3 * gm["control"]
+    # soil: pasture holds fewer bacteria (loads) but was sequenced deeper (reads)
+    soil = tly.demo("soil")
+    loads = soil.totals_by("land_use")["geometric_mean"]
+    assert loads["pasture"] < 0.6 * loads["forest"]
+    depth = soil.depth.groupby(soil.samples["land_use"]).median()
+    assert depth["pasture"] > 1.8 * depth["forest"]
 
 
 # ---------------------------------------------------------------------------- bad inputs

@@ -267,6 +267,22 @@ def bad_cases():
         ("design_unknown_column.csv", d_counts, "permanova",
          {"samples": "design_info.csv", "group": "treatment"}, "DesignError",
          ["'treatment'", "not in the sample table"]),
+        # ---- relative data (reads): loads and spike-ins
+        ("relative_load_zero.csv", WIDE, "read_counts",
+         {"samples": "relative_load_info.csv", "abundance": "relative", "load": "copies"},
+         "InputError", ["relative_load_info.csv", "line 3", "column 4 ('copies')", "'s2'",
+                        "positive"]),
+        ("relative_load_missing.csv", WIDE, "read_counts",
+         {"samples": "relative_missing_info.csv", "abundance": "relative", "load": "copies"},
+         "InputError", ["relative_missing_info.csv", "line 4", "column 4 ('copies')", "'s3'",
+                        "positive"]),
+        ("relative_spike_absent.csv", WIDE, "read_counts",
+         {"samples": "relative_spike_info.csv", "abundance": "relative",
+          "spike_in": {"taxon": "Tb", "added": "nights"}}, "InputError",
+         ["relative_spike_absent.csv", "line 2", "column 3 ('Tb')", "'s1'", "no reads"]),
+        ("relative_load_absolute.csv", WIDE, "read_counts",
+         {"samples": "relative_spike_info.csv", "load": "nights"}, "InputError",
+         ["`load=`", "abundance='absolute'", "abundance='relative'"]),
     ]
     extra = {  # companion files referred to by the options above
         "samples_mismatch_info.csv": "sample,site\ns1,a\ns2,a\ns4,b\n",
@@ -278,6 +294,11 @@ def bad_cases():
         "dwc_duplicate_events.csv": EVENTS.replace("e2,field,4", "e1,field,4"),
         "design_one_group_info.csv": d_one,
         "design_info.csv": d_info,
+        "relative_load_info.csv": "sample,site,nights,copies\ns1,north,2,1000\n"
+                                  "s2,north,1,0\ns3,south,3,2000\n",
+        "relative_missing_info.csv": "sample,site,nights,copies\ns1,north,2,1000\n"
+                                     "s2,north,1,1500\ns3,south,3,\n",
+        "relative_spike_info.csv": SAMPLES,
     }
     return cases, extra
 

@@ -21,7 +21,8 @@ OTHER = {  # a different valid value for every choice of the spec
     "scan_measures": ("bray_curtis", "hellinger"), "scan_transforms": ("none", "log1p"),
     "contrast": ("control", "nutrient_low"), "contribution_measure": "chi_square",
     "audit_n_sim": 500, "audit_n_permutations": 99, "audit_model": "multinomial",
-    "audit_reference": "hellinger", "alpha": 0.01,
+    "audit_reference": "hellinger", "alpha": 0.01, "abundance": "relative",
+    "load": "qpcr_copies", "spike_in": {"taxon": "spike", "added": "spike_copies"},
 }
 
 
@@ -30,7 +31,11 @@ def test_every_choice_changes_the_text():
     assert names == set(OTHER), names ^ set(OTHER)
     base = methods_text(BASE)
     for key, value in OTHER.items():
-        changed = BASE.replace(**{key: value})
+        if key in ("load", "spike_in"):         # loads go with relative data
+            changed = BASE.replace(abundance="relative", **{key: value})
+            assert methods_text(changed) != methods_text(BASE.replace(abundance="relative"))
+        else:
+            changed = BASE.replace(**{key: value})
         if key == "correction":                 # the correction only shows with PCoA
             changed = changed.replace(ordination="pcoa")
         assert methods_text(changed) != base, key

@@ -41,11 +41,14 @@ def _sizes(n: int) -> tuple:
 def _counts(rng, gen, totals, shift=None):
     """Counts for the totals; ``shift`` (n x p) multiplies each sample's base profile."""
     base = base_profile(TAXA, rng)
+    kw = {}
+    if gen == "multinomial":                 # counting noise only (no biology)
+        gen, kw = "lognormal", {"sd": 0.0}
     if shift is None:
-        x = counts_from(gen, totals, base, rng)
+        x = counts_from(gen, totals, base, rng, **kw)
     else:
         x = np.vstack([counts_from(gen, totals[i:i + 1], base * shift[i] / np.sum(
-            base * shift[i]), rng) for i in range(len(totals))])
+            base * shift[i]), rng, **kw) for i in range(len(totals))])
     x[:, x.sum(axis=0) == 0] = 0.0
     empty = x.sum(axis=1) == 0
     x[empty, 0] = 1.0
@@ -53,7 +56,7 @@ def _counts(rng, gen, totals, shift=None):
     return x[:, keep]
 
 
-def _frame(rng, n, *, real=0.0, heavy=1.0, axis_effect=0.0):
+def _frame(rng, n, *, real=0.0, heavy=1.0, axis_effect=0.0, heavy_group="c", scale=300.0):
     """Sample information and the per-sample composition shift and mean total.
 
     ``g``: noise factor (unbalanced), ``x``: noise covariate, ``z``: covariate with a real
@@ -70,8 +73,8 @@ def _frame(rng, n, *, real=0.0, heavy=1.0, axis_effect=0.0):
     grad2 = rng.standard_normal(TAXA)
     shift = np.exp(real * info["z"].to_numpy()[:, None] * grad[None, :] +
                    axis_effect * (f == "c")[:, None] * grad2[None, :])
-    mean_total = 300.0 * np.exp(0.5 * rng.standard_normal(n) + 0.3 * real * info["z"].to_numpy())
-    mean_total = mean_total * np.where(g == "a", heavy, 1.0)
+    mean_total = scale * np.exp(0.5 * rng.standard_normal(n) + 0.3 * real * info["z"].to_numpy())
+    mean_total = mean_total * np.where(g == heavy_group, heavy, 1.0)
     totals = np.maximum(rng.poisson(mean_total), 5)
     return info, shift, totals
 
@@ -88,8 +91,9 @@ def _ordination(method, x, info, terms, conditions, *, profile=False):
 
 
 def _study(rng, *, method, n, gen, terms, row, scope="all", ss="sequential", conditions=None,
-           real=0.0, heavy=1.0, axis_effect=0.0):
-    info, shift, totals = _frame(rng, n, real=real, heavy=heavy, axis_effect=axis_effect)
+           real=0.0, heavy=1.0, axis_effect=0.0, heavy_group="c", scale=300.0):
+    info, shift, totals = _frame(rng, n, real=real, heavy=heavy, axis_effect=axis_effect,
+                                 heavy_group=heavy_group, scale=scale)
     x = _counts(rng, gen, totals, shift if (real or axis_effect) else None)
     o = _ordination(method, x, info, terms, conditions, profile=heavy != 1.0)
     ct = constraint_test(o, scope, n_permutations=PERMS, rng=rng, ss=ss, units=False)
@@ -100,12 +104,12 @@ def _study(rng, *, method, n, gen, terms, row, scope="all", ss="sequential", con
 
 
 def _tanks(rng, *, method, gen, units):
-    """8 tanks x 3 visits, treatment applied to tanks (4 + 4), strong tank effects on
+    """10 tanks x 3 visits, treatment applied to tanks (5 + 5), strong tank effects on
     composition, no treatment effect."""
-    tanks, visits = 8, 3
+    tanks, visits = 10, 3
     n = tanks * visits
     code = np.repeat(np.arange(tanks), visits)
-    info = pd.DataFrame({"treatment": np.where(code < 4, "control", "warm"),
+    info = pd.DataFrame({"treatment": np.where(code < 5, "control", "warm"),
                          "tank": [f"T{c}" for c in code]}, index=[f"s{i:02d}" for i in range(n)])
     tank_grad = rng.standard_normal((tanks, TAXA))
     shift = np.exp(0.8 * tank_grad[code])
@@ -147,29 +151,43 @@ def _method_cells(method):
               scope="each_term", ss="marginal", real=0.8, row="x"),
         _cell("axis1-null-n12", m, "first axis, noise factor (3/4/5), n = 12, gamma-Poisson",
               n=12, gen="gamma_poisson", terms=["g"], scope="each_axis",
-              row=f"{'db-RDA' if m == 'db-RDA' else m}1"),
+              row=f"{m}1"),
         _cell("axis2-n30", m, "second axis when the first is real (one level of a factor "
-              "moves composition along one gradient), n = 30, log-normal", n=30,
-              gen="lognormal", terms=["f"], scope="each_axis", axis_effect=1.0,
-              row=f"{'db-RDA' if m == 'db-RDA' else m}2"),
-        _cell("axis2-cond-n12", m, "second axis when the first is real, given a real "
-              "covariate, n = 12, Dirichlet-multinomial", n=12, gen="dirichlet",
-              terms=["f"], conditions=["z"], real=0.8, scope="each_axis", axis_effect=1.2,
-              row=f"{'db-RDA' if m == 'db-RDA' else m}2"),
+              "moves composition along one gradient, effect 1.5), n = 30, log-normal", n=30,
+              gen="lognormal", terms=["f"], scope="each_axis", axis_effect=1.5,
+              row=f"{m}2"),
+        _cell("axis2-cond-n12", m, "second axis when the first is real (effect 2), given a "
+              "real covariate, n = 12, Dirichlet-multinomial", n=12, gen="dirichlet",
+              terms=["f"], conditions=["z"], real=0.8, scope="each_axis", axis_effect=2.0,
+              row=f"{m}2"),
+        _cell("axis2-weak-n30", m, "second axis when the first is real but moderate "
+              "(effect 1), n = 30, log-normal", n=30, gen="lognormal", terms=["f"],
+              scope="each_axis", axis_effect=1.0, row=f"{m}2", reps=400, check=False),
     ]
-    heavy = _cell("totals-differ-n30", m, "noise factor, totals 3x higher in group a, n = 30, "
-                  "log-normal" + (" (Bray-Curtis of profiles)" if m == "db-RDA" else ""),
-                  n=30, gen="lognormal", terms=["g"], heavy=3.0, row="all terms",
-                  check=m != "CCA")
-    cells.append(heavy)
+    cells.append(_cell("totals-differ-n30", m, "noise factor, totals 3x higher in the "
+                       "largest group (14 of 30), log-normal"
+                       + (" (Bray-Curtis of profiles)" if m == "db-RDA" else ""),
+                       n=30, gen="lognormal", terms=["g"], heavy=3.0, row="all terms",
+                       check=m != "CCA"))
+    cells.append(_cell("totals-differ-small-n30", m, "noise factor, totals 3x higher in the "
+                       "smallest group (6 of 30), log-normal"
+                       + (" (Bray-Curtis of profiles)" if m == "db-RDA" else ""),
+                       n=30, gen="lognormal", terms=["g"], heavy=3.0, heavy_group="a",
+                       row="all terms", check=m != "CCA", reps=400 if m == "CCA" else 1000))
+    if m == "CCA":
+        cells.append(_cell("totals-differ-sparse-n12", m, "noise factor (3/4/5), totals "
+                           "5x higher in the largest group, about 20 individuals per "
+                           "sample, counting noise only", n=12, gen="multinomial",
+                           terms=["g"], heavy=5.0, scale=20.0, row="all terms", reps=400,
+                           check=False))
     cells.append(Cell(f"constrained/{m.lower()}-tanks-units", "constrained ordination",
                       f"constraint_test({m}, units='tank')",
-                      "8 tanks x 3 visits, treatment on tanks, tank effects, log-normal",
+                      "10 tanks x 3 visits, treatment on tanks, tank effects, log-normal",
                       lambda rng: _tanks(rng, method=m, gen="lognormal", units="tank"),
                       reps=1000, short_reps=60, seed=_seed(f"{m}-tanks-units")))
     cells.append(Cell(f"constrained/{m.lower()}-tanks-no-units", "constrained ordination",
                       f"constraint_test({m}, units=False)",
-                      "8 tanks x 3 visits, treatment on tanks, tank effects, log-normal",
+                      "10 tanks x 3 visits, treatment on tanks, tank effects, log-normal",
                       lambda rng: _tanks(rng, method=m, gen="lognormal", units=False),
                       reps=400, short_reps=60, check=False, seed=_seed(f"{m}-tanks")))
     return cells

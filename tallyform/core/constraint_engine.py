@@ -49,6 +49,7 @@ import pandas as pd
 import scipy.linalg
 
 from .errors import Cancelled, DesignError
+from .memory import check_memory
 from .permutation import TIE_RTOL, Permutations
 
 __all__ = ["ConstraintData", "Rows", "FTest", "f_test", "fitted_axes", "indicator_columns",
@@ -145,6 +146,10 @@ class Rows:
             f = self.features - Q @ (Q.T @ self.features)
             return Rows(self.n, f, None, self.weights, self.columns)
         g = self.gower
+        check_memory(2 * self.n * self.n * 8, f"the {self.n} x {self.n} matrix of "
+                     "reduced-model residuals",
+                     alternatives="Use a measure with a feature matrix (the feature path "
+                                  "needs no n x n matrix).")
         gq = g @ Q
         r = g - gq @ Q.T - Q @ gq.T + Q @ ((Q.T @ gq) @ Q.T)
         return Rows(self.n, None, (r + r.T) / 2, self.weights, self.columns)
@@ -254,6 +259,27 @@ def _bases(D: np.ndarray, sw: np.ndarray) -> np.ndarray:
     return q
 
 
+def _permuted_bases(Dt: np.ndarray, idx: np.ndarray, sw: np.ndarray) -> np.ndarray:
+    """Orthonormal bases of the permuted, re-weighted designs, as k x B x n.
+
+    ``Dt`` is the design transposed (k x n, full column rank), ``idx`` the B permutations.
+    Classical Gram-Schmidt applied twice (numerically as good as Householder QR for the few,
+    well-conditioned columns of a design), vectorised over the permutations.
+    """
+    A = np.take(Dt, idx, axis=1) * sw                    # k x B x n
+    u = sw / np.linalg.norm(sw)
+    k = A.shape[0]
+    for j in range(k):
+        v = A[j]
+        for _ in range(2):
+            v -= np.outer(v @ u, u)
+            if j:
+                c = np.einsum("kbn,bn->kb", A[:j], v)
+                v -= np.einsum("kb,kbn->bn", c, A[:j])
+        v /= np.linalg.norm(v, axis=1, keepdims=True)
+    return A
+
+
 # ---------------------------------------------------------------------------- statistics
 def _clean(ss, total):
     tol = _SS_RTOL * abs(float(total))
@@ -284,24 +310,27 @@ def permutation_pvalue(observed: float, null: np.ndarray, *, exact: bool) -> flo
     return hits / null.size if exact else (1 + hits) / (1 + null.size)
 
 
-def _block_stats(Q: np.ndarray, resp: Rows, kr: int, kt: int, first: bool):
-    """Per permutation: (S(R), S(T), S(L), numerator) for bases Q (B x n x k)."""
+def _block_stats(U: np.ndarray, resp: Rows, kr: int, kt: int, first: bool):
+    """Per permutation: (S(R), S(T), S(L), numerator) for bases U (k x B x n, contiguous:
+    basis column, permutation, row), so that one BLAS product serves the whole block."""
+    k, B, n = U.shape
+    flat = U.reshape(k * B, n)
     if resp.features is not None:
-        V = np.einsum("bnk,nq->bkq", Q, resp.features, optimize=True)
-        sq = np.einsum("bkq,bkq->bk", V, V)
+        V = (flat @ resp.features).reshape(k, B, -1)
+        sq = np.einsum("kbq,kbq->kb", V, V)
     else:
-        GQ = np.einsum("nm,bmk->bnk", resp.gower, Q, optimize=True)
-        sq = np.einsum("bnk,bnk->bk", Q, GQ)
-    s_r = sq[:, :kr].sum(axis=1)
-    s_t = sq[:, kr:kr + kt].sum(axis=1)
-    s_l = sq[:, kr + kt:].sum(axis=1)
+        GU = (flat @ resp.gower).reshape(k, B, n)
+        sq = np.einsum("kbn,kbn->kb", U, GU)
+    s_r = sq[:kr].sum(axis=0)
+    s_t = sq[kr:kr + kt].sum(axis=0)
+    s_l = sq[kr + kt:].sum(axis=0)
     if not first:
         return s_r, s_t, s_l, s_t
     if resp.features is not None:
-        Vt = V[:, kr:kr + kt]
-        M = np.einsum("bkq,bjq->bkj", Vt, Vt)
+        Vt = V[kr:kr + kt]
+        M = np.einsum("kbq,jbq->bkj", Vt, Vt)
     else:
-        M = np.einsum("bnk,bnj->bkj", Q[:, :, kr:kr + kt], GQ[:, :, kr:kr + kt])
+        M = np.einsum("kbn,jbn->bkj", U[kr:kr + kt], GU[kr:kr + kt])
     M = (M + np.swapaxes(M, 1, 2)) / 2
     return s_r, s_t, s_l, np.linalg.eigvalsh(M)[:, -1]
 
@@ -356,7 +385,9 @@ def f_test(rows: Rows, reduced: np.ndarray, tested: np.ndarray, later: np.ndarra
         num = _clean(num, total_e)
         return _pseudo_f(num, res, df_num, df_res), num, res
 
-    f0, num0, res0 = (float(v[0]) for v in stats(Q0[None]))
+    Qt0 = np.ascontiguousarray(Q0.T)                   # k x n
+    Dt = np.ascontiguousarray(D.T)
+    f0, num0, res0 = (float(v[0]) for v in stats(Qt0[:, None, :]))
     total = rows.total()
     reduced_ss = total - total_e
     if perms is None:
@@ -372,8 +403,11 @@ def f_test(rows: Rows, reduced: np.ndarray, tested: np.ndarray, later: np.ndarra
         if cancel is not None and cancel():
             raise Cancelled(f"stopped after {done} of {perms.total} permutations; no result "
                             "was produced.")
-        Q = Q0[idx] if rows.weights is None else _bases(D[idx], sw)
-        f, num, _ = stats(Q)
+        if rows.weights is None:
+            U = np.take(Qt0, idx, axis=1)                 # k x B x n: rows permuted
+        else:
+            U = _permuted_bases(Dt, idx, sw)
+        f, num, _ = stats(U)
         b = idx.shape[0]
         null[done:done + b] = f
         null_fit[done:done + b] = num

@@ -20,13 +20,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from .constraint_engine import ConstraintData, Rows, f_test
+from .constraint_engine import ConstraintData, f_test
 from .errors import InputError
 from .permutation import Permutations
 from .random import as_rng
 
 __all__ = ["share_parts", "reading_note", "share_summary", "permutation_adjusted_share",
-           "ordination_adjusted_share", "attach_test"]
+           "share_plan", "adjusted_from_plan", "ordination_adjusted_share", "attach_test"]
 
 
 def share_parts(total, conditioned, constrained, n, m, kz, ezekiel):
@@ -63,13 +63,34 @@ def reading_note(method, r2, chance, adj, m, n) -> str:
             "themselves: the axes are chosen to separate them.")
 
 
-def _perm_mean_share(rows: Rows, cols: np.ndarray, n_permutations: int, rng) -> tuple:
-    """(observed share, mean share over permutations of the rows of ``cols``)."""
-    none = np.empty((rows.n, 0))
-    perms = Permutations(rows.n, n_permutations, rng, design=cols)
-    r = f_test(rows, none, cols, None, perms)
-    total = r.total
-    return r.fitted / total, float(np.mean(r.null_fitted)) / total
+def share_plan(data: ConstraintData, n_permutations: int, rng) -> list:
+    """The permutation runs of :func:`permutation_adjusted_share`: (columns, Permutations)
+    for terms and conditions together, then (partial analyses) for the conditions alone."""
+    if n_permutations <= 0:
+        return []
+    rng = as_rng(rng)
+    sets = [data.X if data.Z is None else np.hstack([data.Z, data.X])]
+    if data.Z is not None:
+        sets.append(data.Z)
+    return [(cols, Permutations(data.n, n_permutations, rng, design=cols)) for cols in sets]
+
+
+def adjusted_from_plan(data: ConstraintData, plan: list, *, progress=None,
+                       cancel=None) -> tuple[float, float]:
+    """(adjusted share, chance level) from the runs of :func:`share_plan`."""
+    if not plan:
+        return float("nan"), float("nan")
+    rows = data.rows()
+    none = np.empty((data.n, 0))
+    parts = []
+    for cols, perms in plan:
+        r = f_test(rows, none, cols, None, perms, progress=progress, cancel=cancel)
+        r2, mean = r.fitted / r.total, float(np.mean(r.null_fitted)) / r.total
+        parts.append((1.0 - (1.0 - r2) / (1.0 - mean), mean))
+    adj, chance = parts[0]
+    if len(parts) == 2:
+        adj, chance = adj - parts[1][0], chance - parts[1][1]
+    return float(adj), float(chance)
 
 
 def permutation_adjusted_share(data: ConstraintData, *, n_permutations: int = 999,
@@ -80,24 +101,13 @@ def permutation_adjusted_share(data: ConstraintData, *, n_permutations: int = 99
     constraints after permuting their rows (each sample keeping its weight). With unit
     weights mean R^2* = m / (n - 1) and this is Ezekiel's adjustment. Partial analyses: the
     adjusted share of terms and conditions together minus that of the conditions alone.
+    Exact enumeration (few distinct relabellings) gives the exact permutation mean.
 
     Returns
     -------
     (adjusted share, chance level) : tuple of float (NaN without permutations)
     """
-    if n_permutations <= 0:
-        return float("nan"), float("nan")
-    rng = as_rng(rng)
-    rows = data.rows()
-    both = data.X if data.Z is None else np.hstack([data.Z, data.X])
-    r2, mean = _perm_mean_share(rows, both, n_permutations, rng)
-    adj = 1.0 - (1.0 - r2) / (1.0 - mean)
-    chance = mean
-    if data.Z is not None:
-        r2z, meanz = _perm_mean_share(rows, data.Z, n_permutations, rng)
-        adj -= 1.0 - (1.0 - r2z) / (1.0 - meanz)
-        chance = mean - meanz
-    return float(adj), float(chance)
+    return adjusted_from_plan(data, share_plan(data, n_permutations, rng))
 
 
 def share_summary(o) -> str | None:

@@ -44,7 +44,7 @@ import pandas as pd
 
 from .constraint_engine import (ConstraintData, Rows, f_test, fitted_axes, indicator_columns,
                                 weighted_unit_rows)
-from .constraint_shares import permutation_adjusted_share
+from .constraint_shares import adjusted_from_plan, share_plan
 from .errors import DesignError, InputError
 from .inference import block_labels, check_n_permutations
 from .ordination import Ordination, check_option
@@ -353,7 +353,9 @@ def constraint_test(ordination, scope: str = "all", *, n_permutations: int = 999
     jobs = _jobs(data, scope, ss, key, stratum)
     for _, k, *_ in jobs:
         _permutations(stratum(k), data, n_permutations, rng)
-    grand = sum(strata[k].perms.total for _, k, *_ in jobs)
+    shares = share_plan(data, n_permutations, rng) if data.method == "CCA" else []
+    grand = (sum(strata[k].perms.total for _, k, *_ in jobs) +
+             sum(perms.total for _, perms in shares))
     state = {"done": 0}
 
     def tick(b):
@@ -369,8 +371,7 @@ def constraint_test(ordination, scope: str = "all", *, n_permutations: int = 999
     o = ordination
     adjusted, chance = o.adjusted_r_squared, o.chance_share
     if data.method == "CCA":
-        adjusted, perm_chance = permutation_adjusted_share(data, n_permutations=n_permutations,
-                                                           rng=rng)
+        adjusted, perm_chance = adjusted_from_plan(data, shares, progress=tick, cancel=cancel)
         chance = perm_chance if np.isfinite(perm_chance) else chance
     table = _table(data, o, results, strata, plan)
     tested = list(results)
@@ -380,6 +381,14 @@ def constraint_test(ordination, scope: str = "all", *, n_permutations: int = 999
         stat, pval = float(stat.iloc[0]), float(pval.iloc[0])
     used = {k: strata[k] for k in sorted({k for _, k, *_ in jobs})}
     notes = _notes(data, o, scope, ss, plan, used, block_codes)
+    if scope == "each_axis":
+        ref = o.eigenvalues.iloc[:o.n_constrained].to_numpy()
+        got = table.loc[tested, "inertia"].to_numpy()
+        if got.size != np.sum(ref > 0) or not np.allclose(got, ref[ref > 0], rtol=1e-6):
+            notes.append("The axes tested are the constrained axes of the data at the level "
+                         f"of the test ({next(iter(used.values())).name}), which differ from "
+                         "the ordination's own constrained axes; their eigenvalues are in the "
+                         "table.")
     scheme = "; ".join(f"{st.name}: {st.perms.describe()}, {st.how}" if len(used) > 1
                        else f"{st.perms.describe()}, {st.how}" for st in used.values())
     if any(reduced.shape[1] for _, _, reduced, *_ in jobs):

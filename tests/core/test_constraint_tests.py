@@ -343,6 +343,11 @@ def test_same_seed_same_answer_and_callbacks(community):
     assert seen[-1] == (198, 198)
     with pytest.raises(Cancelled):
         constraint_test(o, n_permutations=99, rng=1, cancel=lambda: True)
+    seen.clear()                  # CCA: the adjusted share's permutations are counted too
+    constraint_test(cca(x, info, terms=["trt"], conditions=["temp"]), n_permutations=49,
+                    rng=1, progress=lambda d, t: seen.append((d, t)))
+    assert seen[-1] == (3 * 49, 3 * 49)
+    assert all(a[0] <= b[0] for a, b in zip(seen, seen[1:]))
 
 
 def test_bad_input_is_named(community):

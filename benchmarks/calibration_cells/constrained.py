@@ -120,7 +120,7 @@ def _tanks(rng, *, method, gen, units):
     return float(ct.pvalue)
 
 
-def _cell(cid, method, design, *, reps=1000, short=60, check=True, **kw):
+def _cell(cid, method, design, *, reps=1000, short=40, check=True, **kw):
     what = {"all": "all terms", "each_term": "each term", "each_axis": "each axis"}
     scope = kw.get("scope", "all")
     full = f"constrained/{method.lower()}-{cid}"
@@ -184,12 +184,12 @@ def _method_cells(method):
                       f"constraint_test({m}, units='tank')",
                       "10 tanks x 3 visits, treatment on tanks, tank effects, log-normal",
                       lambda rng: _tanks(rng, method=m, gen="lognormal", units="tank"),
-                      reps=1000, short_reps=60, seed=_seed(f"{m}-tanks-units")))
+                      reps=1000, short_reps=40, seed=_seed(f"{m}-tanks-units")))
     cells.append(Cell(f"constrained/{m.lower()}-tanks-no-units", "constrained ordination",
                       f"constraint_test({m}, units=False)",
                       "10 tanks x 3 visits, treatment on tanks, tank effects, log-normal",
                       lambda rng: _tanks(rng, method=m, gen="lognormal", units=False),
-                      reps=400, short_reps=60, check=False, seed=_seed(f"{m}-tanks")))
+                      reps=400, short_reps=40, check=False, seed=_seed(f"{m}-tanks")))
     return cells
 
 

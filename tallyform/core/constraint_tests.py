@@ -48,7 +48,7 @@ from .constraint_shares import adjusted_from_plan, share_plan
 from .errors import DesignError, InputError
 from .inference import block_labels, check_n_permutations
 from .ordination import Ordination, check_option
-from .permutation import Permutations
+from .permutation import Permutations, PermutationTest
 from .random import as_rng
 from .results import ResultMixin, readonly
 from .units import resolve_units, unit_blocks
@@ -169,7 +169,6 @@ class ConstraintTest(ResultMixin):
         """The permutation distribution of one tested row's pseudo-F, with the observed value
         (:func:`tallyform.render.plots.null_distribution_figure`; default: the first row)."""
         from ..render.inference_plots import null_distribution_figure  # lazy: plotly
-        from .permutation import PermutationTest
         rows = self.tested
         row = rows[0] if row is None else row
         if row not in rows:
@@ -380,31 +379,27 @@ def constraint_test(ordination, scope: str = "all", *, n_permutations: int = 999
     if scope == "all":
         stat, pval = float(stat.iloc[0]), float(pval.iloc[0])
     used = {k: strata[k] for k in sorted({k for _, k, *_ in jobs})}
-    notes = _notes(data, o, scope, ss, plan, used, block_codes)
-    if scope == "each_axis":
-        ref = o.eigenvalues.iloc[:o.n_constrained].to_numpy()
-        got = table.loc[tested, "inertia"].to_numpy()
-        if got.size != np.sum(ref > 0) or not np.allclose(got, ref[ref > 0], rtol=1e-6):
-            notes.append("The axes tested are the constrained axes of the data at the level "
-                         f"of the test ({next(iter(used.values())).name}), which differ from "
-                         "the ordination's own constrained axes; their eigenvalues are in the "
-                         "table.")
+    notes = _notes(data, o, scope, ss, plan, used, table.loc[tested, "inertia"])
+    return ConstraintTest(
+        scope=scope, method=data.method, table=table, statistic=stat, pvalue=pval,
+        null_distribution={lab: r.null for lab, (_, r) in results.items()},
+        n_permutations=int(min(st.perms.total for st in used.values())),
+        exact=all(st.perms.exact for st in used.values()), scheme=_scheme(data, used, jobs),
+        ss_type=ss if scope == "each_term" else None, terms=tuple(terms),
+        conditions=tuple(data.conditions), n_samples=data.n,
+        r_squared=float(o.r_squared), chance_share=float(chance),
+        adjusted_share=None if adjusted is None else float(adjusted),
+        units=plan.provenance(), source=o, notes=tuple(notes))
+
+
+def _scheme(data, used, jobs) -> str:
     scheme = "; ".join(f"{st.name}: {st.perms.describe()}, {st.how}" if len(used) > 1
                        else f"{st.perms.describe()}, {st.how}" for st in used.values())
     if any(reduced.shape[1] for _, _, reduced, *_ in jobs):
         scheme += "; residuals of the reduced model permuted (Freedman & Lane 1983)"
     if data.method == "CCA":
         scheme += "; each sample keeps its weight"
-    return ConstraintTest(
-        scope=scope, method=data.method, table=table, statistic=stat, pvalue=pval,
-        null_distribution={lab: r.null for lab, (_, r) in results.items()},
-        n_permutations=int(min(st.perms.total for st in used.values())),
-        exact=all(st.perms.exact for st in used.values()), scheme=scheme,
-        ss_type=ss if scope == "each_term" else None, terms=tuple(terms),
-        conditions=tuple(data.conditions), n_samples=data.n,
-        r_squared=float(o.r_squared), chance_share=float(chance),
-        adjusted_share=None if adjusted is None else float(adjusted),
-        units=plan.provenance(), source=o, notes=tuple(notes))
+    return scheme
 
 
 def _constraint_data(ordination) -> ConstraintData:
@@ -480,7 +475,7 @@ def _table(data, o, results, strata, plan) -> pd.DataFrame:
     return table
 
 
-def _notes(data, o, scope, ss, plan, used, block_codes) -> list:
+def _notes(data, o, scope, ss, plan, used, inertia) -> list:
     notes = list(plan.notes)
     for st in used.values():
         if st.perms.note():
@@ -493,7 +488,17 @@ def _notes(data, o, scope, ss, plan, used, block_codes) -> list:
         "or read the adjusted share and the p-value.")
     if scope == "each_axis":
         notes.append("Axes are tested in order, each given the axes before it; read them in "
-                     "that order and stop at the first axis whose p-value is large.")
+                     "that order and stop at the first axis whose p-value is large. A later "
+                     "axis is tested given earlier axes estimated from the same data: when "
+                     "they are only moderately strong they have taken up some noise, and the "
+                     "later tests are conservative (they hold their level but lose power).")
+        ref = o.eigenvalues.iloc[:o.n_constrained].to_numpy()
+        got = inertia.to_numpy()
+        if got.size != np.sum(ref > 0) or not np.allclose(got, ref[ref > 0], rtol=1e-6):
+            notes.append("The axes tested are the constrained axes of the data at the level "
+                         f"of the test ({next(iter(used.values())).name}), which differ from "
+                         "the ordination's own constrained axes; their eigenvalues are in the "
+                         "table.")
     if scope == "each_term" and ss == "marginal" and any(
             _split_terms(list(data.terms), t, ss)[1] for t in data.terms):
         notes.append("Marginal tests: a term that is part of an interaction is tested "

@@ -8,7 +8,8 @@ or a noise covariate) have no effect on composition. RDA runs on Hellinger-trans
 counts; db-RDA on Bray-Curtis dissimilarities of raw counts (the Gower path: a measure with
 negative eigenvalues), or of profiles where totals differ between groups (Bray-Curtis of raw
 counts would rightly see the size difference). Reference rows (``check=False``) show what
-the unadjusted alternative does.
+the unadjusted alternative does. Where totals differ between groups, RDA runs on profiles
+(a Hellinger reference row shows that depth alone then moves its centroids).
 """
 from __future__ import annotations
 
@@ -79,23 +80,25 @@ def _frame(rng, n, *, real=0.0, heavy=1.0, axis_effect=0.0, heavy_group="c", sca
     return info, shift, totals
 
 
-def _ordination(method, x, info, terms, conditions, *, profile=False):
+def _ordination(method, x, info, terms, conditions, *, profile=False, transform="hellinger"):
     tab = CommunityTable(pd.DataFrame(x, index=info.index,
                                       columns=[f"t{j}" for j in range(x.shape[1])]), info)
     if method == "CCA":
         return cca(tab, terms=terms, conditions=conditions)
     if method == "RDA":
-        return rda(tab, terms=terms, conditions=conditions, transform="hellinger")
+        return rda(tab, terms=terms, conditions=conditions, transform=transform)
     d = dissimilarity(tab, "bray_curtis", transform="profile" if profile else None)
     return db_rda(d, info, terms, conditions=conditions)
 
 
 def _study(rng, *, method, n, gen, terms, row, scope="all", ss="sequential", conditions=None,
-           real=0.0, heavy=1.0, axis_effect=0.0, heavy_group="c", scale=300.0):
+           real=0.0, heavy=1.0, axis_effect=0.0, heavy_group="c", scale=300.0,
+           transform="hellinger"):
     info, shift, totals = _frame(rng, n, real=real, heavy=heavy, axis_effect=axis_effect,
                                  heavy_group=heavy_group, scale=scale)
     x = _counts(rng, gen, totals, shift if (real or axis_effect) else None)
-    o = _ordination(method, x, info, terms, conditions, profile=heavy != 1.0)
+    o = _ordination(method, x, info, terms, conditions, profile=heavy != 1.0,
+                    transform=transform)
     ct = constraint_test(o, scope, n_permutations=PERMS, rng=rng, ss=ss, units=False)
     if row not in ct.table.index:
         # an axis with no positive eigenvalue (db-RDA) has no test, so it cannot be rejected
@@ -164,16 +167,21 @@ def _method_cells(method):
               "(effect 1), n = 30, log-normal", n=30, gen="lognormal", terms=["f"],
               scope="each_axis", axis_effect=1.0, row=f"{m}2", reps=400, check=False),
     ]
+    which = {"db-RDA": " (Bray-Curtis of profiles)", "RDA": " (profiles)", "CCA": ""}[m]
     cells.append(_cell("totals-differ-n30", m, "noise factor, totals 3x higher in the "
-                       "largest group (14 of 30), log-normal"
-                       + (" (Bray-Curtis of profiles)" if m == "db-RDA" else ""),
+                       "largest group (14 of 30), log-normal" + which,
                        n=30, gen="lognormal", terms=["g"], heavy=3.0, row="all terms",
-                       check=m != "CCA"))
+                       check=m != "CCA", transform="profile"))
     cells.append(_cell("totals-differ-small-n30", m, "noise factor, totals 3x higher in the "
-                       "smallest group (6 of 30), log-normal"
-                       + (" (Bray-Curtis of profiles)" if m == "db-RDA" else ""),
+                       "smallest group (6 of 30), log-normal" + which,
                        n=30, gen="lognormal", terms=["g"], heavy=3.0, heavy_group="a",
-                       row="all terms", check=m != "CCA", reps=400 if m == "CCA" else 1000))
+                       row="all terms", check=m != "CCA", reps=400 if m == "CCA" else 1000,
+                       transform="profile"))
+    if m == "RDA":
+        cells.append(_cell("hellinger-totals-differ-n30", m, "noise factor, totals 3x higher "
+                           "in the largest group (14 of 30), log-normal, Hellinger: depth "
+                           "moves the centroids", n=30, gen="lognormal", terms=["g"],
+                           heavy=3.0, row="all terms", reps=1000, check=False))
     if m == "CCA":
         cells.append(_cell("totals-differ-sparse-n12", m, "noise factor (3/4/5), totals "
                            "5x higher in the largest group, about 20 individuals per "

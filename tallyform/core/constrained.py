@@ -60,11 +60,11 @@ class _Design:
     term_columns: dict
 
     def data(self, method, labels, *, features=None, gower=None, weights=None,
-             prefix="") -> ConstraintData:
+             prefix="", totals=None, transform=None) -> ConstraintData:
         return ConstraintData(method, _labels_index(labels), self.frame, tuple(self.terms),
                               tuple(self.conditions), self.Xt, self.term_columns, Z=self.Xc,
                               features=features, gower=gower, weights=weights,
-                              axis_prefix=prefix)
+                              axis_prefix=prefix, totals=totals, transform=transform)
 
 
 def _design(samples, labels, terms, conditions) -> _Design:
@@ -318,7 +318,7 @@ def cca(table, samples=None, *, terms, conditions=None, scaling: str = "samples"
     conditioned = total - split.total if Xc is not None else None
     prov = {"method": "CCA", "n_samples": len(labels), "n_taxa": len(taxa),
             "terms": des.terms, "conditions": des.conditions, "grand_total": float(N)}
-    data = des.data("CCA", labels, features=S, weights=r, prefix="CCA")
+    data = des.data("CCA", labels, features=S, weights=r, prefix="CCA", totals=r * N)
     return _assemble("CCA", split, Sz, labels, list(taxa), row_scale=1 / np.sqrt(r),
                      col_scale=1 / np.sqrt(c), scaling=scaling, con_prefix="CCA",
                      res_prefix="CA", total=total, conditioned=conditioned, Xt=Xt,
@@ -412,7 +412,8 @@ def rda(table, samples=None, *, terms=None, conditions=None, transform=None,
     split = split_features(Yz, Qx)
     total = float(np.sum(Y * Y))
     prov.update(terms=des.terms, conditions=des.conditions)
-    data = des.data("RDA", labels, features=Y, prefix="RDA")
+    data = des.data("RDA", labels, features=Y, prefix="RDA",
+                    totals=np.asarray(tab.values, dtype=float).sum(axis=1), transform=tname)
     return _assemble("RDA", split, Yz, labels, taxa, row_scale=np.ones(n),
                      col_scale=np.ones(len(taxa)), scaling=scaling, con_prefix="RDA",
                      res_prefix="PC", total=total,

@@ -88,6 +88,10 @@ class ConstraintData:
         Row masses r (CCA); None: every sample weighs 1.
     axis_prefix : str
         ``'CCA'``, ``'RDA'`` or ``'db-RDA'`` (names of the constrained axes).
+    totals : ndarray (n,) or None
+        Sample totals of the table (CCA, RDA); None when only dissimilarities were given.
+    transform : str or None
+        RDA: the transformation of the abundances (None: raw abundances).
     """
 
     method: str
@@ -102,6 +106,8 @@ class ConstraintData:
     gower: np.ndarray | None = field(default=None, repr=False)
     weights: np.ndarray | None = field(default=None, repr=False)
     axis_prefix: str = ""
+    totals: np.ndarray | None = field(default=None, repr=False)
+    transform: str | None = None
 
     @property
     def n(self) -> int:

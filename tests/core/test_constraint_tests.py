@@ -384,13 +384,19 @@ def test_partial_table_and_reading(community):
     assert isinstance(ct, ConstraintTest) and ct.to_frame() is not ct.table
 
 
-def test_cca_says_when_totals_go_with_the_constraints(community):
+def test_result_says_when_totals_go_with_the_constraints(community):
     x, info = community
     heavy = x.mul(np.where(info["trt"] == "a", 8.0, 1.0), axis=0)
     ct = constraint_test(cca(heavy, info, terms=["trt"]), n_permutations=19, rng=1)
     assert any("Sample totals differ with the constraints" in n for n in ct.notes)
     plain = constraint_test(cca(x, info, terms=["temp"]), n_permutations=19, rng=1)
     assert not any("Sample totals differ" in n for n in plain.notes)
+    hel = constraint_test(rda(heavy, info, terms=["trt"], transform="hellinger"),
+                          n_permutations=19, rng=1)
+    assert any("hellinger transform is not linear" in n for n in hel.notes)
+    prof = constraint_test(rda(heavy, info, terms=["trt"], transform="profile"),
+                           n_permutations=19, rng=1)
+    assert not any("Sample totals differ" in n for n in prof.notes)
 
 
 def test_nested_units_test_a_plot_term_within_sites(rng):

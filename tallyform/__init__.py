@@ -8,6 +8,7 @@ from __future__ import annotations
 from . import errors
 from .core.errors import DesignError, InputError, TooLargeError
 from .core.constrained import ca, cca, db_rda, rda
+from .core.constraint_tests import ConstraintTest, constraint_test
 from .core.dispersion import dispersion_test
 from .core.inference import pairwise_permanova, permanova
 from .core.contributions import TaxonContributions, taxon_contributions
@@ -52,7 +53,8 @@ __all__ = [
     "TooLargeError", "__version__",
     "AnalysisSpec", "run", "AnalysisResults",
     "size_shape", "SizeShapeResult", "scan", "ScanResult", "audit", "AuditResult",
-    "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination",
+    "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination", "constraint_test",
+    "ConstraintTest",
     "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",

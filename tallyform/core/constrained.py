@@ -16,9 +16,13 @@ permutation tests and the size/shape partition can reuse them.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import pandas as pd
 
+from .constraint_engine import ConstraintData
+from .constraint_shares import reading_note, share_parts
 from .design import model_matrix
 from .eigen import (CORRECTIONS, EigenSplit, constraint_bases, corrected_gower, flip_signs,
                     residualized_gower, split_features, split_gower)
@@ -43,8 +47,27 @@ SCALINGS = {
 
 
 # ---------------------------------------------------------------------------- shared build
-def _design(samples, labels, terms, conditions):
-    """Coded term columns (no intercept), condition columns or None, and their names."""
+@dataclass(frozen=True, eq=False)
+class _Design:
+    """Coded terms (no intercept), coded conditions or None, and what the tests need."""
+
+    Xt: np.ndarray
+    xnames: list
+    terms: list
+    Xc: np.ndarray | None
+    conditions: list
+    frame: pd.DataFrame
+    term_columns: dict
+
+    def data(self, method, labels, *, features=None, gower=None, weights=None,
+             prefix="", totals=None, transform=None) -> ConstraintData:
+        return ConstraintData(method, _labels_index(labels), self.frame, tuple(self.terms),
+                              tuple(self.conditions), self.Xt, self.term_columns, Z=self.Xc,
+                              features=features, gower=gower, weights=weights,
+                              axis_prefix=prefix, totals=totals, transform=transform)
+
+
+def _design(samples, labels, terms, conditions) -> _Design:
     frame = _require_design(samples, len(labels), labels)
     if terms is None or (not isinstance(terms, str) and len(terms) == 0):
         raise DesignError("no terms were given; name at least one column of the sample table, "
@@ -57,7 +80,8 @@ def _design(samples, labels, terms, conditions):
         cm = model_matrix(frame, conditions)
         Xc = np.asarray(cm.X[:, 1:], dtype=float)
         cond_list = list(cm.terms)
-    return Xt, mm.columns[1:], list(mm.terms), Xc, cond_list
+    cols = {t: [c - 1 for c in idx] for t, idx in mm.term_columns.items()}
+    return _Design(Xt, mm.columns[1:], list(mm.terms), Xc, cond_list, frame, cols)
 
 
 def _weighted_corr(X: np.ndarray, S: np.ndarray, w: np.ndarray) -> np.ndarray:
@@ -75,7 +99,7 @@ def _weighted_corr(X: np.ndarray, S: np.ndarray, w: np.ndarray) -> np.ndarray:
 
 def _assemble(method, split: EigenSplit, Yz, labels, taxa, *, row_scale, col_scale,
               scaling, con_prefix, res_prefix, total, conditioned, Xt, xnames, weights,
-              provenance, notes, adjusted_df=None):
+              provenance, notes, shares=None):
     """Scores and result for the feature path (RDA, CCA, CA, db-RDA from features)."""
     alpha, description = SCALINGS[scaling]
     n = len(labels)
@@ -115,12 +139,13 @@ def _assemble(method, split: EigenSplit, Yz, labels, taxa, *, row_scale, col_sca
                        tx, index=pd.Index(taxa, name="taxon"), columns=names),
                    fitted=fitted, corr=corr, has_constraints=bool(con_prefix),
                    provenance=dict(provenance, scaling=scaling), notes=notes,
-                   adjusted_df=adjusted_df, n=n, con_prefix=con_prefix, res_prefix=res_prefix)
+                   shares=shares, n=n, con_prefix=con_prefix, res_prefix=res_prefix)
 
 
 def _result(method, scores, values, con_names, res_names, split, *, total, conditioned,
-            scaling, taxa, fitted, corr, has_constraints, provenance, notes, adjusted_df, n,
+            scaling, taxa, fitted, corr, has_constraints, provenance, notes, shares, n,
             con_prefix, res_prefix):
+    """The Ordination; ``shares`` = (m, k, ezekiel, ConstraintData) for constrained ones."""
     nf = len(split.fitted_values)
     names = (axis_names(con_prefix, nf) if con_prefix else []) + \
         axis_names(res_prefix, len(split.residual_values))
@@ -133,14 +158,13 @@ def _result(method, scores, values, con_names, res_names, split, *, total, condi
         notes.append(f"negative eigenvalues hold {100 * negative_share:.1f} % of the total: the "
                      "measure is not Euclidean here; consider correction='lingoes' or "
                      "'cailliez', or a Euclidean measure.")
-    r2 = adj = None
+    r2 = adj = chance = m = kz = data = None
     con = unc = None
     if has_constraints:
         con, unc = split.fitted_trace, split.residual_trace
-        r2 = con / total if total > 0 else float("nan")
-        if adjusted_df is not None:
-            m = adjusted_df
-            adj = 1.0 - (1.0 - r2) * (n - 1) / (n - m - 1) if n - m - 1 > 0 else float("nan")
+        m, kz, ezekiel, data = shares
+        r2, adj, chance = share_parts(total, conditioned, con, n, m, kz, ezekiel)
+        notes.append(reading_note(method, r2, chance, adj, m, n))
     return Ordination(method=method, scores=scores, eigenvalues=eig, explained=explained,
                       scaling=scaling, taxa=taxa, fitted_scores=fitted,
                       constraint_correlations=corr, total_inertia=float(total),
@@ -148,7 +172,8 @@ def _result(method, scores, values, con_names, res_names, split, *, total, condi
                       conditioned_inertia=conditioned, r_squared=r2, adjusted_r_squared=adj,
                       n_constrained=nf if has_constraints else 0,
                       negative_share=negative_share, provenance=provenance,
-                      notes=tuple(notes))
+                      notes=tuple(notes), constraint_df=m, condition_df=kz,
+                      chance_share=chance, constraint_data=data)
 
 
 def _table_and_samples(table, samples, name="table"):
@@ -284,18 +309,21 @@ def cca(table, samples=None, *, terms, conditions=None, scaling: str = "samples"
     tab, info = _table_and_samples(table, samples)
     labels, taxa = tab.sample_labels, tab.taxon_labels
     S, r, c, N = _ca_matrix(tab.values, labels, taxa)
-    Xt, xnames, tlist, Xc, clist = _design(info, labels, terms, conditions)
+    des = _design(info, labels, terms, conditions)
+    Xt, xnames, Xc = des.Xt, des.xnames, des.Xc
     Qz, Qx = constraint_bases(Xt, Xc, weights=r)
     Sz = S - Qz @ (Qz.T @ S)
     split = split_features(Sz, Qx)
     total = float(np.sum(S * S))
     conditioned = total - split.total if Xc is not None else None
-    prov = {"method": "CCA", "n_samples": len(labels), "n_taxa": len(taxa), "terms": tlist,
-            "conditions": clist, "grand_total": float(N)}
+    prov = {"method": "CCA", "n_samples": len(labels), "n_taxa": len(taxa),
+            "terms": des.terms, "conditions": des.conditions, "grand_total": float(N)}
+    data = des.data("CCA", labels, features=S, weights=r, prefix="CCA", totals=r * N)
     return _assemble("CCA", split, Sz, labels, list(taxa), row_scale=1 / np.sqrt(r),
                      col_scale=1 / np.sqrt(c), scaling=scaling, con_prefix="CCA",
                      res_prefix="CA", total=total, conditioned=conditioned, Xt=Xt,
-                     xnames=xnames, weights=r, provenance=prov, notes=[])
+                     xnames=xnames, weights=r, provenance=prov, notes=[],
+                     shares=(Qx.shape[1], Qz.shape[1] - 1, False, data))
 
 
 # ---------------------------------------------------------------------------- RDA
@@ -377,18 +405,21 @@ def rda(table, samples=None, *, terms=None, conditions=None, transform=None,
                          col_scale=np.ones(len(taxa)), scaling=scaling, con_prefix=None,
                          res_prefix="PC", total=split.total, conditioned=None, Xt=None,
                          xnames=None, weights=np.ones(n), provenance=prov, notes=[])
-    Xt, xnames, tlist, Xc, clist = _design(info, labels, terms, conditions)
+    des = _design(info, labels, terms, conditions)
+    Xt, xnames, Xc = des.Xt, des.xnames, des.Xc
     Qz, Qx = constraint_bases(Xt, Xc)
     Yz = Y - Qz @ (Qz.T @ Y)
     split = split_features(Yz, Qx)
     total = float(np.sum(Y * Y))
-    prov.update(terms=tlist, conditions=clist)
+    prov.update(terms=des.terms, conditions=des.conditions)
+    data = des.data("RDA", labels, features=Y, prefix="RDA",
+                    totals=np.asarray(tab.values, dtype=float).sum(axis=1), transform=tname)
     return _assemble("RDA", split, Yz, labels, taxa, row_scale=np.ones(n),
                      col_scale=np.ones(len(taxa)), scaling=scaling, con_prefix="RDA",
                      res_prefix="PC", total=total,
                      conditioned=(total - split.total) if Xc is not None else None, Xt=Xt,
                      xnames=xnames, weights=np.ones(n), provenance=prov, notes=[],
-                     adjusted_df=None if Xc is not None else Qx.shape[1])
+                     shares=(Qx.shape[1], Qz.shape[1] - 1, True, data))
 
 
 # ---------------------------------------------------------------------------- db-RDA
@@ -454,12 +485,13 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
                          f"got {residual_dims!r}.")
     labels = d.labels
     n = d.n
-    Xt, xnames, tlist, Xc, clist = _design(samples, labels, terms, conditions)
+    des = _design(samples, labels, terms, conditions)
+    Xt, xnames, Xc = des.Xt, des.xnames, des.Xc
     Qz, Qx = constraint_bases(Xt, Xc)
-    prov = {"method": "db-RDA", **d.provenance, "terms": tlist, "conditions": clist,
-            "correction": correction, "correction_constant": 0.0}
+    prov = {"method": "db-RDA", **d.provenance, "terms": des.terms,
+            "conditions": des.conditions, "correction": correction, "correction_constant": 0.0}
     notes: list[str] = []
-    adjusted_df = None if Xc is not None else Qx.shape[1]
+    shares = (Qx.shape[1], Qz.shape[1] - 1, True)
     if d.has_features:
         if correction is not None:
             notes.append(f"the {d.measure} measure is Euclidean (it has a feature matrix): no "
@@ -474,7 +506,9 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
                         res_prefix="PCoA", total=total,
                         conditioned=(total - split.total) if Xc is not None else None,
                         Xt=Xt, xnames=xnames, weights=np.ones(n), provenance=prov,
-                        notes=notes, adjusted_df=adjusted_df)
+                        notes=notes,
+                        shares=shares + (des.data("db-RDA", labels, features=Y,
+                                                  prefix="db-RDA"),))
         return _restate_db(res, None)
     G, c = corrected_gower(d, correction)
     prov["correction_constant"] = c
@@ -507,7 +541,8 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
                   conditioned=(total - float(np.trace(Gz))) if Xc is not None else None,
                   scaling=SCALINGS["samples"][1], taxa=None, fitted=fitted, corr=corr,
                   has_constraints=True, provenance=dict(prov, scaling="samples"), notes=notes,
-                  adjusted_df=adjusted_df, n=n, con_prefix="db-RDA", res_prefix="PCoA")
+                  shares=shares + (des.data("db-RDA", labels, gower=G, prefix="db-RDA"),),
+                  n=n, con_prefix="db-RDA", res_prefix="PCoA")
     return _restate_db(res, residual_dims)
 
 

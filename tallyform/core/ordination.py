@@ -93,7 +93,10 @@ class Ordination(ResultMixin):
         ``conditioned_inertia`` is the part removed by ``conditions`` (partial analyses).
     r_squared, adjusted_r_squared : float or None
         Constrained share of the total (after conditioning, of the whole total) and its
-        adjustment (Ezekiel 1930) for RDA and db-RDA without conditions.
+        adjustment: Ezekiel (1930) for RDA and db-RDA (partial analyses: the adjusted share
+        of terms and conditions together minus that of the conditions, Peres-Neto et al.
+        2006); CCA's needs permutations and stays None until :meth:`with_test` (or see
+        :meth:`adjusted_share`).
     n_constrained : int
         Number of constrained eigenvalues at the start of ``eigenvalues``.
     negative_share : float
@@ -109,6 +112,18 @@ class Ordination(ResultMixin):
         Every choice that produced the result (method, measure, transform, correction...).
     notes : tuple of str
         Plain-language warnings that belong with the numbers.
+    constraint_df, condition_df : int or None
+        Constrained methods: number of constraint columns (after the conditions) and of
+        condition columns (the ranks, i.e. degrees of freedom).
+    chance_share : float or None
+        Constrained methods: the share of the total that as many random constraint columns
+        fit on average, m / (n - 1 - k) times the share left by the k condition columns
+        (m / (n - 1) without conditions; for CCA an approximation until a permutation
+        estimate replaces it, see :meth:`with_test`).
+    constraint_test : ConstraintTest or None
+        The permutation test attached by :meth:`with_test`.
+    constraint_data : ConstraintData or None
+        What :func:`tallyform.constraint_test` needs (response, design, weights).
     """
 
     method: str
@@ -134,6 +149,12 @@ class Ordination(ResultMixin):
     starts: pd.DataFrame | None = field(default=None, repr=False)
     provenance: dict = field(default_factory=dict)
     notes: tuple = ()
+    constraint_df: int | None = None
+    condition_df: int | None = None
+    chance_share: float | None = None
+    constraint_test: object | None = field(default=None, repr=False)
+    constraint_data: object | None = field(default=None, repr=False)
+    _share_cache: dict = field(default_factory=dict, repr=False, init=False)
 
     # ------------------------------------------------------------------ views
     @property
@@ -178,8 +199,9 @@ class Ordination(ResultMixin):
         bits = [f"{self.method}: {self.n_samples} samples", f"scaling: {self.scaling}"]
         if self.stress is not None:
             bits.append(f"stress {self.stress:.3f} ({self.stress_reading})")
-        if self.r_squared is not None:
-            bits.append(f"constrained share {self.r_squared:.3f}")
+        summary = self.constrained_summary()
+        if summary:
+            bits.append(summary)
         return "; ".join(bits)
 
     def __repr__(self) -> str:
@@ -209,6 +231,49 @@ class Ordination(ResultMixin):
             return scree_figure(self, **kwargs)
         from ..render.ordination_plots import ordination_figure
         return ordination_figure(self, **kwargs)
+
+    # ------------------------------------------------------------------ constrained share
+    def constrained_summary(self) -> str | None:
+        """One line on the constrained share, for titles: the share, its chance level, the
+        adjusted share and the permutation p-value when known (None when unconstrained).
+
+        E.g. ``'constrained share 19.0 % (chance level 18.2 %; adjusted 1.0 %; overall
+        p = 0.41, 999 permutations)'``.
+        """
+        from .constraint_shares import share_summary
+        return share_summary(self)
+
+    def adjusted_share(self, *, n_permutations: int = 999, rng=None) -> float:
+        """The constrained share minus what chance fits (0 on average under the null).
+
+        RDA and db-RDA: Ezekiel's (1930) adjusted R^2 (no permutations needed). CCA: the
+        permutation estimate of Peres-Neto et al. (2006), 1 - (1 - R^2) / (1 - mean R^2*),
+        R^2* the share after permuting the constraints' rows (each sample keeping its
+        weight); computed once per (n_permutations, seed) and kept. Partial analyses: the
+        adjusted share of terms and conditions together minus that of the conditions.
+
+        Parameters
+        ----------
+        n_permutations : int, default 999
+            CCA only.
+        rng : None, int or numpy.random.Generator
+            CCA only. With None or a Generator the value is random (a Monte Carlo estimate);
+            with None it is kept after the first call.
+        """
+        from .constraint_shares import ordination_adjusted_share
+        return ordination_adjusted_share(self, self._share_cache, n_permutations, rng)
+
+    def with_test(self, test) -> "Ordination":
+        """A copy of this ordination that shows a constraint test (overall p-value beside
+        the constrained share; CCA's adjusted share and chance level from its permutations).
+
+        Parameters
+        ----------
+        test : ConstraintTest
+            From :func:`tallyform.constraint_test` of this ordination.
+        """
+        from .constraint_shares import attach_test
+        return attach_test(self, test)
 
     # ------------------------------------------------------------------ derived results
     def ellipses(self, group, *, kind: str = "confidence", level: float = 0.95,

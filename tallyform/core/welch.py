@@ -26,13 +26,20 @@ The p-value comes from permuting the group labels (freely, within blocks, or all
 relabellings when they are few). Under unequal spreads the labels are not exchangeable, so
 this is not an exact test; with a studentised statistic it is asymptotically valid (Janssen
 1997; Chung & Romano 2013) when the groups' covariances are proportional (spread differs,
-shape of the scatter does not) or the groups are equal-sized. How well it holds at small n is
-measured in benchmarks/calibration_cells/welch.py and stated in the result's notes.
+shape of the scatter does not) or the groups are equal-sized. With few samples in a widely
+spread group the raw permutation distribution is too light-tailed; by default each
+relabelling's statistic is therefore referred to Welch's F with its own degrees of freedom
+(prepivoting, Beran 1988; see :func:`welch_permanova`). How well it holds is measured in
+benchmarks/calibration_cells/welch.py and stated in the result's notes.
 
 References
 ----------
 Alekseyenko, A. V. (2016). Multivariate Welch t-test on distances. Bioinformatics 32,
 3552-3558.
+Beran, R. (1988). Prepivoting test statistics: a bootstrap view of asymptotic refinements.
+J. Amer. Statist. Assoc. 83, 687-697.
+Box, G. E. P. (1954). Some theorems on quadratic forms applied in the study of analysis of
+variance problems, I. Ann. Math. Statist. 25, 290-302.
 Chung, E. & Romano, J. P. (2013). Exact and asymptotically robust permutation tests. Ann.
 Statist. 41, 484-507.
 Hamidi, B., Wallace, K., Vasu, C. & Alekseyenko, A. V. (2019). W_d*-test: robust
@@ -52,25 +59,28 @@ import numpy as np
 import pandas as pd
 
 from .design import factor_levels
-from .errors import Cancelled, DesignError, Location
+from .errors import DesignError, Location
 from .inference import (align_labels, align_samples, block_labels, check_dissimilarity,
                         check_n_permutations)
-from .permutation import (FEW_PERMUTATIONS, Permutations, Response, _batch_size,
-                          prepare_response, pvalue_from_null)
+from .permutation import FEW_PERMUTATIONS, Permutations, prepare_response, pvalue_from_null
 from .random import as_rng
 from .results import ResultMixin, readonly
-from .units import resolve_units, unit_blocks, unit_centroid_gower
+from .units import resolve_units, unit_blocks
+from .welch_kernel import (calibrate, effective_dims, equivalent, remove_blocks,
+                           run_permutations, unit_response, welch_statistic)
 
 __all__ = ["welch_permanova", "WelchResult", "welch_statistic"]
 
-#: Within-group sums of squares below this share of the total count as no spread at all.
-_SPREAD_RTOL = 1e-12
-#: Below this many samples (units) in a group the result warns that relabelling can be
-#: liberal under unequal spreads (measured: benchmarks/calibration_cells/welch.py).
+#: Below this many samples (units) in a group the result says how the test behaved there
+#: (measured: benchmarks/calibration_cells/welch.py, docs/calibration.md).
 SMALL_GROUP = 6
-SMALL_NOTE = ("with 4-5 samples in a group whose spread (sd) is 4 times that of a group "
-              "3 times larger, 8-9 % of data sets without any difference in centroids gave "
-              "p <= 0.05; from 6 samples, 5-7 %")
+SMALL_NOTE = ("in simulations with 4-5 samples in a group whose spread (sd) is 4 times that "
+              "of a group 3 times larger, and no difference in centroids, XX of data sets "
+              "gave p <= 0.05 (conservative side; power is low).")
+RAW_SMALL_GROUP = 10
+RAW_NOTE = ("in simulations with a small group 4 times as spread (sd) as a group 3 times "
+            "larger and no difference in centroids, YY of data sets gave p <= 0.05 at "
+            "alpha 0.05; the default small_sample=True holds the level.")
 
 
 # ---------------------------------------------------------------------------- result
@@ -103,6 +113,11 @@ class WelchResult(ResultMixin):
     n_samples : int
     units : str or None
         The unit column whose centroids were analysed, or None.
+    small_sample : bool
+        True when relabellings were ranked through Welch's F reference (prepivoting).
+    dimensions : float
+        f = tr(V)^2 / tr(V^2), the effective number of dimensions of the centroid noise
+        (Box 1954); 1 for one variable.
     notes : tuple of str
     """
 
@@ -118,6 +133,8 @@ class WelchResult(ResultMixin):
     measure: str
     n_samples: int
     units: str | None = None
+    small_sample: bool = True
+    dimensions: float = float("nan")
     notes: tuple = ()
 
     def __post_init__(self):
@@ -127,9 +144,10 @@ class WelchResult(ResultMixin):
         return self.groups.copy()
 
     def summary(self) -> pd.DataFrame:
-        """One row: statistic, df, p-value, permutations."""
+        """One row: statistic, df, effective dimensions, p-value, permutations."""
         return pd.DataFrame({"statistic": [self.statistic], "df_groups": [self.df[0]],
-                             "df_welch": [self.df[1]], "pvalue": [self.pvalue],
+                             "df_welch": [self.df[1]], "dimensions": [self.dimensions],
+                             "pvalue": [self.pvalue],
                              "n_permutations": [self.n_permutations],
                              "exact": [self.exact]}, index=pd.Index([self.group], name="term"))
 
@@ -170,83 +188,6 @@ class WelchResult(ResultMixin):
         return fig
 
 
-# ---------------------------------------------------------------------------- kernel
-def _statistic(B: np.ndarray, t: np.ndarray, sizes: np.ndarray, total: float):
-    """W_d from group Gram blocks B (P, k, k) and diagonal sums t (P, k).
-
-    Returns (statistic (P,), spread (P, k), weight (P, k)). A relabelling in which a group
-    has no spread gives +inf (its weight is infinite).
-    """
-    k = sizes.size
-    diag = np.diagonal(B, axis1=1, axis2=2)                     # (P, k)
-    ss = t - diag / sizes
-    ss = np.where(np.abs(ss) <= _SPREAD_RTOL * abs(total), 0.0, ss)
-    spread = ss / (sizes - 1)
-    nn = diag / sizes ** 2
-    dist = nn[:, :, None] + nn[:, None, :] - 2 * B / np.outer(sizes, sizes)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        w = sizes / spread
-        big_w = w.sum(axis=1)
-        num = np.einsum("pj,pjl,pl->p", w, dist, w) / 2 / big_w / (k - 1)
-        h = ((1 - w / big_w[:, None]) ** 2 / (sizes - 1)).sum(axis=1)
-        stat = num / (1 + 2 * (k - 2) / (k * k - 1) * h)
-    stat = np.where((spread > 0).all(axis=1), stat, np.inf)
-    return stat, spread, w
-
-
-def _gram_blocks(resp: Response, onehot: np.ndarray, idx: np.ndarray, diag_g: np.ndarray):
-    """B = E' G E (P, k, k) and t (P, k) for the relabellings ``idx`` (P, n).
-
-    ``onehot`` (k - 1, n) holds the indicators of the first k - 1 groups; the last group's
-    blocks follow from G 1 = 0 (rows and columns of G sum to zero).
-    """
-    km1, n = onehot.shape
-    P = idx.shape[0]
-    u = np.take(onehot, idx, axis=1)                            # (k-1, P, n)
-    flat = u.reshape(km1 * P, n)
-    if resp.features is not None:
-        s = (flat @ resp.features).reshape(km1, P, -1)          # group sums of features
-        part = np.einsum("jpq,lpq->pjl", s, s)
-    else:
-        v = (flat @ resp.gower).reshape(km1, P, n)
-        part = np.einsum("jpn,lpn->pjl", v, u)
-    B = np.empty((P, km1 + 1, km1 + 1))
-    B[:, :km1, :km1] = (part + part.transpose(0, 2, 1)) / 2
-    B[:, :km1, km1] = B[:, km1, :km1] = -part.sum(axis=2)
-    B[:, km1, km1] = part.sum(axis=(1, 2))
-    t = np.empty((P, km1 + 1))
-    t[:, :km1] = np.einsum("jpn,n->pj", u, diag_g)
-    t[:, km1] = diag_g.sum() - t[:, :km1].sum(axis=1)
-    return B, t
-
-
-def _diag(resp: Response) -> np.ndarray:
-    if resp.features is not None:
-        return np.einsum("ij,ij->i", resp.features, resp.features)
-    return np.ascontiguousarray(np.diagonal(resp.gower))
-
-
-def welch_statistic(data, codes) -> float:
-    """W_d of the grouping ``codes`` (integers 0..k-1, every group >= 2 members).
-
-    ``data``: a Dissimilarity, a feature matrix (n x q) or a vector (one variable).
-    """
-    resp = prepare_response(data)
-    codes = np.asarray(codes, dtype=np.intp)
-    k = int(codes.max()) + 1
-    sizes = np.bincount(codes, minlength=k).astype(float)
-    onehot = (codes[None, :] == np.arange(k - 1)[:, None]).astype(float)
-    B, t = _gram_blocks(resp, onehot, np.arange(resp.n)[None, :], _diag(resp))
-    return float(_statistic(B, t, sizes, float(_diag(resp).sum()))[0][0])
-
-
-def _welch_df(weight: np.ndarray, sizes: np.ndarray) -> float:
-    k = sizes.size
-    share = weight / weight.sum()
-    h = float(((1 - share) ** 2 / (sizes - 1)).sum())
-    return (k * k - 1) / (3 * h) if h > 0 else math.inf
-
-
 # ---------------------------------------------------------------------------- the test
 def _symmetry(codes: np.ndarray, k: int, blocks: np.ndarray | None) -> int:
     """Number of relabellings of the groups among themselves that every permutation of
@@ -258,31 +199,6 @@ def _symmetry(codes: np.ndarray, k: int, blocks: np.ndarray | None) -> int:
     np.add.at(counts, (b, codes), 1)
     _, classes = np.unique(counts.T, axis=0, return_counts=True)
     return int(np.prod([math.factorial(int(c)) for c in classes]))
-
-
-def _run(resp: Response, codes: np.ndarray, perms: Permutations, progress, cancel):
-    k = int(codes.max()) + 1
-    sizes = np.bincount(codes, minlength=k).astype(float)
-    onehot = (codes[None, :] == np.arange(k - 1)[:, None]).astype(float)
-    diag_g = _diag(resp)
-    total = float(diag_g.sum())
-    B, t = _gram_blocks(resp, onehot, np.arange(resp.n)[None, :], diag_g)
-    stat, spread, weight = (a[0] for a in _statistic(B, t, sizes, total))
-    q = None if resp.features is None else resp.features.shape[1]
-    size = _batch_size(resp.n, k - 1, q)
-    null = np.empty(perms.total)
-    done = 0
-    for idx in perms.batches(size):
-        if cancel is not None and cancel():
-            raise Cancelled(f"stopped after {done} of {perms.total} permutations; "
-                            "no result was produced.")
-        b = idx.shape[0]
-        null[done:done + b] = _statistic(*_gram_blocks(resp, onehot, idx, diag_g),
-                                         sizes, total)[0]
-        done += b
-        if progress is not None:
-            progress(done, perms.total)
-    return float(stat), spread, weight, sizes, null
 
 
 def _group_codes(frame: pd.DataFrame, group, labels: pd.Index):
@@ -321,20 +237,6 @@ def _check_sizes(name: str, levels: list, codes: np.ndarray, what: str) -> None:
                           hint="Merge or drop those groups first.")
 
 
-def _unit_response(resp: Response, level) -> Response:
-    """The response of the unit centroids, centred again (unit sizes may differ)."""
-    m = level.m
-    if resp.features is not None:
-        sums = np.zeros((m, resp.features.shape[1]))
-        np.add.at(sums, level.codes, resp.features)
-        f = sums / level.sizes[:, None]
-        return Response(m, features=f - f.mean(axis=0))
-    g = unit_centroid_gower(resp.gower, level)
-    g = g - g.mean(axis=0)
-    g = g - g.mean(axis=1, keepdims=True)
-    return Response(m, gower=(g + g.T) / 2)
-
-
 def _symmetry_note(perms: Permutations, sym: int, what: str) -> str | None:
     nd = perms.n_distinct
     if nd is None or nd / sym >= FEW_PERMUTATIONS:
@@ -369,8 +271,79 @@ def _units_plan(frame, name, units, blocks, block_codes, block_name):
     return level, unit_blocks(level, block_codes, block_name), notes
 
 
+@dataclass(frozen=True, eq=False)
+class _Plan:
+    """What is compared: the response (samples or unit centroids, blocks removed), the
+    group code of each of its rows, the relabelling blocks and the notes so far."""
+
+    resp: object
+    codes: np.ndarray
+    levels: list
+    name: str
+    what: str
+    level: object
+    blocks: np.ndarray | None
+    block_name: str | None
+    notes: tuple
+
+
+def _prepare(d, samples, group, units, blocks) -> _Plan:
+    frame, notes = align_samples(samples, d.labels)
+    name, levels, codes, col = _group_codes(frame, group, d.labels)
+    if not isinstance(group, str):
+        frame = frame.copy()
+        frame[name] = col.to_numpy()
+    block_codes, block_name = block_labels(frame, blocks)
+    level, ublocks, unit_notes = _units_plan(frame, name, units, blocks, block_codes,
+                                             block_name)
+    notes += unit_notes
+    resp = prepare_response(d)
+    if level is None:
+        use_codes, use_blocks, what = codes, block_codes, "sample"
+    else:
+        use_codes = np.empty(level.m, dtype=np.intp)
+        use_codes[level.codes] = codes
+        use_blocks, what = ublocks, "unit"
+        resp = unit_response(resp, level)
+        notes += (f"Tested at the level of {level.name!r} ({level.describe()}): the "
+                  f"centroids of the units were compared and whole units relabelled"
+                  + ("" if level.balanced else "; units with more samples have less "
+                     "variable centroids, and each group's spread averages over its units")
+                  + ".",)
+    _check_sizes(name, levels, use_codes, what)
+    if use_blocks is not None:
+        resp = remove_blocks(resp, use_blocks)
+        notes += (f"Groups were compared within blocks of {block_name or 'blocks'!r}: block "
+                  "centroids were removed first, so spreads and centroids are within "
+                  "blocks.",)
+    return _Plan(resp, use_codes, levels, name, what, level, use_blocks, block_name, notes)
+
+
+def _result_notes(plan: _Plan, perms, sizes, stat, null, small_sample, d) -> tuple:
+    notes: tuple = ()
+    limit = SMALL_GROUP if small_sample else RAW_SMALL_GROUP
+    small = [plan.levels[j] for j in range(sizes.size) if sizes[j] < limit]
+    if small and small_sample:
+        notes += (f"Group(s) {small} hold fewer than {limit} {plan.what}s: {SMALL_NOTE}",)
+    elif small:
+        notes += (f"Group(s) {small} hold fewer than {limit} {plan.what}s and the raw "
+                  f"statistics were ranked (small_sample=False): {RAW_NOTE}",)
+    coarse = _symmetry_note(perms, _symmetry(plan.codes, sizes.size, plan.blocks),
+                            f"{plan.what}s")
+    notes += ((coarse,) if coarse else ())
+    if np.isinf(null).any():
+        notes += (f"{int(np.isinf(null).sum())} relabelling(s) left a group without spread; "
+                  "their statistic counts as infinite (at least the observed one).",)
+    if d.properties.get("euclidean") is False and not d.has_features:
+        notes += ("The measure is not Euclidean: centroid distances are taken in its "
+                  "principal-coordinate space with imaginary axes subtracted"
+                  + (" (the statistic is negative here)." if stat < 0 else "."),)
+    return notes
+
+
 def welch_permanova(d, samples, group, *, n_permutations: int = 999, rng=None, units=None,
-                    blocks=None, progress: Callable[[int, int], None] | None = None,
+                    blocks=None, small_sample: bool = True,
+                    progress: Callable[[int, int], None] | None = None,
                     cancel: Callable[[], bool] | None = None) -> WelchResult:
     """Do the groups' centroids differ, allowing each group its own spread? (Welch-type)
 
@@ -391,7 +364,14 @@ def welch_permanova(d, samples, group, *, n_permutations: int = 999, rng=None, u
         units, the centroids of the units are compared (their Gower matrix) and whole units
         are relabelled; the groups must be constant within units.
     blocks : str, Series or sequence, optional
-        Relabel only within blocks (with units, blocks must hold whole units).
+        Relabel only within blocks (with units, blocks must hold whole units). Block
+        centroids are removed first, so the groups are compared within blocks.
+    small_sample : bool, default True
+        Compare every relabelling's statistic through its tail probability under Welch's F
+        reference with that relabelling's own degrees of freedom, widened to the data's
+        effective number of dimensions (prepivoting; see Notes). False ranks the raw
+        statistics, as the published test does; it is liberal with few samples in a
+        group that is more spread than the others.
     progress : callable(done, total), optional
     cancel : callable() -> bool, optional
         True stops the run with :class:`tallyform.errors.Cancelled`.
@@ -415,14 +395,30 @@ def welch_permanova(d, samples, group, *, n_permutations: int = 999, rng=None, u
     T_w^2 = ||c_1 - c_2||^2 / (s_1^2 / n_1 + s_2^2 / n_2) (Alekseyenko 2016). With one
     variable and Euclidean distances it equals Welch's (1951) F. For a measure that is not
     Euclidean, squared centroid distances are taken in its principal-coordinate space with
-    imaginary axes subtracted and can be negative, so can the statistic. p = (1 + #{W* >=
-    W}) / (1 + P), or the exact proportion over every distinct relabelling. Relabelling is
-    not exact when spreads differ; the test is asymptotically valid for a studentised
-    statistic (Janssen 1997; Chung & Romano 2013); see the calibration table.
+    imaginary axes subtracted and can be negative, so can the statistic.
+
+    Relabelling is not exact when spreads differ; with a studentised statistic it is
+    asymptotically valid (Janssen 1997; Chung & Romano 2013). With few samples in a widely
+    spread group the permutation distribution of W_d is too light-tailed: the true
+    statistic carries the uncertainty of that group's spread (Welch's nu is small), while
+    relabelled groups mix samples and have larger nu. ``small_sample=True`` therefore
+    ranks relabellings by P(F > W*) with F ~ F((k - 1) f, nu* f), nu* the relabelling's
+    Welch degrees of freedom and f = tr(V)^2 / tr(V^2) the effective number of dimensions
+    of the centroid noise V = sum_j S_j / n_j (Box 1954), i.e. the permutation test of a
+    prepivoted statistic (Beran 1988). In one dimension that is Welch's own F reference.
+    It changes nothing asymptotically and keeps the test exact when the groups are
+    exchangeable. ``null_distribution`` then holds each relabelling's statistic mapped to
+    the observed nu (the W with the same tail probability), so the share of it at least
+    the observed W is the p-value. p = (1 + #{W* >= W}) / (1 + P), or the exact proportion
+    over every distinct relabelling. See the calibration table for rates.
 
     References
     ----------
     Alekseyenko, A. V. (2016). Bioinformatics 32, 3552-3558.
+    Beran, R. (1988). Prepivoting test statistics: a bootstrap view of asymptotic
+    refinements. J. Amer. Statist. Assoc. 83, 687-697.
+    Box, G. E. P. (1954). Some theorems on quadratic forms applied in the study of analysis
+    of variance problems, I. Ann. Math. Statist. 25, 290-302.
     Hamidi, B., Wallace, K., Vasu, C. & Alekseyenko, A. V. (2019). Microbiome 7, 51.
     Welch, B. L. (1951). Biometrika 38, 330-336.
 
@@ -444,64 +440,41 @@ def welch_permanova(d, samples, group, *, n_permutations: int = 999, rng=None, u
     """
     d = check_dissimilarity(d)
     n_permutations = check_n_permutations(n_permutations)
-    frame, notes = align_samples(samples, d.labels)
-    name, levels, codes, col = _group_codes(frame, group, d.labels)
-    if not isinstance(group, str):
-        frame = frame.copy()
-        frame[name] = col.to_numpy()
-    block_codes, block_name = block_labels(frame, blocks)
-    level, ublocks, unit_notes = _units_plan(frame, name, units, blocks, block_codes,
-                                             block_name)
-    notes += unit_notes
-    resp = prepare_response(d)
-    k = len(levels)
-    if level is None:
-        use_codes, use_blocks, what = codes, block_codes, "sample"
-    else:
-        use_codes = np.empty(level.m, dtype=np.intp)
-        use_codes[level.codes] = codes
-        use_blocks, what = ublocks, "unit"
-        resp = _unit_response(resp, level)
-        notes += (f"Tested at the level of {level.name!r} ({level.describe()}): the "
-                  f"centroids of the units were compared and whole units relabelled"
-                  + ("" if level.balanced else "; units with more samples have less "
-                     "variable centroids, and each group's spread averages over its units")
-                  + ".",)
-    _check_sizes(name, levels, use_codes, what)
-    onehot = (use_codes[None, :] == np.arange(k)[:, None]).astype(float).T
-    perms = Permutations(resp.n, n_permutations, as_rng(rng), blocks=use_blocks,
-                         block_name=block_name, design=onehot)
-    stat, spread, weight, sizes, null = _run(resp, use_codes, perms, progress, cancel)
-    flat = [levels[j] for j in range(k) if not spread[j] > 0]
+    plan = _prepare(d, samples, group, units, blocks)
+    k = len(plan.levels)
+    onehot = (plan.codes[None, :] == np.arange(k)[:, None]).astype(float).T
+    perms = Permutations(plan.resp.n, n_permutations, as_rng(rng), blocks=plan.blocks,
+                         block_name=plan.block_name, design=onehot)
+    stat, spread, weight, sizes, nu, null, null_nu = run_permutations(
+        plan.resp, plan.codes, perms, progress, cancel)
+    flat = [plan.levels[j] for j in range(k) if not spread[j] > 0]
     if flat:
-        raise DesignError(f"group(s) {flat} of {name!r} have no spread (all their {what}s "
-                          "sit at the same point), so their Welch weight is infinite.",
-                          location=Location(column=repr(name)),
+        raise DesignError(f"group(s) {flat} of {plan.name!r} have no spread (all their "
+                          f"{plan.what}s sit at the same point), so their Welch weight is "
+                          "infinite.", location=Location(column=repr(plan.name)),
                           hint="A location test needs variation within each group; "
                                "check the measure (e.g. presence-absence on identical "
                                "samples) or merge groups.")
-    pvalue = pvalue_from_null(stat, null, exact=perms.exact)
-    small = [levels[j] for j in range(k) if sizes[j] < SMALL_GROUP]
-    if small:
-        notes += (f"Group(s) {small} hold fewer than {SMALL_GROUP} {what}s. Relabelling is "
-                  "not exact when spreads differ, and with so few it can be liberal: in "
-                  f"simulations {SMALL_NOTE}. Read p-values near the threshold with care.",)
-    sym = _symmetry(use_codes, k, use_blocks)
-    coarse = _symmetry_note(perms, sym, f"{what}s")
-    notes += ((coarse,) if coarse else ())
-    if np.isinf(null).any():
-        notes += (f"{int(np.isinf(null).sum())} relabelling(s) left a group without spread; "
-                  "their statistic counts as infinite (at least the observed one).",)
-    if d.properties.get("euclidean") is False and not d.has_features:
-        notes += ("The measure is not Euclidean: centroid distances are taken in its "
-                  "principal-coordinate space with imaginary axes subtracted"
-                  + (" (the statistic is negative here)." if stat < 0 else "."),)
+    dims = effective_dims(plan.resp, plan.codes, sizes)
+    if small_sample:
+        level_null = calibrate(null, null_nu, dims, k)
+        pvalue = pvalue_from_null(float(calibrate(stat, nu, dims, k)), level_null,
+                                  exact=perms.exact)
+        null = equivalent(level_null, nu, dims, k)
+    else:
+        pvalue = pvalue_from_null(stat, null, exact=perms.exact)
+    notes = plan.notes + _result_notes(plan, perms, sizes, stat, null, small_sample, d)
     table = pd.DataFrame({"n": sizes.astype(int), "spread": spread, "weight": weight,
                           "share": weight / weight.sum()},
-                         index=pd.Index(levels, name=name))
-    scheme = perms.describe() + ("" if level is None else f"; whole units of {level.name!r}")
+                         index=pd.Index(plan.levels, name=plan.name))
+    scheme = perms.describe() + ("" if plan.level is None else
+                                 f"; whole units of {plan.level.name!r}")
+    if small_sample:
+        scheme += ("; each relabelling referred to Welch's F with its own degrees of freedom "
+                   "(prepivoting)")
     return WelchResult(statistic=stat, pvalue=float(pvalue), null_distribution=null,
-                       groups=table, df=(k - 1, _welch_df(weight, sizes)), scheme=scheme,
-                       n_permutations=int(perms.total), exact=bool(perms.exact), group=name,
-                       measure=d.measure, n_samples=d.n,
-                       units=None if level is None else level.name, notes=notes)
+                       groups=table, df=(k - 1, nu), scheme=scheme,
+                       n_permutations=int(perms.total), exact=bool(perms.exact),
+                       group=plan.name, measure=d.measure, n_samples=d.n,
+                       units=None if plan.level is None else plan.level.name,
+                       small_sample=bool(small_sample), dimensions=float(dims), notes=notes)

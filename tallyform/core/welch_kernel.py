@@ -75,6 +75,7 @@ def gram_blocks(resp: Response, onehot: np.ndarray, idx: np.ndarray, diag_g: np.
 
 
 def diagonal(resp: Response) -> np.ndarray:
+    """G_ii for every sample (squared norms of the centred features)."""
     if resp.features is not None:
         return np.einsum("ij,ij->i", resp.features, resp.features)
     return np.ascontiguousarray(np.diagonal(resp.gower))
@@ -141,16 +142,19 @@ def effective_dims(resp: Response, codes: np.ndarray, sizes: np.ndarray) -> floa
         v = r.T @ (a[:, None] * r)
         tr_v2 = float(np.einsum("ij,ij->", v, v))
     else:
-        if resp.features is not None:
+        if resp.features is not None:                          # more features than samples
             f = resp.features - (scaled.T @ resp.features)[codes]
-            rows_of = lambda sl: f[sl] @ f.T                   # noqa: E731
-            m = means = None
+
+            def rows_of(sl):
+                return f[sl] @ f.T
         else:
             g = resp.gower
-            m = g @ scaled                                     # n x k: mean over group l
+            m = g @ scaled                                     # n x k: row means by group
             means = scaled.T @ m                               # k x k: block means
-            rows_of = lambda sl: (g[sl] - m[sl][:, codes] - m[:, codes[sl]].T  # noqa: E731
-                                  + means[codes[sl]][:, codes])
+
+            def rows_of(sl):                                   # rows of (I - H) G (I - H)
+                return (g[sl] - m[sl][:, codes] - m[:, codes[sl]].T
+                        + means[codes[sl]][:, codes])
         tr_v = tr_v2 = 0.0
         step = max(1, int(2**22 // max(resp.n, 1)))
         for start in range(0, resp.n, step):

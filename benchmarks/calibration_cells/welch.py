@@ -93,7 +93,7 @@ def counts(sizes, generator, per_group, *, test="welch", total=3000, masses="fix
     return replicate
 
 
-def _pair(id_, design, make, *, reps=1000, short=100, reference=True, check=True,
+def _pair(id_, design, make, *, reps=1000, short=60, reference=True, check=True,
           raw=False, method="welch_permanova"):
     """A Welch cell, optionally with reference rows on the same data: PERMANOVA, and the
     raw permutation test (small_sample=False, the published form)."""
@@ -180,25 +180,24 @@ CELLS = [
            lambda t: euclidean((10, 30), (4.0, 1.0), test=t, law="lognormal"), raw=True),
     *_pair("dm-2g-10v30-sd2", "2 groups 10 / 30 at 3000 counts, Dirichlet-multinomial, small "
            "group sd 2x (icc 0.081 vs 0.02), chi-square (fixed masses)",
-           lambda t: counts((10, 30), "dirichlet", ({"icc": DM_2X}, {"icc": DM_BASE}), test=t),
-           short=60),
+           lambda t: counts((10, 30), "dirichlet", ({"icc": DM_2X}, {"icc": DM_BASE}), test=t)),
     *_pair("dm-2g-10v30-sd4", "2 groups 10 / 30 at 3000 counts, Dirichlet-multinomial, small "
            "group sd 4x (icc 0.325 vs 0.02), chi-square (fixed masses)",
            lambda t: counts((10, 30), "dirichlet", ({"icc": DM_4X}, {"icc": DM_BASE}), test=t),
-           short=60, raw=True),
+           raw=True),
     *_pair("dm-2g-6v18-sd4", "2 groups 6 / 18 at 3000 counts, Dirichlet-multinomial, small "
            "group sd 4x (icc 0.325 vs 0.02), chi-square (fixed masses)",
            lambda t: counts((6, 18), "dirichlet", ({"icc": DM_4X}, {"icc": DM_BASE}), test=t),
-           short=60, raw=True, reference=False),
+           raw=True, reference=False),
     *_pair("dm-3g-8v16v24-sd4", "3 groups 8 / 16 / 24 at 3000 counts, Dirichlet-multinomial, "
            "icc 0.325 / 0.081 / 0.02, chi-square (fixed masses)",
            lambda t: counts((8, 16, 24), "dirichlet", ({"icc": DM_4X}, {"icc": DM_2X},
-                                                        {"icc": DM_BASE}), test=t), short=60),
+                                                        {"icc": DM_BASE}), test=t)),
     *_pair("lognormal-2g-10v30-totals", "2 groups 10 / 30, same log-normal biology, small "
            "group counted at 400 vs 20000 (counting noise), chi-square (fixed masses)",
            lambda t: counts((10, 30), "lognormal", ({"sd": 0.3, "total": 400},
                                                     {"sd": 0.3, "total": 20000}), test=t),
-           short=60, raw=True),
+           raw=True),
     *_pair("lognormal-2g-10v30-totals100", "2 groups 10 / 30, same log-normal biology, small "
            "group counted at 100 vs 20000 (sparse, heavy-tailed profiles), chi-square (fixed "
            "masses)",
@@ -211,7 +210,7 @@ CELLS = [
            lambda t: counts((8, 12, 20), "gamma_poisson", ({"k": 2.0, "total": 150},
                                                            {"k": 2.0, "total": 1000},
                                                            {"k": 2.0, "total": 10000}),
-                            test=t), short=60),
+                            test=t)),
     *_pair("dm-2g-15v15-sd4-table-masses", "2 groups 15 / 15, Dirichlet-multinomial icc "
            "0.325 vs 0.02, chi-square with the table's column masses (centroids differ in "
            "the measured space)",
@@ -219,7 +218,7 @@ CELLS = [
                             masses="table"), check=False, reps=400),
     Cell("welch/units-6v18-tanks-sd4", "Welch-type", "welch_permanova(units='tank')",
          "6 impacted / 18 control tanks x 3 visits, tank effects sd 4x in impacted tanks, "
-         f"{_E5}", units_design, reps=1000, short_reps=100),
+         f"{_E5}", units_design, reps=1000, short_reps=60),
     Cell("welch/units-6v18-tanks-sd4-no-units", "Welch-type",
          "welch_permanova(units=False) (reference: visits as replicates)",
          "6 impacted / 18 control tanks x 3 visits, tank effects sd 4x in impacted tanks, "
@@ -227,5 +226,5 @@ CELLS = [
     Cell("welch/blocks-4x10-sd4", "Welch-type", "welch_permanova(blocks='block')",
          "4 blocks of 10 (effects sd 2) with 2 / 3 / 3 / 4 impacted samples (sd 4x) among "
          f"controls, relabelled within blocks, {_E5}", blocks_design, reps=1000,
-         short_reps=100),
+         short_reps=60),
 ]

@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from scipy import stats
-from scipy.spatial.distance import pdist, squareform
+from scipy.spatial.distance import pdist
 
 import tallyform as tly
 from tallyform.core.dissimilarity import Dissimilarity

@@ -11,6 +11,7 @@ from .core.constrained import ca, cca, db_rda, rda
 from .core.constraint_tests import ConstraintTest, constraint_test
 from .core.dispersion import dispersion_test
 from .core.inference import pairwise_permanova, permanova
+from .core.welch import WelchResult, welch_permanova
 from .core.contributions import TaxonContributions, taxon_contributions
 from .core.io import read_counts, read_darwin_core, read_long, read_samples
 from .core.nmds import nmds
@@ -58,7 +59,7 @@ __all__ = [
     "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
-    "permanova", "pairwise_permanova", "dispersion_test", "size_test", "compare_groups",
+    "permanova", "pairwise_permanova", "welch_permanova", "WelchResult", "dispersion_test", "size_test", "compare_groups",
     "taxon_contributions", "TaxonContributions", "explore", "report", "write_outputs",
     "set_memory_limit", "memory_limit",
 ]

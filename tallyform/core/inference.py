@@ -391,11 +391,13 @@ class PairwiseResult(ResultMixin):
     ----------
     table : DataFrame
         One row per pair: ``group_a, group_b, n_a, n_b, pseudo_f, r2, pvalue,
-        pvalue_adjusted, n_permutations, exact``.
+        pvalue_adjusted, n_permutations, exact``; with ``statistic='welch'``, ``welch_t2,
+        spread_a, spread_b`` in place of ``pseudo_f, r2``.
     statistic, pvalue, pvalue_adjusted : Series (indexed like ``table``)
     adjust : {'holm', 'bh', None}
     group : str
     notes : tuple of str
+    statistic_name : {'pseudo_f', 'welch_t2'}
     """
 
     table: pd.DataFrame
@@ -406,18 +408,21 @@ class PairwiseResult(ResultMixin):
     group: str
     measure: str
     notes: tuple = ()
+    statistic_name: str = "pseudo_f"
 
     def to_frame(self) -> pd.DataFrame:
         return self.table.copy()
 
     def _title(self) -> str:
         how = {"holm": "Holm", "bh": "Benjamini-Hochberg", None: "no"}[self.adjust]
-        return (f"Pairwise PERMANOVA on {self.measure} between levels of {self.group!r} "
+        what = ("Welch-type tests (T_w^2)" if self.statistic_name == "welch_t2"
+                else "PERMANOVA")
+        return (f"Pairwise {what} on {self.measure} between levels of {self.group!r} "
                 f"({how} adjustment)")
 
 
 def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", blocks=None,
-                       n_permutations: int = 999, rng=None,
+                       n_permutations: int = 999, rng=None, statistic: str = "pseudo_f",
                        progress: Callable[[int, int], None] | None = None,
                        cancel: Callable[[], bool] | None = None) -> PairwiseResult:
     """One-factor PERMANOVA between every pair of levels of ``group``, p-values adjusted.
@@ -433,6 +438,10 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", b
         adjustment over all pairs.
     blocks, n_permutations, rng, progress, cancel
         As in :func:`permanova`; each pair gets its own independent random stream.
+    statistic : {'pseudo_f', 'welch'}, default 'pseudo_f'
+        PERMANOVA's pseudo-F, or the Welch-type T_w^2 (Alekseyenko 2016), which allows
+        each group its own spread (:func:`tallyform.core.welch.welch_permanova`; samples
+        as replicates).
 
     Returns
     -------
@@ -459,6 +468,7 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", b
     """
     d = check_dissimilarity(d)
     check_option("adjust", adjust, _ADJUST)
+    check_option("statistic", statistic, ("pseudo_f", "welch"))
     n_permutations = check_n_permutations(n_permutations)
     frame, notes = align_samples(samples, d.labels)
     model_matrix(frame, [group])                      # the same checks as PERMANOVA
@@ -483,30 +493,45 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", b
         sub_frame[group] = pd.Categorical(labels[mask], categories=[a, b])
         sub_blocks = None if block_codes is None else pd.Series(
             block_codes[mask], index=sub.labels, name=block_name)
+        test = permanova if statistic == "pseudo_f" else _welch_pair
         try:
-            res = permanova(sub, sub_frame, [group], blocks=sub_blocks,
-                            n_permutations=n_permutations, rng=stream,
-                            progress=None if progress is None else
-                            (lambda done, total, k=k: progress(k * total + done,
-                                                               len(pairs) * total)),
-                            cancel=cancel)
+            res = test(sub, sub_frame, [group], blocks=sub_blocks,
+                       n_permutations=n_permutations, rng=stream,
+                       progress=None if progress is None else
+                       (lambda done, total, k=k: progress(k * total + done,
+                                                          len(pairs) * total)),
+                       cancel=cancel)
         except DesignError as err:
             raise DesignError(f"comparing {a!r} with {b!r}: {err.detail}",
                               location=err.location, hint=err.hint) from None
-        row = res.table.loc[group]
-        rows.append(dict(pair=f"{a} vs {b}", group_a=a, group_b=b, n_a=int(counts[a]),
-                         n_b=int(counts[b]), pseudo_f=row["pseudo_f"], r2=row["r2"],
-                         pvalue=row["pvalue"], n_permutations=res.n_permutations,
-                         exact=res.exact))
+        row = dict(pair=f"{a} vs {b}", group_a=a, group_b=b, n_a=int(counts[a]),
+                   n_b=int(counts[b]))
+        if statistic == "pseudo_f":
+            row.update(pseudo_f=res.table.loc[group, "pseudo_f"], r2=res.table.loc[group, "r2"])
+        else:
+            row.update(welch_t2=res.statistic, spread_a=res.groups.loc[a, "spread"],
+                       spread_b=res.groups.loc[b, "spread"])
+        rows.append(dict(row, pvalue=float(res.pvalue if statistic == "welch"
+                                           else res.table.loc[group, "pvalue"]),
+                         n_permutations=res.n_permutations, exact=res.exact))
         for note in res.notes:
-            if note.startswith("Only") and note not in notes:
+            if note.startswith(("Only", "Group(s)")) and note not in notes:
                 notes += (f"{a} vs {b}: {note}",)
     table = pd.DataFrame(rows).set_index("pair")
     table.insert(table.columns.get_loc("pvalue") + 1, "pvalue_adjusted",
                  adjust_pvalues(table["pvalue"].to_numpy(), adjust))
-    notes += ("Pairwise tests share PERMANOVA's sensitivity to unequal spread: a small "
-              "p-value can reflect different dispersions as well as different centroids.",)
-    return PairwiseResult(table=table, statistic=table["pseudo_f"].copy(),
+    if statistic == "pseudo_f":
+        notes += ("Pairwise tests share PERMANOVA's sensitivity to unequal spread: a small "
+                  "p-value can reflect different dispersions as well as different centroids.",)
+    stat_col = "pseudo_f" if statistic == "pseudo_f" else "welch_t2"
+    return PairwiseResult(table=table, statistic=table[stat_col].copy(),
                           pvalue=table["pvalue"].copy(),
                           pvalue_adjusted=table["pvalue_adjusted"].copy(), adjust=adjust,
-                          group=str(group), measure=d.measure, notes=notes)
+                          group=str(group), measure=d.measure, notes=notes,
+                          statistic_name=stat_col)
+
+
+def _welch_pair(d, frame, terms, **kw):
+    """The Welch-type test of one pair (samples as replicates), for pairwise_permanova."""
+    from .welch import welch_permanova            # welch.py imports this module
+    return welch_permanova(d, frame, terms[0], units=False, **kw)

@@ -116,9 +116,15 @@ def test_bootstrap_reference_is_reproducible_and_cancellable():
     assert 1 / 50 <= a.pvalue <= 1
     seen = []
     with pytest.raises(Cancelled):
-        size_test(tab, "g", method="negbin", nb_reference="bootstrap", n_boot=49, rng=7,
-                  progress=lambda d, t: seen.append(d), cancel=lambda: len(seen) >= 3)
-    assert seen == [1, 2, 3]
+        size_test(tab, "g", method="negbin", nb_reference="bootstrap", n_boot=99, rng=7,
+                  progress=lambda d, t: seen.append((d, t)), cancel=lambda: len(seen) >= 2)
+    assert seen == [(25, 99), (50, 99)]
+    # the bootstrap's likelihood ratios are the scalar fits' (vectorised fit, same answer)
+    from tallyform.core.negbin import _lr, lr_rows
+    rng = np.random.default_rng(1)
+    Y = rng.negative_binomial(2.0, 2.0 / 102.0, size=(5, codes.size)).astype(float)
+    ref = [_lr(Y[i], codes, 2, None)[0] for i in range(5)]
+    assert lr_rows(Y, codes, 2) == pytest.approx(ref, rel=1e-7, abs=1e-8)
 
 
 def test_quantile_residuals_are_normal_under_the_model():

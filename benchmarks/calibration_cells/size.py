@@ -145,6 +145,47 @@ def _kruskal(sizes, ratios):
     return rep
 
 
+def _blocked(n_blocks, per_cell, ratios, method="welch", block_sd=0.5):
+    """Blocks x groups with ``per_cell`` samples per group in every block, additive block
+    effects on log totals, equal geometric means, variance ratio per group."""
+    def rep(rng):
+        k = len(ratios)
+        g = np.tile(np.repeat(np.arange(k), per_cell), n_blocks)
+        b = np.repeat(np.arange(n_blocks), k * per_cell)
+        sd = _BASE * np.sqrt(np.asarray(ratios, dtype=float))[g]
+        y = np.exp(np.log(_MU) + block_sd * rng.standard_normal(n_blocks)[b]
+                   + sd * rng.standard_normal(g.size))
+        tab = _table(np.maximum(np.round(y), 1), np.asarray(list(_LEVELS))[g],
+                     {"bench": [f"b{i}" for i in b]})
+        return float(size_test(tab, "g", method=method, blocks="bench",
+                               units=False).pvalue)
+    return rep
+
+
+def _covers(res, level_name, truth):
+    lo, hi = res.summary.loc[level_name, ["ci_low", "ci_high"]]
+    return bool(lo <= truth <= hi)
+
+
+def _welch_coverage(sizes, ratios, effect=1.5):
+    def rep(rng):
+        y = _lognormal_totals(rng, sizes, ratios) * np.where(_groups(sizes) == "b", effect, 1)
+        res = size_test(_table(np.round(y), _groups(sizes)), "g", units=False)
+        return _covers(res, "b", effect)
+    return rep
+
+
+def _negbin_coverage(sizes, nb_sizes, effect=1.5):
+    def rep(rng):
+        g = _groups(sizes)
+        s = np.repeat(nb_sizes, sizes).astype(float)
+        mu = 200.0 * np.where(g == "b", effect, 1.0)
+        y = rng.negative_binomial(s, s / (s + mu)).astype(float)
+        res = size_test(_table(y, g), "g", method="negbin", units=False)
+        return _covers(res, "b", effect)
+    return rep
+
+
 # ---------------------------------------------------------------------------- units
 def _unit_data(rng, tanks_per_group=(5, 5), visits=4, missing=0.0, tank_sd=0.5,
                resid_sd=0.3, within_sd=None):
@@ -220,6 +261,21 @@ def _lognormal_cells():
         out.append(Cell(f"size/welch-small/{key}", "size test", "size_test (welch), n < 5",
                         f"log-normal totals, equal geometric means; {words}",
                         _welch_lognormal(sizes, ratios), reps=1000, check=False))
+    for nb, per, ratios, method, words in [
+            (6, 1, (9, 1, 1), "welch", "6 blocks x 3 groups, 1 sample per group and block, "
+                                       "variance ratio 9"),
+            (4, 2, (9, 1), "welch", "4 blocks x 2 groups, 2 samples per group and block, "
+                                    "variance ratio 9"),
+            (5, 2, (1, 3, 9), "welch", "5 blocks x 3 groups, 2 samples per group and block, "
+                                       "variances 1:3:9"),
+            (6, 1, (1, 1, 1), "anova", "6 blocks x 3 groups, 1 sample per group and block, "
+                                       "equal variances")]:
+        key = f"{nb}x{per}-v" + "".join(map(str, ratios))
+        out.append(Cell(f"size/blocks-{method}/{key}", "size test",
+                        f"size_test ({method}, blocks=...)",
+                        f"log-normal totals, block effects sd 0.5, equal geometric means; "
+                        f"{words}", _blocked(nb, per, ratios, method), reps=1000,
+                        short_reps=60))
     for sizes, shapes, words in [((5, 20), (1.5, 8), "5 + 20, gamma shapes 1.5 and 8"),
                                  ((20, 5), (1.5, 8), "20 + 5, gamma shapes 1.5 and 8")]:
         key = "x".join(map(str, sizes))
@@ -243,15 +299,15 @@ def _reference_cells():
         Cell("size/permutation-welch/3x3-v91", "size test",
              "Welch F by permutation (measured, not shipped)",
              "log-normal totals, equal geometric means; 3 + 3, variance ratio 9",
-             _welch_permutation((3, 3), (9, 1)), reps=1000, check=False),
+             _welch_permutation((3, 3), (9, 1)), reps=400, check=False),
         Cell("size/permutation-welch/4x4-v91", "size test",
              "Welch F by permutation (measured, not shipped)",
              "log-normal totals, equal geometric means; 4 + 4, variance ratio 9",
-             _welch_permutation((4, 4), (9, 1)), reps=1000, check=False),
+             _welch_permutation((4, 4), (9, 1)), reps=400, check=False),
         Cell("size/permutation-welch/4x4-v11", "size test",
              "Welch F by permutation (measured, not shipped)",
              "log-normal totals, equal geometric means; 4 + 4, variance ratio 1",
-             _welch_permutation((4, 4), (1, 1)), reps=1000, check=False),
+             _welch_permutation((4, 4), (1, 1)), reps=400, check=False),
     ]
     for sizes in [(8, 8), (5, 20)]:
         key = "x".join(map(str, sizes))
@@ -345,4 +401,27 @@ def _unit_cells():
     ]
 
 
-CELLS = _lognormal_cells() + _reference_cells() + _negbin_cells() + _unit_cells()
+def _coverage_cells():
+    out = []
+    for sizes, ratios, words in [((5, 20), (9, 1), "5 + 20, variance ratio 9, small variable"),
+                                 ((5, 20), (1, 9), "5 + 20, variance ratio 9, large variable"),
+                                 ((8, 8), (1, 1), "8 + 8, equal variances")]:
+        key = "x".join(map(str, sizes)) + "-v" + "".join(map(str, ratios))
+        out.append(Cell(f"size/welch-interval/{key}", "size test",
+                        "size_test (welch): 95 % interval of the ratio of geometric means",
+                        f"log-normal totals, true ratio 1.5; {words}",
+                        _welch_coverage(sizes, ratios), kind="coverage", reps=1000,
+                        short_reps=80))
+    for sizes, shapes, words in [((8, 8), (1.5, 20), "8 + 8, NB sizes 1.5 and 20"),
+                                 ((20, 5), (1.5, 20), "20 + 5, NB sizes 1.5 and 20"),
+                                 ((5, 20), (1.5, 20), "5 + 20, NB sizes 1.5 and 20")]:
+        key = "x".join(map(str, sizes)) + "-k" + "-".join(f"{x:g}" for x in shapes)
+        out.append(Cell(f"size/negbin-interval/{key}", "size test",
+                        "size_test (negbin): 95 % interval of the ratio of mean totals",
+                        f"NB totals, true ratio 1.5; {words}",
+                        _negbin_coverage(sizes, shapes), kind="coverage", reps=400,
+                        short_reps=30))
+    return out
+
+
+CELLS = _coverage_cells() + _lognormal_cells() + _reference_cells() + _negbin_cells() + _unit_cells()

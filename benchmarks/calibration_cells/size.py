@@ -12,6 +12,7 @@ n, power, and the pseudoreplicated analysis of units.
 from __future__ import annotations
 
 import itertools
+import zlib
 
 import numpy as np
 import pandas as pd
@@ -20,7 +21,14 @@ from scipy import special, stats
 from tallyform.core.size_tests import size_test
 from tallyform.core.table import CommunityTable
 
-from .base import Cell
+from .base import Cell as _BaseCell
+
+
+def Cell(id, *args, **kw):                                       # noqa: N802
+    """A cell with its own random streams (seed from its id), so that cells do not share
+    their Monte Carlo error."""
+    kw.setdefault("seed", zlib.crc32(id.encode()))
+    return _BaseCell(id, *args, **kw)
 
 _LEVELS = "abcdefgh"
 _BASE = 0.3            # sd of log totals of the steady groups

@@ -124,7 +124,7 @@ def _welch_permutation(sizes, ratios):
     return rep
 
 
-def _negbin(sizes, nb_sizes, reference="F", n_boot=99):
+def _negbin(sizes, nb_sizes, reference="bootstrap", n_boot=99):
     def rep(rng):
         y = _nb_totals(rng, sizes, nb_sizes)
         if any(y[_groups(sizes) == lv].sum() == 0 for lv in _LEVELS[: len(sizes)]):
@@ -138,7 +138,8 @@ def _negbin(sizes, nb_sizes, reference="F", n_boot=99):
 def _negbin_off_model(sizes, sds, fired=False):
     def rep(rng):
         y = _nb_lognormal(rng, sizes, sds)
-        res = size_test(_table(y, _groups(sizes)), "g", method="negbin", units=False)
+        res = size_test(_table(y, _groups(sizes)), "g", method="negbin", units=False,
+                        nb_reference="F" if fired else "bootstrap", n_boot=99, rng=rng)
         if fired:                                   # "p" 0 when the fit check fired
             return 0.0 if res.too_skewed else 1.0
         return float(res.pvalue)
@@ -189,7 +190,7 @@ def _negbin_coverage(sizes, nb_sizes, effect=1.5):
         s = np.repeat(nb_sizes, sizes).astype(float)
         mu = 200.0 * np.where(g == "b", effect, 1.0)
         y = rng.negative_binomial(s, s / (s + mu)).astype(float)
-        res = size_test(_table(y, g), "g", method="negbin", units=False)
+        res = size_test(_table(y, g), "g", method="negbin", units=False, nb_reference="F")
         return _covers(res, "b", effect)
     return rep
 
@@ -225,7 +226,8 @@ def _unit_data(rng, tanks_per_group=(5, 5), visits=4, missing=0.0, tank_sd=0.5,
 def _between_units(tanks_per_group, missing, units="tank", method="welch"):
     def rep(rng):
         tab = _unit_data(rng, tanks_per_group, missing=missing)
-        return float(size_test(tab, "g", units=units, method=method).pvalue)
+        return float(size_test(tab, "g", units=units, method=method, n_boot=99,
+                               rng=rng).pvalue)
     return rep
 
 
@@ -344,9 +346,15 @@ def _negbin_cells():
     ]
     for sizes, shapes, words in designs:
         key = "x".join(map(str, sizes)) + "-k" + "-".join(f"{s:g}" for s in shapes)
-        out.append(Cell(f"size/negbin/{key}", "size test", "size_test (negbin)",
+        out.append(Cell(f"size/negbin/{key}", "size test",
+                        "size_test (negbin, bootstrap reference, 99 draws)",
                         f"NB totals, mean 200 in every group; {words}",
-                        _negbin(sizes, shapes), reps=400, short_reps=30))
+                        _negbin(sizes, shapes), reps=400, short_reps=12))
+        if shapes in ((1.5, 20), (3, 3, 3)) or sizes == (5, 10, 20):
+            out.append(Cell(f"size/negbin-F/{key}", "size test",
+                            "size_test (negbin, nb_reference='F')",
+                            f"NB totals, mean 200 in every group; {words}",
+                            _negbin(sizes, shapes, "F"), reps=1000, check=False))
     for sizes, shapes, words in [((3, 3), (1.5, 20), "3 + 3, sizes 1.5 and 20"),
                                  ((4, 4), (1.5, 20), "4 + 4, sizes 1.5 and 20")]:
         key = "x".join(map(str, sizes))
@@ -373,7 +381,8 @@ def _negbin_cells():
 def _negbin_fitcheck_on_nb(sizes, shapes):
     def rep(rng):
         y = _nb_totals(rng, sizes, shapes)
-        res = size_test(_table(y, _groups(sizes)), "g", method="negbin", units=False)
+        res = size_test(_table(y, _groups(sizes)), "g", method="negbin", units=False,
+                        nb_reference="F")
         return 0.0 if res.too_skewed else 1.0
     return rep
 

@@ -354,7 +354,7 @@ def _lr(y, codes, k, effort):
 
 
 def nb2_group_test(y, codes, k: int, effort=None, *, level: float = 0.95,
-                   reference: str = "F", n_boot: int = 199, rng=None,
+                   reference: str = "bootstrap", n_boot: int = 999, rng=None,
                    progress=None, cancel=None) -> NB2Test:
     """Likelihood-ratio test of equal rates with a dispersion per group, and Wald intervals
     of the rate ratios to group 0.

@@ -219,8 +219,8 @@ def _summary(d, rows, levels, g) -> pd.DataFrame:
 
 
 def size_test(table, group, *, method: str = "welch", effort=None, units=None, blocks=None,
-              level: float = 0.95, n_permutations: int = 999, nb_reference: str = "F",
-              n_boot: int = 999, rng=None,
+              level: float = 0.95, n_permutations: int = 999,
+              nb_reference: str = "bootstrap", n_boot: int = 999, rng=None,
               progress: Callable[[int, int], None] | None = None,
               cancel: Callable[[], bool] | None = None) -> SizeTestResult:
     """Do groups differ in total abundance (size)?
@@ -260,9 +260,11 @@ def size_test(table, group, *, method: str = "welch", effort=None, units=None, b
         Confidence level of the ratio intervals.
     n_permutations : int, default 999
         For ``method='permutation'``.
-    nb_reference : {'F', 'bootstrap'}, default 'F'
-        Reference distribution of the negative-binomial likelihood ratio: F with Welch's
-        degrees of freedom, or a parametric bootstrap of ``n_boot`` draws.
+    nb_reference : {'bootstrap', 'F'}, default 'bootstrap'
+        Reference distribution of the negative-binomial likelihood ratio: a parametric
+        bootstrap of ``n_boot`` draws from the fitted null model (holds its level from 5
+        totals per group), or F with Welch's degrees of freedom (instant, but conservative
+        when a small group is the over-dispersed one).
     n_boot : int, default 999
     rng : None, int or numpy.random.Generator
         For the permutations and the bootstrap.

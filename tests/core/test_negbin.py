@@ -88,7 +88,7 @@ def test_size_test_negbin_reports_ratios_and_reference():
     # McCullagh & Nelder 1989), so the ratio is the ratio of mean totals
     y, codes, _ = _nb_data(4)
     groups = np.array(["a", "b", "c"])[codes]
-    res = size_test(_table(y, groups), "g", method="negbin")
+    res = size_test(_table(y, groups), "g", method="negbin", nb_reference="F")
     means = pd.Series(y).groupby(groups).mean()
     assert res.summary["ratio"].to_numpy() == pytest.approx((means / means["a"]).to_numpy(),
                                                             rel=1e-10)
@@ -114,6 +114,13 @@ def test_bootstrap_reference_is_reproducible_and_cancellable():
     b = size_test(tab, "g", method="negbin", nb_reference="bootstrap", n_boot=49, rng=7)
     assert a.pvalue == b.pvalue and a.n_boot == 49 and "bootstrap" in a.reference
     assert 1 / 50 <= a.pvalue <= 1
+    default = size_test(tab, "g", method="negbin", rng=7)
+    assert default.n_boot == 999 and "bootstrap" in default.reference
+    # the bootstrap p-value is the share of null draws at least as large: against the
+    # statistic's F reference it agrees roughly (both approximate the same null law)
+    f = size_test(tab, "g", method="negbin", nb_reference="F")
+    assert f.statistic == default.statistic
+    assert abs(np.log(default.pvalue) - np.log(f.pvalue)) < 1.5
     seen = []
     with pytest.raises(Cancelled):
         size_test(tab, "g", method="negbin", nb_reference="bootstrap", n_boot=99, rng=7,

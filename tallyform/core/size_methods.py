@@ -22,7 +22,7 @@ from .permutation import permutation_f_test
 from .size_models import mixed_model_test, pooled_f, pooled_f_level, welch_james
 from .units import aggregate_by_unit, resolve_units, unit_blocks
 
-__all__ = ["KRUSKAL_NOTE", "tested_data", "run_method", "variance_ratio", "anova_note"]
+__all__ = ["KRUSKAL_NOTE", "collect_replicates", "run_method", "variance_ratio", "anova_note"]
 
 
 # ---------------------------------------------------------------------------- notes
@@ -86,7 +86,7 @@ class _Data:
         return self.totals if self.effort is None else self.totals / self.effort
 
 
-def tested_data(tab, g, e, e_name, block_codes, block_name, units, notes) -> _Data:
+def collect_replicates(tab, g, e, e_name, block_codes, block_name, units, notes) -> _Data:
     """Resolve the sampling units and aggregate when the factor is applied to whole units."""
     gname = str(g.name)
     codes = g.cat.codes.to_numpy()
@@ -264,8 +264,9 @@ def _negbin(d: _Data, k, levels, level, reference, n_boot, rng, progress, cancel
         notes.append("The negative-binomial model has no block term: blocks were ignored.")
     per = f" per {d.per}" if d.per else ""
     return _Out(t.statistic, t.pvalue, t.df, t.rows,
-                f"ratio of expected totals{per} to {levels[0]!r}, with {level:.0%} Wald "
-                "intervals (a dispersion per group)", t.reference, "negbin",
+                f"ratio of expected totals{per} to {levels[0]!r}, with {level:.0%} "
+                "intervals (Wald, t quantiles with Welch degrees of freedom)", t.reference,
+                "negbin",
                 too_skewed=t.skewed, n_boot=t.n_boot)
 
 

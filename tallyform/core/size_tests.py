@@ -20,7 +20,7 @@ from .design import factor_levels
 from .errors import DesignError, InputError, Location
 from .inference import check_option
 from .results import ResultMixin
-from .size_methods import anova_note, run_method, tested_data, variance_ratio
+from .size_methods import anova_note, run_method, collect_replicates, variance_ratio
 from .table import CommunityTable, as_table
 
 __all__ = ["size_test", "SizeTestResult", "size_measure", "group_factor", "SIZE_METHODS"]
@@ -98,9 +98,11 @@ class SizeTestResult(ResultMixin):
                 "negbin": "negative-binomial regression"}[self.method]
         sym = {"kruskal": "H", "negbin": "LR"}.get(self.method, "F")
         df = ", ".join(f"{x:.4g}" for x in self.df)
+        ref = f" ({self.reference})" if self.method == "negbin" and self.reference else ""
+        unit = f"; units: {self.units}" if self.units else ""
         return (f"Size test ({name}) of {self.measure} between levels of {self.group!r}: "
-                f"{sym} = {self.statistic:.4g} (df {df}), p = {self.pvalue:.4g}; "
-                f"{self.effect}")
+                f"{sym} = {self.statistic:.4g} (df {df}), p = {self.pvalue:.4g}{ref}; "
+                f"{self.effect}{unit}")
 
 
 # ---------------------------------------------------------------------------- inputs
@@ -329,7 +331,7 @@ def size_test(table, group, *, method: str = "welch", effort=None, units=None, b
         _check_whole_counts(tab)
     from .inference import block_labels
     block_codes, block_name = block_labels(tab.samples, blocks)
-    d = tested_data(tab, g, e, e_name, block_codes, block_name, units, notes)
+    d = collect_replicates(tab, g, e, e_name, block_codes, block_name, units, notes)
     out = run_method(d, method, k, levels, level=level, n_permutations=n_permutations,
                      nb_reference=nb_reference, n_boot=n_boot, rng=rng,
                      block_name=block_name, progress=progress, cancel=cancel, notes=notes,

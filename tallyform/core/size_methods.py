@@ -19,7 +19,8 @@ from scipy import stats
 from .errors import DesignError, InputError, Location
 from .inference import check_n_permutations
 from .permutation import permutation_f_test
-from .size_models import mixed_model_test, pooled_f, pooled_f_level, welch_james
+from .size_models import (block_hotelling, mixed_model_test, one_per_block, pooled_f,
+                          pooled_f_level, welch_james)
 from .units import aggregate_by_unit, resolve_units, unit_blocks
 
 __all__ = ["KRUSKAL_NOTE", "collect_replicates", "run_method", "variance_ratio", "anova_note"]
@@ -164,7 +165,15 @@ def _linear(d: _Data, k, levels, method, level, notes) -> _Out:
                     f"ratio of geometric means to {levels[0]!r}, with {level:.0%} t "
                     "intervals from the mixed model", f"F{t.df} (between-within df)",
                     "mixed")
-    if method == "welch":
+    paired = False
+    if method == "welch" and d.blocks is not None and one_per_block(d.codes, k, d.blocks):
+        t = block_hotelling(y, d.codes, k, d.blocks)
+        paired = True
+        ref = (f"F({t.df[0]}, {t.df[1]}), Hotelling's T^2 on within-block differences"
+               + (" (the paired t test)" if k == 2 else ""))
+        effect = (f"ratio of geometric means to {levels[0]!r} within blocks, with "
+                  f"{level:.0%} paired t intervals")
+    elif method == "welch":
         t = welch_james(y, d.codes, k, d.blocks)
         ref = (f"F({t.df[0]}, {t.df[1]:.4g}), Welch degrees of freedom" if d.blocks is None
                else f"F({t.df[0]}, {t.df[1]:.4g}), Welch-James (Johansen 1980) degrees of "
@@ -176,10 +185,15 @@ def _linear(d: _Data, k, levels, method, level, notes) -> _Out:
         ref = f"F({t.df[0]}, {t.df[1]})"
         effect = (f"ratio of geometric means to {levels[0]!r}, with {level:.0%} pooled t "
                   "intervals")
-    if d.blocks is not None:
+    if paired:
+        notes.append("Every block holds one sample of every group: groups were compared "
+                     "through their differences within blocks (block effects cancel), with "
+                     "no assumption on the groups' variances.")
+    elif d.blocks is not None:
         notes.append("Blocks entered the model as a nuisance factor (additive block effects "
                      "on log size): groups are compared within blocks"
-                     + (", each group with its own variance." if method == "welch" else "."))
+                     + (", each group with its own variance (Welch-James)." if method == "welch"
+                        else "."))
     return _Out(t.statistic, t.pvalue, t.df, _ratio_rows(t.contrasts, level), effect, ref,
                 method)
 

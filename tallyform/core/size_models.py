@@ -4,6 +4,9 @@
   (Welch 1951 for one factor; the general linear hypothesis form of Johansen 1980, so that a
   block factor can enter as a nuisance term). Without blocks it is Welch's ANOVA exactly
   (two groups: Welch's t test, F = t^2).
+- :func:`block_hotelling`: complete blocks with one sample of every group: Hotelling's (1931)
+  T^2 on the within-block differences to the first group, exact whatever the groups'
+  variances and covariances (two groups: the paired t test).
 - :func:`pooled_f`: the classical F test of group effects after blocks (one pooled variance;
   randomized-block ANOVA with blocks, one-way ANOVA without).
 - :func:`pooled_f_level`: the true level of the pooled F test for normal data with given
@@ -16,6 +19,8 @@ References
 ----------
 Welch, B. L. (1951). On the comparison of several mean values: an alternative approach.
 Biometrika 38, 330-336.
+Hotelling, H. (1931). The generalization of Student's ratio. Ann. Math. Statist. 2,
+360-378.
 Johansen, S. (1980). The Welch-James approximation to the distribution of the residual sum
 of squares in a weighted linear regression. Biometrika 67, 85-92.
 Box, G. E. P. (1954). Some theorems on quadratic forms applied in the study of analysis of
@@ -38,7 +43,7 @@ from scipy import stats
 from .errors import DesignError
 
 __all__ = ["LinearTest", "welch_james", "pooled_f", "pooled_f_level", "mixed_model_test",
-           "group_design"]
+           "group_design", "one_per_block", "block_hotelling"]
 
 
 @dataclass(frozen=True)
@@ -147,6 +152,44 @@ def welch_james(y, codes, k: int, block_codes=None) -> LinearTest:
         contrasts.append((float(beta[col]), float(np.sqrt(var)), float(1.0 / a1)))
     return LinearTest(float(stat), pvalue, (q, float(df2)), tuple(contrasts),
                       {"group_variances": s2, "group_df": f})
+
+
+def one_per_block(codes, k: int, block_codes) -> bool:
+    """True when every block holds exactly one sample of every group."""
+    b = pd.factorize(np.asarray(block_codes))[0]
+    table = np.zeros((int(b.max()) + 1, k), dtype=int)
+    np.add.at(table, (b, np.asarray(codes)), 1)
+    return bool((table == 1).all())
+
+
+def block_hotelling(y, codes, k: int, block_codes) -> LinearTest:
+    """Hotelling's T^2 test that the within-block differences to group 0 have mean 0, for
+    complete blocks with one sample per group: F = (b - q) T^2 / (q (b - 1)) on (q, b - q)
+    degrees of freedom, q = k - 1, b blocks; intervals are paired t intervals (b - 1 df).
+    Block effects cancel in the differences, and no assumption on the variances is made."""
+    y = np.asarray(y, dtype=np.float64)
+    b = pd.factorize(np.asarray(block_codes))[0]
+    nb = int(b.max()) + 1
+    Y = np.empty((nb, k))
+    Y[b, np.asarray(codes)] = y
+    D = Y[:, 1:] - Y[:, :1]
+    q = k - 1
+    if nb - q <= 0:
+        raise DesignError(f"{nb} blocks cannot carry a test of {k} groups compared within "
+                          "blocks (Hotelling's T^2 needs more blocks than groups - 1).",
+                          hint="Use method='anova' (one pooled variance), or drop blocks.")
+    mean = D.mean(axis=0)
+    S = np.atleast_2d(np.cov(D, rowvar=False))
+    if np.linalg.matrix_rank(S) < q:
+        raise DesignError("the within-block differences between groups do not vary, so the "
+                          "test of groups within blocks is undefined.",
+                          hint="Check the data; method='kruskal' ranks the totals instead.")
+    T2 = float(nb * mean @ np.linalg.solve(S, mean))
+    stat = (nb - q) * T2 / (q * (nb - 1))
+    pvalue = float(stats.f.sf(stat, q, nb - q))
+    contrasts = tuple((float(mean[j]), float(np.sqrt(S[j, j] / nb)), float(nb - 1))
+                      for j in range(q))
+    return LinearTest(stat, pvalue, (q, nb - q), contrasts, {"T2": T2})
 
 
 def pooled_f(y, codes, k: int, block_codes=None) -> LinearTest:

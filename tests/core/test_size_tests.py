@@ -185,6 +185,46 @@ def test_welch_with_blocks_wald_part_equals_statsmodels_wls():
     assert again.statistic == pytest.approx(res.statistic, rel=1e-9)
 
 
+def _complete_blocks(k, n_blocks=7, seed=4):
+    rng = np.random.default_rng(seed)
+    g = np.tile(list("abcd"[:k]), n_blocks)
+    b = np.repeat([f"b{i}" for i in range(n_blocks)], k)
+    sd = np.tile([0.9, 0.3, 0.5, 0.2][:k], n_blocks)
+    y = 6 + np.repeat(rng.normal(0, 1, n_blocks), k) + sd * rng.standard_normal(g.size)
+    labels = [f"s{i}" for i in range(g.size)]
+    counts = pd.DataFrame({"ta": np.round(np.exp(y))}, index=labels)         # synthetic
+    return CommunityTable(counts, pd.DataFrame({"g": g, "bench": b}, index=labels))
+
+
+def test_welch_with_complete_blocks_is_the_paired_t_test():
+    # reference: scipy.stats.ttest_rel on log totals paired by block (F = t^2), and its
+    # interval
+    tab = _complete_blocks(2)
+    res = size_test(tab, "g", blocks="bench")
+    y = np.log(tab.totals.to_numpy())
+    g = tab.samples["g"].to_numpy()
+    t = stats.ttest_rel(y[g == "b"], y[g == "a"])
+    assert res.statistic == pytest.approx(t.statistic ** 2, rel=1e-10)
+    assert res.pvalue == pytest.approx(t.pvalue, rel=1e-10)
+    ci = t.confidence_interval(0.95)
+    assert res.summary.loc["b", ["ci_low", "ci_high"]].tolist() == pytest.approx(
+        np.exp([ci.low, ci.high]), rel=1e-10)
+    assert "paired" in res.reference and any("within blocks" in n for n in res.notes)
+
+
+def test_welch_with_complete_blocks_three_groups_is_hotellings_t2():
+    # reference: statsmodels.stats.multivariate.test_mvmean (Hotelling's one-sample T^2)
+    # on the within-block differences to the first group
+    from statsmodels.stats.multivariate import test_mvmean
+    tab = _complete_blocks(3)
+    res = size_test(tab, "g", blocks="bench")
+    y = np.log(tab.totals.to_numpy()).reshape(7, 3)
+    ref = test_mvmean(y[:, 1:] - y[:, :1], np.zeros(2))
+    assert res.statistic == pytest.approx(ref.statistic, rel=1e-10)
+    assert res.pvalue == pytest.approx(ref.pvalue, rel=1e-10)
+    assert res.df == (2, 5)
+
+
 def test_kruskal_on_ranks_says_it_is_not_a_size_test(three_groups):
     # reference: scipy.stats.kruskal; ranks (hence H) do not change under the log
     res = size_test(three_groups, "treatment", method="kruskal", effort=False)

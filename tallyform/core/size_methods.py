@@ -103,10 +103,11 @@ def collect_replicates(tab, g, e, e_name, block_codes, block_name, units, notes)
     if lv is None:                                   # varies within the finest units
         finest = plan.levels[-1]
         outer = None if finest.parent is None else finest.parent[finest.codes]
-        notes.append(f"{gname!r} varies within units ({finest.describe()}): tested by a "
-                     "linear mixed model of log size with a random intercept per "
-                     f"{finest.name!r}" + ("" if outer is None else
-                                           f" and per {plan.levels[-2].name!r}") + ".")
+        notes.append(f"{gname!r} varies within units ({finest.describe()}), so it is "
+                     f"tested within units: samples of one {finest.name!r} are not "
+                     "independent replicates"
+                     + ("" if outer is None else
+                        f", nor are the units of one {plan.levels[-2].name!r}") + ".")
         return _Data(totals, e, codes, block_codes, finest.codes, outer,
                      finest.describe(), e_name, tuple(tab.sample_labels))
     # constant within the units of lv: one replicate per unit
@@ -157,6 +158,11 @@ def _linear(d: _Data, k, levels, method, level, notes) -> _Out:
         units = d.unit_codes if d.unit_codes is not None else d.outer_codes
         outer = d.outer_codes if d.unit_codes is not None else None
         t = mixed_model_test(y, d.codes, k, units, block_codes=d.blocks, outer_codes=outer)
+        what = ("per unit" + (" and per enclosing unit" if outer is not None else "")
+                if d.unit_codes is not None else "per enclosing unit (the replicates are "
+                                                 "unit totals)")
+        notes.append(f"Linear mixed model of log size with a random intercept {what} (REML, "
+                     "statsmodels MixedLM).")
         notes.append("The mixed model has one residual variance for all groups (statsmodels "
                      "MixedLM allows no variance per group), so unequal variability between "
                      "groups is not allowed for; its Wald F uses the between-within "

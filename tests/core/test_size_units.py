@@ -152,3 +152,29 @@ def test_blocks_of_units():
     agg["y"] = np.log(agg["total"] / agg["n"])
     ref = anova_lm(smf.ols("y ~ C(bench) + C(g)", agg).fit(), typ=2)
     assert res.statistic == pytest.approx(ref.loc["C(g)", "F"], rel=1e-10)
+
+
+def test_nested_units_give_the_mixed_model_on_plot_totals():
+    # treatment applied to plots within sites: plot totals (2 visits summed), a random
+    # site intercept, between-within df = plots - sites - 1; reference: statsmodels MixedLM
+    # called directly on the plot sizes
+    import statsmodels.formula.api as smf
+    rng = np.random.default_rng(1)
+    site = np.repeat([f"S{i}" for i in range(6)], 8)
+    plot = np.tile(np.repeat(["p1", "p2", "p3", "p4"], 2), 6)
+    treat = np.tile(np.repeat(["a", "b", "a", "b"], 2), 6)
+    y = np.round(np.exp(6 + np.repeat(rng.normal(0, .5, 6), 8)
+                        + np.repeat(rng.normal(0, .3, 24), 2) + rng.normal(0, .2, 48)))
+    lab = [f"s{i}" for i in range(48)]
+    info = pd.DataFrame({"site": site, "plot": plot, "treat": treat}, index=lab)
+    tab = CommunityTable(pd.DataFrame({"t": y}, index=lab), info)            # synthetic
+    res = size_test(tab, "treat", units=["site", "plot"])
+    assert res.method == "mixed" and res.df == (1, 17) and res.summary["n"].sum() == 24
+    frame = info.assign(t=y).groupby(["site", "plot"], as_index=False).agg(
+        t=("t", "sum"), treat=("treat", "first"))
+    frame["y"] = np.log(frame["t"] / 2)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fit = smf.mixedlm("y ~ treat", frame, groups=frame["site"]).fit(reml=True)
+    z = fit.fe_params["treat[T.b]"] / fit.bse_fe["treat[T.b]"]
+    assert res.statistic == pytest.approx(z ** 2, rel=1e-3)

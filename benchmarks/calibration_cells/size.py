@@ -265,7 +265,7 @@ def _lognormal_cells():
         key = "x".join(map(str, sizes)) + "-v" + "".join(map(str, ratios))
         out.append(Cell(f"size/welch/{key}", "size test", "size_test (welch, default)",
                         f"log-normal totals, equal geometric means; {words}",
-                        _welch_lognormal(sizes, ratios), reps=1000, short_reps=80))
+                        _welch_lognormal(sizes, ratios), reps=1000, short_reps=50))
     for sizes, ratios, words in [((3, 3), (9, 1), "3 + 3, variance ratio 9"),
                                  ((4, 4), (9, 1), "4 + 4, variance ratio 9"),
                                  ((3, 12), (9, 1), "3 + 12, variance ratio 9, small variable"),
@@ -293,13 +293,13 @@ def _lognormal_cells():
                         f"size_test ({method}, blocks=...)",
                         f"log-normal totals, block effects sd 0.5, equal geometric means; "
                         f"{words}", _blocked(nb, per, ratios, method), reps=1000,
-                        short_reps=60))
+                        short_reps=40))
     for sizes, shapes, words in [((5, 20), (1.5, 8), "5 + 20, gamma shapes 1.5 and 8"),
                                  ((20, 5), (1.5, 8), "20 + 5, gamma shapes 1.5 and 8")]:
         key = "x".join(map(str, sizes))
         out.append(Cell(f"size/welch-gamma/{key}", "size test", "size_test (welch, default)",
                         f"gamma totals, equal mean log; {words}",
-                        _welch_gamma(sizes, shapes), reps=1000, short_reps=80))
+                        _welch_gamma(sizes, shapes), reps=1000, short_reps=50))
     return out
 
 
@@ -399,23 +399,23 @@ def _unit_cells():
     return [
         Cell("size/units/between-5x5-balanced", "size test", "size_test(units='tank')",
              "2 treatments x 5 tanks x 4 visits, tank effects (sd 0.5 on log), no effect",
-             _between_units((5, 5), 0.0), reps=1000, short_reps=60),
+             _between_units((5, 5), 0.0), reps=1000, short_reps=40),
         Cell("size/units/between-5x5-missing", "size test", "size_test(units='tank')",
              "2 treatments x 5 tanks x 4 visits, 25 % of visits missing, tank effects",
-             _between_units((5, 5), 0.25), reps=1000, short_reps=60),
+             _between_units((5, 5), 0.25), reps=1000, short_reps=40),
         Cell("size/units/between-3x5-detected", "size test", "size_test (units detected)",
              "3 treatments x 5 tanks x 4 visits, 25 % of visits missing, tank effects",
-             _between_units((5, 5, 5), 0.25, units=None), reps=1000, short_reps=60),
+             _between_units((5, 5, 5), 0.25, units=None), reps=1000, short_reps=40),
         Cell("size/units/between-5x5-negbin", "size test",
              "size_test(units='tank', method='negbin')",
              "2 treatments x 5 tanks x 4 visits, tank effects, NB-like log-normal totals",
              _between_units((5, 5), 0.0, method="negbin"), reps=400, check=False),
         Cell("size/units/within-8-balanced", "size test", "size_test(units='tank'), mixed",
              "visit effect tested within 8 tanks x 4 visits, tank effects, no effect",
-             _within_units(8, 0.0), reps=400, short_reps=25),
+             _within_units(8, 0.0), reps=400, short_reps=15),
         Cell("size/units/within-8-missing", "size test", "size_test(units='tank'), mixed",
              "visit effect within 8 tanks x 4 visits, 20 % of visits missing, tank effects",
-             _within_units(8, 0.2), reps=400, short_reps=25),
+             _within_units(8, 0.2), reps=400, short_reps=15),
         Cell("size/units/within-8-unequal", "size test", "size_test(units='tank'), mixed",
              "visit effect within 8 tanks x 4 visits, residual sd 0.15-0.6 by visit",
              _within_units(8, 0.0, within_sd=(0.15, 0.3, 0.45, 0.6)), reps=400,
@@ -436,7 +436,7 @@ def _coverage_cells():
                         "size_test (welch): 95 % interval of the ratio of geometric means",
                         f"log-normal totals, true ratio 1.5; {words}",
                         _welch_coverage(sizes, ratios), kind="coverage", reps=1000,
-                        short_reps=80))
+                        short_reps=50))
     for sizes, shapes, words in [((8, 8), (1.5, 20), "8 + 8, NB sizes 1.5 and 20"),
                                  ((20, 5), (1.5, 20), "20 + 5, NB sizes 1.5 and 20"),
                                  ((5, 20), (1.5, 20), "5 + 20, NB sizes 1.5 and 20")]:
@@ -445,7 +445,7 @@ def _coverage_cells():
                         "size_test (negbin): 95 % interval of the ratio of mean totals",
                         f"NB totals, true ratio 1.5; {words}",
                         _negbin_coverage(sizes, shapes), kind="coverage", reps=400,
-                        short_reps=30))
+                        short_reps=20))
     return out
 
 

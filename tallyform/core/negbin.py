@@ -236,44 +236,111 @@ def _loglik_rows(y: np.ndarray, mu: np.ndarray, theta: np.ndarray) -> np.ndarray
     return per.sum(axis=1)
 
 
-def _theta_rows(y: np.ndarray, mu: np.ndarray, iters: int = 45) -> np.ndarray:
-    """Row-wise size theta maximising the likelihood at fixed means, for B data sets at once.
+def _theta_score(y, mu, t, slope: bool = False):
+    """The theta score at log theta ``t`` (one value per row), and with ``slope`` its
+    derivative in log theta."""
+    th = np.exp(t)[:, None]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sc = (special.digamma(y + th) - special.digamma(th) - np.log1p(mu / th)
+              + (mu - y) / (th + mu)).sum(axis=1)
+        if not slope:
+            return sc
+        d = (special.polygamma(1, y + th) - special.polygamma(1, th)
+             + mu / (th * (th + mu)) - (mu - y) / (th + mu) ** 2).sum(axis=1)
+    return sc, d * th[:, 0]
+
+
+#: Above this log theta the digamma differences of the score lose their sign to rounding;
+#: a maximum beyond it is found on the (stable) likelihood itself.
+_SCORE_TOP = 12.0
+
+
+def _theta_high(y: np.ndarray, mu: np.ndarray, iters: int = 60) -> np.ndarray:
+    """Log theta in [_SCORE_TOP, upper end] maximising each row's likelihood (golden-section
+    search on the stable log-likelihood; nearly Poisson rows)."""
+    g = (np.sqrt(5.0) - 1.0) / 2.0
+    a = np.full(y.shape[0], _SCORE_TOP)
+    b = np.full(y.shape[0], _LOG_THETA[1])
+
+    def f(t):
+        return _loglik_rows(y, mu, np.exp(t)[:, None])
+    c, d = b - g * (b - a), a + g * (b - a)
+    fc, fd = f(c), f(d)
+    for _ in range(iters):
+        left = fc > fd
+        b = np.where(left, d, b)
+        a = np.where(left, a, c)
+        c, d = np.where(left, b - g * (b - a), d), np.where(left, c, a + g * (b - a))
+        fn = f(np.where(left, c, d))
+        fc, fd = np.where(left, fn, fd), np.where(left, fc, fn)
+    return (a + b) / 2
+
+
+def _theta_rows(y: np.ndarray, mu: np.ndarray, start: np.ndarray | None = None,
+                tol: float = 1e-10) -> np.ndarray:
+    """Row-wise log size (log theta) maximising the likelihood at fixed means, for B data
+    sets at once.
 
     The theta score, sum_i [psi(y_i + theta) - psi(theta) - log1p(mu_i / theta)
     + (mu_i - y_i) / (theta + mu_i)], falls through 0 at the maximum; it tends to
     sum_i ((y_i - mu_i)^2 - y_i) / (2 theta^2) as theta grows, so a row whose sum is not
-    positive has no over-dispersion and gets the upper end of the range (Poisson). Others:
-    bisection on log theta in [-25, 20] (the digamma differences stay accurate there)."""
+    positive has no over-dispersion and gets the upper end of the range (Poisson); a row
+    whose score is still positive at theta = e^12 is maximised on the stable likelihood
+    (:func:`_theta_high`). Others: Newton steps on log theta kept inside a bracket of the
+    root in [-25, 12] (where the digamma differences are accurate), bisecting whenever a
+    step would leave it; converged rows drop out."""
     B = y.shape[0]
+    out = np.full(B, _LOG_THETA[1])
     poisson = np.sum((y - mu) ** 2 - y, axis=1) <= 0
-    lo = np.full(B, _LOG_THETA[0])
-    hi = np.full(B, 20.0)
-    for _ in range(iters):
-        mid = (lo + hi) / 2
-        th = np.exp(mid)[:, None]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            sc = (special.digamma(y + th) - special.digamma(th) - np.log1p(mu / th)
-                  + (mu - y) / (th + mu)).sum(axis=1)
+    live = np.flatnonzero(~poisson)
+    if live.size:
+        high = _theta_score(y[live], mu[live], np.full(live.size, _SCORE_TOP)) > 0
+        if high.any():
+            out[live[high]] = _theta_high(y[live[high]], mu[live[high]])
+        live = live[~high]
+    if not live.size:
+        return out
+    yl, ml = y[live], mu[live]
+    lo = np.full(live.size, _LOG_THETA[0])
+    hi = np.full(live.size, _SCORE_TOP)
+    x = np.zeros(live.size) if start is None else np.clip(start[live], lo + 1e-3, hi - 1e-3)
+    act = np.arange(live.size)
+    for _ in range(200):
+        sc, d = _theta_score(yl[act], ml[act], x[act], slope=True)
         up = sc > 0
-        lo = np.where(up, mid, lo)
-        hi = np.where(up, hi, mid)
-    t = np.where(poisson, _LOG_THETA[1], (lo + hi) / 2)
-    return np.exp(t)
+        lo[act] = np.where(up, x[act], lo[act])
+        hi[act] = np.where(up, hi[act], x[act])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            new = x[act] + np.where(d < 0, -sc / d, np.nan)
+        bad = ~np.isfinite(new) | (new <= lo[act]) | (new >= hi[act])
+        new = np.where(bad, (lo[act] + hi[act]) / 2, new)
+        done = (np.abs(new - x[act]) <= tol) | (hi[act] - lo[act] <= tol)
+        x[act] = new
+        act = act[~done]
+        if not act.size:
+            break
+    out[live] = x
+    return out
 
 
-def _rate_rows(y, e, theta, start, iters: int = 30) -> np.ndarray:
+def _rate_rows(y, e, theta, start, iters: int = 100, tol: float = 1e-13) -> np.ndarray:
     """Row-wise rate lambda solving sum_i (y_i - e_i lambda) / (1 + e_i lambda / theta_i) = 0
     by its fixed point lambda = sum w y / sum w e, w = 1 / (1 + e lambda / theta)."""
     lam = start.copy()
     for _ in range(iters):
         w = 1.0 / (1.0 + e * lam[:, None] / theta)
-        lam = (w * y).sum(axis=1) / (w * e).sum(axis=1)
+        new = (w * y).sum(axis=1) / (w * e).sum(axis=1)
+        done = np.max(np.abs(new - lam) / np.maximum(new, 1e-300)) <= tol
+        lam = new
+        if done:
+            break
     return lam
 
 
-def lr_rows(Y, codes, k: int, effort=None, rounds: int = 12) -> np.ndarray:
+def lr_rows(Y, codes, k: int, effort=None, rounds: int = 20) -> np.ndarray:
     """The likelihood ratio of :func:`nb2_group_test` for each row of ``Y`` (B data sets of
-    the same design), fitted with the orthogonal alternation of :func:`fit_nb2_groups`."""
+    the same design), fitted with the orthogonal alternation of :func:`fit_nb2_groups`
+    (a fixed number of rounds: the rates and sizes are orthogonal, so a few suffice)."""
     Y = np.asarray(Y, dtype=np.float64)
     B, n = Y.shape
     e = np.ones(n) if effort is None else np.asarray(effort, dtype=np.float64)
@@ -283,17 +350,30 @@ def lr_rows(Y, codes, k: int, effort=None, rounds: int = 12) -> np.ndarray:
     for g in groups:
         y, eg = Y[:, g], E[:, g]
         lam = y.sum(axis=1) / eg.sum(axis=1)
-        for r in range(1 if effort is None else rounds):
-            th = _theta_rows(y, lam[:, None] * eg)
-            if effort is not None:
-                lam = _rate_rows(y, eg, th[:, None], lam)
-        llf_full += _loglik_rows(y, lam[:, None] * eg, th[:, None])
+        t = None
+        for _ in range(1 if effort is None else rounds):
+            t = _theta_rows(y, lam[:, None] * eg, t)
+            if effort is None:
+                break
+            new = _rate_rows(y, eg, np.exp(t)[:, None], lam)
+            moved = np.max(np.abs(new - lam) / np.maximum(new, 1e-300))
+            lam = new
+            if moved <= 1e-10:
+                break
+        llf_full += _loglik_rows(y, lam[:, None] * eg, np.exp(t)[:, None])
     lam = Y.sum(axis=1) / E.sum(axis=1)
+    logt = np.zeros((B, k))
     theta = np.ones((B, n))
     for r in range(rounds):
-        for g in groups:
-            theta[:, g] = _theta_rows(Y[:, g], lam[:, None] * E[:, g])[:, None]
-        lam = _rate_rows(Y, E, theta, lam)
+        for j, g in enumerate(groups):
+            logt[:, j] = _theta_rows(Y[:, g], lam[:, None] * E[:, g],
+                                     None if r == 0 else logt[:, j])
+            theta[:, g] = np.exp(logt[:, j])[:, None]
+        new = _rate_rows(Y, E, theta, lam)
+        moved = np.max(np.abs(new - lam) / np.maximum(new, 1e-300))
+        lam = new
+        if moved <= 1e-10:
+            break
     llf_null = _loglik_rows(Y, lam[:, None] * E, theta)
     return np.maximum(2.0 * (llf_full - llf_null), 0.0)
 

@@ -3,6 +3,10 @@
 
 Size is the log of a sample's total (per unit of sampling effort when there is one):
 abundance effects are multiplicative, so groups are compared by ratios of geometric means.
+The default test is Welch's (1951) ANOVA of log size, which holds its level when groups
+differ in variability; samples that repeat a sampling unit are tested at the level of the
+units (:mod:`tallyform.core.units`); the linear models are in
+:mod:`tallyform.core.size_models`, the negative-binomial model in :mod:`tallyform.core.negbin`.
 """
 from __future__ import annotations
 
@@ -11,20 +15,19 @@ from typing import Callable
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .design import factor_levels
-from .random import as_rng
 from .errors import DesignError, InputError, Location
-from .inference import check_n_permutations, check_option
-from .permutation import permutation_f_test
+from .inference import check_option
 from .results import ResultMixin
 from .abundance import require_absolute
+from .size_methods import anova_note, run_method, collect_replicates, variance_ratio
 from .table import CommunityTable, as_table
 
 __all__ = ["size_test", "SizeTestResult", "size_measure", "group_factor", "SIZE_METHODS"]
 
-SIZE_METHODS = ("anova", "welch", "kruskal", "permutation", "negbin")
+#: Methods a user can ask for; the first is the default.
+SIZE_METHODS = ("welch", "anova", "kruskal", "permutation", "negbin")
 _METHODS = SIZE_METHODS
 
 
@@ -35,13 +38,14 @@ class SizeTestResult(ResultMixin):
 
     Attributes
     ----------
-    method : {'anova', 'welch', 'kruskal', 'permutation', 'negbin'}
+    method : {'welch', 'anova', 'kruskal', 'permutation', 'negbin', 'mixed'}
+        'mixed' when a factor that varies within sampling units was tested by the linear
+        mixed model (asked for as 'welch' or 'anova').
     statistic : float
-        F (anova, welch, permutation), H (kruskal) or the likelihood-ratio chi-square
-        (negbin).
+        F (welch, anova, permutation, mixed), H (kruskal) or the likelihood ratio (negbin).
     pvalue : float
     df : tuple
-        (numerator, denominator) for F statistics, (df,) for chi-square ones.
+        (numerator, denominator) of the F reference, (df,) for chi-square ones.
     summary : DataFrame
         Per group: ``n``, ``geometric_mean`` and ``mean`` of the size measure, and the
         effect against the first (reference) group: ``ratio`` with ``ci_low``,
@@ -54,6 +58,18 @@ class SizeTestResult(ResultMixin):
     level : float
         Confidence level of the intervals.
     notes : tuple of str
+    reference : str
+        The distribution the p-value was read from, in words.
+    units : str or None
+        The sampling units the test counted (e.g. "15 units of 'tank', 4 samples each"), or
+        None when every sample was its own replicate.
+    variance_ratio : float
+        Largest over smallest group variance of log size (NaN when undefined).
+    too_skewed : bool or None
+        negbin only: True when the fit check (skewness of the quantile residuals, Dunn &
+        Smyth 1996) finds the totals more skewed than the negative-binomial model allows.
+    n_boot : int or None
+        Bootstrap draws of the negbin reference, when the bootstrap was used.
     """
 
     method: str
@@ -67,19 +83,27 @@ class SizeTestResult(ResultMixin):
     level: float = 0.95
     n_permutations: int | None = None
     notes: tuple = ()
+    reference: str = ""
+    units: str | None = None
+    variance_ratio: float = float("nan")
+    too_skewed: bool | None = None
+    n_boot: int | None = None
 
     def to_frame(self) -> pd.DataFrame:
         return self.summary.copy()
 
     def _title(self) -> str:
-        name = {"anova": "ANOVA", "welch": "Welch ANOVA", "kruskal": "Kruskal-Wallis",
-                "permutation": "permutation F test",
+        name = {"anova": "ANOVA", "welch": "Welch ANOVA",
+                "kruskal": "Kruskal-Wallis, a test of distributions",
+                "permutation": "permutation F test", "mixed": "linear mixed model",
                 "negbin": "negative-binomial regression"}[self.method]
-        sym = {"kruskal": "H", "negbin": "LR chi2"}.get(self.method, "F")
+        sym = {"kruskal": "H", "negbin": "LR"}.get(self.method, "F")
         df = ", ".join(f"{x:.4g}" for x in self.df)
+        ref = f" ({self.reference})" if self.method == "negbin" and self.reference else ""
+        unit = f"; units: {self.units}" if self.units else ""
         return (f"Size test ({name}) of {self.measure} between levels of {self.group!r}: "
-                f"{sym} = {self.statistic:.4g} (df {df}), p = {self.pvalue:.4g}; "
-                f"{self.effect}")
+                f"{sym} = {self.statistic:.4g} (df {df}), p = {self.pvalue:.4g}{ref}; "
+                f"{self.effect}{unit}")
 
 
 # ---------------------------------------------------------------------------- inputs
@@ -155,46 +179,10 @@ def size_measure(table, *, effort=None, log: bool = True) -> pd.Series:
         if (v <= 0).any():
             who = list(tab.sample_labels[v <= 0])[:8]
             raise InputError(f"sample(s) {who} have a total of 0, whose log is undefined.",
-                             hint="Use method='kruskal' or method='negbin', or drop them.")
+                             hint="Use method='negbin', or drop them.")
         v = np.log(v)
     label = ("log " if log else "") + "total" + (f" per {name}" if name else "")
     return pd.Series(v, index=tab.sample_labels.copy(), name=label)
-
-
-# ---------------------------------------------------------------------------- methods
-def _t_ratio_ci(y, codes, levels, level, *, welch: bool):
-    """Ratio of geometric means to the reference group, with a t interval."""
-    ref = y[codes == 0]
-    k = len(levels)
-    n = y.size
-    resid = np.concatenate([y[codes == j] - y[codes == j].mean() for j in range(k)])
-    mse = (resid ** 2).sum() / (n - k)
-    rows = []
-    for j in range(k):
-        yj = y[codes == j]
-        diff = yj.mean() - ref.mean()
-        if j == 0:
-            rows.append((1.0, np.nan, np.nan))
-            continue
-        if welch:
-            a, b = yj.var(ddof=1) / yj.size, ref.var(ddof=1) / ref.size
-            se = np.sqrt(a + b)
-            df = (a + b) ** 2 / (a ** 2 / (yj.size - 1) + b ** 2 / (ref.size - 1))
-        else:
-            se = np.sqrt(mse * (1 / yj.size + 1 / ref.size))
-            df = n - k
-        q = stats.t.ppf(0.5 + level / 2, df)
-        rows.append((np.exp(diff), np.exp(diff - q * se), np.exp(diff + q * se)))
-    return rows
-
-
-def _welch_df(y, codes, k) -> float:
-    """Denominator df of Welch's (1951) heteroscedastic one-way ANOVA."""
-    n = np.array([np.sum(codes == j) for j in range(k)], dtype=float)
-    s2 = np.array([y[codes == j].var(ddof=1) for j in range(k)])
-    w = n / s2
-    lam = np.sum((1 - w / w.sum()) ** 2 / (n - 1))
-    return float((k ** 2 - 1) / (3 * lam))
 
 
 def _check_whole_counts(tab: CommunityTable) -> None:
@@ -209,13 +197,33 @@ def _check_whole_counts(tab: CommunityTable) -> None:
             f"value(s) are not whole numbers, e.g. {float(v[i, j]):g} (biomass, cover or "
             "rescaled counts?).",
             location=tab.origin.cell(tab.sample_labels[i], tab.taxon_labels[j]),
-            hint="Use method='anova' or 'welch' (log totals) or 'kruskal' for such "
-                 "values; for counts rescaled by effort, give the raw counts and pass the "
-                 "effort with effort=...")
+            hint="Use method='welch' (log totals) or 'kruskal' for such values; for counts "
+                 "rescaled by effort, give the raw counts and pass the effort with "
+                 "effort=...")
 
 
-def size_test(table, group, *, method: str = "anova", effort=None, level: float = 0.95,
-              n_permutations: int = 999, rng=None, blocks=None,
+# ---------------------------------------------------------------------------- public
+def _summary(d, rows, levels, g) -> pd.DataFrame:
+    """Per group: replicates, geometric and arithmetic mean size, ratio with interval."""
+    size, k = d.size, len(levels)
+    with np.errstate(divide="ignore"):
+        geo = [float(np.exp(np.log(size[d.codes == j]).mean()))
+               if (size[d.codes == j] > 0).all() else np.nan for j in range(k)]
+    summary = pd.DataFrame({
+        "n": [int(np.sum(d.codes == j)) for j in range(k)],
+        "geometric_mean": geo,
+        "mean": [float(size[d.codes == j].mean()) for j in range(k)],
+        "ratio": [r[0] for r in rows], "ci_low": [r[1] for r in rows],
+        "ci_high": [r[2] for r in rows]}, index=pd.Index(levels, name=g.name))
+    if d.units is not None and d.unit_codes is None:
+        summary.insert(1, "n_samples", [int(np.sum(g.cat.codes.to_numpy() == j))
+                                        for j in range(k)])
+    return summary
+
+
+def size_test(table, group, *, method: str = "welch", effort=None, units=None, blocks=None,
+              level: float = 0.95, n_permutations: int = 999,
+              nb_reference: str = "bootstrap", n_boot: int = 999, rng=None,
               progress: Callable[[int, int], None] | None = None,
               cancel: Callable[[], bool] | None = None) -> SizeTestResult:
     """Do groups differ in total abundance (size)?
@@ -225,42 +233,71 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
     table : CommunityTable, DataFrame or array
     group : str or Series
         A factor column of the sample table (or the labels themselves).
-    method : {'anova', 'welch', 'kruskal', 'permutation', 'negbin'}, default 'anova'
-        One-way ANOVA, Welch's (1951) ANOVA for unequal variances, or a permutation F test
-        on log totals; Kruskal & Wallis (1952) on the ranks of the totals; or a
-        negative-binomial (NB2) regression of the totals with log effort as offset, tested
-        by a likelihood ratio (fitted in a numerically stable form that stays exact for
-        totals of 10^15, see :mod:`tallyform.core.negbin`).
+    method : {'welch', 'anova', 'kruskal', 'permutation', 'negbin'}, default 'welch'
+        'welch': Welch's (1951) ANOVA of log size (two groups: Welch's t test), each group
+        with its own variance; the test of a ratio of geometric means that holds its level
+        when groups differ in variability. 'anova': the same with one pooled variance (its
+        notes say when the groups' variances differ enough to matter). 'permutation': the
+        ANOVA F by permutation. 'kruskal': Kruskal & Wallis (1952) on the ranks of the
+        totals, a test of whole distributions, not of size. 'negbin': a negative-binomial
+        (NB2) model of the totals (log effort as offset) with a dispersion per group,
+        likelihood-ratio test with a small-sample reference (``nb_reference``), and a fit
+        check that says when the totals are more skewed than the model allows.
     effort : None, False, str or array_like
         None: per unit of the table's effort when it has one; False: raw totals; a column
         name or one positive value per sample.
+    units : None, False, str, list of str or Series
+        Sampling units (tanks, sites...; see :func:`tallyform.core.units.resolve_units`).
+        None detects them, False treats samples as independent. A factor constant within
+        units is tested on unit totals (counts and effort summed per unit; the number of
+        samples is the effort when there is none), with every method. A factor that varies
+        within units is tested by a linear mixed model of log size with a random intercept
+        per unit (methods 'welch' and 'anova'), or by permuting samples within units
+        ('permutation').
+    blocks : str or array_like, optional
+        Blocking factor: a nuisance term of the model (randomized-block ANOVA for 'anova',
+        the Welch-James test for 'welch', a fixed term of the mixed model), and a restriction
+        of the permutations for 'permutation'. Kruskal-Wallis and the negative-binomial model
+        do not use blocks, and say so.
     level : float, default 0.95
         Confidence level of the ratio intervals.
-    n_permutations, rng, blocks, progress, cancel
-        For ``method='permutation'`` (blocks: a column name or labels).
+    n_permutations : int, default 999
+        For ``method='permutation'``.
+    nb_reference : {'bootstrap', 'F'}, default 'bootstrap'
+        Reference distribution of the negative-binomial likelihood ratio: a parametric
+        bootstrap of ``n_boot`` draws from the fitted null model (holds its level from 5
+        totals per group), or F with Welch's degrees of freedom (instant, but conservative
+        when a small group is the over-dispersed one).
+    n_boot : int, default 999
+    rng : None, int or numpy.random.Generator
+        For the permutations and the bootstrap.
+    progress, cancel : callables, optional
+        ``progress(done, total)``; ``cancel() -> True`` stops with :class:`Cancelled`.
 
     Returns
     -------
     SizeTestResult
-        ``summary`` per group: n, geometric and arithmetic mean of the totals (per effort),
-        and the ratio to the first group with an interval where the method gives one:
-        t intervals of the difference in mean log size (pooled for anova, Welch for
-        welch), Wald intervals of the negative-binomial coefficients (a ratio of expected
-        totals there); none for kruskal and permutation.
+        ``summary`` per group: n (units when units were counted), geometric and arithmetic
+        mean of the size measure, and the ratio to the first group with an interval where
+        the method gives one (t intervals of the difference in mean log size, with Welch
+        degrees of freedom for welch; intervals of the negative-binomial rate ratios).
 
     Raises
     ------
     DesignError
-        Unknown column, one level, a level with a single sample.
+        Unknown column, one level, a level with a single sample, a level with a single unit,
+        groups confounded with blocks, a method that cannot test a factor within units.
     InputError
         Zero totals for a log-based method, a count that is not a whole number for negbin
         (naming its sample, taxon and, when read from a file, line and column), bad effort.
 
     References
     ----------
-    Welch, B. L. (1951). Biometrika 38, 330-336. Kruskal, W. H. & Wallis, W. A. (1952).
-    J. Am. Stat. Assoc. 47, 583-621. Hilbe, J. M. (2011). Negative Binomial Regression,
-    2nd ed. Cambridge University Press.
+    Welch, B. L. (1951). Biometrika 38, 330-336. Johansen, S. (1980). Biometrika 67, 85-92.
+    Kruskal, W. H. & Wallis, W. A. (1952). J. Am. Stat. Assoc. 47, 583-621. Hilbe, J. M.
+    (2011). Negative Binomial Regression, 2nd ed. Cambridge University Press. Dunn, P. K. &
+    Smyth, G. K. (1996). Randomized quantile residuals. J. Comput. Graph. Stat. 5, 236-244.
+    Hurlbert, S. H. (1984). Ecol. Monogr. 54, 187-211.
 
     Examples
     --------
@@ -275,86 +312,49 @@ def size_test(table, group, *, method: str = "anova", effort=None, level: float 
     True
     """
     check_option("method", method, _METHODS)
+    check_option("nb_reference", nb_reference, ("F", "bootstrap"))
+    if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 19:
+        raise InputError(f"`n_boot` must be a whole number of at least 19; got {n_boot!r}.")
     if not 0 < level < 1:
         raise InputError(f"`level` must be between 0 and 1; got {level!r}.")
     tab = as_table(table)
     load_notes = require_absolute(tab, "a size test", counts=(method == "negbin"))
     g = group_factor(tab, group)
     levels = list(g.cat.categories)
-    codes = g.cat.codes.to_numpy()
+    k = len(levels)
+    gname = str(g.name)
     e, e_name = _effort(tab, effort)
-    totals = tab.totals.to_numpy(dtype=float)
-    size = totals if e is None else totals / e
-    measure = "total" + (f" per {e_name}" if e_name else "")
     notes: list[str] = list(load_notes)
     if e_name and effort is None:
         notes.append(f"The table's sampling effort {e_name!r} was used ("
                      + ("log effort as an offset" if method == "negbin" else
                         "totals divided by it") + "); pass effort=False to compare raw totals.")
-    positive = (size > 0).all()
-    if method in ("anova", "welch", "permutation") and not positive:
-        who = list(tab.sample_labels[size <= 0])[:8]
-        raise InputError(f"sample(s) {who} have a total of 0, whose log is undefined.",
-                         hint="Use method='kruskal' or method='negbin', or drop them.")
-    k = len(levels)
-    y = np.log(size) if positive else None
-    n_perm = None
-    if method in ("anova", "welch"):
-        res = stats.f_oneway(*[y[codes == j] for j in range(k)], equal_var=(method == "anova"))
-        stat, p = float(res.statistic), float(res.pvalue)
-        df = (k - 1, y.size - k) if method == "anova" else (k - 1, _welch_df(y, codes, k))
-        rows = _t_ratio_ci(y, codes, levels, level, welch=(method == "welch"))
-        effect = (f"ratio of geometric means to {levels[0]!r}, with {level:.0%} "
-                  f"{'pooled' if method == 'anova' else 'Welch'} t intervals")
-        measure = "log " + measure
-    elif method == "kruskal":
-        res = stats.kruskal(*[size[codes == j] for j in range(k)])
-        stat, p, df = float(res.statistic), float(res.pvalue), (k - 1,)
-        rows = _t_ratio_ci(y, codes, levels, level, welch=False) if positive else \
-            [(np.nan, np.nan, np.nan)] * k
-        rows = [(r[0], np.nan, np.nan) for r in rows]
-        effect = f"ratio of geometric means to {levels[0]!r} (descriptive; no interval)"
-    elif method == "permutation":
-        from .inference import block_labels
-        n_perm = check_n_permutations(n_permutations)
-        frame = tab.samples
-        block_codes, block_name = block_labels(frame, blocks)
-        X = np.column_stack([np.ones(y.size)] + [(codes == j).astype(float)
-                                                 for j in range(1, k)])
-        test = permutation_f_test(y, X, None, blocks=block_codes, block_name=block_name,
-                                  n_permutations=n_perm, rng=rng, progress=progress,
-                                  cancel=cancel)
-        stat, p, df = test.statistic, test.pvalue, test.df
-        n_perm = test.n_permutations
-        notes.extend(test.notes)
-        notes.append(f"Permutation scheme: {test.scheme}.")
-        rows = [(r[0], np.nan, np.nan) for r in
-                _t_ratio_ci(y, codes, levels, level, welch=False)]
-        effect = f"ratio of geometric means to {levels[0]!r} (no interval)"
-        measure = "log " + measure
-    else:
+    if method == "negbin":
         _check_whole_counts(tab)
-        from .negbin import nb2_oneway_test
-        empty = [lv for j, lv in enumerate(levels) if totals[codes == j].sum() == 0]
-        if empty:
-            raise DesignError(f"level(s) {empty} of {g.name!r} have a total of 0 in every "
-                              "sample, so their expected total is 0 and no ratio exists.",
-                              location=Location(column=repr(g.name)),
-                              hint="Use method='kruskal', or drop those samples.")
-        stat, p, df, rows, nb_notes = nb2_oneway_test(totals, codes, len(levels), e, level)
-        notes.extend(nb_notes)
-        effect = (f"ratio of expected totals{' per ' + e_name if e_name else ''} to "
-                  f"{levels[0]!r}, with {level:.0%} Wald intervals")
-    with np.errstate(divide="ignore"):
-        geo = [float(np.exp(np.log(size[codes == j]).mean())) if (size[codes == j] > 0).all()
-               else np.nan for j in range(k)]
-    summary = pd.DataFrame({
-        "n": [int(np.sum(codes == j)) for j in range(k)],
-        "geometric_mean": geo,
-        "mean": [float(size[codes == j].mean()) for j in range(k)],
-        "ratio": [r[0] for r in rows], "ci_low": [r[1] for r in rows],
-        "ci_high": [r[2] for r in rows]}, index=pd.Index(levels, name=g.name))
-    return SizeTestResult(method=method, statistic=float(stat), pvalue=float(p),
-                          df=tuple(df), summary=summary, measure=measure, effect=effect,
-                          group=str(g.name), level=level, n_permutations=n_perm,
-                          notes=tuple(notes))
+    from .inference import block_labels
+    block_codes, block_name = block_labels(tab.samples, blocks)
+    d = collect_replicates(tab, g, e, e_name, block_codes, block_name, units, notes)
+    out = run_method(d, method, k, levels, level=level, n_permutations=n_permutations,
+                     nb_reference=nb_reference, n_boot=n_boot, rng=rng,
+                     block_name=block_name, progress=progress, cancel=cancel, notes=notes,
+                     gname=gname)
+    size = d.size
+    positive = bool((size > 0).all())
+    ratio = np.nan
+    if positive:
+        ratio, n_g, v = variance_ratio(np.log(size), d.codes, k)
+        if out.method == "anova" and d.blocks is None:
+            note = anova_note(np.log(size), d.codes, k, levels, ratio, n_g, v)
+            if note:
+                notes.append(note)
+    summary = _summary(d, out.rows, levels, g)
+    measure = "total" + (f" per {d.per}" if d.per else "")
+    if out.method not in ("kruskal", "negbin"):
+        measure = "log " + measure
+    return SizeTestResult(method=out.method, statistic=float(out.statistic),
+                          pvalue=float(out.pvalue), df=tuple(out.df), summary=summary,
+                          measure=measure, effect=out.effect, group=gname, level=level,
+                          n_permutations=out.n_permutations, notes=tuple(notes),
+                          reference=out.reference, units=d.units,
+                          variance_ratio=float(ratio), too_skewed=out.too_skewed,
+                          n_boot=out.n_boot)

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import math
 import time
+import zlib
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -52,8 +53,8 @@ class Cell:
         Replicates of the short run inside the test suite.
     check : bool
         False for reference rows (shown, never checked).
-    seed : int
-        Base seed of the cell.
+    seed : int, optional
+        Base seed of the cell (default: a stable hash of its id).
     """
 
     id: str
@@ -67,11 +68,15 @@ class Cell:
     reps: int = 400
     short_reps: int = 100
     check: bool = True
-    seed: int = 20261203
+    seed: int | None = None
 
     def __post_init__(self):
         if self.kind not in ("level", "coverage"):
             raise ValueError(f"cell {self.id}: kind must be 'level' or 'coverage'.")
+        if self.seed is None:
+            # every cell its own stream (a stable function of its id), so Monte Carlo errors
+            # are not shared between cells
+            object.__setattr__(self, "seed", zlib.crc32(self.id.encode()))
 
     @property
     def alpha(self) -> float:

@@ -1,0 +1,680 @@
+"""Permutation schemes: which relabellings a permutation test draws.
+
+Every scheme yields batches of index arrays ``idx`` (one row per permutation): row ``i`` of
+the permuted design is row ``idx[i]`` of the original design, held against fixed data (or,
+equivalently, the data are permuted by the inverse). Schemes:
+
+- :class:`Permutations`: free permutation of the samples, or permutation within blocks
+  (strata), never moving a sample across blocks;
+- :class:`UnitPermutations`: whole units (a tank with all its weekly samples) are permuted
+  among themselves, optionally within blocks that group whole units and within their parent
+  units (plots within their site); each unit keeps its samples together;
+- within units: :func:`within_units` gives a :class:`Permutations` whose blocks are the
+  units (samples move only within their unit);
+- :class:`CyclicShifts`: ordered visits of each unit are rotated by a random number of
+  steps, which keeps the order of the visits (and so their serial correlation) intact.
+
+Restricted permutation schemes of this kind (and the rule that the unit permuted must be the
+unit to which the treatment was applied) follow Besag & Clifford (1989) and Anderson &
+ter Braak (2003). Each scheme enumerates every distinct relabelling when their number is at
+most the number of permutations asked for (an exact test), counting relabellings that give
+the same permuted design once.
+
+Smallest attainable p-value. A relabelling that only swaps the labels of equal-sized groups
+(or reflects a symmetric covariate) spans the same model and gives the same statistic, so the
+distinct values of the statistic number ``n_distinct / symmetries``; an exact permutation
+p-value is never below ``symmetries / n_distinct`` (two groups of 4 samples: 70 relabellings,
+2 symmetries, p >= 2/70). :func:`label_symmetries` counts these symmetries for designs of
+factors and covariates.
+
+References
+----------
+Anderson, M. J. & ter Braak, C. J. F. (2003). Permutation tests for multi-factorial analysis
+of variance. J. Stat. Comput. Simul. 73, 85-113.
+Besag, J. & Clifford, P. (1989). Generalized Monte Carlo significance tests. Biometrika 76,
+633-642.
+Knuth, D. E. (2011). The Art of Computer Programming 4A, section 7.2.1.2 (algorithm L).
+"""
+from __future__ import annotations
+
+import itertools
+import math
+from typing import Iterator
+
+import numpy as np
+
+from .errors import DesignError, InputError, Location
+
+__all__ = ["Permutations", "UnitPermutations", "CyclicShifts", "within_units",
+           "count_relabellings", "label_symmetries", "span_symmetries", "floor_note",
+           "FEW_PERMUTATIONS"]
+
+#: Below this many distinct relabellings a result carries a note (p-values are coarse).
+FEW_PERMUTATIONS = 100
+#: A smallest attainable p-value at or above this also gets a note.
+_FLOOR_NOTE = 0.01
+
+
+# ---------------------------------------------------------------------------- helpers
+def _as_codes(values) -> np.ndarray:
+    """Integer codes 0..k-1 of arbitrary labels (order of first appearance irrelevant)."""
+    _, codes = np.unique(np.asarray(values).astype(str), return_inverse=True)
+    return codes.ravel().astype(np.intp)
+
+
+def _row_types(design: np.ndarray | None, n: int) -> np.ndarray:
+    """Codes of identical design rows: relabellings that swap equal rows change nothing."""
+    if design is None or design.size == 0:
+        return np.arange(n, dtype=np.intp)
+    d = np.ascontiguousarray(np.asarray(design, dtype=np.float64).reshape(n, -1))
+    _, codes = np.unique(d, axis=0, return_inverse=True)
+    return codes.ravel().astype(np.intp)
+
+
+def combine_codes(*codes) -> np.ndarray | None:
+    """Codes of the combinations of several labellings (None entries are ignored)."""
+    parts = [np.asarray(c) for c in codes if c is not None]
+    if not parts:
+        return None
+    if len(parts) == 1:
+        return _as_codes(parts[0])
+    keys = np.column_stack([_as_codes(p) for p in parts])
+    _, out = np.unique(keys, axis=0, return_inverse=True)
+    return out.ravel().astype(np.intp)
+
+
+def count_relabellings(types: np.ndarray, blocks: np.ndarray | None = None, *,
+                       cap: int | None = None) -> int | None:
+    """Number of distinct arrangements of row ``types`` within ``blocks``.
+
+    The product over blocks of the multinomial coefficients n_b! / prod_t m_bt!. With ``cap``,
+    returns None as soon as the count is known to exceed it (avoids huge integers).
+    """
+    types = np.asarray(types)
+    blocks = np.zeros(types.size, dtype=np.intp) if blocks is None else np.asarray(blocks)
+    log_total = 0.0
+    per_block = []
+    for b in np.unique(blocks):
+        m = np.unique(types[blocks == b], return_counts=True)[1]
+        log_total += math.lgamma(m.sum() + 1) - sum(math.lgamma(c + 1) for c in m)
+        per_block.append(m)
+    if cap is not None and log_total > math.log(cap) + 1.0:
+        return None
+    total = 1
+    for m in per_block:
+        rest = int(m.sum())
+        for c in m:
+            total *= math.comb(rest, int(c))
+            rest -= int(c)
+    if cap is not None and total > cap:
+        return None
+    return total
+
+
+def _multiset_arrangements(seq) -> Iterator[tuple]:
+    """Every distinct ordering of a multiset, in lexicographic order (Knuth's algorithm L)."""
+    a = sorted(seq)
+    m = len(a)
+    while True:
+        yield tuple(a)
+        j = m - 2
+        while j >= 0 and a[j] >= a[j + 1]:
+            j -= 1
+        if j < 0:
+            return
+        k = m - 1
+        while a[j] >= a[k]:
+            k -= 1
+        a[j], a[k] = a[k], a[j]
+        a[j + 1:] = reversed(a[j + 1:])
+
+
+# ---------------------------------------------------------------------------- symmetries
+def _block_signature(keys: np.ndarray, blocks: np.ndarray) -> np.ndarray:
+    """Sorted (block, key) pairs: equal for two labellings with the same rows per block."""
+    order = np.lexsort((keys, blocks))
+    return np.column_stack([blocks[order], keys[order]])
+
+
+def label_symmetries(columns, blocks=None, *, cap: int = 20_000) -> int | None:
+    """Relabellings of the design that leave every model span, and so the statistic, unchanged.
+
+    Parameters
+    ----------
+    columns : list of (kind, values)
+        One entry per main effect: ``("factor", labels)`` or ``("numeric", values)``, one
+        value per row (sample or unit). Interactions need no entry: a relabelling of the
+        levels of each factor maps their interaction onto itself.
+    blocks : array_like, optional
+        Relabellings happen within these blocks.
+    cap : int
+        Candidate relabellings examined at most; beyond it None is returned (the count is
+        then unknown, and only matters for designs with very many relabellings anyway).
+
+    Returns
+    -------
+    int or None
+        The number of maps (a permutation of the levels of every factor, the identity or
+        the reflection x -> min + max - x of every covariate) under which every block holds
+        the same multiset of design rows. Each maps an arrangement of the design onto another
+        arrangement with the same column spaces, so the number of distinct values of a
+        permutation statistic is the number of distinct relabellings divided by this.
+
+    Examples
+    --------
+    >>> label_symmetries([("factor", list("aaaabbbb"))])        # two groups of 4
+    2
+    >>> label_symmetries([("factor", list("aaabbbbb"))])        # unequal groups
+    1
+    >>> label_symmetries([("factor", list("aabbcc")), ("numeric", [1, 2, 1, 2, 1, 2])])
+    12
+    """
+    cols = []
+    for kind, values in columns:
+        v = np.asarray(values)
+        if kind == "factor":
+            cols.append(("factor", _as_codes(v)))
+        elif kind == "numeric":
+            x = np.asarray(v, dtype=float)
+            u, codes = np.unique(x, return_inverse=True)
+            cols.append(("numeric", (codes.ravel().astype(np.intp), u)))
+        else:
+            raise InputError(f"column kind must be 'factor' or 'numeric'; got {kind!r}.")
+    if not cols:
+        return 1
+    n = (cols[0][1] if cols[0][0] == "factor" else cols[0][1][0]).size
+    b = np.zeros(n, dtype=np.intp) if blocks is None else _as_codes(blocks)
+    nb = int(b.max()) + 1 if n else 1
+    codes = np.column_stack([c if k == "factor" else c[0] for k, c in cols])
+    sizes = codes.max(axis=0) + 1
+    # candidate maps per column: levels can only trade with levels of equal counts per block
+    per_col = []
+    total = 1
+    for j, (kind, c) in enumerate(cols):
+        k = int(sizes[j])
+        if kind == "numeric":
+            u = c[1]
+            maps = [np.arange(k)]
+            if k > 1 and np.allclose(u + u[::-1], u[0] + u[-1], rtol=1e-12,
+                                     atol=1e-12 * max(1.0, float(np.abs(u).max()))):
+                maps.append(np.arange(k)[::-1].copy())
+            per_col.append(maps)
+            total *= len(maps)
+            continue
+        sig = np.zeros((k, nb), dtype=np.int64)
+        np.add.at(sig, (codes[:, j], b), 1)
+        classes: dict = {}
+        for lv in range(k):
+            classes.setdefault(sig[lv].tobytes(), []).append(lv)
+        groups = [g for g in classes.values()]
+        count = 1
+        for g in groups:
+            count *= math.factorial(len(g))
+            if count > cap:
+                return None
+        total *= count
+        if total > cap:
+            return None
+        maps = []
+        for combo in itertools.product(*[itertools.permutations(g) for g in groups]):
+            m = np.arange(k)
+            for g, image in zip(groups, combo):
+                m[g] = image
+            maps.append(m)
+        per_col.append(maps)
+    mult = np.cumprod(np.concatenate([[1], sizes[:-1]])).astype(np.int64)
+    base = _block_signature(codes @ mult, b)
+    hits = 0
+    for combo in itertools.product(*per_col):
+        mapped = np.column_stack([m[codes[:, j]] for j, m in enumerate(combo)])
+        if np.array_equal(_block_signature(mapped @ mult, b), base):
+            hits += 1
+    return max(hits, 1)
+
+
+def span_symmetries(designs, blocks=None, *, max_types: int = 5) -> int:
+    """Symmetries of a design given only as matrices (nested spans), by brute force.
+
+    Counts the permutations of the distinct design rows (at most ``max_types`` of them; 1 is
+    returned beyond) that keep the rows of every block and the column span of each matrix in
+    ``designs`` (an intercept is added to each). Used when the factor structure is unknown.
+
+    Examples
+    --------
+    >>> span_symmetries([[[0], [0], [0], [1], [1], [1]]])      # two groups of 3
+    2
+    """
+    mats = [np.asarray(X, dtype=float).reshape(np.asarray(X).shape[0], -1)
+            for X in designs if X is not None and np.asarray(X).size]
+    if not mats:
+        return 1
+    n = mats[0].shape[0]
+    full = np.hstack(mats)
+    types = _row_types(full, n)
+    t = int(types.max()) + 1
+    if t > max_types or t < 2:
+        return 1
+    b = np.zeros(n, dtype=np.intp) if blocks is None else _as_codes(blocks)
+    rep = np.array([np.flatnonzero(types == k)[0] for k in range(t)])
+    base = _block_signature(types, b)
+    rows = [np.hstack([np.ones((t, 1)), X[rep]]) for X in mats]
+    ranks = [np.linalg.matrix_rank(r) for r in rows]
+    hits = 0
+    for perm in itertools.permutations(range(t)):
+        p = np.asarray(perm)
+        if not np.array_equal(_block_signature(p[types], b), base):
+            continue
+        if all(np.linalg.matrix_rank(np.hstack([r, r[p]])) == k for r, k in zip(rows, ranks)):
+            hits += 1
+    return max(hits, 1)
+
+
+def floor_note(n_distinct: int | None, symmetries: int, *, what: str = "the samples",
+               where: str = "", term: str | None = None, replication: str | None = None,
+               alpha: float = 0.05) -> str | None:
+    """A plain note when p-values are coarse: fewer than 100 distinct relabellings, or a
+    smallest attainable p-value of 0.01 or more. None otherwise."""
+    if n_distinct is None:
+        return None
+    floor = symmetries / n_distinct
+    if n_distinct >= FEW_PERMUTATIONS and floor < _FLOOR_NOTE:
+        return None
+    values = n_distinct // max(symmetries, 1)
+    text = f"Only {n_distinct} distinct relabellings of {what} exist{where}"
+    if symmetries > 1:
+        text += (f" ({values} distinct values of the statistic: relabellings that only swap "
+                 "the labels of equal-sized groups give the same value)")
+    subject = f" for {term!r}" if term else ""
+    text += f", so the smallest possible p-value{subject} is {floor:.3g}"
+    if floor > alpha:
+        why = f"with {replication}, " if replication else ""
+        text += (f"; {why}this test cannot reach p <= {alpha:g} whatever the data, and a "
+                 "non-significant result says nothing about whether there is an effect.")
+    else:
+        text += "; p-values are coarse and a non-significant result says little."
+    return text
+
+
+# ---------------------------------------------------------------------------- samples
+class Permutations:
+    """The relabellings a test uses: random (free or within blocks) or all distinct ones.
+
+    Each permutation is an index array ``idx`` of length n: the permuted design is
+    ``X[idx]`` (row i of the permuted design is row ``idx[i]`` of the original), held
+    against the fixed residuals; ``blocks[idx] == blocks`` always holds.
+
+    Parameters
+    ----------
+    n : int
+    n_permutations : int
+        Permutations asked for. When the number of distinct relabellings is at most this,
+        all of them are enumerated instead (``exact``).
+    rng : None, int or numpy.random.Generator
+        One draw from it seeds the permutations; :meth:`batches` replays the same
+        permutations on every call.
+    blocks : array_like, optional
+        Block (stratum) label of every sample; samples are only permuted within blocks.
+    block_name : str, optional
+        Name of the blocking column, for the description and error messages.
+    design : ndarray, optional
+        Design rows (n x m); rows that are equal are interchangeable, which defines which
+        relabellings are distinct. Default: every sample distinct.
+    exact : {'auto', True, False}
+        'auto' enumerates when it is possible within ``n_permutations``; False never does.
+    symmetries : int, optional
+        Relabellings giving the same statistic as any given one (see
+        :func:`label_symmetries`); default: found by brute force from ``design`` when it
+        has at most 5 distinct rows (:func:`span_symmetries`), else 1.
+    what : str
+        What is permuted, for notes ("the samples", "the 6 units of 'tank'").
+    where : str, optional
+        How the blocks are described (default "blocks of '<block_name>'").
+
+    Raises
+    ------
+    DesignError
+        The blocks allow no relabelling other than the identity.
+    """
+
+    def __init__(self, n: int, n_permutations: int, rng: np.random.Generator, *,
+                 blocks=None, block_name: str | None = None, design=None, exact="auto",
+                 symmetries: int | None = None, what: str = "the samples",
+                 where: str | None = None):
+        self.n = int(n)
+        self._where_text = where
+        self.requested = int(n_permutations)
+        if self.requested < 0:
+            raise InputError(f"`n_permutations` must be >= 0; got {n_permutations}.")
+        self.block_name = block_name
+        self.what = what
+        # a snapshot of the stream: every call of batches() replays the same permutations,
+        # so several tests (the terms of one table) can share them
+        # (the caller's generator is advanced once, so a second test drawn from it differs)
+        child = np.random.default_rng(np.random.default_rng(rng).integers(2**63, size=4))
+        self._bit_generator = type(child.bit_generator)
+        self._state = child.bit_generator.state
+        self.blocks = None if blocks is None else _as_codes(blocks)
+        if self.blocks is not None and self.blocks.size != self.n:
+            raise DesignError(f"{self.blocks.size} block labels for {self.n} samples.")
+        self.types = _row_types(design, self.n)
+        cap = max(self.requested, FEW_PERMUTATIONS)
+        self.n_distinct = count_relabellings(self.types, self.blocks, cap=cap)
+        if self.n_distinct == 1:
+            where = (f"within the blocks of {block_name!r}" if block_name
+                     else "among the samples")
+            raise DesignError(
+                f"no relabelling {where} changes the design, so there is nothing to permute.",
+                location=Location(column=repr(block_name)) if block_name else None,
+                hint="The tested term may be constant within every block; test it at the "
+                     "block level, or drop the blocks.")
+        if symmetries is None:
+            symmetries = (span_symmetries([design], self.blocks)
+                          if design is not None and np.asarray(design).size else 1)
+        self.symmetries = max(int(symmetries), 1)
+        if exact == "auto":
+            self.exact = self.n_distinct is not None and self.n_distinct <= self.requested
+        else:
+            self.exact = bool(exact) and self.n_distinct is not None
+        self.total = self.n_distinct if self.exact else self.requested
+        if self.blocks is not None:
+            order = np.argsort(self.blocks, kind="stable")
+            self._block_sorted = order
+            self._block_keys = self.blocks.astype(np.float64)
+
+    # ----------------------------------------------------------------- description
+    @property
+    def few(self) -> bool:
+        """True when fewer than 100 distinct relabellings exist."""
+        return self.n_distinct is not None and self.n_distinct < FEW_PERMUTATIONS
+
+    @property
+    def min_pvalue(self) -> float | None:
+        """Smallest p-value the exact test can give (symmetries / distinct relabellings);
+        None when the relabellings are too many to matter."""
+        if self.n_distinct is None:
+            return None
+        return self.symmetries / self.n_distinct
+
+    def _where(self) -> str:
+        if self.blocks is not None and self._where_text:
+            return f" within {self._where_text}"
+        if self.blocks is not None and self.block_name:
+            return f" within blocks of {self.block_name!r}"
+        return " within blocks" if self.blocks is not None else ""
+
+    def describe(self) -> str:
+        where = self._where().strip() or "free"
+        of = "" if self.what == "the samples" else f" of {self.what}"
+        if self.exact:
+            return f"exact: all {self.n_distinct} distinct relabellings{of} ({where})"
+        return f"{self.requested} random permutations{of} ({where})"
+
+    def note(self, *, term: str | None = None, replication: str | None = None,
+             alpha: float = 0.05) -> str | None:
+        """A note when p-values are coarse (see :func:`floor_note`), else None."""
+        return floor_note(self.n_distinct, self.symmetries, what=self.what,
+                          where=self._where(), term=term, replication=replication,
+                          alpha=alpha)
+
+    # ----------------------------------------------------------------- generation
+    def batches(self, size: int) -> Iterator[np.ndarray]:
+        """Yield (B, n) index arrays, B <= size, ``total`` rows in all.
+
+        The random stream is consumed row by row, so the permutations do not depend on
+        ``size``.
+        """
+        size = max(1, int(size))
+        rng = self._generator()
+        if self.exact:
+            it = self._enumerate()
+            while True:
+                chunk = list(itertools.islice(it, size))
+                if not chunk:
+                    return
+                yield np.array(chunk, dtype=np.intp)
+        done = 0
+        while done < self.total:
+            b = min(size, self.total - done)
+            yield self._random(rng, b)
+            done += b
+
+    def _generator(self) -> np.random.Generator:
+        bg = self._bit_generator()
+        bg.state = self._state
+        return np.random.Generator(bg)
+
+    def _random(self, rng: np.random.Generator, b: int) -> np.ndarray:
+        n = self.n
+        if self.blocks is None:
+            idx = np.tile(np.arange(n, dtype=np.intp), (b, 1))
+            rng.permuted(idx, axis=1, out=idx)
+            return idx
+        # random keys within each block's integer band: sorting them shuffles every block
+        keys = rng.random((b, n))
+        keys += self._block_keys
+        order = np.argsort(keys, axis=1)
+        idx = np.empty((b, n), dtype=np.intp)
+        idx[:, self._block_sorted] = order
+        return idx
+
+    def _enumerate(self) -> Iterator[np.ndarray]:
+        """Every distinct relabelling once (the identity among them)."""
+        n = self.n
+        blocks = np.zeros(n, dtype=np.intp) if self.blocks is None else self.blocks
+        per_block = []
+        for b in np.unique(blocks):
+            pos = np.flatnonzero(blocks == b)
+            t = self.types[pos]
+            arrangements = np.array(list(_multiset_arrangements(t.tolist())), dtype=np.intp)
+            local = np.empty_like(arrangements)
+            for ty in np.unique(t):
+                rows = pos[t == ty]                 # samples of this type, in order
+                mask = arrangements == ty
+                rank = np.cumsum(mask, axis=1) - 1
+                local[mask] = rows[rank[mask]]
+            per_block.append((pos, local))
+        for combo in itertools.product(*[range(len(loc)) for _, loc in per_block]):
+            idx = np.empty(n, dtype=np.intp)
+            for (pos, local), c in zip(per_block, combo):
+                idx[pos] = local[c]
+            yield idx
+
+
+def within_units(codes, n_permutations: int, rng, *, unit_name: str | None = None,
+                 blocks=None, block_name: str | None = None, design=None, exact="auto",
+                 symmetries: int | None = None) -> Permutations:
+    """Samples permuted only within their unit (and block): units as strata.
+
+    ``codes`` gives the unit of every sample; with ``blocks`` too, samples move within
+    the combinations of unit and block.
+    """
+    strata = combine_codes(codes, blocks)
+    name = unit_name if block_name is None else f"{unit_name} x {block_name}"
+    where = f"units of {unit_name!r}" + (f" and blocks of {block_name!r}" if block_name
+                                         else "")
+    return Permutations(len(strata), n_permutations, rng, blocks=strata, block_name=name,
+                        design=design, exact=exact, symmetries=symmetries, where=where)
+
+
+# ---------------------------------------------------------------------------- units
+class UnitPermutations:
+    """Whole units permuted among themselves, each keeping all of its samples together.
+
+    The relabelling acts on the m units: permutation ``idx`` (length m) gives unit ``u`` the
+    design row (factor levels) of unit ``idx[u]``, while every sample stays with its unit.
+    Units are only exchanged within their unit blocks (the parent unit of a nested level,
+    and the user's blocks, which must group whole units). When the factor was assigned to the
+    units at random, this is an exact randomisation test whatever the numbers of samples per
+    unit (Anderson & ter Braak 2003).
+
+    Parameters
+    ----------
+    codes : array_like of int, shape (n,)
+        Unit of every sample (0..m-1).
+    n_permutations : int
+    rng : None, int or Generator
+    unit_name : str
+        Name of the units column, for notes ("'tank'").
+    blocks : array_like, shape (m,), optional
+        Block of every unit (parents and user blocks combined).
+    block_name : str, optional
+    design : ndarray, shape (m, k), optional
+        Unit-level design rows: units with equal rows are interchangeable.
+    exact, symmetries : as in :class:`Permutations` (at the unit level).
+
+    Attributes
+    ----------
+    units : Permutations
+        The scheme over the m units (its ``batches`` yield (B, m) arrays).
+    sizes : ndarray
+        Samples per unit.
+    balanced : bool
+        Every unit holds the same number of samples.
+    """
+
+    def __init__(self, codes, n_permutations: int, rng, *, unit_name: str = "units",
+                 blocks=None, block_name: str | None = None, design=None, exact="auto",
+                 symmetries: int | None = None):
+        self.codes = np.asarray(codes, dtype=np.intp)
+        self.m = int(self.codes.max()) + 1
+        self.sizes = np.bincount(self.codes, minlength=self.m)
+        self.unit_name = unit_name
+        what = f"the {self.m} units of {unit_name!r}"
+        try:
+            self.units = Permutations(self.m, n_permutations, rng, blocks=blocks,
+                                      block_name=block_name, design=design, exact=exact,
+                                      symmetries=symmetries, what=what)
+        except DesignError:
+            where = f" within blocks of {block_name!r}" if block_name else ""
+            raise DesignError(
+                f"no relabelling of the units of {unit_name!r}{where} changes the design, so "
+                "there are no whole units to permute.",
+                location=Location(column=repr(unit_name)),
+                hint="Each block (or parent unit) needs units with different levels of the "
+                     "tested term.") from None
+        order = np.argsort(self.codes, kind="stable")
+        self.balanced = bool(self.sizes.min() == self.sizes.max())
+        if self.balanced:
+            self._positions = order.reshape(self.m, -1)     # samples of each unit, in order
+
+    # delegated description
+    total = property(lambda self: self.units.total)
+    exact = property(lambda self: self.units.exact)
+    n_distinct = property(lambda self: self.units.n_distinct)
+    symmetries = property(lambda self: self.units.symmetries)
+    min_pvalue = property(lambda self: self.units.min_pvalue)
+    few = property(lambda self: self.units.few)
+    requested = property(lambda self: self.units.requested)
+
+    def describe(self) -> str:
+        where = self.units._where()
+        if self.exact:
+            return (f"exact: all {self.n_distinct} distinct relabellings of whole units of "
+                    f"{self.unit_name!r}{where}")
+        return (f"{self.requested} random permutations of whole units of "
+                f"{self.unit_name!r}{where}")
+
+    def note(self, **kw) -> str | None:
+        return self.units.note(**kw)
+
+    def batches(self, size: int) -> Iterator[np.ndarray]:
+        """(B, m) unit index arrays."""
+        return self.units.batches(size)
+
+    def sample_batches(self, size: int) -> Iterator[np.ndarray]:
+        """(B, n) sample index arrays (balanced units only): the sample at position j of
+        unit u takes the design row of the sample at position j of unit ``idx[u]``."""
+        if not self.balanced:
+            raise DesignError(f"the units of {self.unit_name!r} hold different numbers of "
+                              "samples, so a permutation of units is not a permutation of "
+                              "samples; use the unit-level computation.")
+        pos = self._positions
+        for idx in self.batches(size):
+            out = np.empty((idx.shape[0], self.codes.size), dtype=np.intp)
+            out[:, pos] = pos[idx]
+            yield out
+
+
+class CyclicShifts:
+    """The ordered visits of every unit rotated by a random number of steps.
+
+    Unit u with visits v_0 < v_1 < ... < v_{s-1} (in the order of ``order``) and shift k
+    gives visit j the design row of visit (j + k) mod s; every unit gets its own shift.
+    Rotations keep the sequence of the visits, so a series with serial correlation keeps
+    it under the null (Besag & Clifford 1989 for restricted Monte Carlo schemes). Exact
+    enumeration of all prod(s_u) shift combinations when they are few enough.
+    """
+
+    def __init__(self, codes, order, n_permutations: int, rng, *, unit_name: str = "units",
+                 order_name: str = "order", exact="auto"):
+        self.codes = np.asarray(codes, dtype=np.intp)
+        self.n = self.codes.size
+        self.requested = int(n_permutations)
+        self.unit_name, self.order_name = unit_name, order_name
+        self.m = int(self.codes.max()) + 1
+        key = np.asarray(order)
+        self._units = []
+        for u in range(self.m):
+            pos = np.flatnonzero(self.codes == u)
+            pos = pos[np.argsort(key[pos], kind="stable")]
+            self._units.append(pos)
+        sizes = [p.size for p in self._units]
+        log_total = sum(math.log(s) for s in sizes)
+        cap = max(self.requested, FEW_PERMUTATIONS)
+        self.n_distinct = math.prod(sizes) if log_total <= math.log(cap) + 1e-9 else None
+        if self.n_distinct == 1:
+            raise DesignError(f"every unit of {unit_name!r} holds a single visit, so there is "
+                              "nothing to rotate.", location=Location(column=repr(unit_name)))
+        self.symmetries = 1
+        if exact == "auto":
+            self.exact = self.n_distinct is not None and self.n_distinct <= self.requested
+        else:
+            self.exact = bool(exact) and self.n_distinct is not None
+        self.total = self.n_distinct if self.exact else self.requested
+        child = np.random.default_rng(np.random.default_rng(rng).integers(2**63, size=4))
+        self._state = child.bit_generator.state
+        self._bit_generator = type(child.bit_generator)
+        self._sizes = np.array(sizes)
+
+    few = property(lambda self: self.n_distinct is not None
+                   and self.n_distinct < FEW_PERMUTATIONS)
+    min_pvalue = property(lambda self: None if self.n_distinct is None
+                          else 1 / self.n_distinct)
+
+    def describe(self) -> str:
+        what = f"cyclic shifts of the visits (in {self.order_name!r} order) within each " \
+               f"unit of {self.unit_name!r}"
+        if self.exact:
+            return f"exact: all {self.n_distinct} {what}"
+        return f"{self.requested} random {what}"
+
+    def note(self, **kw) -> str | None:
+        return floor_note(self.n_distinct, 1, what="the visits by cyclic shifts", **kw)
+
+    def _build(self, shifts: np.ndarray) -> np.ndarray:
+        b = shifts.shape[0]
+        idx = np.empty((b, self.n), dtype=np.intp)
+        for u, pos in enumerate(self._units):
+            s = pos.size
+            j = (np.arange(s)[None, :] + shifts[:, u:u + 1]) % s
+            idx[:, pos] = pos[j]
+        return idx
+
+    def batches(self, size: int) -> Iterator[np.ndarray]:
+        size = max(1, int(size))
+        if self.exact:
+            it = itertools.product(*[range(s) for s in self._sizes])
+            while True:
+                chunk = list(itertools.islice(it, size))
+                if not chunk:
+                    return
+                yield self._build(np.array(chunk, dtype=np.intp))
+        bg = self._bit_generator()
+        bg.state = self._state
+        rng = np.random.Generator(bg)
+        done = 0
+        while done < self.total:
+            b = min(size, self.total - done)
+            shifts = (rng.random((b, self.m)) * self._sizes[None, :]).astype(np.intp)
+            yield self._build(shifts)
+            done += b

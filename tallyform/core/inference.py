@@ -308,12 +308,16 @@ def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
     observed statistic divided by the number of relabellings, label swaps of equal-sized
     groups included) is above 0.05, the notes and the reading say so.
 
-    Unbalanced units (missing visits). Between-unit sums of squares weight each unit by its
-    number of samples (they equal the sample-level sums of squares of terms constant within
-    units). Whole-unit relabelling is an exact randomisation test when the tested factor was
-    assigned to the units at random, whatever the unit sizes, as long as it is the only term
-    of its stratum; with other terms in the stratum, and for observational units, it is
-    approximate (calibrated by simulation: benchmarks/calibration_cells/units.py).
+    Unbalanced units (missing visits). Between-unit tests use the unit means weighted by
+    their estimated precision 1 / (s2_u + s2_e / n_u), with the variance of unit effects
+    s2_u and of samples within units s2_e estimated by the method of moments from the unit
+    structure alone (Searle, Casella & McCulloch 1992): the weights lie between the sample
+    counts (classical sums of squares, best without unit effects) and equal weights (an
+    analysis of unit means, best when unit effects dominate); with balanced units they are
+    the sample counts. Whole-unit relabelling is an exact randomisation test when the tested
+    factor was assigned to the units at random, whatever the unit sizes, as long as it is the
+    only term of its stratum; with other terms in the stratum, and for observational units,
+    it is approximate (calibrated by simulation: benchmarks/calibration_cells/units.py).
     Within-unit terms use comparisons within units only (units as fixed blocks); their test
     is exact for exchangeable visits when they are the only within-unit term.
 
@@ -333,6 +337,7 @@ def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
     Nelder, J. A. (1965). Proc. R. Soc. Lond. A 283, 147-178.
     Snedecor, G. W. & Cochran, W. G. (1989). Statistical Methods, 8th ed. Iowa State Univ.
     Press.
+    Searle, S. R., Casella, G. & McCulloch, C. E. (1992). Variance Components. Wiley.
 
     Examples
     --------
@@ -382,6 +387,15 @@ def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
     table = _table(tests, rows, terms, total, n, grouped=plan is not None)
     tested = [t for t in terms if np.isfinite(tests[t].pvalue)]
     notes += tuple(_closing_notes(table, tested, mm, ss, terms, resp.path, total))
+    tangled = [t for t in tested if tests[t].order_dependent]
+    if tangled and ss == "sequential":
+        notes += (f"Unbalanced design: the sequential test of {', '.join(map(repr, tangled))} "
+                  "depends on the order of the terms (a term is not adjusted for correlated "
+                  "terms listed after it, whose fitted values its permutations keep; "
+                  "Freedman & Lane 1983). Such a test holds its level only approximately "
+                  "(slightly conservative when measured) and can miss an effect that the "
+                  "unadjusted means hide; ss='marginal' tests every term adjusted for the "
+                  "others, whatever the order.",)
     schemes = pd.DataFrame(
         {"stratum": [tests[t].stratum for t in terms],
          "permutations": [tests[t].scheme for t in terms],
@@ -446,7 +460,9 @@ def _unit_notes(plan) -> list:
             s = lv.sizes
             out.append(
                 f"Units of {lv.name!r} hold {s.min()}-{s.max()} samples (unbalanced): "
-                "between-unit sums of squares weight each unit by its samples. Whole-unit "
+                "between-unit tests weight each unit mean by its estimated precision "
+                "1 / (s2_u + s2_e / n_u) (variance components from the units alone), so "
+                "their sums of squares are not the sample-level ones. Whole-unit "
                 "relabelling is exact when a factor was assigned to units at random and is "
                 "the only term of its stratum; otherwise it is approximate (calibrated by "
                 "simulation). Within-unit terms use comparisons within units only.")

@@ -26,15 +26,20 @@ Sequential statistics (Freedman & Lane 1983 with the reduced model's fitted part
 back). The numerator of a sequential table conditions on the terms listed *before* the tested
 one (basis Qb), while the residuals that are permuted are those of a reduced model Z that
 keeps every other term not containing it (also later ones). The permuted data are then
-Y* = Yhat_Z + P e_Z, and the same sequential statistic is computed on Y*:
+Y* = Yhat_Z + (I - H_Z) P e_Z: the permuted residuals are projected back onto the residual
+space of Z (as the observed ones lie in it; Huh & Jhun 2001 permute within that space), and
+the same sequential statistic is computed on Y*. With q~ = (I - H_Z) q,
 
-    q' G* q = q' H_Z G H_Z q + 2 q' H_Z G (I - H_Z) P' q + (P'q)' R (P'q)
+    q' G* q = q' H_Z G H_Z q + 2 q' H_Z G (I - H_Z) P' q~ + (P'q~)' R (P'q~)
 
 for every basis column q of the tested term; the first two parts need only one fixed vector
-per column, so the cost is that of the plain form. The denominator, (I - H_A) Y*, does not
-see Yhat_Z (Z lies within the full model A). In a balanced design the tested term is
-orthogonal to Z and the cross terms vanish: a term's p-value then does not depend on where
-it stands in the list. See :func:`permuted_f`.
+per column, so the cost is that of the plain form. Without the projection, a tested term
+that is correlated with Z (unbalanced designs, the term listed before Z's terms) would meet
+permuted residuals with more variance than the observed ones have along it, and its test
+would be conservative (p-values near 1 under the null, no power; measured). The denominator,
+(I - H_A) Y*, sees neither Yhat_Z nor the projection (Z lies within the full model A). In a
+balanced design the tested term is orthogonal to Z, q~ = q and the cross terms vanish: a
+term's p-value then does not depend on where it stands in the list. See :func:`permuted_f`.
 
 Schemes live in :mod:`tallyform.core.schemes` (free, within blocks, whole units, within
 units, cyclic shifts; exact enumeration when the distinct relabellings are few enough).
@@ -57,6 +62,8 @@ Anderson, M. J. & ter Braak, C. J. F. (2003). Permutation tests for multi-factor
 of variance. J. Stat. Comput. Simul. 73, 85-113.
 Freedman, D. & Lane, D. (1983). A nonstochastic interpretation of reported significance
 levels. J. Bus. Econ. Stat. 1, 292-298.
+Huh, M.-H. & Jhun, M. (2001). Random permutation testing in multiple linear regression.
+Commun. Stat. Theory Methods 30, 2023-2032.
 McArdle, B. H. & Anderson, M. J. (2001). Fitting multivariate models to community data: a
 comment on distance-based redundancy analysis. Ecology 82, 290-297.
 Phipson, B. & Smyth, G. K. (2010). Permutation p-values should never be zero. Stat. Appl.
@@ -438,6 +445,9 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
             gz = qz.T @ gqz
             c = (gqz - qz @ gz) @ tz                            # (I - H_Z) G H_Z q, n x nt
             const = np.einsum("ij,ik,kj->j", tz, gz, tz)
+        # the permuted residuals are projected back onto the residual space of Z, so the
+        # tested columns meet them through (I - H_Z) q (see the module notes)
+        qt_res = np.ascontiguousarray((qt - qz @ tz).T)         # nt x n
         scale = max(trace_r, total)
     else:
         const = np.zeros(nt)
@@ -464,13 +474,16 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
         num = tr[nb:nb + nt].sum(axis=0)
         den = trace_r - tr[:nb].sum(axis=0) - num - tr[nb + nt:].sum(axis=0)
         if cross:
+            ut = np.take(qt_res, idx, axis=1).reshape(nt * b, n)
             if r.features is not None:
-                vt = v.reshape(k, b, -1)[nb:nb + nt]
-                xc = np.einsum("jbf,jf->b", vt, a)
+                vt = ut @ r.features
+                plain = np.einsum("ij,ij->i", vt, vt).reshape(nt, b)
+                xc = np.einsum("jbf,jf->b", vt.reshape(nt, b, -1), a)
             else:
-                ut = u.reshape(k, b, n)[nb:nb + nt]
-                xc = np.einsum("jbn,nj->b", ut, c)
-            num = num + const.sum() + 2.0 * xc
+                vt = ut @ r.gower
+                plain = np.einsum("ij,ij->i", ut, vt).reshape(nt, b)
+                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
+            num = plain.sum(axis=0) + const.sum() + 2.0 * xc
         null[done:done + b] = _pseudo_f(_clean(num, scale), _clean(den, scale), nt, df_res)
         done += b
         if progress is not None:

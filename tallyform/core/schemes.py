@@ -136,7 +136,7 @@ def _block_signature(keys: np.ndarray, blocks: np.ndarray) -> np.ndarray:
     return np.column_stack([blocks[order], keys[order]])
 
 
-def label_symmetries(columns, blocks=None, *, cap: int = 20_000) -> int | None:
+def label_symmetries(columns, blocks=None, *, cap: int = 500) -> int:
     """Relabellings of the design that leave every model span, and so the statistic, unchanged.
 
     Parameters
@@ -148,12 +148,13 @@ def label_symmetries(columns, blocks=None, *, cap: int = 20_000) -> int | None:
     blocks : array_like, optional
         Relabellings happen within these blocks.
     cap : int
-        Candidate relabellings examined at most; beyond it None is returned (the count is
-        then unknown, and only matters for designs with very many relabellings anyway).
+        Joint maps examined one by one at most; beyond it the count is the product, over
+        the main effects, of the maps that work for that main effect alone (a lower bound
+        that misses only maps that must move two factors together, as in a Latin square).
 
     Returns
     -------
-    int or None
+    int
         The number of maps (a permutation of the levels of every factor, the identity or
         the reflection x -> min + max - x of every covariate) under which every block holds
         the same multiset of design rows. Each maps an arrangement of the design onto another
@@ -169,65 +170,69 @@ def label_symmetries(columns, blocks=None, *, cap: int = 20_000) -> int | None:
     >>> label_symmetries([("factor", list("aabbcc")), ("numeric", [1, 2, 1, 2, 1, 2])])
     12
     """
-    cols = []
+    axes = []
     for kind, values in columns:
-        v = np.asarray(values)
         if kind == "factor":
-            cols.append(("factor", _as_codes(v)))
+            axes.append(("factor", _as_codes(values), None))
         elif kind == "numeric":
-            x = np.asarray(v, dtype=float)
-            u, codes = np.unique(x, return_inverse=True)
-            cols.append(("numeric", (codes.ravel().astype(np.intp), u)))
+            u, codes = np.unique(np.asarray(values, dtype=float), return_inverse=True)
+            axes.append(("numeric", codes.ravel().astype(np.intp), u))
         else:
             raise InputError(f"column kind must be 'factor' or 'numeric'; got {kind!r}.")
-    if not cols:
+    if not axes:
         return 1
-    n = (cols[0][1] if cols[0][0] == "factor" else cols[0][1][0]).size
+    n = axes[0][1].size
     b = np.zeros(n, dtype=np.intp) if blocks is None else _as_codes(blocks)
-    nb = int(b.max()) + 1 if n else 1
-    codes = np.column_stack([c if k == "factor" else c[0] for k, c in cols])
-    sizes = codes.max(axis=0) + 1
-    # candidate maps per column: levels can only trade with levels of equal counts per block
-    per_col = []
-    total = 1
-    for j, (kind, c) in enumerate(cols):
-        k = int(sizes[j])
+    shape = [int(b.max()) + 1 if n else 1] + [int(c.max()) + 1 for _, c, _ in axes]
+    if math.prod(shape) > 2_000_000:
+        return 1
+    T = np.zeros(shape, dtype=np.int64)
+    np.add.at(T, (b, *[c for _, c, _ in axes]), 1)
+    cands, alone = [], []
+    for f, (kind, codes, u) in enumerate(axes):
+        ax, k = f + 1, shape[f + 1]
         if kind == "numeric":
-            u = c[1]
             maps = [np.arange(k)]
             if k > 1 and np.allclose(u + u[::-1], u[0] + u[-1], rtol=1e-12,
                                      atol=1e-12 * max(1.0, float(np.abs(u).max()))):
                 maps.append(np.arange(k)[::-1].copy())
-            per_col.append(maps)
-            total *= len(maps)
+            cands.append(maps)
+            alone.append(sum(np.array_equal(np.take(T, m, axis=ax), T) for m in maps))
             continue
-        sig = np.zeros((k, nb), dtype=np.int64)
-        np.add.at(sig, (codes[:, j], b), 1)
+        # levels trade only with levels of equal counts per block (a necessary condition)
+        marg = T.sum(axis=tuple(a for a in range(1, T.ndim) if a != ax))   # blocks x k
         classes: dict = {}
         for lv in range(k):
-            classes.setdefault(sig[lv].tobytes(), []).append(lv)
-        groups = [g for g in classes.values()]
-        count = 1
-        for g in groups:
-            count *= math.factorial(len(g))
-            if count > cap:
-                return None
-        total *= count
-        if total > cap:
-            return None
+            classes.setdefault(marg[:, lv].tobytes(), []).append(lv)
+        cands.append(list(classes.values()))
+        # alone: levels whose whole slices are equal can be permuted freely
+        same: dict = {}
+        for lv in range(k):
+            same.setdefault(np.take(T, lv, axis=ax).tobytes(), []).append(lv)
+        alone.append(math.prod(math.factorial(len(g)) for g in same.values()))
+    joint = 1
+    for c in cands:
+        joint *= len(c) if isinstance(c[0], np.ndarray) else \
+            math.prod(math.factorial(len(g)) for g in c)
+        if joint > cap:
+            return max(1, math.prod(alone))
+    per_axis = []
+    for c, (_, _, _) in zip(cands, axes):
+        if isinstance(c[0], np.ndarray):
+            per_axis.append(c)
+            continue
+        k = sum(len(g) for g in c)
         maps = []
-        for combo in itertools.product(*[itertools.permutations(g) for g in groups]):
+        for combo in itertools.product(*[itertools.permutations(g) for g in c]):
             m = np.arange(k)
-            for g, image in zip(groups, combo):
+            for g, image in zip(c, combo):
                 m[g] = image
             maps.append(m)
-        per_col.append(maps)
-    mult = np.cumprod(np.concatenate([[1], sizes[:-1]])).astype(np.int64)
-    base = _block_signature(codes @ mult, b)
+        per_axis.append(maps)
     hits = 0
-    for combo in itertools.product(*per_col):
-        mapped = np.column_stack([m[codes[:, j]] for j, m in enumerate(combo)])
-        if np.array_equal(_block_signature(mapped @ mult, b), base):
+    everything = np.arange(shape[0])
+    for combo in itertools.product(*per_axis):
+        if np.array_equal(T[np.ix_(everything, *combo)], T):
             hits += 1
     return max(hits, 1)
 

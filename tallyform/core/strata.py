@@ -16,12 +16,18 @@ within units, against tr((I - H_u - H_W) G) with df = n - #units - rank(W), perm
 within their unit (or cyclic shifts of ordered visits). With one variable and Euclidean
 distances these are the F ratios of the classical split-plot and repeated-measures tables.
 
-Between-unit strata are computed on the unit means, weighted by the number of samples of
-each unit: sample-level sums of squares of terms that are constant within units equal the
-weighted unit-level ones. With balanced units the weights are equal and the orthonormal basis
-of the unit-level design is fixed; with unbalanced units (missing visits) a whole-unit
-relabelling moves a unit's samples, and so its weight, to another design row, and the small
-unit-level basis is recomputed for every permutation (a batched QR).
+Between-unit strata are computed on the unit means. With balanced units each is weighted by
+its number of samples, and the sums of squares are the classical sample-level ones (sample-
+level sums of squares of terms constant within units equal the weighted unit-level ones).
+With unbalanced units (missing visits) a unit mean's precision depends both on its number of
+samples and on the variance of the unit effects, so the means are weighted by their estimated
+precision 1 / (s2_u + s2_e / n_u) (:func:`precision_weights`; Searle, Casella & McCulloch
+1992): between the classical sample weights (no unit effects) and equal weights (the
+analysis of unit means, when unit effects dominate), never worse than both by much. The
+variance components come from the unit structure alone, so a whole-unit relabelling moves
+each unit's data together with its fixed weight to another design row: the test stays the
+exact randomisation test. The small unit-level basis is then recomputed for every
+permutation (a batched QR).
 
 In every stratum the test of a term permutes the residuals of the reduced model that keeps
 the stratum's other terms not containing it, with the fitted part added back (Freedman & Lane
@@ -35,6 +41,7 @@ Freedman, D. & Lane, D. (1983). A nonstochastic interpretation of reported signi
 levels. J. Bus. Econ. Stat. 1, 292-298.
 Nelder, J. A. (1965). The analysis of randomized experiments with orthogonal block structure.
 Proc. R. Soc. Lond. A 283, 147-178.
+Searle, S. R., Casella, G. & McCulloch, C. E. (1992). Variance Components, ch. 3. Wiley.
 Snedecor, G. W. & Cochran, W. G. (1989). Statistical Methods, 8th ed., ch. 16. Iowa State
 University Press.
 """
@@ -74,6 +81,7 @@ class TermTest:
     tested_against: str
     df_denominator: int
     note: str | None = None
+    order_dependent: bool = False
 
 
 @dataclass
@@ -125,7 +133,7 @@ def unit_f(y: np.ndarray, signs: np.ndarray, weights: np.ndarray, base, before, 
         Coordinates of the unit means (signed axes: ``signs``), see
         :meth:`tallyform.core.permutation.Response.unit_means`.
     weights : ndarray (m,)
-        Samples per unit.
+        Weight of every unit mean (its number of samples, or its precision).
     base, before, tested, later : ndarray (m, c)
         Unit-level columns: the base of the stratum (intercept, or parent-unit indicators),
         the terms the numerator conditions on, the tested term, later terms.
@@ -141,10 +149,19 @@ def unit_f(y: np.ndarray, signs: np.ndarray, weights: np.ndarray, base, before, 
     -----
     Relabelling ``idx`` gives unit u the design row of unit idx[u]; equivalently the data
     and the weight of unit idx^-1[u] move to position u. The permuted data are
-    Y* = Yhat_Z + e_Z[idx^-1] (Freedman & Lane 1983) with weights w[idx^-1], and the
-    weighted sequential statistic is computed on them. With the reduced model equal to the
-    base (no other term in the stratum) Y* is the relabelled data itself, so the test is the
-    exact randomisation test of whole-unit assignment, whatever the unit sizes.
+    Y* = Yhat_Z + (I - H*_Z) e_Z[idx^-1] (Freedman & Lane 1983, the permuted residuals
+    projected back onto the residual space of Z, as for samples) with weights w[idx^-1],
+    H*_Z the projection onto Z under those weights, and the weighted sequential statistic
+    is computed on them. With the reduced model equal to the base (no other term in the
+    stratum) Y* equals the relabelled data up to the base, which every model contains, so
+    the test is the exact randomisation test of whole-unit assignment, whatever the unit
+    sizes and weights.
+
+    Every quantity is a small weighted cross-product: with X the (full-rank) design,
+    X' W* Y* = X' W* Yhat_Z + X[idx]' W e_Z - (X' W* Z)(Z' W* Z)^-1 Z[idx]' W e_Z, and the
+    Cholesky factor L of X' W* X turns it into the sequential contributions of the columns,
+    c = L^-1 X' W* Y* (the R factor of the weighted QR). Cost O(B m k (k + r)) per batch
+    of B permutations; nothing of size B x m x r is formed.
     """
     y = np.asarray(y, dtype=np.float64)
     m, r = y.shape
@@ -160,21 +177,21 @@ def unit_f(y: np.ndarray, signs: np.ndarray, weights: np.ndarray, base, before, 
         raise DesignError(f"the between-unit terms use all {m} units, leaving no replicate "
                           "units to test them against.",
                           hint="Use fewer between-unit terms or levels, or more units.")
-    sw = np.sqrt(w)
-    q = np.linalg.qr(sw[:, None] * X)[0]
-    yw = sw[:, None] * y
-    sq = ((q.T @ yw) ** 2) @ signs
-    raw = float(((yw ** 2) @ signs).sum())
-    scale = abs(raw - float(sq[:k0].sum()))
-    ss_t = _clean(float(sq[kb:kb + kt].sum()), scale)
-    ss_res = _clean(raw - float(sq.sum()), scale)
-    observed = _pseudo_f(ss_t, ss_res, df_t, df_res)
     Z, _ = full_rank_columns([reduced])
-    beta = np.linalg.lstsq(sw[:, None] * Z, yw, rcond=None)[0]
+    sw = np.sqrt(w)
+    beta = np.linalg.lstsq(sw[:, None] * Z, sw[:, None] * y, rcond=None)[0]
     fitted = Z @ beta
     e = y - fitted
-    balanced = bool(np.ptp(w) == 0)
-    size = batch_size or max(8, int(_BATCH_BYTES // (8 * m * (r + k + 1) * 3)))
+    f2 = (fitted ** 2) @ signs                                   # ||Yhat_u||^2, signed
+    e2 = float(w @ ((e ** 2) @ signs))
+    ident = np.arange(m)[None, :]
+    obs = _unit_batch(ident, X, Z, w, fitted, e, f2, e2, signs)
+    base_ss = obs[2][0, :k0].sum()
+    scale = abs(float(obs[1][0]) - float(base_ss))
+    ss_t = _clean(float(obs[2][0, kb:kb + kt].sum()), scale)
+    ss_res = _clean(float(obs[1][0] - obs[2][0].sum()), scale)
+    observed = _pseudo_f(ss_t, ss_res, df_t, df_res)
+    size = batch_size or max(16, int(_BATCH_BYTES // (8 * m * (2 * k + 2 * Z.shape[1] + 2))))
     null = np.empty(perms.total)
     done = 0
     grand = grand_total if grand_total is not None else perms.total
@@ -183,25 +200,117 @@ def unit_f(y: np.ndarray, signs: np.ndarray, weights: np.ndarray, base, before, 
             raise Cancelled(f"stopped after {offset + done} of {grand} permutations; "
                             "no result was produced.")
         b = idx.shape[0]
-        inv = np.argsort(idx, axis=1)
-        ys = fitted[None] + e[inv]                                  # B x m x r
-        if balanced:
-            ys *= sw[0]
-            proj = np.einsum("mk,bmr->bkr", q, ys)
-        else:
-            s = np.sqrt(w[inv])                                      # B x m
-            qs = np.linalg.qr(s[:, :, None] * X[None])[0]           # B x m x k
-            ys *= s[:, :, None]
-            proj = np.einsum("bmk,bmr->bkr", qs, ys)
-        tot = np.einsum("bmr,r->b", ys * ys, signs)
-        sqb = np.einsum("bkr,r->bk", proj * proj, signs)
-        num = sqb[:, kb:kb + kt].sum(axis=1)
-        den = tot - sqb.sum(axis=1)
+        _, tot, sq = _unit_batch(idx, X, Z, w, fitted, e, f2, e2, signs)
+        num = sq[:, kb:kb + kt].sum(axis=1)
+        den = tot - sq.sum(axis=1)
         null[done:done + b] = _pseudo_f(_clean(num, scale), _clean(den, scale), df_t, df_res)
         done += b
         if progress is not None:
             progress(offset + done, grand)
     return observed, null, float(ss_t), float(ss_res), int(df_t), int(df_res)
+
+
+def _chol(a: np.ndarray) -> np.ndarray:
+    """Cholesky factors of a stack (B, k, k) of small positive definite matrices, vectorised
+    over the stack (k is a handful of design columns)."""
+    k = a.shape[1]
+    low = np.zeros_like(a)
+    for j in range(k):
+        d = a[:, j, j] - (low[:, j, :j] ** 2).sum(axis=1)
+        low[:, j, j] = np.sqrt(np.maximum(d, 1e-300))
+        for i in range(j + 1, k):
+            low[:, i, j] = (a[:, i, j] - (low[:, i, :j] * low[:, j, :j]).sum(axis=1)) \
+                / low[:, j, j]
+    return low
+
+
+def _forward(low: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve L c = b for a stack of lower-triangular L (B, k, k) and b (B, k, r)."""
+    c = np.empty_like(b)
+    for i in range(low.shape[1]):
+        acc = b[:, i, :] - np.einsum("bp,bpr->br", low[:, i, :i], c[:, :i, :])
+        c[:, i, :] = acc / low[:, i, i, None]
+    return c
+
+
+def _backward(low: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve L' c = b for a stack of lower-triangular L."""
+    k = low.shape[1]
+    c = np.empty_like(b)
+    for i in range(k - 1, -1, -1):
+        acc = b[:, i, :] - np.einsum("bp,bpr->br", low[:, i + 1:, i], c[:, i + 1:, :])
+        c[:, i, :] = acc / low[:, i, i, None]
+    return c
+
+
+def _unit_batch(idx, X, Z, w, fitted, e, f2, e2, signs) -> tuple:
+    """(weights*, total*, signed sequential contributions (B, k)) for a batch of unit
+    relabellings (see :func:`unit_f`). Cross-products are single matrix products: the
+    weights at each position times per-unit outer products, and gathered design rows times
+    the weighted residuals."""
+    b, m = idx.shape
+    k, kz, r = X.shape[1], Z.shape[1], e.shape[1]
+    inv = np.argsort(idx, axis=1)
+    ws = w[inv]                                                  # weight at each position
+    outer = np.hstack([np.einsum("mi,mj->mij", X, X).reshape(m, -1),
+                       np.einsum("mi,mj->mij", X, Z).reshape(m, -1),
+                       np.einsum("mi,mj->mij", Z, Z).reshape(m, -1),
+                       np.einsum("mi,mr->mir", X, fitted).reshape(m, -1)])
+    prods = ws @ outer
+    gx = prods[:, :k * k].reshape(b, k, k)                       # X' W* X
+    o = k * k
+    gxz = prods[:, o:o + k * kz].reshape(b, k, kz)
+    o += k * kz
+    gz = prods[:, o:o + kz * kz].reshape(b, kz, kz)              # Z' W* Z
+    o += kz * kz
+    xf = prods[:, o:].reshape(b, k, r)                           # X' W* Yhat_Z
+    we = w[:, None] * e
+    xe = (np.ascontiguousarray(np.transpose(X[idx], (0, 2, 1))).reshape(b * k, m)
+          @ we).reshape(b, k, r)                                 # X' W* e[idx^-1]
+    ze = (np.ascontiguousarray(np.transpose(Z[idx], (0, 2, 1))).reshape(b * kz, m)
+          @ we).reshape(b, kz, r)
+    lz = _chol(gz)
+    v = _forward(lz, ze)                                         # Z-fit of the permuted e
+    rhs = xf + xe - gxz @ _backward(lz, v)                       # X' W* Y*
+    c = _forward(_chol(gx), rhs)                                 # B x k x r
+    sq = (c * c) @ signs
+    tot = ws @ f2 + e2 - (v * v) @ signs @ np.ones(kz) if kz else ws @ f2 + e2
+    return ws, tot, sq
+
+
+def precision_weights(resp: Response, codes: np.ndarray, y: np.ndarray, signs: np.ndarray,
+                      parent: np.ndarray | None = None) -> tuple[np.ndarray, tuple]:
+    """Weights of the unit means: their estimated precision 1 / (s2_u + s2_e / n_u).
+
+    s2_e: the pooled variance of samples about their unit mean, tr((I - H_u) G) / (n - m);
+    s2_u: the variance of unit effects, by the method of moments of the unbalanced one-way
+    layout within parent units (Searle, Casella & McCulloch 1992, ch. 3), set to 0 when
+    negative. Both use the unit structure only (never the tested terms), so relabelling
+    units, which moves each unit's data together with its weight, leaves them unchanged.
+    The weights are scaled to sum to n: with equal unit sizes they are the unit sizes, and
+    every sum of squares is the classical sample-level one; with unequal sizes they move
+    from the unit sizes (no unit effects) towards equal weights (unit effects dominate).
+
+    Returns (weights, (s2_u, s2_e)).
+    """
+    codes = np.asarray(codes, dtype=np.intp)
+    m = int(codes.max()) + 1
+    size = np.bincount(codes, minlength=m).astype(np.float64)
+    n = float(size.sum())
+    if size.min() == size.max() or n <= m:
+        return size.copy(), (np.nan, np.nan)
+    s2e = max(resp.centred_within(codes).total(), 0.0) / (n - m)
+    p = np.zeros(m, dtype=np.intp) if parent is None else np.asarray(parent, dtype=np.intp)
+    base = np.eye(int(p.max()) + 1)[p]
+    ss_b, df_b = unit_residual(y, signs, size, base)
+    n_p = np.bincount(p, weights=size)
+    sq_p = np.bincount(p, weights=size ** 2)
+    n0 = n - float((sq_p / n_p).sum())
+    s2u = max((ss_b - df_b * s2e) / n0, 0.0) if n0 > 0 else 0.0
+    if s2e <= 0:
+        return np.full(m, n / m), (s2u, s2e)
+    w = 1.0 / (s2u + s2e / size)
+    return w * (n / w.sum()), (s2u, s2e)
 
 
 def unit_residual(y, signs, weights, X) -> tuple[float, int]:
@@ -347,9 +456,10 @@ def sample_jobs(resp: Response, cols: DesignColumns, terms: list, ss: str, perms
         qz = nested_bases(None, cols(others))[1] if others else np.empty((resp.n, 0))
         qa = np.hstack([qb, qt, qw])
         reduced = _describe_reduced(base, others)
+        tangled = bool(qz.shape[1] and np.abs(qz.T @ qt).max() > 1e-9)
 
         def run(offset, grand, t=t, qa=qa, nb=qb.shape[1], nt=qt.shape[1], qz=qz,
-                reduced=reduced):
+                reduced=reduced, tangled=tangled):
             from .permutation import permuted_f, pvalue_from_null
             obs, null, ss_t, _ = permuted_f(resp, qa, nb, nt, qz, perms, df_res=df_res,
                                             batch_size=batch_size, progress=progress,
@@ -357,7 +467,8 @@ def sample_jobs(resp: Response, cols: DesignColumns, terms: list, ss: str, perms
             return TermTest(t, stratum, nt, ss_t, obs,
                             pvalue_from_null(obs, null, exact=perms.exact), null,
                             perms.describe(), int(perms.total), bool(perms.exact),
-                            perms.n_distinct, perms.min_pvalue, reduced, against, df_res)
+                            perms.n_distinct, perms.min_pvalue, reduced, against, df_res,
+                            order_dependent=tangled)
         jobs.append(Job(t, int(perms.total), run))
     return jobs
 
@@ -493,7 +604,6 @@ def _between(resp, frame, cols, plan, k, stratum_terms, rows, schemes, *, ss, bl
     from .units import unit_blocks
     lv = plan.levels[k]
     codes, m = lv.codes, lv.m
-    w = lv.sizes.astype(np.float64)
     if k == 0:
         base, parent, base_desc = np.ones((m, 1)), None, "intercept"
     else:
@@ -502,6 +612,7 @@ def _between(resp, frame, cols, plan, k, stratum_terms, rows, schemes, *, ss, bl
         base = np.eye(up.m)[parent]
     label, stratum = f"Residual (between {lv.name!r})", f"between {lv.name!r}"
     y, signs = resp.unit_means(codes)
+    w, _ = precision_weights(resp, codes, y, signs, parent)
     if not stratum_terms:
         ss_tot, df_tot = unit_residual(y, signs, w, base)
         rows.append(StratumRow(label, stratum, df_tot, _clean(ss_tot, resp.total())))

@@ -166,3 +166,32 @@ def test_errors():
         dispersion_test(d, list("aaabbb"))
     with pytest.raises(InputError, match="centre"):
         dispersion_test(d, list("aaabbbb"), centre="centroid")
+
+
+@pytest.mark.parametrize("features", [True, False])
+def test_null_recomputes_centroids_for_every_relabelling(features):
+    # the procedure written out: residuals about the group centroids stay in place, the
+    # group labels are relabelled, centroids and corrected distances are computed again
+    # with numpy and F by scipy.stats.f_oneway, for the same relabellings
+    from tallyform.core.schemes import Permutations, label_symmetries
+    rng = np.random.default_rng(21)
+    x = rng.normal(size=(14, 3)) * np.repeat([1.0, 1.8], 7)[:, None]
+    g = np.repeat([0, 1], [5, 9])
+    d = (Dissimilarity.from_features(x, measure="euclidean") if features
+         else Dissimilarity(pdist(x), measure="euclidean"))
+    res = dispersion_test(d, g, n_permutations=60, rng=3)
+    perms = Permutations(14, 60, np.random.default_rng(3), design=g[:, None],
+                         symmetries=label_symmetries([("factor", g)]))
+    rho = x - np.vstack([x[g == k].mean(axis=0) for k in (0, 1)])[g]
+
+    def f_of(labels):
+        z = np.empty(14)
+        for k, m in ((0, 5), (1, 9)):
+            r = rho[labels == k]
+            z[labels == k] = np.sqrt(((r - r.mean(axis=0)) ** 2).sum(axis=1) * m / (m - 1))
+        return stats.f_oneway(z[labels == 0], z[labels == 1]).statistic
+
+    expected = [f_of(g[idx]) for idx in np.vstack(list(perms.batches(60)))]
+    assert res.statistic == pytest.approx(f_of(g), rel=1e-9)
+    assert res.null_distribution == pytest.approx(np.array(expected), rel=1e-9)
+    assert "centroids and distances recomputed" in res.scheme

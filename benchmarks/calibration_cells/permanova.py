@@ -97,6 +97,12 @@ def _order_cells():
                         lambda rng, c=cells: _two_way(rng, order=["b", "a", "a:b"], cells=c,
                                                       raw_first=True),
                         reps=400, check=False))
+        out.append(Cell(f"permanova/order-{tag}-b-first-raw-power", "PERMANOVA",
+                        "power: former test of the first term (raw permutation), b",
+                        f"{design}, strong effect of a (2 sd), b shifted by 0.6 sd, b first",
+                        lambda rng, c=cells: _two_way(rng, order=["b", "a", "a:b"], cells=c,
+                                                      effect_b=0.6, raw_first=True),
+                        reps=400, check=False))
     return out
 
 

@@ -64,16 +64,19 @@ def _p(d, info, terms, term, **kw):
 
 # ---------------------------------------------------------------------------- visits
 def visits(rng, *, term="treatment", tanks=(5, 5, 5), missing=0.0, units="tank",
-           shift=0.0):
+           shift=0.0, tank_sd=1.0, noise=0.5):
     info = _visits(rng, tanks, missing=missing)
-    d = _euclid(info, rng, {"tank": 1.0}, shifts={"treatment": {"t1": shift}})
+    d = _euclid(info, rng, {"tank": tank_sd}, noise=noise,
+                shifts={"treatment": {"t1": shift}})
     return _p(d, info, ["treatment", "week", "treatment:week"], term, units=units, rng=rng)
 
 
-def visits_unit_means(rng, *, tanks=(5, 5, 5), missing=0.0, shift=0.0):
+def visits_unit_means(rng, *, tanks=(5, 5, 5), missing=0.0, shift=0.0, tank_sd=1.0,
+                      noise=0.5):
     """The same data, analysed as one PERMANOVA of the tank means (one row per tank)."""
     info = _visits(rng, tanks, missing=missing)
-    d = _euclid(info, rng, {"tank": 1.0}, shifts={"treatment": {"t1": shift}})
+    d = _euclid(info, rng, {"tank": tank_sd}, noise=noise,
+                shifts={"treatment": {"t1": shift}})
     f = pd.DataFrame(d.features, index=info.index).groupby(info["tank"]).mean()
     tinfo = info.groupby("tank")[["treatment"]].first()
     dm = Dissimilarity.from_features(f.to_numpy(), list(f.index), measure="euclidean")
@@ -246,4 +249,15 @@ CELLS = [
          "4/5/7 tanks, missing visits, tank effects, treatment t1 shifted by 1.2",
          lambda rng: visits_unit_means(rng, tanks=(4, 5, 7), missing=0.3, shift=1.2),
          reps=400, check=False),
+    Cell("units/power-visits-noisy", "PERMANOVA units", "power: permanova(units='tank')",
+         "4/5/7 tanks, 1-4 of 4 visits (60 % missing), weak tank effects (sd 0.3), noise sd "
+         "1.5, treatment t1 shifted by 1.0",
+         lambda rng: visits(rng, tanks=(4, 5, 7), missing=0.6, shift=1.0, tank_sd=0.3,
+                            noise=1.5), reps=400, check=False),
+    Cell("units/power-visits-noisy-unit-means", "PERMANOVA units",
+         "power: permanova of the tank means",
+         "4/5/7 tanks, 1-4 of 4 visits (60 % missing), weak tank effects (sd 0.3), noise sd "
+         "1.5, treatment t1 shifted by 1.0",
+         lambda rng: visits_unit_means(rng, tanks=(4, 5, 7), missing=0.6, shift=1.0,
+                                       tank_sd=0.3, noise=1.5), reps=400, check=False),
 ]

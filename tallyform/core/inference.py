@@ -501,7 +501,9 @@ def _reading(tests: dict, tested: list, plan, alpha: float = 0.05) -> str:
     out = []
     for t in tested:
         r = tests[t]
-        where = ("" if r.stratum == "samples" else f" {r.stratum.replace('between', 'between units of').replace('within', 'within units of')}")
+        where = ("" if r.stratum == "samples" else f" {r.stratum}" if r.stratum.endswith("cells")
+                 else " " + r.stratum.replace("between ", "between units of ", 1)
+                 .replace("within ", "within units of ", 1))
         out.append(f"{t!r}: pseudo-F = {r.pseudo_f:.3g} on {r.df} and {r.df_denominator} df"
                    f"{', tested' + where if where else ''} against {r.tested_against}, "
                    f"p = {r.pvalue:.3g}.")

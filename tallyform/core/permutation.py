@@ -28,9 +28,14 @@ one (basis Qb), while the residuals that are permuted are those of a reduced mod
 keeps every other term not containing it (also later ones). The permuted data are then
 Y* = Yhat_Z + (I - H_Z) P e_Z: the permuted residuals are projected back onto the residual
 space of Z (as the observed ones lie in it; Huh & Jhun 2001 permute within that space), and
-the same sequential statistic is computed on Y*. With q~ = (I - H_Z) q,
+the same sequential statistic is computed on Y*. The permuted residuals are also rescaled
+by c = sqrt(d / (d - k_Z)) (d the dimension of the stratum, k_Z the rank of Z): the observed
+residuals fill only d - k_Z of the d dimensions their permutations spread over, and without
+the factor the permuted denominators are too small beside the fixed fitted part (the
+variance correction of residuals in resampling; Davison & Hinkley 1997, ch. 6). With
+q~ = (I - H_Z) q,
 
-    q' G* q = q' H_Z G H_Z q + 2 q' H_Z G (I - H_Z) P' q~ + (P'q~)' R (P'q~)
+    q' G* q = q' H_Z G H_Z q + 2 c q' H_Z G (I - H_Z) P' q~ + c^2 (P'q~)' R (P'q~)
 
 for every basis column q of the tested term; the first two parts need only one fixed vector
 per column, so the cost is that of the plain form. Without the projection, a tested term
@@ -38,8 +43,9 @@ that is correlated with Z (unbalanced designs, the term listed before Z's terms)
 permuted residuals with more variance than the observed ones have along it, and its test
 would be conservative (p-values near 1 under the null, no power; measured). The denominator,
 (I - H_A) Y*, sees neither Yhat_Z nor the projection (Z lies within the full model A). In a
-balanced design the tested term is orthogonal to Z, q~ = q and the cross terms vanish: a
-term's p-value then does not depend on where it stands in the list. See :func:`permuted_f`.
+balanced design the tested term is orthogonal to Z, q~ = q, the cross terms vanish and c
+cancels from the ratio: a term's p-value then does not depend on where it stands in the list.
+See :func:`permuted_f`.
 
 Schemes live in :mod:`tallyform.core.schemes` (free, within blocks, whole units, within
 units, cyclic shifts; exact enumeration when the distinct relabellings are few enough).
@@ -62,6 +68,8 @@ Anderson, M. J. & ter Braak, C. J. F. (2003). Permutation tests for multi-factor
 of variance. J. Stat. Comput. Simul. 73, 85-113.
 Freedman, D. & Lane, D. (1983). A nonstochastic interpretation of reported significance
 levels. J. Bus. Econ. Stat. 1, 292-298.
+Davison, A. C. & Hinkley, D. V. (1997). Bootstrap Methods and their Application, ch. 6.
+Cambridge University Press.
 Huh, M.-H. & Jhun, M. (2001). Random permutation testing in multiple linear regression.
 Commun. Stat. Theory Methods 30, 2023-2032.
 McArdle, B. H. & Anderson, M. J. (2001). Fitting multivariate models to community data: a
@@ -82,7 +90,7 @@ import pandas as pd
 import scipy.linalg
 
 from .random import as_rng
-from .errors import Cancelled, DesignError, InputError, Location
+from .errors import Cancelled, DesignError, InputError
 from .memory import check_memory
 from .results import ResultMixin, readonly
 from .schemes import (FEW_PERMUTATIONS, CyclicShifts, Permutations, UnitPermutations,
@@ -446,8 +454,11 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
             c = (gqz - qz @ gz) @ tz                            # (I - H_Z) G H_Z q, n x nt
             const = np.einsum("ij,ik,kj->j", tz, gz, tz)
         # the permuted residuals are projected back onto the residual space of Z, so the
-        # tested columns meet them through (I - H_Z) q (see the module notes)
+        # tested columns meet them through (I - H_Z) q, and rescaled to the variance of the
+        # errors they stand for (see the module notes)
         qt_res = np.ascontiguousarray((qt - qz @ tz).T)         # nt x n
+        dim = df_res + k
+        c2 = dim / (dim - qz.shape[1])
         scale = max(trace_r, total)
     else:
         const = np.zeros(nt)
@@ -483,7 +494,8 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
                 vt = ut @ r.gower
                 plain = np.einsum("ij,ij->i", ut, vt).reshape(nt, b)
                 xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
-            num = plain.sum(axis=0) + const.sum() + 2.0 * xc
+            num = c2 * plain.sum(axis=0) + const.sum() + 2.0 * np.sqrt(c2) * xc
+            den = c2 * den
         null[done:done + b] = _pseudo_f(_clean(num, scale), _clean(den, scale), nt, df_res)
         done += b
         if progress is not None:

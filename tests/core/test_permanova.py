@@ -278,10 +278,15 @@ def test_docstring_examples_run():
     import doctest
 
     import tallyform.core.dispersion as dispersion
+    import tallyform.core.ems as ems
     import tallyform.core.inference as inference
+    import tallyform.core.pairwise as pairwise
     import tallyform.core.permutation as permutation
     import tallyform.core.size_tests as size_tests
-    for mod in (dispersion, inference, permutation, size_tests):
+    import tallyform.core.symmetries as symmetries
+    import tallyform.core.units as units
+    for mod in (dispersion, ems, inference, pairwise, permutation, size_tests, symmetries,
+                units):
         result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
         assert result.failed == 0, mod.__name__
 

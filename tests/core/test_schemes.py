@@ -11,7 +11,7 @@ from tallyform.core.errors import DesignError
 from tallyform.core.permutation import Response, nested_bases, permuted_f
 from tallyform.core.schemes import (CyclicShifts, Permutations, UnitPermutations,
                                     label_symmetries, span_symmetries, within_units)
-from tallyform.core.strata import unit_f
+from tallyform.core.unit_engine import unit_f
 
 
 def indicators(codes):
@@ -168,7 +168,7 @@ def test_unbalanced_unit_engine_equals_weighted_refits():
     # other terms, each relabelling gives unit u the design row of unit idx[u]; with a
     # reduced model Z, the permuted data are Yhat_Z + e_Z[idx^-1] carrying the weights of
     # their units (Freedman & Lane 1983), projected back onto Z's residual space under
-    # those weights
+    # those weights and rescaled by sqrt((m - 1) / (m - rank Z))
     import statsmodels.api as sm
     rng = np.random.default_rng(4)
     sizes = np.array([2, 3, 4, 1, 2, 3, 4, 2, 3, 2, 4, 3])
@@ -195,11 +195,12 @@ def test_unbalanced_unit_engine_equals_weighted_refits():
     fit = sm.WLS(y, Z, weights=w).fit()
     fitted, e = Z @ fit.params, y - Z @ fit.params
     expected = []
+    c = np.sqrt((m - 1) / (m - 2))       # residuals rescaled: d = m - 1, one column in Z
     for idx in np.vstack(list(perms.batches(60))):
         inv = np.argsort(idx)
         pe = e[inv]
         pe = pe - Z @ sm.WLS(pe, Z, weights=w[inv]).fit().params
-        expected.append(f_stat(fitted + pe, w[inv], Z, np.hstack([Z, a]), m - 4))
+        expected.append(f_stat(fitted + c * pe, w[inv], Z, np.hstack([Z, a]), m - 4))
     assert null == pytest.approx(np.array(expected), rel=1e-8)
 
 

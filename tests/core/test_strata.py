@@ -254,8 +254,9 @@ def test_balanced_term_order_does_not_change_pvalues():
 def test_first_term_permutes_residuals_with_the_fitted_part_added_back():
     # the procedure written out (Freedman & Lane 1983; Anderson & ter Braak 2003): for the
     # first of two unbalanced terms, permute the residuals of the model without it, project
-    # them back onto that model's residual space, add its fitted part back, and refit the
-    # same sequential models by least squares (numpy.linalg.lstsq)
+    # them back onto that model's residual space, rescale them by sqrt(d / (d - k_Z)), add
+    # its fitted part back, and refit the same sequential models by least squares
+    # (numpy.linalg.lstsq)
     rng = np.random.default_rng(2)
     a = np.array(list("ppppqqqqqrrrrrrr"))
     b = np.array(list("xyxyxxyyxyxyyxyy"))
@@ -282,9 +283,10 @@ def test_first_term_permutes_residuals_with_the_fitted_part_added_back():
     perms = Permutations(16, 40, np.random.default_rng(3), design=np.hstack([one, Xa, Xb]))
     full = np.hstack([one, Xa, Xb])
     expected = []
+    c = np.sqrt(15 / (15 - 1))          # residuals rescaled: d = n - 1, rank(Z) - 1 = 1
     for idx in np.vstack(list(perms.batches(40))):
         pe = e[np.argsort(idx)]
-        ys = fitted + pe - Z @ np.linalg.lstsq(Z, pe, rcond=None)[0]
+        ys = fitted + c * (pe - Z @ np.linalg.lstsq(Z, pe, rcond=None)[0])
         expected.append(((rss(one, ys) - rss(np.hstack([one, Xa]), ys)) / 2)
                         / (rss(full, ys) / 12))
     assert res.null_distribution["a"] == pytest.approx(np.array(expected), rel=1e-9)

@@ -119,8 +119,9 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller sizes, fewer permutations")
     ap.add_argument("--repeats", type=int, default=3)
+    ap.add_argument("--permutations", type=int, default=None)
     args = ap.parse_args(argv)
-    n_perm = 999 if args.quick else 9999
+    n_perm = args.permutations or (999 if args.quick else 9999)
     n_tanks = 60 if args.quick else 300
     print("1. whole-unit permutations against free permutations of the same samples")
     bench_units(n_tanks, 4, n_perm, args.repeats)

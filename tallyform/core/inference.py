@@ -392,10 +392,10 @@ def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
         notes += (f"Unbalanced design: the sequential test of {', '.join(map(repr, tangled))} "
                   "depends on the order of the terms (a term is not adjusted for correlated "
                   "terms listed after it, whose fitted values its permutations keep; "
-                  "Freedman & Lane 1983). Such a test holds its level only approximately "
-                  "(slightly conservative when measured) and can miss an effect that the "
-                  "unadjusted means hide; ss='marginal' tests every term adjusted for the "
-                  "others, whatever the order.",)
+                  "Freedman & Lane 1983). Such a test holds its level approximately "
+                  "(measured by simulation) but answers a question about the unadjusted "
+                  "means, and can miss an effect they hide; ss='marginal' tests every term "
+                  "adjusted for the others, whatever the order.",)
     schemes = pd.DataFrame(
         {"stratum": [tests[t].stratum for t in terms],
          "permutations": [tests[t].scheme for t in terms],

@@ -1,7 +1,6 @@
 """Permutation schemes: whole units, within units, cyclic shifts, label symmetries."""
 from __future__ import annotations
 
-import itertools
 import math
 
 import numpy as np

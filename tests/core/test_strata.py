@@ -9,7 +9,6 @@ import pytest
 from scipy import stats
 from scipy.spatial.distance import pdist
 
-import tallyform as tly
 from tallyform.core.dissimilarity import Dissimilarity
 from tallyform.core.dispersion import dispersion_test
 from tallyform.core.errors import Cancelled, DesignError
@@ -92,8 +91,6 @@ def test_oats_split_plot_equals_published_table_and_statsmodels(oats, features):
     # Ripley 2002, sec. 6.7; values typed from memory): whole-plot stratum V: SS 1786.4 on
     # 2 df, residual 6013.3 on 10 df, F = 1.485; sub-plot stratum N: SS 20020.5 on 3 df,
     # V:N 321.7 on 6 df, residual 7968.8 on 45 df, F(N) = 37.69, F(V:N) = 0.303
-    import statsmodels.formula.api as smf
-    from statsmodels.stats.anova import anova_lm
     info, labels = oats
     d = one_variable(info["Y"], labels, features=features)
     res = permanova(d, info, ["B", "V", "N", "V:N"], units="plot", n_permutations=99, rng=1)

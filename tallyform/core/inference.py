@@ -1,8 +1,10 @@
-"""Tests on a dissimilarity: PERMANOVA and pairwise PERMANOVA (the dispersion test is in
-:mod:`tallyform.core.dispersion`), plus the input checks they share.
+"""PERMANOVA on a dissimilarity (pairwise PERMANOVA is in :mod:`tallyform.core.pairwise`,
+the dispersion test in :mod:`tallyform.core.dispersion`), plus the input checks they share.
 
-Both use the permutation engine (:mod:`tallyform.core.permutation`) and the one design
-coder (:func:`tallyform.core.design.model_matrix`).
+PERMANOVA uses the permutation engine (:mod:`tallyform.core.permutation`, schemes in
+:mod:`tallyform.core.schemes`), the error strata of :mod:`tallyform.core.strata` (sampling
+units from :mod:`tallyform.core.units`) and the one design coder
+(:func:`tallyform.core.design.model_matrix`).
 """
 from __future__ import annotations
 
@@ -12,12 +14,11 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from .design import as_samples, factor_levels, model_matrix
+from .design import as_samples, model_matrix
 from .dissimilarity import Dissimilarity
 from .random import as_rng
 from .errors import DesignError, InputError, Location
-from .permutation import (Permutations, PermutationTest, _clean, nested_bases,
-                          permutation_f_test, prepare_response)
+from .permutation import prepare_response
 from .results import ResultMixin, readonly
 
 __all__ = ["permanova", "pairwise_permanova", "adjust_pvalues", "PermanovaResult",
@@ -127,6 +128,10 @@ def _sub_progress(progress, offset: int, grand_total: int):
 
 
 # ---------------------------------------------------------------------------- PERMANOVA
+_COLUMNS = ["df", "ss", "ms", "pseudo_f", "r2", "pvalue", "stratum", "tested_against",
+            "df_denominator"]
+
+
 @dataclass(frozen=True, eq=False)
 class PermanovaResult(ResultMixin):
     """A PERMANOVA table with its permutation evidence.
@@ -134,23 +139,38 @@ class PermanovaResult(ResultMixin):
     Attributes
     ----------
     table : DataFrame
-        Rows: every term, ``Residual``, ``Total``; columns ``df, ss, ms, pseudo_f, r2,
-        pvalue``.
+        Rows: every term, the residual row of every stratum (``Residual`` when samples are
+        independent; ``Residual (between 'tank')``, ``Residual (within 'tank')`` with units),
+        ``Total``. Columns ``df, ss, ms, pseudo_f, r2, pvalue`` and, for every term, the
+        ``stratum`` it is tested in, the row it is ``tested_against`` (its denominator) and
+        that row's degrees of freedom ``df_denominator``.
     statistic, pvalue : Series
-        Pseudo-F and p-value of every term (indexed by term).
+        Pseudo-F and p-value of every term (indexed by term, in the order given).
     null_distribution : dict term -> ndarray
         The permuted pseudo-F values of each term (read-only).
     scheme : str
-        How samples were relabelled (free / within blocks; random or exact).
+        How samples (or whole units) were relabelled.
     n_permutations : int
-        Permutations evaluated per term (with ``exact``, the number of distinct
-        relabellings, identity included).
+        Permutations evaluated per term (the largest over the terms when their schemes
+        differ; with ``exact``, the number of distinct relabellings, identity included).
     exact : bool
+        True when every term's test enumerated all distinct relabellings.
     ss_type : {'sequential', 'marginal'}
     terms : tuple of str
     measure : str
     n_samples : int
     notes : tuple of str
+    schemes : DataFrame
+        Per term: ``stratum``, ``permutations`` (the scheme), ``reduced_model`` (the model
+        whose residuals were permuted), ``n_permutations``, ``exact``, ``n_distinct``
+        (distinct relabellings, when few enough to count) and ``min_pvalue`` (the smallest
+        p-value the exact test can give).
+    min_pvalue : Series
+        The smallest attainable p-value of every term (NaN when too small to matter).
+    units : dict
+        The sampling units used (``units``, ``detected``, ``strata``), or ``random``.
+    reading : str
+        The result in plain words.
     """
 
     table: pd.DataFrame
@@ -165,6 +185,10 @@ class PermanovaResult(ResultMixin):
     measure: str
     n_samples: int
     notes: tuple = ()
+    schemes: pd.DataFrame | None = field(default=None, repr=False)
+    min_pvalue: pd.Series | None = field(default=None, repr=False)
+    units: dict = field(default_factory=dict, repr=False)
+    reading: str = ""
 
     def __post_init__(self):
         object.__setattr__(self, "null_distribution",
@@ -184,26 +208,24 @@ class PermanovaResult(ResultMixin):
         return (f"PERMANOVA on {self.measure} ({self.n_samples} samples, {self.ss_type} sums "
                 f"of squares, {perms}; {self.scheme})")
 
-
-def _term_parts(term: str) -> frozenset:
-    return frozenset(p.strip() for p in term.split(":"))
-
-
-def _split_terms(terms: list, t: str, ss: str) -> tuple[list, list]:
-    """(reduced, later) terms for testing ``t``."""
-    if ss == "sequential":
-        i = terms.index(t)
-        return terms[:i], terms[i + 1:]
-    parts = _term_parts(t)
-    containing = [u for u in terms if u != t and parts < _term_parts(u)]
-    others = [u for u in terms if u != t and u not in containing]
-    return others, containing
+    def __str__(self) -> str:
+        return super().__str__() + ("\n" + self.reading if self.reading else "")
 
 
-def permanova(d, samples, terms, *, blocks=None, n_permutations: int = 999, rng=None,
+def _resolve_plan(frame: pd.DataFrame, terms: list, units, block_name):
+    from .units import resolve_units
+    if isinstance(units, pd.Series):
+        units = align_labels(units, frame.index, "units")
+        units = units.rename(units.name if units.name is not None else "units")
+    return resolve_units(frame, terms, units, blocks=block_name)
+
+
+def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
+              cyclic: str | None = None, n_permutations: int = 999, rng=None,
               ss: str = "sequential", progress: Callable[[int, int], None] | None = None,
               cancel: Callable[[], bool] | None = None) -> PermanovaResult:
-    """Permutational multivariate analysis of variance on a dissimilarity (PERMANOVA).
+    """Permutational multivariate analysis of variance on a dissimilarity (PERMANOVA), with
+    every term tested at the level of the sampling unit it was applied to.
 
     Parameters
     ----------
@@ -213,17 +235,33 @@ def permanova(d, samples, terms, *, blocks=None, n_permutations: int = 999, rng=
     terms : str or list of str
         Factors, numeric covariates and interactions (``"a:b"``), in the order of the
         sequential table.
+    units : None, False, str, list of str or Series, default None
+        The sampling units (tanks, sites, plots) whose samples are not independent:
+        a column name, nested columns coarsest first (``["site", "plot"]``) or the unit of
+        every sample. None looks for a column within which a tested factor is constant (and
+        says so in the notes); False treats every sample as an independent replicate (noting
+        it when samples repeat units). See Notes.
     blocks : str, Series or sequence, optional
-        Blocking column (or labels): samples are permuted only within blocks. The blocks
-        are not added to the model; list them in ``terms`` too to remove their effect.
+        Blocking column (or labels): samples, or whole units, are permuted only within
+        blocks (blocks must then group whole units). The blocks are not added to the model;
+        list them in ``terms`` too to remove their effect.
+    random : str or list of str, optional
+        Factors whose levels are a random sample (sites, years) crossed with fixed factors,
+        in a balanced design of factors: each term is tested against the term its expected
+        mean square calls for (Cornfield & Tukey 1956), e.g. a fixed ``treatment`` crossed
+        with a random ``site`` against ``treatment:site``. Unbalanced designs, covariates
+        and terms that would need a quasi-F ratio are refused.
+    cyclic : str, optional
+        A column ordering the visits of each unit (a date, a week): terms that vary within
+        units are then tested by cyclic shifts of the visits within every unit, which keep
+        their order, instead of free permutation within units.
     n_permutations : int, default 999
         When the number of distinct relabellings is at most this, all of them are used
         instead (exact test; the result says so).
     rng : None, int or numpy.random.Generator
     ss : {'sequential', 'marginal'}, default 'sequential'
-        Sequential: each term after the terms listed before it. Marginal: each term after
-        every other term that does not contain it (so a main effect is not adjusted for
-        its own interactions: "type II"; coding-independent).
+        Sequential: each term after the terms listed before it (within its stratum).
+        Marginal: each term after every other term that does not contain it ("type II").
     progress : callable(done, total), optional
     cancel : callable() -> bool, optional
         True stops the run with :class:`tallyform.errors.Cancelled`; nothing is returned.
@@ -231,26 +269,60 @@ def permanova(d, samples, terms, *, blocks=None, n_permutations: int = 999, rng=
     Returns
     -------
     PermanovaResult
-        ``.table`` with ``df, ss, ms, pseudo_f, r2, pvalue`` per term plus ``Residual`` and
-        ``Total``.
+        ``.table`` with ``df, ss, ms, pseudo_f, r2, pvalue, stratum, tested_against,
+        df_denominator`` per term, the residual row of every stratum and ``Total``.
 
     Raises
     ------
     DesignError
         Unknown column, one-level factor, missing values, a level per sample, no residual
-        degrees of freedom, blocks of one sample each, sample labels that do not match.
+        degrees of freedom, blocks of one sample each, sample labels that do not match; with
+        units: a unit with no label, a factor constant within some units but varying within
+        others, a factor level with a single unit, blocks that split a unit; with
+        ``random``: an unsupported design.
 
     Notes
     -----
-    With G = -1/2 C D^2 C (Gower 1966), H_t the hat matrix of the intercept and the terms up
-    to t: SS_t = tr((H_t - H_{t-1}) G), SS_res = tr((I - H) G), SS_T = tr(G),
-    pseudo-F_t = (SS_t / df_t) / (SS_res / df_res), R^2_t = SS_t / SS_T (Anderson 2001;
-    McArdle & Anderson 2001). The first term is tested by permuting samples; every term is
-    tested by permuting the residuals of the model without it (Freedman & Lane 1983;
-    Anderson & ter Braak 2003), which for the first sequential term is the same thing.
-    p = (1 + #{F* >= F}) / (1 + P), or the exact proportion when every distinct
-    relabelling is enumerated. PERMANOVA responds to differences in spread as well as in
-    location: read it next to :func:`dispersion_test` (Anderson 2006).
+    Sums of squares: with G = -1/2 C D^2 C (Gower 1966) and H_t the hat matrix of the
+    intercept and the terms up to t: SS_t = tr((H_t - H_{t-1}) G), SS_res = tr((I - H) G),
+    pseudo-F_t = (SS_t / df_t) / (SS_res / df_res), R^2_t = SS_t / tr(G) (Anderson 2001;
+    McArdle & Anderson 2001).
+
+    Term order. Every term, the first included, is tested by permuting the residuals of the
+    reduced model that keeps every other term not containing it, with that model's fitted
+    part added back (Freedman & Lane 1983; Anderson & ter Braak 2003): Y* = Yhat_Z + P e_Z,
+    on which the same (sequential or marginal) statistic is computed. A strong effect of
+    another factor is therefore not scrambled into the permuted statistics, and in a
+    balanced design a term's p-value does not depend on its place in ``terms``.
+
+    Sampling units (error strata; Nelder 1965; Snedecor & Cochran 1989, ch. 16). A term that
+    is constant within units (a treatment given to whole tanks) is tested between units: its
+    F is taken against the variation among units within the between-unit terms,
+    tr((H_u - H_B) G) on #units - rank(B) df, and its p-value comes from permuting whole
+    units (within their parent unit and within blocks), each unit keeping all of its
+    samples. A term that varies within units (the week of a visit) is tested within units
+    against tr((I - H_u - H_W) G), permuting samples within their unit. Nested units
+    (``["site", "plot"]``) give one stratum per level. With one variable and Euclidean
+    distances the F ratios are those of the classical split-plot and repeated-measures
+    tables. When the smallest attainable p-value (the number of relabellings that give the
+    observed statistic divided by the number of relabellings, label swaps of equal-sized
+    groups included) is above 0.05, the notes and the reading say so.
+
+    Unbalanced units (missing visits). Between-unit tests use the unit means weighted by
+    their estimated precision 1 / (s2_u + s2_e / n_u), with the variance of unit effects
+    s2_u and of samples within units s2_e estimated by the method of moments from the unit
+    structure alone (Searle, Casella & McCulloch 1992): the weights lie between the sample
+    counts (classical sums of squares, best without unit effects) and equal weights (an
+    analysis of unit means, best when unit effects dominate); with balanced units they are
+    the sample counts. Whole-unit relabelling is an exact randomisation test when the tested
+    factor was assigned to the units at random, whatever the unit sizes, as long as it is the
+    only term of its stratum; with other terms in the stratum, and for observational units,
+    it is approximate (calibrated by simulation: benchmarks/calibration_cells/units.py).
+    Within-unit terms use comparisons within units only (units as fixed blocks); their test
+    is exact for exchangeable visits when they are the only within-unit term.
+
+    PERMANOVA responds to differences in spread as well as in location: read it next to
+    :func:`dispersion_test` (Anderson 2006).
 
     References
     ----------
@@ -258,8 +330,14 @@ def permanova(d, samples, terms, *, blocks=None, n_permutations: int = 999, rng=
     variance. Austral Ecology 26, 32-46.
     Anderson, M. J. & ter Braak, C. J. F. (2003). Permutation tests for multi-factorial
     analysis of variance. J. Stat. Comput. Simul. 73, 85-113.
+    Cornfield, J. & Tukey, J. W. (1956). Average values of mean squares in factorials.
+    Ann. Math. Stat. 27, 907-949.
     Freedman, D. & Lane, D. (1983). J. Bus. Econ. Stat. 1, 292-298.
     McArdle, B. H. & Anderson, M. J. (2001). Ecology 82, 290-297.
+    Nelder, J. A. (1965). Proc. R. Soc. Lond. A 283, 147-178.
+    Snedecor, G. W. & Cochran, W. G. (1989). Statistical Methods, 8th ed. Iowa State Univ.
+    Press.
+    Searle, S. R., Casella, G. & McCulloch, C. E. (1992). Variance Components. Wiley.
 
     Examples
     --------
@@ -272,8 +350,8 @@ def permanova(d, samples, terms, *, blocks=None, n_permutations: int = 999, rng=
     >>> res = permanova(d, info, ["site"], rng=1)
     >>> round(float(res.table.loc["site", "pseudo_f"]), 2), res.exact, res.n_permutations
     (54.0, True, 20)
-    >>> float(res.pvalue["site"])
-    0.1
+    >>> float(res.pvalue["site"]), float(res.min_pvalue["site"])
+    (0.1, 0.1)
     """
     d = check_dissimilarity(d)
     check_option("ss", ss, _SS_TYPES)
@@ -284,254 +362,156 @@ def permanova(d, samples, terms, *, blocks=None, n_permutations: int = 999, rng=
     rng = as_rng(rng)
     terms = list(mm.terms)
     n = d.n
-
     resp = prepare_response(d)
-    perms = Permutations(n, n_permutations, rng, blocks=block_codes, block_name=block_name,
-                         design=mm.X)
-    _, q_model, _ = nested_bases(None, mm.X)
+    common = dict(ss=ss, block_codes=block_codes, block_name=block_name,
+                  n_permutations=n_permutations, rng=rng, progress=progress, cancel=cancel)
+    if random is not None:
+        from .ems import random_tests
+        if units not in (None, False):
+            raise DesignError("`random` and `units` cannot be combined: with random factors "
+                              "the denominators come from expected mean squares.",
+                              hint="Drop `units`, or declare the units' factor random "
+                                   "instead.")
+        tests, rows, more, provenance = random_tests(resp, frame, mm, random, **common)
+        plan = None
+    else:
+        from .strata import design_tests
+        plan = _resolve_plan(frame, terms, units, block_name)
+        notes += plan.notes
+        tests, rows, more = design_tests(resp, frame, mm, plan, cyclic=cyclic, **common)
+        provenance = plan.provenance()
+        if not plan.independent:
+            notes += tuple(_unit_notes(plan))
+    notes += tuple(more)
     total = resp.total()
-    df_res = n - 1 - q_model.shape[1]
-    ss_res = _clean(total - float(resp.quad(q_model).sum()), total)
-
-    def cols(ts):
-        idx = [c for u in terms if u in ts for c in mm.term_columns[u]]
-        return mm.X[:, idx] if idx else None
-
-    rows, nulls, tested = {}, {}, []
-    plan = []
-    for t in terms:
-        reduced, later = _split_terms(terms, t, ss)
-        Xz, Xw = cols(reduced), cols(later)
-        Xf = cols(reduced + [t])
-        qz, qt, _ = nested_bases(Xz, Xf, Xw)
-        plan.append((t, Xz, Xf, Xw, qt.shape[1]))
-    n_tested = sum(1 for *_, k in plan if k > 0)
-    grand = n_tested * perms.total
-    offset = 0
-    for t, Xz, Xf, Xw, df_t in plan:
-        if df_t == 0:
-            rows[t] = dict(df=0, ss=0.0, ms=np.nan, pseudo_f=np.nan, r2=0.0, pvalue=np.nan)
-            notes += (f"Term {t!r} adds nothing once the terms before it are in the model "
-                      "(its columns are aliased with theirs); it has no test.",)
-            continue
-        res: PermutationTest = permutation_f_test(
-            resp, Xf, Xz, X_later=Xw, permutations=perms,
-            progress=_sub_progress(progress, offset, grand), cancel=cancel)
-        offset += perms.total
-        ss_t, _ = res.ss
-        rows[t] = dict(df=res.df[0], ss=ss_t, ms=ss_t / res.df[0], pseudo_f=res.statistic,
-                       r2=ss_t / total, pvalue=res.pvalue)
-        nulls[t] = res.null_distribution
-        tested.append(t)
-    rows["Residual"] = dict(df=df_res, ss=ss_res, ms=ss_res / df_res, pseudo_f=np.nan,
-                            r2=ss_res / total, pvalue=np.nan)
-    rows["Total"] = dict(df=n - 1, ss=total, ms=np.nan, pseudo_f=np.nan, r2=1.0,
-                         pvalue=np.nan)
-    table = pd.DataFrame.from_dict(rows, orient="index")[
-        ["df", "ss", "ms", "pseudo_f", "r2", "pvalue"]]
-    table["df"] = table["df"].astype(int)
-    table.index.name = "term"
-    if perms.note():
-        notes += (perms.note(),)
-    if ss == "marginal" and any(_split_terms(terms, t, ss)[1] for t in terms):
-        notes += ("Marginal sums of squares: a term that is part of an interaction is "
-                  "tested without adjusting for that interaction; if the interaction matters, "
-                  "read the main effect with care.",)
-    factor_hit = [t for t in tested if mm.kinds.get(t) != "numeric"
-                  and table.loc[t, "pvalue"] <= 0.05]
-    if factor_hit:
-        notes += ("PERMANOVA also responds to differences in spread (dispersion) between "
-                  "groups, not only to shifts of their centroids; check dispersion_test "
-                  f"before reading {factor_hit[0]!r} as a difference in location.",)
-    if resp.path == "distances" and total <= 0:
-        notes += ("The total sum of squares is not positive; the dissimilarities are "
-                  "degenerate.",)
+    table = _table(tests, rows, terms, total, n, grouped=plan is not None)
+    tested = [t for t in terms if np.isfinite(tests[t].pvalue)]
+    notes += tuple(_closing_notes(table, tested, mm, ss, terms, resp.path, total))
+    tangled = [t for t in tested if tests[t].order_dependent]
+    if tangled and ss == "sequential":
+        notes += (f"Unbalanced design: the sequential test of {', '.join(map(repr, tangled))} "
+                  "depends on the order of the terms (a term is not adjusted for correlated "
+                  "terms listed after it, whose fitted values its permutations keep; "
+                  "Freedman & Lane 1983). Such a test holds its level approximately "
+                  "(measured by simulation) but answers a question about the unadjusted "
+                  "means, and can miss an effect they hide; ss='marginal' tests every term "
+                  "adjusted for the others, whatever the order.",)
+    schemes = pd.DataFrame(
+        {"stratum": [tests[t].stratum for t in terms],
+         "permutations": [tests[t].scheme for t in terms],
+         "reduced_model": [tests[t].reduced for t in terms],
+         "n_permutations": [tests[t].n_permutations for t in terms],
+         "exact": [tests[t].exact for t in terms],
+         "n_distinct": pd.array([tests[t].n_distinct for t in terms], dtype="Int64"),
+         "min_pvalue": [np.nan if tests[t].min_pvalue is None else tests[t].min_pvalue
+                        for t in terms]}, index=pd.Index(terms, name="term"))
+    totals = [tests[t].n_permutations for t in tested]
     return PermanovaResult(
         table=table, statistic=table.loc[terms, "pseudo_f"].rename("pseudo_f"),
-        pvalue=table.loc[terms, "pvalue"].rename("pvalue"), null_distribution=nulls,
-        scheme=perms.describe() + ("; later terms by permuting residuals of the reduced "
-                                   "model (Freedman & Lane 1983)" if len(terms) > 1 else ""),
-        n_permutations=int(perms.total), exact=bool(perms.exact), ss_type=ss,
-        terms=tuple(terms), measure=d.measure, n_samples=n, notes=notes)
+        pvalue=table.loc[terms, "pvalue"].rename("pvalue"),
+        null_distribution={t: tests[t].null for t in tested},
+        scheme=_scheme_text(tests, tested, plan),
+        n_permutations=int(max(totals)) if totals else 0,
+        exact=bool(tested) and all(tests[t].exact for t in tested), ss_type=ss,
+        terms=tuple(terms), measure=d.measure, n_samples=n, notes=tuple(dict.fromkeys(notes)),
+        schemes=schemes, min_pvalue=schemes["min_pvalue"].rename("min_pvalue"),
+        units=provenance, reading=_reading(tests, tested, plan))
 
 
-# ---------------------------------------------------------------------------- pairwise
-def adjust_pvalues(pvalues, method: str | None = "holm") -> np.ndarray:
-    """Holm (1979) step-down or Benjamini & Hochberg (1995) step-up adjusted p-values.
-
-    Examples
-    --------
-    >>> adjust_pvalues([0.01, 0.04, 0.03], "holm").round(3).tolist()
-    [0.03, 0.06, 0.06]
-    >>> adjust_pvalues([0.01, 0.04, 0.03], "bh").round(3).tolist()
-    [0.03, 0.04, 0.04]
-    """
-    check_option("adjust", method, _ADJUST)
-    p = np.asarray(pvalues, dtype=float)
-    if method is None or p.size == 0:
-        return p.copy()
-    m = p.size
-    order = np.argsort(p, kind="stable")
-    ranked = p[order]
-    if method == "holm":
-        adj = np.maximum.accumulate(np.minimum(1.0, (m - np.arange(m)) * ranked))
+def _table(tests: dict, rows: list, terms: list, total: float, n: int, *,
+           grouped: bool = True) -> pd.DataFrame:
+    """Terms grouped by stratum, each stratum followed by its residual row, then Total
+    (``grouped=False``: the terms in their order, then the residual rows)."""
+    if grouped:
+        order = []
+        for r in rows:
+            order += [t for t in terms if tests[t].stratum == r.stratum]
+            order.append(r)
+        order += [t for t in terms if t not in order]
     else:
-        adj = np.minimum.accumulate((m / np.arange(m, 0, -1) * ranked[::-1]))[::-1]
-        adj = np.minimum(1.0, adj)
-    out = np.empty(m)
-    out[order] = adj
+        order = list(terms) + list(rows)
+    out = {}
+    for item in order:
+        if isinstance(item, str):
+            t = tests[item]
+            out[item] = dict(df=t.df, ss=t.ss, ms=t.ss / t.df if t.df else np.nan,
+                             pseudo_f=t.pseudo_f, r2=t.ss / total if total else np.nan,
+                             pvalue=t.pvalue, stratum=t.stratum,
+                             tested_against=t.tested_against, df_denominator=t.df_denominator)
+        else:
+            out[item.label] = dict(df=item.df, ss=item.ss,
+                                   ms=item.ss / item.df if item.df else np.nan,
+                                   pseudo_f=np.nan, r2=item.ss / total if total else np.nan,
+                                   pvalue=np.nan, stratum=item.stratum, tested_against="",
+                                   df_denominator=None)
+    out["Total"] = dict(df=n - 1, ss=total, ms=np.nan, pseudo_f=np.nan, r2=1.0,
+                        pvalue=np.nan, stratum="", tested_against="", df_denominator=None)
+    table = pd.DataFrame.from_dict(out, orient="index")[_COLUMNS]
+    table["df"] = table["df"].astype(int)
+    table["df_denominator"] = pd.array(table["df_denominator"].tolist(), dtype="Int64")
+    table.index.name = "term"
+    return table
+
+
+def _unit_notes(plan) -> list:
+    out = []
+    for lv in plan.levels:
+        if not lv.balanced:
+            s = lv.sizes
+            out.append(
+                f"Units of {lv.name!r} hold {s.min()}-{s.max()} samples (unbalanced): "
+                "between-unit tests weight each unit mean by its estimated precision "
+                "1 / (s2_u + s2_e / n_u) (variance components from the units alone), so "
+                "their sums of squares are not the sample-level ones. Whole-unit "
+                "relabelling is exact when a factor was assigned to units at random and is "
+                "the only term of its stratum; otherwise it is approximate (calibrated by "
+                "simulation). Within-unit terms use comparisons within units only.")
     return out
 
 
-@dataclass(frozen=True, eq=False)
-class PairwiseResult(ResultMixin):
-    """PERMANOVA between every pair of levels of one factor.
-
-    Attributes
-    ----------
-    table : DataFrame
-        One row per pair: ``group_a, group_b, n_a, n_b, pseudo_f, r2, pvalue,
-        pvalue_adjusted, n_permutations, exact``; with ``statistic='welch'``, ``welch_t2,
-        spread_a, spread_b`` in place of ``pseudo_f, r2``.
-    statistic, pvalue, pvalue_adjusted : Series (indexed like ``table``)
-    adjust : {'holm', 'bh', None}
-    group : str
-    notes : tuple of str
-    statistic_name : {'pseudo_f', 'welch_t2'}
-    """
-
-    table: pd.DataFrame
-    statistic: pd.Series
-    pvalue: pd.Series
-    pvalue_adjusted: pd.Series
-    adjust: str | None
-    group: str
-    measure: str
-    notes: tuple = ()
-    statistic_name: str = "pseudo_f"
-
-    def to_frame(self) -> pd.DataFrame:
-        return self.table.copy()
-
-    def _title(self) -> str:
-        how = {"holm": "Holm", "bh": "Benjamini-Hochberg", None: "no"}[self.adjust]
-        what = ("Welch-type tests (T_w^2)" if self.statistic_name == "welch_t2"
-                else "PERMANOVA")
-        return (f"Pairwise {what} on {self.measure} between levels of {self.group!r} "
-                f"({how} adjustment)")
+def _closing_notes(table, tested, mm, ss, terms, path, total) -> list:
+    from .strata import term_sets
+    out = []
+    if ss == "marginal" and any(term_sets(terms, t, ss)[1] for t in terms):
+        out.append("Marginal sums of squares: a term that is part of an interaction is "
+                   "tested without adjusting for that interaction; if the interaction "
+                   "matters, read the main effect with care.")
+    hit = [t for t in tested if mm.kinds.get(t) != "numeric" and table.loc[t, "pvalue"] <= 0.05]
+    if hit:
+        out.append("PERMANOVA also responds to differences in spread (dispersion) between "
+                   "groups, not only to shifts of their centroids; check dispersion_test "
+                   f"before reading {hit[0]!r} as a difference in location.")
+    if path == "distances" and total <= 0:
+        out.append("The total sum of squares is not positive; the dissimilarities are "
+                   "degenerate.")
+    return out
 
 
-def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", blocks=None,
-                       n_permutations: int = 999, rng=None, statistic: str = "pseudo_f",
-                       progress: Callable[[int, int], None] | None = None,
-                       cancel: Callable[[], bool] | None = None) -> PairwiseResult:
-    """One-factor PERMANOVA between every pair of levels of ``group``, p-values adjusted.
-
-    Parameters
-    ----------
-    d : Dissimilarity
-    samples : DataFrame or CommunityTable
-    group : str
-        A factor column of ``samples``.
-    adjust : {'holm', 'bh', None}, default 'holm'
-        Holm (1979) family-wise or Benjamini & Hochberg (1995) false-discovery-rate
-        adjustment over all pairs.
-    blocks, n_permutations, rng, progress, cancel
-        As in :func:`permanova`; each pair gets its own independent random stream.
-    statistic : {'pseudo_f', 'welch'}, default 'pseudo_f'
-        PERMANOVA's pseudo-F, or the Welch-type T_w^2 (Alekseyenko 2016), which allows
-        each group its own spread (:func:`tallyform.core.welch.welch_permanova`; samples
-        as replicates).
-
-    Returns
-    -------
-    PairwiseResult
-
-    Raises
-    ------
-    DesignError
-        Unknown column, fewer than 2 levels, a level with fewer than 2 samples.
-
-    Examples
-    --------
-    >>> import numpy as np, pandas as pd
-    >>> from scipy.spatial.distance import pdist
-    >>> from tallyform.core.dissimilarity import Dissimilarity
-    >>> x = np.array([[1.0], [2.0], [3.0], [7.0], [8.0], [9.0], [4.0], [5.0], [6.0]])
-    >>> d = Dissimilarity(pdist(x), list("abcdefghi"), measure="euclidean")  # synthetic
-    >>> info = pd.DataFrame({"site": list("xxxyyyzzz")}, index=list("abcdefghi"))
-    >>> res = pairwise_permanova(d, info, "site", rng=1)
-    >>> res.table.index.tolist()
-    ['x vs y', 'x vs z', 'y vs z']
-    >>> res.pvalue.tolist(), res.pvalue_adjusted.round(2).tolist()
-    ([0.1, 0.1, 0.1], [0.3, 0.3, 0.3])
-    """
-    d = check_dissimilarity(d)
-    check_option("adjust", adjust, _ADJUST)
-    check_option("statistic", statistic, ("pseudo_f", "welch"))
-    n_permutations = check_n_permutations(n_permutations)
-    frame, notes = align_samples(samples, d.labels)
-    model_matrix(frame, [group])                      # the same checks as PERMANOVA
-    labels = frame[group].astype(str)
-    levels = [str(x) for x in factor_levels(frame[group])]
-    counts = labels.value_counts()
-    small = [lv for lv in levels if counts.get(lv, 0) < 2]
-    if small:
-        raise DesignError(f"level(s) {small} of {group!r} hold a single sample; pairwise "
-                          "comparisons need at least 2 samples in each level.",
-                          location=Location(column=repr(group)),
-                          hint="Merge or drop those levels first.")
-    block_codes, block_name = block_labels(frame, blocks)
-    rng = as_rng(rng)
-    pairs = [(a, b) for i, a in enumerate(levels) for b in levels[i + 1:]]
-    streams = rng.spawn(len(pairs))
-    rows = []
-    for k, ((a, b), stream) in enumerate(zip(pairs, streams)):
-        mask = labels.isin([a, b]).to_numpy()
-        sub = d.subset(mask)
-        sub_frame = frame.loc[mask, [group]].copy()
-        sub_frame[group] = pd.Categorical(labels[mask], categories=[a, b])
-        sub_blocks = None if block_codes is None else pd.Series(
-            block_codes[mask], index=sub.labels, name=block_name)
-        test = permanova if statistic == "pseudo_f" else _welch_pair
-        try:
-            res = test(sub, sub_frame, [group], blocks=sub_blocks,
-                       n_permutations=n_permutations, rng=stream,
-                       progress=None if progress is None else
-                       (lambda done, total, k=k: progress(k * total + done,
-                                                          len(pairs) * total)),
-                       cancel=cancel)
-        except DesignError as err:
-            raise DesignError(f"comparing {a!r} with {b!r}: {err.detail}",
-                              location=err.location, hint=err.hint) from None
-        row = dict(pair=f"{a} vs {b}", group_a=a, group_b=b, n_a=int(counts[a]),
-                   n_b=int(counts[b]))
-        if statistic == "pseudo_f":
-            row.update(pseudo_f=res.table.loc[group, "pseudo_f"], r2=res.table.loc[group, "r2"])
-        else:
-            row.update(welch_t2=res.statistic, spread_a=res.groups.loc[a, "spread"],
-                       spread_b=res.groups.loc[b, "spread"])
-        rows.append(dict(row, pvalue=float(res.pvalue if statistic == "welch"
-                                           else res.table.loc[group, "pvalue"]),
-                         n_permutations=res.n_permutations, exact=res.exact))
-        for note in res.notes:
-            if note.startswith(("Only", "Group(s)")) and note not in notes:
-                notes += (f"{a} vs {b}: {note}",)
-    table = pd.DataFrame(rows).set_index("pair")
-    table.insert(table.columns.get_loc("pvalue") + 1, "pvalue_adjusted",
-                 adjust_pvalues(table["pvalue"].to_numpy(), adjust))
-    if statistic == "pseudo_f":
-        notes += ("Pairwise tests share PERMANOVA's sensitivity to unequal spread: a small "
-                  "p-value can reflect different dispersions as well as different centroids.",)
-    stat_col = "pseudo_f" if statistic == "pseudo_f" else "welch_t2"
-    return PairwiseResult(table=table, statistic=table[stat_col].copy(),
-                          pvalue=table["pvalue"].copy(),
-                          pvalue_adjusted=table["pvalue_adjusted"].copy(), adjust=adjust,
-                          group=str(group), measure=d.measure, notes=notes,
-                          statistic_name=stat_col)
+def _scheme_text(tests: dict, tested: list, plan) -> str:
+    schemes = list(dict.fromkeys(tests[t].scheme for t in tested))
+    fl = ("; every term by permuting residuals of the model without it (Freedman & Lane "
+          "1983)") if len(tested) > 1 else ""
+    if len(schemes) <= 1:
+        return (schemes[0] if schemes else "no test") + fl
+    parts = [f"{tests[t].stratum}: {tests[t].scheme}" for t in tested]
+    return "; ".join(dict.fromkeys(parts)) + fl
 
 
-def _welch_pair(d, frame, terms, **kw):
-    """The Welch-type test of one pair (samples as replicates), for pairwise_permanova."""
-    from .welch import welch_permanova            # welch.py imports this module
-    return welch_permanova(d, frame, terms[0], units=False, **kw)
+def _reading(tests: dict, tested: list, plan, alpha: float = 0.05) -> str:
+    out = []
+    for t in tested:
+        r = tests[t]
+        where = ("" if r.stratum == "samples" else f" {r.stratum}" if r.stratum.endswith("cells")
+                 else " " + r.stratum.replace("between ", "between units of ", 1)
+                 .replace("within ", "within units of ", 1))
+        out.append(f"{t!r}: pseudo-F = {r.pseudo_f:.3g} on {r.df} and {r.df_denominator} df"
+                   f"{', tested' + where if where else ''} against {r.tested_against}, "
+                   f"p = {r.pvalue:.3g}.")
+        if r.min_pvalue is not None and r.min_pvalue > alpha:
+            out.append(f"The smallest possible p-value for {t!r} is {r.min_pvalue:.2g}, "
+                       f"above {alpha:g}: this design cannot show an effect of {t!r} at "
+                       "that level, whatever the data.")
+    return " ".join(out)
+
+
+from .pairwise import PairwiseResult, adjust_pvalues, pairwise_permanova  # noqa: E402,F401

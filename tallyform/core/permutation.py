@@ -22,10 +22,33 @@ the intercept, which R annihilates), and BLAS does the work. With a feature matr
 residuals (R = E E', E n x q) the product is (k B) x n by n x q and no n x n matrix is ever
 formed. Memory is O(n^2 + n B) on the distance path, O(n q + n B) on the feature path.
 
-Schemes. Free permutation of all samples; permutation within blocks (strata), never moving a
-sample across blocks; and exact enumeration of every distinct relabelling when their number
-is at most the number of permutations asked for (relabellings that give the same permuted
-design are counted once).
+Sequential statistics (Freedman & Lane 1983 with the reduced model's fitted part added
+back). The numerator of a sequential table conditions on the terms listed *before* the tested
+one (basis Qb), while the residuals that are permuted are those of a reduced model Z that
+keeps every other term not containing it (also later ones). The permuted data are then
+Y* = Yhat_Z + (I - H_Z) P e_Z: the permuted residuals are projected back onto the residual
+space of Z (as the observed ones lie in it; Huh & Jhun 2001 permute within that space), and
+the same sequential statistic is computed on Y*. The permuted residuals are also rescaled
+by c = sqrt(d / (d - k_Z)) (d the dimension of the stratum, k_Z the rank of Z): the observed
+residuals fill only d - k_Z of the d dimensions their permutations spread over, and without
+the factor the permuted denominators are too small beside the fixed fitted part (the
+variance correction of residuals in resampling; Davison & Hinkley 1997, ch. 6). With
+q~ = (I - H_Z) q,
+
+    q' G* q = q' H_Z G H_Z q + 2 c q' H_Z G (I - H_Z) P' q~ + c^2 (P'q~)' R (P'q~)
+
+for every basis column q of the tested term; the first two parts need only one fixed vector
+per column, so the cost is that of the plain form. Without the projection, a tested term
+that is correlated with Z (unbalanced designs, the term listed before Z's terms) would meet
+permuted residuals with more variance than the observed ones have along it, and its test
+would be conservative (p-values near 1 under the null, no power; measured). The denominator,
+(I - H_A) Y*, sees neither Yhat_Z nor the projection (Z lies within the full model A). In a
+balanced design the tested term is orthogonal to Z, q~ = q, the cross terms vanish and c
+cancels from the ratio: a term's p-value then does not depend on where it stands in the list.
+See :func:`permuted_f`.
+
+Schemes live in :mod:`tallyform.core.schemes` (free, within blocks, whole units, within
+units, cyclic shifts; exact enumeration when the distinct relabellings are few enough).
 
 P-values. Random permutations: p = (1 + #{F* >= F}) / (1 + P), which counts the observed
 arrangement as one of the permutations and is never 0 (Phipson & Smyth 2010). Exact
@@ -45,6 +68,10 @@ Anderson, M. J. & ter Braak, C. J. F. (2003). Permutation tests for multi-factor
 of variance. J. Stat. Comput. Simul. 73, 85-113.
 Freedman, D. & Lane, D. (1983). A nonstochastic interpretation of reported significance
 levels. J. Bus. Econ. Stat. 1, 292-298.
+Davison, A. C. & Hinkley, D. V. (1997). Bootstrap Methods and their Application, ch. 6.
+Cambridge University Press.
+Huh, M.-H. & Jhun, M. (2001). Random permutation testing in multiple linear regression.
+Commun. Stat. Theory Methods 30, 2023-2032.
 McArdle, B. H. & Anderson, M. J. (2001). Fitting multivariate models to community data: a
 comment on distance-based redundancy analysis. Ecology 82, 290-297.
 Phipson, B. & Smyth, G. K. (2010). Permutation p-values should never be zero. Stat. Appl.
@@ -54,10 +81,8 @@ regression and ANOVA. In Bootstrapping and Related Techniques, 79-86. Springer.
 """
 from __future__ import annotations
 
-import itertools
-import math
 from dataclasses import dataclass, field
-from typing import Callable, Iterator
+from typing import Callable
 
 import numpy as np
 import pandas as pd
@@ -65,234 +90,21 @@ import pandas as pd
 import scipy.linalg
 
 from .random import as_rng
-from .errors import Cancelled, DesignError, InputError, Location
+from .errors import Cancelled, DesignError, InputError
 from .memory import check_memory
 from .results import ResultMixin, readonly
+from .schemes import (FEW_PERMUTATIONS, CyclicShifts, Permutations, UnitPermutations,
+                      count_relabellings, label_symmetries, span_symmetries, within_units)
 
-__all__ = ["Permutations", "PermutationTest", "permutation_f_test", "prepare_response",
-           "nested_bases", "count_relabellings", "TIE_RTOL", "FEW_PERMUTATIONS"]
+__all__ = ["Permutations", "UnitPermutations", "CyclicShifts", "within_units",
+           "PermutationTest", "permutation_f_test", "prepare_response", "nested_bases",
+           "count_relabellings", "label_symmetries", "span_symmetries", "permuted_f",
+           "TIE_RTOL", "FEW_PERMUTATIONS"]
 
 #: Relative tolerance under which a permuted statistic counts as equal to the observed one.
 TIE_RTOL = 1e-9
-#: Below this many distinct relabellings a result carries a note (p-values are coarse).
-FEW_PERMUTATIONS = 100
 #: Bytes of permuted basis columns handled per batch (the working set of one BLAS call).
 _BATCH_BYTES = 48 * 2**20
-
-
-# ---------------------------------------------------------------------------- schemes
-def _as_codes(values) -> np.ndarray:
-    """Integer codes 0..k-1 of arbitrary labels (order of first appearance irrelevant)."""
-    _, codes = np.unique(np.asarray(values).astype(str), return_inverse=True)
-    return codes.ravel().astype(np.intp)
-
-
-def _row_types(design: np.ndarray | None, n: int) -> np.ndarray:
-    """Codes of identical design rows: relabellings that swap equal rows change nothing."""
-    if design is None or design.size == 0:
-        return np.arange(n, dtype=np.intp)
-    d = np.ascontiguousarray(np.asarray(design, dtype=np.float64).reshape(n, -1))
-    _, codes = np.unique(d, axis=0, return_inverse=True)
-    return codes.ravel().astype(np.intp)
-
-
-def count_relabellings(types: np.ndarray, blocks: np.ndarray | None = None, *,
-                       cap: int | None = None) -> int | None:
-    """Number of distinct arrangements of row ``types`` within ``blocks``.
-
-    The product over blocks of the multinomial coefficients n_b! / prod_t m_bt!. With ``cap``,
-    returns None as soon as the count is known to exceed it (avoids huge integers).
-    """
-    types = np.asarray(types)
-    blocks = np.zeros(types.size, dtype=np.intp) if blocks is None else np.asarray(blocks)
-    log_total = 0.0
-    per_block = []
-    for b in np.unique(blocks):
-        m = np.unique(types[blocks == b], return_counts=True)[1]
-        log_total += math.lgamma(m.sum() + 1) - sum(math.lgamma(c + 1) for c in m)
-        per_block.append(m)
-    if cap is not None and log_total > math.log(cap) + 1.0:
-        return None
-    total = 1
-    for m in per_block:
-        rest = int(m.sum())
-        for c in m:
-            total *= math.comb(rest, int(c))
-            rest -= int(c)
-    if cap is not None and total > cap:
-        return None
-    return total
-
-
-def _multiset_arrangements(seq) -> Iterator[tuple]:
-    """Every distinct ordering of a multiset, in lexicographic order (Knuth's algorithm L)."""
-    a = sorted(seq)
-    m = len(a)
-    while True:
-        yield tuple(a)
-        j = m - 2
-        while j >= 0 and a[j] >= a[j + 1]:
-            j -= 1
-        if j < 0:
-            return
-        k = m - 1
-        while a[j] >= a[k]:
-            k -= 1
-        a[j], a[k] = a[k], a[j]
-        a[j + 1:] = reversed(a[j + 1:])
-
-
-class Permutations:
-    """The relabellings a test uses: random (free or within blocks) or all distinct ones.
-
-    Each permutation is an index array ``idx`` of length n: the permuted design is
-    ``X[idx]`` (row i of the permuted design is row ``idx[i]`` of the original), held
-    against the fixed residuals; ``blocks[idx] == blocks`` always holds.
-
-    Parameters
-    ----------
-    n : int
-    n_permutations : int
-        Permutations asked for. When the number of distinct relabellings is at most this,
-        all of them are enumerated instead (``exact``).
-    rng : None, int or numpy.random.Generator
-        One draw from it seeds the permutations; :meth:`batches` replays the same
-        permutations on every call.
-    blocks : array_like, optional
-        Block (stratum) label of every sample; samples are only permuted within blocks.
-    block_name : str, optional
-        Name of the blocking column, for the description and error messages.
-    design : ndarray, optional
-        Design rows (n x m); rows that are equal are interchangeable, which defines which
-        relabellings are distinct. Default: every sample distinct.
-    exact : {'auto', True, False}
-        'auto' enumerates when it is possible within ``n_permutations``; False never does.
-
-    Raises
-    ------
-    DesignError
-        The blocks allow no relabelling other than the identity.
-    """
-
-    def __init__(self, n: int, n_permutations: int, rng: np.random.Generator, *,
-                 blocks=None, block_name: str | None = None, design=None, exact="auto"):
-        self.n = int(n)
-        self.requested = int(n_permutations)
-        if self.requested < 0:
-            raise InputError(f"`n_permutations` must be >= 0; got {n_permutations}.")
-        self.block_name = block_name
-        # a snapshot of the stream: every call of batches() replays the same permutations,
-        # so several tests (the terms of one table) can share them
-        # (the caller's generator is advanced once, so a second test drawn from it differs)
-        child = np.random.default_rng(np.random.default_rng(rng).integers(2**63, size=4))
-        self._bit_generator = type(child.bit_generator)
-        self._state = child.bit_generator.state
-        self.blocks = None if blocks is None else _as_codes(blocks)
-        if self.blocks is not None and self.blocks.size != self.n:
-            raise DesignError(f"{self.blocks.size} block labels for {self.n} samples.")
-        self.types = _row_types(design, self.n)
-        cap = max(self.requested, FEW_PERMUTATIONS)
-        self.n_distinct = count_relabellings(self.types, self.blocks, cap=cap)
-        if self.n_distinct == 1:
-            where = (f"within the blocks of {block_name!r}" if block_name
-                     else "among the samples")
-            raise DesignError(
-                f"no relabelling {where} changes the design, so there is nothing to permute.",
-                location=Location(column=repr(block_name)) if block_name else None,
-                hint="The tested term may be constant within every block; test it at the "
-                     "block level, or drop the blocks.")
-        if exact == "auto":
-            self.exact = self.n_distinct is not None and self.n_distinct <= self.requested
-        else:
-            self.exact = bool(exact) and self.n_distinct is not None
-        self.total = self.n_distinct if self.exact else self.requested
-        if self.blocks is not None:
-            order = np.argsort(self.blocks, kind="stable")
-            self._block_sorted = order
-            self._block_keys = self.blocks.astype(np.float64)
-
-    # ----------------------------------------------------------------- description
-    @property
-    def few(self) -> bool:
-        """True when fewer than 100 distinct relabellings exist."""
-        return self.n_distinct is not None and self.n_distinct < FEW_PERMUTATIONS
-
-    def describe(self) -> str:
-        where = (f"within blocks of {self.block_name!r}" if self.blocks is not None
-                 and self.block_name else "within blocks" if self.blocks is not None
-                 else "free")
-        if self.exact:
-            return f"exact: all {self.n_distinct} distinct relabellings ({where})"
-        return f"{self.requested} random permutations ({where})"
-
-    def note(self) -> str | None:
-        if not self.few:
-            return None
-        return (f"Only {self.n_distinct} distinct relabellings of the samples exist"
-                + (f" within blocks of {self.block_name!r}" if self.blocks is not None
-                   and self.block_name else "")
-                + f", so the smallest attainable p-value is {1 / self.n_distinct:.3g}; "
-                  "p-values are coarse and a non-significant result says little.")
-
-    # ----------------------------------------------------------------- generation
-    def batches(self, size: int) -> Iterator[np.ndarray]:
-        """Yield (B, n) index arrays, B <= size, ``total`` rows in all.
-
-        The random stream is consumed row by row, so the permutations do not depend on
-        ``size``.
-        """
-        size = max(1, int(size))
-        bg = self._bit_generator()
-        bg.state = self._state
-        rng = np.random.Generator(bg)
-        if self.exact:
-            it = self._enumerate()
-            while True:
-                chunk = list(itertools.islice(it, size))
-                if not chunk:
-                    return
-                yield np.array(chunk, dtype=np.intp)
-        done = 0
-        while done < self.total:
-            b = min(size, self.total - done)
-            yield self._random(rng, b)
-            done += b
-
-    def _random(self, rng: np.random.Generator, b: int) -> np.ndarray:
-        n = self.n
-        if self.blocks is None:
-            idx = np.tile(np.arange(n, dtype=np.intp), (b, 1))
-            rng.permuted(idx, axis=1, out=idx)
-            return idx
-        # random keys within each block's integer band: sorting them shuffles every block
-        keys = rng.random((b, n))
-        keys += self._block_keys
-        order = np.argsort(keys, axis=1)
-        idx = np.empty((b, n), dtype=np.intp)
-        idx[:, self._block_sorted] = order
-        return idx
-
-    def _enumerate(self) -> Iterator[np.ndarray]:
-        """Every distinct relabelling once (the identity among them)."""
-        n = self.n
-        blocks = np.zeros(n, dtype=np.intp) if self.blocks is None else self.blocks
-        per_block = []
-        for b in np.unique(blocks):
-            pos = np.flatnonzero(blocks == b)
-            t = self.types[pos]
-            arrangements = np.array(list(_multiset_arrangements(t.tolist())), dtype=np.intp)
-            local = np.empty_like(arrangements)
-            for ty in np.unique(t):
-                rows = pos[t == ty]                 # samples of this type, in order
-                mask = arrangements == ty
-                rank = np.cumsum(mask, axis=1) - 1
-                local[mask] = rows[rank[mask]]
-            per_block.append((pos, local))
-        for combo in itertools.product(*[range(len(loc)) for _, loc in per_block]):
-            idx = np.empty(n, dtype=np.intp)
-            for (pos, local), c in zip(per_block, combo):
-                idx[pos] = local[c]
-            yield idx
 
 
 # ---------------------------------------------------------------------------- bases
@@ -402,6 +214,56 @@ class Response:
         r = (r + r.T) / 2
         return Response(n, gower=r)
 
+    def centred_within(self, codes: np.ndarray) -> "Response":
+        """The response with every unit's mean removed: (I - H_U) G (I - H_U), where H_U
+        averages the samples of each unit (``codes``: unit of every sample, 0..m-1)."""
+        codes = np.asarray(codes, dtype=np.intp)
+        m = int(codes.max()) + 1
+        size = np.bincount(codes, minlength=m).astype(float)
+        if self.features is not None:
+            sums = np.zeros((m, self.features.shape[1]))
+            np.add.at(sums, codes, self.features)
+            return Response(self.n, features=self.features - (sums / size[:, None])[codes])
+        n = self.n
+        check_memory(2 * n * n * 8, f"the {n} x {n} matrix of within-unit deviations",
+                     alternatives="Use a measure with a feature matrix (the feature path "
+                                  "needs no n x n matrix).")
+        rows = np.zeros((m, n))
+        np.add.at(rows, codes, self.gower)
+        g = self.gower - (rows / size[:, None])[codes]
+        cols = np.zeros((m, n))
+        np.add.at(cols, codes, g.T)
+        g -= (cols / size[:, None])[codes].T
+        return Response(n, gower=(g + g.T) / 2)
+
+    def unit_means(self, codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Coordinates of the unit means and their signs: (Y (m x r), s (r,)) with
+        Y diag(s) Y' = the Gram (or Gower) matrix of the unit means, r <= m.
+
+        On the distance path the Gower matrix of the unit centroids is eigen-decomposed and
+        axes with negative eigenvalues get the sign -1 (Gower 1966)."""
+        codes = np.asarray(codes, dtype=np.intp)
+        m = int(codes.max()) + 1
+        size = np.bincount(codes, minlength=m).astype(float)
+        if self.features is not None:
+            sums = np.zeros((m, self.features.shape[1]))
+            np.add.at(sums, codes, self.features)
+            y = sums / size[:, None]
+            if y.shape[1] <= m:
+                return y, np.ones(y.shape[1])
+            gram = y @ y.T
+        else:
+            rows = np.zeros((m, self.n))
+            np.add.at(rows, codes, self.gower)
+            both = np.zeros((m, m))
+            np.add.at(both, codes, rows.T)
+            gram = both / np.outer(size, size)
+        gram = (gram + gram.T) / 2
+        vals, vecs = np.linalg.eigh(gram)
+        tol = 1e-12 * max(float(np.abs(vals).max()), 1e-300)
+        keep = np.abs(vals) > tol
+        return vecs[:, keep] * np.sqrt(np.abs(vals[keep])), np.sign(vals[keep])
+
 
 def prepare_response(data, *, path: str = "auto") -> Response:
     """A :class:`Response` from a Dissimilarity, a feature matrix or a vector.
@@ -456,6 +318,8 @@ class PermutationTest(ResultMixin):
     ss : tuple (ss_t, ss_res)
     path : {'distances', 'features'}
     notes : tuple of str
+    min_pvalue : float or None
+        Smallest p-value the exact test can give (distinct statistic values / relabellings).
     """
 
     statistic: float
@@ -469,6 +333,7 @@ class PermutationTest(ResultMixin):
     ss: tuple
     path: str
     notes: tuple = ()
+    min_pvalue: float | None = None
 
     def __post_init__(self):
         object.__setattr__(self, "null_distribution", readonly(self.null_distribution))
@@ -533,6 +398,109 @@ def pvalue_from_null(observed: float, null: np.ndarray, *, exact: bool) -> float
 def _batch_size(n: int, k: int, q: int | None) -> int:
     width = n + (q if q is not None else n)
     return max(16, int(_BATCH_BYTES // (8 * max(k, 1) * width)))
+
+
+def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray, perms, *,
+               df_res: int, add_fitted: bool = True, batch_size: int | None = None,
+               progress: Callable[[int, int], None] | None = None,
+               cancel: Callable[[], bool] | None = None, offset: int = 0,
+               grand_total: int | None = None) -> tuple:
+    """Observed pseudo-F of one term and its permutation distribution (the engine's core).
+
+    Parameters
+    ----------
+    resp : Response
+        The data of the stratum, orthogonal to its base space (the intercept, or the unit
+        indicators for a within-unit stratum).
+    qa : ndarray (n, k)
+        Orthonormal basis of the whole model of the stratum, in nested order: ``nb``
+        columns of the terms the numerator conditions on, ``nt`` of the tested term, then
+        the later terms.
+    qz : ndarray (n, kz)
+        Orthonormal basis of the reduced model whose residuals are permuted (within the
+        span of ``qa``).
+    perms : scheme with ``batches(size)`` yielding (B, n) sample index arrays and ``total``.
+    df_res : int
+        Denominator degrees of freedom.
+    add_fitted : bool
+        Add the reduced model's fitted part back to the permuted residuals (Freedman & Lane
+        1983); False permutes the residuals alone (ter Braak 1992, full-model residuals).
+
+    Returns
+    -------
+    (observed, null, ss_t, ss_res)
+    """
+    n = resp.n
+    k = qa.shape[1]
+    total = resp.total()
+    quad = resp.quad(qa)
+    ss_t = _clean(float(quad[nb:nb + nt].sum()), total)
+    ss_res = _clean(total - float(quad.sum()), total)
+    observed = _pseudo_f(ss_t, ss_res, nt, df_res)
+    r = resp.residual(qz)
+    trace_r = r.total()
+    # the reduced model's fitted part, seen by the tested columns: a constant and one fixed
+    # vector per column (zero when the tested term is orthogonal to the reduced model)
+    qt = qa[:, nb:nb + nt]
+    tz = qz.T @ qt if qz.shape[1] else np.zeros((0, nt))
+    cross = add_fitted and tz.size and float(np.abs(tz).max()) > 1e-12
+    if cross:
+        if resp.features is not None:
+            a = tz.T @ (qz.T @ resp.features)                   # q' H_Z F, nt x f
+            const = np.einsum("ij,ij->i", a, a)
+        else:
+            gqz = resp.gower @ qz
+            gz = qz.T @ gqz
+            c = (gqz - qz @ gz) @ tz                            # (I - H_Z) G H_Z q, n x nt
+            const = np.einsum("ij,ik,kj->j", tz, gz, tz)
+        # the permuted residuals are projected back onto the residual space of Z, so the
+        # tested columns meet them through (I - H_Z) q, and rescaled to the variance of the
+        # errors they stand for (see the module notes)
+        qt_res = np.ascontiguousarray((qt - qz @ tz).T)         # nt x n
+        dim = df_res + k
+        c2 = dim / (dim - qz.shape[1])
+        scale = max(trace_r, total)
+    else:
+        const = np.zeros(nt)
+        scale = trace_r
+    q_all = np.ascontiguousarray(qa.T)                          # k x n
+    q = None if r.features is None else r.features.shape[1]
+    size = batch_size or _batch_size(n, k, q)
+    null = np.empty(perms.total)
+    done = 0
+    grand = grand_total if grand_total is not None else perms.total
+    for idx in perms.batches(size):
+        if cancel is not None and cancel():
+            raise Cancelled(f"stopped after {offset + done} of {grand} permutations; "
+                            "no result was produced.")
+        b = idx.shape[0]
+        u = np.take(q_all, idx, axis=1).reshape(k * b, n)          # rows: (column, perm)
+        if r.features is not None:
+            v = u @ r.features
+            tr = np.einsum("ij,ij->i", v, v)
+        else:
+            v = u @ r.gower
+            tr = np.einsum("ij,ij->i", u, v)
+        tr = tr.reshape(k, b)
+        num = tr[nb:nb + nt].sum(axis=0)
+        den = trace_r - tr[:nb].sum(axis=0) - num - tr[nb + nt:].sum(axis=0)
+        if cross:
+            ut = np.take(qt_res, idx, axis=1).reshape(nt * b, n)
+            if r.features is not None:
+                vt = ut @ r.features
+                plain = np.einsum("ij,ij->i", vt, vt).reshape(nt, b)
+                xc = np.einsum("jbf,jf->b", vt.reshape(nt, b, -1), a)
+            else:
+                vt = ut @ r.gower
+                plain = np.einsum("ij,ij->i", ut, vt).reshape(nt, b)
+                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
+            num = c2 * plain.sum(axis=0) + const.sum() + 2.0 * np.sqrt(c2) * xc
+            den = c2 * den
+        null[done:done + b] = _pseudo_f(_clean(num, scale), _clean(den, scale), nt, df_res)
+        done += b
+        if progress is not None:
+            progress(offset + done, grand)
+    return observed, null, ss_t, ss_res
 
 
 def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=None,
@@ -616,57 +584,27 @@ def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=Non
         raise DesignError(f"the model uses {k + 1} degrees of freedom with {n} samples, "
                           "leaving none for the residual.",
                           hint="Use fewer terms or levels, or more samples.")
-    # observed: tr((H_F - H_Z) G) and tr((I - H_A) G)
-    total = resp.total()
-    ss_t = float(resp.quad(qt).sum())
-    ss_res = total - float(resp.quad(qz).sum()) - ss_t - float(resp.quad(qw).sum())
-    ss_t, ss_res = (_clean(v, total) for v in (ss_t, ss_res))
-    observed = _pseudo_f(ss_t, ss_res, df_t, df_res)
-
     if permutations is None:
         rng = as_rng(rng)
-        design = np.hstack([np.asarray(X_reduced if X_reduced is not None else
-                                       np.empty((n, 0)), dtype=float).reshape(n, -1),
-                            X_full,
-                            np.asarray(X_later if X_later is not None else np.empty((n, 0)),
-                                       dtype=float).reshape(n, -1)])
+        parts = [np.asarray(X, dtype=float).reshape(n, -1) for X in (X_reduced, X_full, X_later)
+                 if X is not None]
+        design = np.hstack(parts)
+        sym = span_symmetries([X_reduced, np.hstack(parts[:2]) if X_reduced is not None
+                               else X_full, design], blocks)
         permutations = Permutations(n, n_permutations, rng, blocks=blocks,
-                                    block_name=block_name, design=design, exact=exact)
+                                    block_name=block_name, design=design, exact=exact,
+                                    symmetries=sym)
     perms = permutations
-    # the residuals that get permuted
+    qa = np.hstack([qz, qt, qw])
     if residuals == "reduced":
-        r = resp.residual(qz)
+        qr_, add = qz, True
         how = "residuals of the reduced model" if qz.shape[1] else "samples"
     else:
-        r = resp.residual(np.hstack([qz, qt, qw]))
+        qr_, add = qa, False
         how = "residuals of the full model"
-    trace_r = r.total()
-    q_all = np.ascontiguousarray(np.hstack([qz, qt, qw]).T)        # k x n
-    nz, nt = qz.shape[1], df_t
-    q = None if r.features is None else r.features.shape[1]
-    size = batch_size or _batch_size(n, k, q)
-    null = np.empty(perms.total)
-    done = 0
-    for idx in perms.batches(size):
-        if cancel is not None and cancel():
-            raise Cancelled(f"stopped after {done} of {perms.total} permutations; "
-                            "no result was produced.")
-        b = idx.shape[0]
-        u = np.take(q_all, idx, axis=1).reshape(k * b, n)          # rows: (column, perm)
-        if r.features is not None:
-            v = u @ r.features
-            tr = np.einsum("ij,ij->i", v, v)
-        else:
-            v = u @ r.gower
-            tr = np.einsum("ij,ij->i", u, v)
-        tr = tr.reshape(k, b)
-        num = tr[nz:nz + nt].sum(axis=0)
-        den = trace_r - tr[:nz].sum(axis=0) - num - tr[nz + nt:].sum(axis=0)
-        null[done:done + b] = _pseudo_f(_clean(num, trace_r), _clean(den, trace_r),
-                                        df_t, df_res)
-        done += b
-        if progress is not None:
-            progress(done, perms.total)
+    observed, null, ss_t, ss_res = permuted_f(
+        resp, qa, qz.shape[1], df_t, qr_, perms, df_res=df_res, add_fitted=add,
+        batch_size=batch_size, progress=progress, cancel=cancel)
     pvalue = pvalue_from_null(observed, null, exact=perms.exact)
     scheme = f"{perms.describe()}; permuting {how}"
     notes = tuple(x for x in [perms.note()] if x)
@@ -674,4 +612,5 @@ def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=Non
                            null_distribution=null, n_permutations=int(perms.total),
                            exact=bool(perms.exact), n_distinct=perms.n_distinct,
                            scheme=scheme, df=(int(df_t), int(df_res)),
-                           ss=(float(ss_t), float(ss_res)), path=resp.path, notes=notes)
+                           ss=(float(ss_t), float(ss_res)), path=resp.path, notes=notes,
+                           min_pvalue=perms.min_pvalue)

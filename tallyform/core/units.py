@@ -181,16 +181,19 @@ def _term_values(frame: pd.DataFrame, term: str) -> np.ndarray:
     if len(parts) == 1:
         col = frame[parts[0]]
         return pd.factorize(col.astype(str) if col.dtype == object else col)[0]
-    keys = pd.MultiIndex.from_arrays([frame[p].astype(str).to_numpy() for p in parts])
-    return pd.factorize(keys)[0]
+    codes = np.column_stack([pd.factorize(frame[p].astype(str))[0] for p in parts])
+    return np.unique(codes, axis=0, return_inverse=True)[1].ravel()
 
 
 def _constant_within(values: np.ndarray, codes: np.ndarray) -> np.ndarray:
     """Boolean per unit: the values take one value within the unit."""
     m = int(codes.max()) + 1 if codes.size else 0
-    frame = pd.DataFrame({"u": codes, "v": values})
-    nun = frame.groupby("u")["v"].nunique().reindex(range(m), fill_value=1).to_numpy()
-    return nun <= 1
+    v = np.asarray(values, dtype=np.int64)
+    lo = np.full(m, np.iinfo(np.int64).max)
+    hi = np.full(m, np.iinfo(np.int64).min)
+    np.minimum.at(lo, codes, v)
+    np.maximum.at(hi, codes, v)
+    return (lo >= hi) | (lo == np.iinfo(np.int64).max)
 
 
 def _unit_codes(col: pd.Series) -> tuple[np.ndarray, tuple]:

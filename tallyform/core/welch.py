@@ -120,6 +120,9 @@ class WelchResult(ResultMixin):
         f = tr(V)^2 / tr(V^2), the effective number of dimensions of the centroid noise
         (Box 1954); 1 for one variable.
     notes : tuple of str
+    min_pvalue : float or None
+        Smallest p-value the exact test can give (label symmetries counted); None when
+        the relabellings are too many to matter.
     """
 
     statistic: float
@@ -137,6 +140,7 @@ class WelchResult(ResultMixin):
     small_sample: bool = True
     dimensions: float = float("nan")
     notes: tuple = ()
+    min_pvalue: float | None = None
 
     def __post_init__(self):
         object.__setattr__(self, "null_distribution", readonly(self.null_distribution))
@@ -478,4 +482,5 @@ def welch_permanova(d, samples, group, *, n_permutations: int = 999, rng=None, u
                        n_permutations=int(perms.total), exact=bool(perms.exact),
                        group=plan.name, measure=d.measure, n_samples=d.n,
                        units=None if plan.level is None else plan.level.name,
-                       small_sample=bool(small_sample), dimensions=float(dims), notes=notes)
+                       small_sample=bool(small_sample), dimensions=float(dims), notes=notes,
+                       min_pvalue=perms.min_pvalue)

@@ -25,12 +25,23 @@ def test_f_equals_levene_with_mean_centre():
     rng = np.random.default_rng(11)
     y = np.concatenate([rng.normal(0, 1, 8), rng.normal(0, 2.5, 10), rng.normal(1, 1, 7)])
     g = np.repeat(["a", "b", "c"], [8, 10, 7])
-    res = dispersion_test(one_variable(y), g, n_permutations=199, rng=1)
+    res = dispersion_test(one_variable(y), g, n_permutations=199, rng=1,
+                          group_size_correction=False)
     ref = stats.levene(y[g == "a"], y[g == "b"], y[g == "c"], center="mean")
     assert res.statistic == pytest.approx(ref.statistic, rel=1e-10)
     assert res.df == (2, 22)
-    assert res.distances.to_numpy() == pytest.approx(
-        np.abs(y - pd.Series(y).groupby(g).transform("mean").to_numpy()))
+    dev = np.abs(y - pd.Series(y).groupby(g).transform("mean").to_numpy())
+    assert res.distances.to_numpy() == pytest.approx(dev)
+    assert any("not corrected for group size" in n for n in res.notes)
+    # with the default correction every deviation is multiplied by sqrt(n_g / (n_g - 1));
+    # reference: scipy.stats.f_oneway of the corrected absolute deviations
+    corrected = dispersion_test(one_variable(y), g, n_permutations=99, rng=1)
+    size = pd.Series(g).map(pd.Series(g).value_counts()).to_numpy()
+    scaled = dev * np.sqrt(size / (size - 1))
+    assert corrected.distances.to_numpy() == pytest.approx(scaled)
+    assert corrected.statistic == pytest.approx(
+        stats.f_oneway(*[scaled[g == k] for k in "abc"]).statistic, rel=1e-10)
+    assert any("sqrt(n_g / (n_g - 1))" in n for n in corrected.notes)
 
 
 def test_median_centre_equals_brown_forsythe_for_odd_groups():
@@ -39,7 +50,8 @@ def test_median_centre_equals_brown_forsythe_for_odd_groups():
     rng = np.random.default_rng(12)
     y = np.concatenate([rng.normal(0, 1, 7), rng.normal(0, 3, 9)])
     g = np.repeat(["a", "b"], [7, 9])
-    res = dispersion_test(one_variable(y), g, centre="median", n_permutations=99, rng=1)
+    res = dispersion_test(one_variable(y), g, centre="median", n_permutations=99, rng=1,
+                          group_size_correction=False)
     ref = stats.levene(y[g == "a"], y[g == "b"], center="median")
     assert res.statistic == pytest.approx(ref.statistic, rel=1e-8)
 
@@ -99,7 +111,7 @@ def test_negative_squared_distance_rule():
     g = list("xxxyyy")
     z2 = centroid_distances_squared(d, np.repeat([0, 1], 3), "mean")
     assert z2[0] == pytest.approx(2 / 3 - 11 / 9)
-    res = dispersion_test(d, g, rng=1)
+    res = dispersion_test(d, g, rng=1, group_size_correction=False)
     assert res.distances["a"] == 0.0
     assert res.distances["b"] == pytest.approx(np.sqrt(z2[1]))
     assert any("negative squared distance" in n for n in res.notes)
@@ -154,3 +166,32 @@ def test_errors():
         dispersion_test(d, list("aaabbb"))
     with pytest.raises(InputError, match="centre"):
         dispersion_test(d, list("aaabbbb"), centre="centroid")
+
+
+@pytest.mark.parametrize("features", [True, False])
+def test_null_recomputes_centroids_for_every_relabelling(features):
+    # the procedure written out: residuals about the group centroids stay in place, the
+    # group labels are relabelled, centroids and corrected distances are computed again
+    # with numpy and F by scipy.stats.f_oneway, for the same relabellings
+    from tallyform.core.schemes import Permutations, label_symmetries
+    rng = np.random.default_rng(21)
+    x = rng.normal(size=(14, 3)) * np.repeat([1.0, 1.8], 7)[:, None]
+    g = np.repeat([0, 1], [5, 9])
+    d = (Dissimilarity.from_features(x, measure="euclidean") if features
+         else Dissimilarity(pdist(x), measure="euclidean"))
+    res = dispersion_test(d, g, n_permutations=60, rng=3)
+    perms = Permutations(14, 60, np.random.default_rng(3), design=g[:, None],
+                         symmetries=label_symmetries([("factor", g)]))
+    rho = x - np.vstack([x[g == k].mean(axis=0) for k in (0, 1)])[g]
+
+    def f_of(labels):
+        z = np.empty(14)
+        for k, m in ((0, 5), (1, 9)):
+            r = rho[labels == k]
+            z[labels == k] = np.sqrt(((r - r.mean(axis=0)) ** 2).sum(axis=1) * m / (m - 1))
+        return stats.f_oneway(z[labels == 0], z[labels == 1]).statistic
+
+    expected = [f_of(g[idx]) for idx in np.vstack(list(perms.batches(60)))]
+    assert res.statistic == pytest.approx(f_of(g), rel=1e-9)
+    assert res.null_distribution == pytest.approx(np.array(expected), rel=1e-9)
+    assert "centroids and distances recomputed" in res.scheme

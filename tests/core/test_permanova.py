@@ -113,8 +113,13 @@ def test_marginal_ss_equal_anova_lm_type_2(unbalanced):
 def test_table_layout_and_result_fields(unbalanced):
     frame, d = unbalanced
     res = permanova(d, frame, ["a", "b"], n_permutations=199, rng=3)
-    assert list(res.table.columns) == ["df", "ss", "ms", "pseudo_f", "r2", "pvalue"]
+    assert list(res.table.columns) == ["df", "ss", "ms", "pseudo_f", "r2", "pvalue",
+                                       "stratum", "tested_against", "df_denominator"]
     assert list(res.table.index) == ["a", "b", "Residual", "Total"]
+    assert res.table.loc["a", "tested_against"] == "Residual"
+    assert res.table.loc["a", "df_denominator"] == res.table.loc["Residual", "df"]
+    assert res.schemes.loc["a", "reduced_model"] == "intercept + b"
+    assert res.schemes.loc["b", "reduced_model"] == "intercept + a"
     assert res.table.loc["Total", "df"] == 15
     assert res.table.loc["a", "ms"] == pytest.approx(res.table.loc["a", "ss"] / 2)
     assert set(res.null_distribution) == {"a", "b"}
@@ -273,10 +278,15 @@ def test_docstring_examples_run():
     import doctest
 
     import tallyform.core.dispersion as dispersion
+    import tallyform.core.ems as ems
     import tallyform.core.inference as inference
+    import tallyform.core.pairwise as pairwise
     import tallyform.core.permutation as permutation
     import tallyform.core.size_tests as size_tests
-    for mod in (dispersion, inference, permutation, size_tests):
+    import tallyform.core.symmetries as symmetries
+    import tallyform.core.units as units
+    for mod in (dispersion, ems, inference, pairwise, permutation, size_tests, symmetries,
+                units):
         result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
         assert result.failed == 0, mod.__name__
 

@@ -450,3 +450,27 @@ def test_pairwise_welch_statistic():
     assert plain.statistic_name == "pseudo_f" and "pseudo_f" in plain.table.columns
     with pytest.raises(InputError, match="statistic"):
         pairwise_permanova(distance_path(y, labels), info, "g", statistic="t")
+
+
+def test_pairwise_welch_with_units_compares_unit_centroids():
+    # each pair's Welch-type statistic equals welch_permanova on that pair's samples with
+    # the same units (the unit centroids are compared, whole units relabelled)
+    import tallyform as tly
+    tab = tly.demo("mesocosm")
+    d = tly.dissimilarity(tab, "hellinger")
+    res = tly.pairwise_permanova(d, tab, "treatment", statistic="welch", n_permutations=199,
+                                 rng=1)
+    assert res.statistic_name == "welch_t2"
+    assert set(res.table["stratum"]) == {"between 'tank'"}
+    assert (res.table["n_units"] == 10).all()
+    keep = tab.samples["treatment"].isin(["control", "nutrient_low"]).to_numpy()
+    sub = d.subset(keep)
+    one = tly.welch_permanova(sub, tab.samples.loc[keep], "treatment", units="tank",
+                              n_permutations=19, rng=1)
+    assert res.table.loc["control vs nutrient_low", "welch_t2"] == pytest.approx(
+        one.statistic, rel=1e-12)
+    # 5 + 5 tanks: 252 labellings, two of each split (labels swapped) give the same value
+    exact = tly.pairwise_permanova(d, tab, "treatment", statistic="welch",
+                                   n_permutations=5000, rng=1)
+    assert exact.table["exact"].all()
+    np.testing.assert_allclose(exact.table["min_pvalue"], 2 / 252)

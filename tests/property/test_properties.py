@@ -170,17 +170,29 @@ def test_permanova_relabelling_and_scale(data):
     moved = Dissimilarity.from_square(D[np.ix_(order, order)], [labels[i] for i in order],
                                       measure=m)
     relab = tly.permanova(moved, info.iloc[order], ["g"], n_permutations=5000, rng=1)
-    cols = ["df", "ss", "pseudo_f", "r2"]
-    pd.testing.assert_frame_equal(relab.table[cols], base.table[cols], rtol=1e-9, atol=1e-12)
-    assert relab.pvalue["g"] == pytest.approx(base.pvalue["g"], abs=1e-12)
+    # sums of squares are differences of sums over pairs, so their rounding error is
+    # relative to the total sum of squares; when the term's own SS is within ~1e-6 of the
+    # total's rounding, the order of the relabellings' statistics is decided by rounding and
+    # p-values are not comparable (numerically degenerate draws)
+    total = float(base.table.loc["Total", "ss"])
+    resolvable = float(base.table.loc["g", "ss"]) > 1e-6 * total
+    cols = ["df", "ss", "r2"]
+    pd.testing.assert_frame_equal(relab.table[cols], base.table[cols], rtol=1e-9,
+                                  atol=1e-9 * total)
+    if resolvable:
+        np.testing.assert_allclose(relab.table["pseudo_f"], base.table["pseudo_f"],
+                                   rtol=1e-9, equal_nan=True)
+        assert relab.pvalue["g"] == pytest.approx(base.pvalue["g"], abs=1e-12)
     # every dissimilarity times c: SS times c^2, pseudo-F, R^2 and p unchanged; with random
     # permutations too, since the same seed draws the same relabellings
     for n_perm in (5000, 199):
         a = tly.permanova(d, info, ["g"], n_permutations=n_perm, rng=7)
         b = tly.permanova(Dissimilarity(d.condensed * c, labels, measure=m), info, ["g"],
                           n_permutations=n_perm, rng=7)
-        np.testing.assert_allclose(b.table["ss"], a.table["ss"] * c * c, rtol=1e-9)
-        np.testing.assert_allclose(b.table[["pseudo_f", "r2"]].to_numpy(dtype=float),
-                                   a.table[["pseudo_f", "r2"]].to_numpy(dtype=float),
-                                   rtol=1e-9, equal_nan=True)
-        assert b.pvalue["g"] == a.pvalue["g"]
+        np.testing.assert_allclose(b.table["ss"], a.table["ss"] * c * c, rtol=1e-9,
+                                   atol=1e-9 * total * c * c)
+        if resolvable:
+            np.testing.assert_allclose(b.table[["pseudo_f", "r2"]].to_numpy(dtype=float),
+                                       a.table[["pseudo_f", "r2"]].to_numpy(dtype=float),
+                                       rtol=1e-9, equal_nan=True)
+            assert b.pvalue["g"] == a.pvalue["g"]

@@ -78,8 +78,11 @@ class AnalysisResults:
         if self.ellipses is not None:
             out["ellipses"] = self.ellipses.to_frame()
         if self.comparison is not None:
-            out["size_test"] = self.comparison.size.to_frame()
+            if self.comparison.size is not None:
+                out["size_test"] = self.comparison.size.to_frame()
             out["shape_test"] = self.comparison.shape.to_frame()
+            if self.comparison.welch is not None:
+                out["shape_test_welch"] = self.comparison.welch.to_frame()
             out["dispersion_test"] = self.comparison.dispersion.to_frame()
         if self.permanova is not None:
             out["permanova"] = self.permanova.to_frame()

@@ -55,6 +55,9 @@ class DispersionResult(ResultMixin):
         centroids (groups applied to whole units).
     reading : str
         The result in plain words.
+    min_pvalue : float or None
+        Smallest p-value the exact test can give (None when the relabellings are too many
+        to matter).
     """
 
     statistic: float
@@ -72,6 +75,7 @@ class DispersionResult(ResultMixin):
     groups: pd.Series | None = None
     level: str = "samples"
     reading: str = ""
+    min_pvalue: float | None = None
 
     def __post_init__(self):
         object.__setattr__(self, "null_distribution", readonly(self.null_distribution))
@@ -549,4 +553,5 @@ def _finish(d, z2, gcodes, levels, index, glabels, perms, *, centre, correction,
                             null_distribution=test.null_distribution,
                             n_permutations=test.n_permutations, exact=test.exact,
                             scheme=test.scheme, measure=d.measure, notes=notes,
-                            groups=glabels, level=level, reading=reading)
+                            groups=glabels, level=level, reading=reading,
+                            min_pvalue=test.min_pvalue)

@@ -24,7 +24,7 @@ _CHOICES = {
     "size": ("log_total", "total", "log_total_per_effort"),
     "shape": ("chi_square", "hellinger", "aitchison", "same_measure"),
     "shape_measure": ("chi_square", "hellinger", "aitchison", "chord"),
-    "size_method": ("anova", "welch", "kruskal", "permutation", "negbin"),
+    "size_method": ("welch", "anova", "kruskal", "permutation", "negbin"),
     "pairwise_adjust": ("holm", "bh", None),
     "dispersion_centre": ("mean", "median"),
     "ordination": ("pcoa", "nmds"),
@@ -93,7 +93,7 @@ class AnalysisSpec:
     shape: str = "chi_square"
     shape_dims: int | None = None
     shape_measure: str = "chi_square"
-    size_method: str = "anova"
+    size_method: str = "welch"
     n_permutations: int = 999
     seed: int | None = 1
     ss: str = "sequential"

@@ -177,11 +177,17 @@ def report_html(results: AnalysisResults, *, title: str | None = None) -> str:
     c = results.comparison
     if c is not None:
         body = f"<p class='reading'>{_esc(c.reading)}</p>"
-        body += "<h3>Size: log total abundance</h3>" + _table(c.size.to_frame()) + \
-            _notes(c.size)
+        if c.size is not None:
+            body += "<h3>Size: log total abundance</h3>" + _table(c.size.to_frame()) + \
+                _notes(c.size)
+        else:
+            body += f"<h3>Size</h3><p>Not tested: {_esc(c.size_skipped)}</p>"
         body += ("<h3>Shape: PERMANOVA with a size-free measure</h3>" +
                  _table(c.shape.to_frame()) + _notes(c.shape))
         body += fig(lambda: plots.null_distribution_figure(c.shape))
+        if c.welch is not None:
+            body += ("<h3>Shape with unequal spreads allowed: Welch-type test</h3>" +
+                     _table(c.welch.to_frame()) + _notes(c.welch))
         body += ("<h3>Spread: dispersion test</h3>" + _table(c.dispersion.to_frame()) +
                  _notes(c.dispersion))
         body += fig(lambda: plots.dispersion_figure(c.dispersion))

@@ -97,7 +97,7 @@ class TestsPanel(widgets.VBox):
         self.contribution_measure.add_class("tf-contribution-measure")
         self.size_method = widgets.Dropdown(
             options=[(_SIZE_METHOD_LABELS.get(m, m), m) for m in _CHOICES["size_method"]],
-            value="anova", description="Size test", style=LABEL_STYLE)
+            value="welch", description="Size test", style=LABEL_STYLE)
         self.size_method.add_class("tf-size-method")
         self.adjust = widgets.Dropdown(
             options=[(_ADJUST_LABELS.get(a, str(a)), a) for a in _CHOICES["pairwise_adjust"]],

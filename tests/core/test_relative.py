@@ -220,7 +220,6 @@ def test_depths_far_apart_get_a_note():
 def test_size_results_refused_without_load():
     tab = relative()
     for call in (lambda: tly.size_test(tab, "g"),
-                 lambda: tly.compare_groups(tab, "g", n_permutations=99, rng=1),
                  lambda: tly.size_shape(tab, "bray_curtis"),
                  lambda: tly.taxon_contributions(tab, "g", "a", "b", n_boot=0),
                  lambda: tly.audit(tab, "g", n_sim=2, n_permutations=19, rng=1)):
@@ -232,6 +231,15 @@ def test_size_results_refused_without_load():
     grid = tly.scan(tab, ["bray_curtis", "hellinger"], ["none"]).frame
     assert grid["size_only"].isna().all()
     assert grid["error"].str.contains("relative abundances").all()
+
+
+def test_compare_groups_on_relative_data_compares_shape_and_spread_only():
+    c = tly.compare_groups(relative(), "g", n_permutations=99, rng=1)
+    assert c.size is None and np.isnan(c.pvalue["size"])
+    assert "sequencing depths" in c.size_skipped and "load=" in c.size_skipped
+    assert c.reading.startswith("Size was not tested: the totals are sequencing depths")
+    assert np.isfinite(c.pvalue[["shape", "welch", "spread"]]).all()
+    assert c.to_frame().loc["size", "detected"] == False  # noqa: E712 (numpy bool)
 
 
 def test_shape_and_spread_run_on_relative_data_as_on_the_reads():
@@ -270,7 +278,8 @@ def test_run_records_refused_steps_and_runs_the_rest():
     spec = tly.AnalysisSpec(group="g", n_permutations=19, audit_n_sim=2, scan_measures=(
         "bray_curtis",), scan_transforms=("none",), abundance="relative")
     res = tly.run(spec, tab)
-    for step in ("size_shape", "comparison", "contributions", "audit"):
+    for step in ("size_shape", "contributions", "audit"):
         assert "relative abundances" in res.skipped[step], step
+    assert res.comparison is not None and res.comparison.size is None   # shape and spread
     assert res.permanova is not None and res.pairwise is not None
     assert res.ordination is not None

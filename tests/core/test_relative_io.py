@@ -167,7 +167,7 @@ def test_cli_report_with_abundance_and_load(tmp_path):
               "--abundance", "relative", "--spec", light, "--out", str(tmp_path / "q"))
     assert out.returncode == 0, out.stderr[-3000:]
     assert "Sample totals (sequencing depths (technical)) by g" in out.stdout
-    assert "not run: comparison: a size test compares sample totals" in out.stdout
+    assert "Size was not tested: the totals are sequencing depths" in out.stdout
     out = cli("report", "--counts", str(c), "--samples", str(s), "--spike-in", "spike",
               "--out", str(tmp_path / "x"))
     assert out.returncode == 2 and "--spike-added" in out.stderr

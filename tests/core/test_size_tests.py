@@ -339,8 +339,9 @@ def test_compare_groups_with_a_given_dissimilarity():
                                        measure="hellinger", properties={"size_free": True})
     res = compare_groups(tab, "treatment", shape_measure=hell, n_permutations=199, rng=1)
     assert res.size.pvalue < 0.001 and "Total abundance differs" in res.reading
-    assert list(res.to_frame().index) == ["size", "shape", "spread"]
+    assert list(res.to_frame().index) == ["size", "shape", "welch", "spread"]
     assert res.pvalue["shape"] == res.shape.pvalue["treatment"]
+    assert res.pvalue["welch"] == res.welch.pvalue
     assert res.pvalue["spread"] == res.dispersion.pvalue
     assert res.reading in str(res) and "not size-free" not in res.reading
     again = compare_groups(tab, "treatment", shape_measure=hell, n_permutations=199, rng=1)
@@ -356,15 +357,16 @@ def test_compare_groups_on_the_mesocosm_demo():
                              "treatment", n_permutations=199, rng=2)
     assert low.measure == "chi_square" and low.size.pvalue < 0.001
     assert low.pvalue["shape"] > 0.2
-    assert low.reading.startswith("Total abundance differs")
-    assert "No difference in composition" in low.reading
+    assert low.reading.startswith("Tested at the level of 'tank': 10 units")
+    assert "Total abundance differs" in low.reading
+    assert "No difference in composition" in low.reading and "(10 units)" in low.reading
     high = tly.compare_groups(tab.subset(lambda s: s.treatment != "nutrient_low"),
                               "treatment", shape_measure="hellinger", n_permutations=199,
                               rng=2)
     # the shape test compares the 5 + 5 tanks (detected units), whose smallest possible
     # p-value is 2/252, so the bound is 0.05 rather than the 0.01 of 40 "independent" samples
     assert high.shape.table.loc["treatment", "stratum"] == "between 'tank'"
-    assert high.pvalue["shape"] < 0.05 and "differ in composition" in high.reading
+    assert high.pvalue["shape"] < 0.05 and "shift in composition" in high.reading
     bray = tly.compare_groups(tab, "treatment", shape_measure="bray_curtis",
                               n_permutations=99, rng=2)
     assert "not size-free" in bray.reading

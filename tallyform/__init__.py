@@ -18,6 +18,7 @@ from .core.analysis import AnalysisResults, run
 from .core.audit import AuditResult, audit
 from .core.partition import SizeShapeResult, size_shape
 from .core.scan import ScanResult, scan
+from .core.choices import ChoiceComparison, compare_choices
 from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
 from .core.spec import AnalysisSpec
@@ -51,7 +52,8 @@ __all__ = [
     "demo", "demo_names", "simulate_community", "errors", "InputError", "DesignError",
     "TooLargeError", "__version__",
     "AnalysisSpec", "run", "AnalysisResults",
-    "size_shape", "SizeShapeResult", "scan", "ScanResult", "audit", "AuditResult",
+    "size_shape", "SizeShapeResult", "scan", "ScanResult", "compare_choices",
+    "ChoiceComparison", "audit", "AuditResult",
     "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination",
     "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",
     "TRANSFORMS", "Transform", "get_transform", "Identity", "Power", "Log1p", "Presence",

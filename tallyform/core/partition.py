@@ -253,7 +253,8 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
         kept, dd, items = leave_out_sets(n, n_boot, boot_rng, unit_codes=codes)
         ci, more = share_intervals(arrays, res, kept, dd, items, unit_name=unit_name,
                                    fixed=shape_dims is not None, progress=progress,
-                                   cancel=cancel, done_before=n_permutations, total=total)
+                                   cancel=cancel, done_before=n_permutations, total=total,
+                                   size_free=bool(d.properties.get("size_free")))
         extra["fractions_ci"] = ci
         notes.extend(more)
     prov = dict(res.provenance, n_permutations=n_permutations, n_boot=n_boot,
@@ -290,7 +291,7 @@ def prepared_arrays(table, d, *, measure, transform, size, shape):
 
 
 def share_intervals(arrays, res, kept, d, items, *, unit_name=None, fixed=True,
-                    progress=None, cancel=None, done_before=0, total=None):
+                    progress=None, cancel=None, done_before=0, total=None, size_free=False):
     """(fractions_ci DataFrame, notes) of one partition from its leave-out replicates."""
     from .partition_resample import (check_resampling, jackknife_interval, replicate_shares,
                                      small_n_note)
@@ -310,7 +311,15 @@ def share_intervals(arrays, res, kept, d, items, *, unit_name=None, fixed=True,
     small = small_n_note(items, what)
     if small:
         notes.append(small)
+    if size_free:
+        notes.append(SIZE_FREE_NOTE)
     return ci, notes
+
+
+SIZE_FREE_NOTE = ("this measure is size-free, so its size-only share is near 0; there the "
+                  "intervals of the size-only and residual shares are conservative (in "
+                  "simulation they covered the true share in every study, against 95 % "
+                  "asked).")
 
 
 def interval_note(n_boot, unit_name, fixed, k) -> str:
@@ -321,8 +330,9 @@ def interval_note(n_boot, unit_name, fixed, k) -> str:
     if fixed:
         return how + f"; {k} shape dimension(s) as given."
     return (how + f"; {k} shape dimension(s) held as chosen from these data. When that number "
-            "includes axes of unstructured variation, the shape-only and residual intervals "
-            "can be too narrow; fixing shape_dims at the number of clear axes avoids it.")
+            "includes axes of unstructured variation, the residual interval can be too "
+            "narrow (in simulation it covered the true share in 87-90 % of studies, the "
+            "others in 93-99 %); fixing shape_dims at the number of clear axes avoids it.")
 
 
 def _cached_shape(table, shape, measure, transform, local=None):

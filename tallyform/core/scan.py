@@ -169,8 +169,10 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
                 if kept is not None:
                     arrays = prepared_arrays(table, d, measure=m, transform=tr, size=size,
                                              shape=shape)
-                    ci, more = share_intervals(arrays, r, kept, dd, items, unit_name=unit_name,
-                                               fixed=shape_dims is not None, cancel=cancel)
+                    ci, more = share_intervals(
+                        arrays, r, kept, dd, items, unit_name=unit_name,
+                        fixed=shape_dims is not None, cancel=cancel,
+                        size_free=bool(d.properties.get("size_free")))
                     from dataclasses import replace
                     r = replace(r, fractions_ci=ci, notes=r.notes + tuple(more))
                     interval_notes.extend(more)
@@ -196,7 +198,10 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
         from .partition import interval_note
         notes.append(interval_note(n_boot, unit_name, shape_dims is not None, "each cell's")
                      + " Every cell leaves out the same samples.")
+        from .partition import SIZE_FREE_NOTE
         notes.extend(x for x in dict.fromkeys(interval_notes)
-                     if not x.startswith("95 % intervals"))
+                     if not x.startswith("95 % intervals") and x != SIZE_FREE_NOTE)
+        if SIZE_FREE_NOTE in interval_notes:
+            notes.append("for the size-free measures of the grid: " + SIZE_FREE_NOTE)
     return ScanResult(frame=frame, size=size, shape=shape, n=table.n_samples,
                       results=results, notes=tuple(notes), n_boot=n_boot)

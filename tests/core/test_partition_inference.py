@@ -212,3 +212,11 @@ def test_units_leave_out_whole_units():
     assert any("only 8 units" in n for n in r.notes)
     with pytest.raises(DesignError):
         tly.size_shape(tab, "bray_curtis", n_boot=20, units="nonexistent")
+
+
+def test_size_free_measures_say_their_intervals_are_conservative():
+    tab = gradient_table(11, n=24)
+    hel = tly.size_shape(tab, "hellinger", n_boot=20, rng=1)
+    assert any("conservative" in n for n in hel.notes)
+    bc = tly.size_shape(tab, "bray_curtis", n_boot=20, rng=1)
+    assert not any("conservative" in n for n in bc.notes)

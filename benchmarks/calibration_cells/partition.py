@@ -87,7 +87,8 @@ def _fixed_axes_pvalue(rng, *, fraction="shape_only", pattern="uniform", measure
     z, _ = size_predictor(tab)
     one = np.ones((n, 1))
     full = np.hstack([one, z[:, None], u[:, :k]])
-    reduced = np.hstack([one, u[:, :k]]) if fraction == "size_only" else np.hstack([one, z[:, None]])
+    keep = u[:, :k] if fraction == "size_only" else z[:, None]
+    reduced = np.hstack([one, keep])
     return permutation_f_test(d, full, reduced, n_permutations=199, rng=rng).pvalue
 
 
@@ -195,7 +196,7 @@ def _level_cells():
         cells.append(Cell(f"partition/shape-test-{name}", "partition",
                           "size_shape(n_permutations=99) shape-only Monte Carlo test",
                           design, lambda rng, kw=kw: _null_pvalue(rng, **kw),
-                          reps=600, short_reps=25))
+                          reps=600, short_reps=15))
     cells += [
         Cell("partition/shape-test-dirichlet-rho-not-given", "partition",
              "shape-only test without the overdispersion (null is multinomial only)",
@@ -272,7 +273,7 @@ def _coverage_cells():
                 cid, "partition", f"fractions_ci ({share}), delete-d jackknife", design,
                 lambda rng, pop=pop, n=n, choices=choices, k=k, which=which, share=share:
                 _covers(rng, pop=pop, n=n, choices=choices, k=k, which=which, share=share),
-                kind="coverage", band=band, reps=200, short_reps=8, check=checked,
+                kind="coverage", band=band, reps=200, short_reps=5, check=checked,
                 seed=20261203 + n))
     return cells
 

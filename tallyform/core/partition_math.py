@@ -132,7 +132,6 @@ def shape_coordinates(shape_d: Dissimilarity, *, max_dims: int | None = None
     matrix), else from the eigen-decomposition of its G (positive eigenvalues only). Returns
     (U, eigenvalues, negative share of the shape G).
     """
-    n = shape_d.n
     if shape_d.has_features:
         f = np.asarray(shape_d.features, dtype=float)
         fc = f - f.mean(axis=0)

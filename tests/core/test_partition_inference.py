@@ -12,7 +12,7 @@ from scipy import stats
 import tallyform as tly
 from tallyform.core.errors import Cancelled, DesignError, InputError
 from tallyform.core.partition import FRACTIONS
-from tallyform.core.partition_engine import PartitionArrays, arrays_from_counts
+from tallyform.core.partition_engine import arrays_from_counts
 from tallyform.core.partition_math import size_predictor
 from tallyform.core.partition_null import null_tables
 from tallyform.core.partition_resample import jackknife_interval, leave_out_sets

@@ -95,3 +95,12 @@ def test_scan_intervals_match_size_shape(meso):
     assert "(" in g._repr_html_()
     plain = tly.scan(meso, measures=["bray_curtis"], transforms=[1.0])
     assert "size_only_low" not in plain.frame.columns
+
+
+def test_examples_are_doctests():
+    # the Examples section of compare_choices runs as written
+    import doctest
+
+    import tallyform.core.choices as choices
+    result = doctest.testmod(choices, optionflags=doctest.NORMALIZE_WHITESPACE)
+    assert result.failed == 0 and result.attempted > 0

@@ -199,3 +199,12 @@ def test_choice_difference_figure(comparison):
     assert "removes" in fig.layout.title.text
     with pytest.raises(InputError, match="ChoiceComparison"):
         plots.choice_difference_figure(comparison.frame)
+
+
+def test_examples_are_doctests():
+    # the Examples sections of the partition figures run as written
+    import doctest
+
+    import tallyform.render.partition_plots as partition_plots
+    result = doctest.testmod(partition_plots, optionflags=doctest.NORMALIZE_WHITESPACE)
+    assert result.failed == 0 and result.attempted >= 4

@@ -20,6 +20,7 @@ from .core.analysis import AnalysisResults, run
 from .core.audit import AuditResult, audit
 from .core.partition import SizeShapeResult, size_shape
 from .core.scan import ScanResult, scan
+from .core.choices import ChoiceComparison, compare_choices
 from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
 from .core.spec import AnalysisSpec
@@ -53,7 +54,8 @@ __all__ = [
     "demo", "demo_names", "simulate_community", "errors", "InputError", "DesignError",
     "TooLargeError", "__version__",
     "AnalysisSpec", "run", "AnalysisResults",
-    "size_shape", "SizeShapeResult", "scan", "ScanResult", "audit", "AuditResult",
+    "size_shape", "SizeShapeResult", "scan", "ScanResult", "compare_choices",
+    "ChoiceComparison", "audit", "AuditResult",
     "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination", "constraint_test",
     "ConstraintTest",
     "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",

@@ -18,6 +18,13 @@ al. (1992) and Peres-Neto et al. (2006) are::
 
 The traces hold for non-Euclidean D as well (McArdle & Anderson 2001); the share of negative
 eigenvalues of G is reported beside the fractions.
+
+Inference (``n_permutations``, ``n_boot``): a Monte Carlo test of the shape-only share whose
+null re-derives the shape coordinates (:mod:`tallyform.core.partition_null`), the share each
+fraction takes under that null, and delete-d jackknife intervals for every share
+(:mod:`tallyform.core.partition_resample`). The arithmetic is in
+:mod:`tallyform.core.partition_math`; resampled and simulated partitions in
+:mod:`tallyform.core.partition_engine`.
 """
 from __future__ import annotations
 
@@ -26,241 +33,18 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .dissimilarity import Dissimilarity
-from .random import as_rng
 from .errors import DesignError, InputError
+from .partition_math import (FRACTIONS, SHAPE_INERTIA_TARGET, SHAPE_OPTIONS,  # noqa: F401
+                             SIZE_OPTIONS, Variation, _centred_unit, _check_option,
+                             _partition_by_dims, _shape_dissimilarity, adjusted_r2,
+                             default_dims, fractions_from_r2, negative_share,
+                             shape_coordinates, size_predictor)
+from .random import as_rng
 from .results import ResultMixin
-from .abundance import require_absolute
-from .table import CommunityTable, as_table
+from .table import as_table
 
 __all__ = ["size_shape", "SizeShapeResult", "SIZE_OPTIONS", "SHAPE_OPTIONS", "FRACTIONS",
            "size_predictor", "shape_coordinates", "Variation", "fractions_from_r2"]
-
-SIZE_OPTIONS = ("log_total", "total", "log_total_per_effort")
-SHAPE_OPTIONS = ("chi_square", "hellinger", "aitchison", "same_measure")
-FRACTIONS = ("size_only", "shared", "shape_only", "residual")
-SHAPE_INERTIA_TARGET = 0.75
-
-
-def _check_option(name: str, value, allowed) -> None:
-    if value not in allowed:
-        raise InputError(f"`{name}` must be one of {list(allowed)}; got {value!r}.")
-
-
-# ---------------------------------------------------------------------------- variation of D
-class Variation:
-    """Traces tr(Q' G Q) of one dissimilarity, from centred features (O(n p)) or from G.
-
-    ``Q`` is an orthonormal basis of *centred* predictors, so that ``Q Q'`` plus ``11'/n``
-    is the hat matrix of [1, Z]; since G 1 = 0 the intercept contributes nothing.
-    """
-
-    def __init__(self, d: Dissimilarity):
-        self.n = d.n
-        self._d = d
-        if d.has_features:
-            f = np.asarray(d.features, dtype=np.float64)
-            self.fc = f - f.mean(axis=0)
-            self.g = None
-            self.total = float(np.sum(self.fc * self.fc))
-        else:
-            self.fc = None
-            self.g = d.gower()
-            self.total = float(np.trace(self.g))
-        if not self.total > 0:
-            raise InputError(f"all {self.n} samples are identical under {d.measure!r}: there is "
-                             "no variation to partition.")
-
-    def apply(self, q: np.ndarray) -> np.ndarray:
-        """G q for a block of columns (n x k)."""
-        if self.fc is not None:
-            return self.fc @ (self.fc.T @ q)
-        return self.g @ q
-
-    def cross(self, q: np.ndarray) -> np.ndarray:
-        """Q' G Q (k x k)."""
-        if self.fc is not None:
-            b = self.fc.T @ q
-            return b.T @ b
-        return q.T @ (self.g @ q)
-
-    def explained(self, q: np.ndarray) -> float:
-        """tr(Q' G Q): the variation in the span of Q (orthonormal columns)."""
-        if q.shape[1] == 0:
-            return 0.0
-        if self.fc is not None:
-            b = self.fc.T @ q
-            return float(np.sum(b * b))
-        return float(np.sum((self.g @ q) * q))
-
-    def eigenvalues(self) -> np.ndarray:
-        """All eigenvalues of G, largest first (cached on the Dissimilarity)."""
-        return self._d.spectrum()
-
-
-def negative_share(eigenvalues: np.ndarray) -> float:
-    """|sum of negative eigenvalues| / tr(G), as in :func:`tallyform.pcoa` (0 if Euclidean)."""
-    ev = np.asarray(eigenvalues, dtype=float)
-    scale = np.abs(ev).max() if ev.size else 0.0
-    total = ev.sum()
-    if scale == 0 or total <= 0:
-        return 0.0
-    return float(max(0.0, -ev[ev < -1e-10 * scale].sum() / total))
-
-
-# ---------------------------------------------------------------------------- predictors
-def size_predictor(table: CommunityTable, size: str = "log_total") -> tuple[np.ndarray, str]:
-    """The size column and a description of it."""
-    require_absolute(table, "the size fraction of a size and shape partition")
-    _check_option("size", size, SIZE_OPTIONS)
-    totals = table.totals.to_numpy()
-    if (totals <= 0).any():
-        bad = list(table.sample_labels[totals <= 0])[:8]
-        raise InputError(f"sample(s) {bad} have a total of 0; size is undefined for them.",
-                         hint="Drop empty samples (empty='drop') before partitioning.")
-    if size == "total":
-        return totals.astype(float), "total abundance"
-    if size == "log_total":
-        return np.log(totals), "log total abundance"
-    if table.effort is None:
-        raise DesignError("size='log_total_per_effort' needs a sampling-effort column; load the "
-                          "table with effort='column name'.",
-                          hint="Or use size='log_total'.")
-    return np.log(totals / table.effort.to_numpy()), f"log total per {table.effort_name}"
-
-
-def _shape_dissimilarity(table, shape, measure, transform) -> Dissimilarity:
-    from .dissimilarity import dissimilarity
-    if shape != "same_measure":
-        return dissimilarity(table, shape)
-    v = table.values
-    t = v.sum(axis=1, keepdims=True)
-    equalised = v / t * t.mean()
-    frame = pd.DataFrame(equalised, index=table.sample_labels, columns=table.taxon_labels)
-    return dissimilarity(frame, measure, transform=transform)
-
-
-def shape_coordinates(shape_d: Dissimilarity, *, max_dims: int | None = None
-                      ) -> tuple[np.ndarray, np.ndarray, float]:
-    """Orthonormal principal-coordinate vectors U (n x K) and their eigenvalues.
-
-    From the SVD of the centred feature matrix when the shape measure has one (no n x n
-    matrix), else from the eigen-decomposition of its G (positive eigenvalues only). Returns
-    (U, eigenvalues, negative share of the shape G).
-    """
-    n = shape_d.n
-    if shape_d.has_features:
-        f = np.asarray(shape_d.features, dtype=float)
-        fc = f - f.mean(axis=0)
-        u, s, _ = np.linalg.svd(fc, full_matrices=False)
-        ev = s * s
-        neg = 0.0
-    else:
-        g = shape_d.gower()
-        ev_all, vec = np.linalg.eigh(g)
-        ev_all, vec = ev_all[::-1], vec[:, ::-1]
-        neg = negative_share(ev_all)
-        u, ev = vec, ev_all
-    tol = 1e-10 * (ev.max() if ev.size and ev.max() > 0 else 1.0)
-    keep = ev > tol
-    u, ev = u[:, keep], ev[keep]
-    if max_dims is not None:
-        u, ev = u[:, :max_dims], ev[:max_dims]
-    if ev.size == 0:
-        raise InputError(f"the profiles do not vary under {shape_d.measure!r}: every sample "
-                         "has the same composition, so there is no shape to use.")
-    return u, ev, neg
-
-
-def default_dims(eigenvalues: np.ndarray, n: int, *, total: float | None = None,
-                 target: float = SHAPE_INERTIA_TARGET) -> tuple[int, str]:
-    """Smallest k whose coordinates hold ``target`` of the shape inertia, capped."""
-    ev = np.asarray(eigenvalues, float)
-    total = float(ev.sum()) if total is None else total
-    share = np.cumsum(ev) / total
-    cap = max(1, (n - 2) // 3)
-    k = int(np.searchsorted(share, target - 1e-12) + 1)
-    k = min(k, ev.size)
-    if k > cap:
-        return cap, (f"{cap} shape dimensions: capped at floor((n - 2) / 3) = {cap} so that "
-                     f"adjusted R^2 stays estimable; they hold {100 * share[cap - 1]:.1f} % of "
-                     f"the shape inertia (reaching {100 * target:.0f} % would take {k})")
-    return k, (f"{k} shape dimension(s): the fewest holding at least {100 * target:.0f} % of "
-               f"the shape inertia ({100 * share[k - 1]:.1f} %)")
-
-
-# ---------------------------------------------------------------------------- fractions
-def adjusted_r2(r2: float, n: int, m: int) -> float:
-    """Ezekiel's (1930) adjusted R^2; m predictors (beyond the intercept)."""
-    if m == 0:
-        return 0.0
-    if n - m - 1 <= 0:
-        return float("nan")
-    return 1.0 - (1.0 - r2) * (n - 1) / (n - m - 1)
-
-
-def fractions_from_r2(r2_s: float, r2_t: float, r2_st: float, *, n: int, m_s: int,
-                      m_t: int, adjusted: bool = True) -> dict:
-    """Fractions [a] size only, [b] shared, [c] shape only, [d] residual (sum to 1)."""
-    if adjusted:
-        r2_s, r2_t = adjusted_r2(r2_s, n, m_s), adjusted_r2(r2_t, n, m_t)
-        r2_st = adjusted_r2(r2_st, n, m_s + m_t)
-    return {"size_only": r2_st - r2_t, "shared": r2_s + r2_t - r2_st,
-            "shape_only": r2_st - r2_s, "residual": 1.0 - r2_st}
-
-
-def _centred_unit(z: np.ndarray) -> np.ndarray | None:
-    zc = z - z.mean()
-    nrm = np.linalg.norm(zc)
-    if nrm <= 1e-12 * max(1.0, np.abs(z).max()) * np.sqrt(z.size):
-        return None
-    return zc / nrm
-
-
-def _partition_by_dims(var: Variation, z: np.ndarray | None, u: np.ndarray, n: int
-                       ) -> pd.DataFrame:
-    """Fractions for k = 1..K shape coordinates, in O(n K^2) after one pass over G.
-
-    With orthonormal U (orthogonal to 1), tr(U_k' G U_k) is a running sum of u_j' G u_j, and
-    the size column orthogonalised against U_k, z_k = z - U_k c_k (c = U'z), gives
-    z_k' G z_k = z'Gz - 2 c_k . w_k + c_k' W_kk c_k with W = U'GU, w = U'Gz.
-    """
-    K = u.shape[1]
-    W = var.cross(u)
-    diag_cum = np.cumsum(np.diag(W))
-    total = var.total
-    rows = []
-    if z is not None:
-        gz = var.apply(z[:, None])[:, 0]
-        zgz = float(z @ gz)
-        w = u.T @ gz
-        c = u.T @ z
-        quad = 0.0       # c_k' W_kk c_k, grown one coordinate at a time
-        cross = 0.0      # c_k . w_k
-        norm2 = 1.0      # ||z_k||^2 (z has unit norm)
-    r2_s = zgz / total if z is not None else 0.0
-    for k in range(1, K + 1):
-        j = k - 1
-        r2_t = diag_cum[j] / total
-        if z is not None:
-            quad += 2.0 * c[j] * float(W[j, :j] @ c[:j]) + c[j] ** 2 * W[j, j]
-            cross += c[j] * w[j]
-            norm2 -= c[j] ** 2
-            if norm2 > 1e-10:
-                r2_st = r2_t + (zgz - 2.0 * cross + quad) / norm2 / total
-                m_s = 1
-            else:        # size lies in the span of the shape coordinates
-                r2_st, m_s = r2_t, 0
-        else:
-            r2_st, m_s = r2_t, 0
-        adj = fractions_from_r2(r2_s, r2_t, r2_st, n=n, m_s=m_s if z is not None else 0,
-                                m_t=k)
-        raw = fractions_from_r2(r2_s, r2_t, r2_st, n=n, m_s=m_s, m_t=k, adjusted=False)
-        rows.append({"shape_dims": k, **adj,
-                     **{f"{key}_unadjusted": val for key, val in raw.items()},
-                     "r2_size": r2_s, "r2_shape": r2_t, "r2_both": r2_st,
-                     "m_size": m_s if z is not None else 0})
-    return pd.DataFrame(rows).set_index("shape_dims")
 
 
 # ---------------------------------------------------------------------------- result
@@ -281,7 +65,16 @@ class SizeShapeResult(ResultMixin):
     negative_share : float
         Share of the negative eigenvalues of G (0 for Euclidean-embeddable measures).
     tests : DataFrame or None
-        Permutation tests of the two testable fractions (size only, shape only).
+        The Monte Carlo test of the shape-only share (``n_permutations`` > 0): statistic (the
+        observed share), pvalue, n_simulations and the null hypothesis in words.
+    null_shares : DataFrame or None
+        Every share beside its distribution over the simulated null tables (null_median,
+        null_low, null_high: median and 2.5 / 97.5 % points): what counting noise alone gives.
+    null_distribution : ndarray (B, 4) or None
+        The shares (columns in the order of ``FRACTIONS``) of every simulated null table.
+    fractions_ci : DataFrame or None
+        95 % interval (columns ``low``, ``high``) of every share (``n_boot`` > 0), and the
+        bias-corrected share at its centre (``bias_corrected``).
     """
 
     measure: str
@@ -301,6 +94,21 @@ class SizeShapeResult(ResultMixin):
     notes: tuple = ()
     provenance: dict = field(default_factory=dict)
     _dims: pd.DataFrame = field(default=None, repr=False)
+    null_shares: pd.DataFrame | None = None
+    null_distribution: np.ndarray | None = field(default=None, repr=False)
+    fractions_ci: pd.DataFrame | None = None
+
+    @property
+    def statistic(self) -> float:
+        """The shape-only share (the statistic of the Monte Carlo test)."""
+        return float(self.fractions["shape_only"])
+
+    @property
+    def pvalue(self) -> float:
+        """p-value of the Monte Carlo test of the shape-only share (NaN when not run)."""
+        if self.tests is None:
+            return float("nan")
+        return float(self.tests.loc["shape_only", "pvalue"])
 
     def by_dims(self) -> pd.DataFrame:
         """Fractions for k = 1 .. kmax shape dimensions (adjusted, then unadjusted columns)."""
@@ -320,10 +128,17 @@ class SizeShapeResult(ResultMixin):
         return partition_bars(self, **kwargs)
 
     def to_frame(self) -> pd.DataFrame:
+        """One row per share: share, share_unadjusted, then (when computed) its 95 % interval
+        (low, high), its null range (null_median, null_low, null_high) and the p-value."""
         out = pd.DataFrame({"share": self.fractions,
                             "share_unadjusted": self.fractions_unadjusted})
+        if self.fractions_ci is not None:
+            out = out.join(self.fractions_ci[["low", "high"]], how="left")
+        if self.null_shares is not None:
+            out = out.join(self.null_shares[["null_median", "null_low", "null_high"]],
+                           how="left")
         if self.tests is not None:
-            out = out.join(self.tests[["statistic", "pvalue"]], how="left")
+            out = out.join(self.tests[["pvalue"]], how="left")
         out.index.name = "fraction"
         return out
 
@@ -336,8 +151,8 @@ class SizeShapeResult(ResultMixin):
 # ---------------------------------------------------------------------------- public
 def size_shape(table, measure: str = "bray_curtis", *, transform=None,
                size: str = "log_total", shape: str = "chi_square", shape_dims: int | None = None,
-               n_permutations: int = 0, rng=None, progress=None,
-               cancel=None) -> SizeShapeResult:
+               n_permutations: int = 0, n_boot: int = 0, units=None, overdispersion=None,
+               rng=None, progress=None, cancel=None) -> SizeShapeResult:
     """Partition the variation of a dissimilarity into size, shared, shape and residual.
 
     Parameters
@@ -357,10 +172,26 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
         Number of shape coordinates; default the fewest holding 75 % of the shape inertia,
         capped at floor((n - 2) / 3).
     n_permutations : int, default 0
-        Permutations for the tests of the size-only and shape-only fractions (0: no tests).
+        Simulated tables for the Monte Carlo test of the shape-only share (0: no test). The
+        null: one composition for all samples, counts varying only by sampling at each
+        sample's observed total; every simulated table is partitioned anew (shape
+        coordinates and their number re-derived). Needs whole-number counts.
+    n_boot : int, default 0
+        Replicates for the 95 % interval of every share (``fractions_ci``; 0: none). Each
+        leaves out a quarter of the samples (or units) and recomputes the partition from the
+        dissimilarities already computed, with the number of shape dimensions held.
+    units : str or list of str, optional
+        Sample-information column(s) of the sampling units (tank, site): the intervals then
+        leave out whole units (the coarsest level when nested). Samples are independent
+        otherwise.
+    overdispersion : float, optional
+        Dirichlet-multinomial intra-class correlation rho in [0, 1) for the Monte Carlo null
+        (default: multinomial counting only).
     rng : None, int or numpy.random.Generator
+        One seed gives the same test and intervals; the two use independent streams.
     progress, cancel : callables, optional
-        ``progress(done, total)`` and ``cancel() -> bool`` for the permutation tests.
+        ``progress(done, total)`` and ``cancel() -> bool`` for the simulations and
+        resamples (cancel raises :class:`~tallyform.errors.Cancelled`).
 
     Returns
     -------
@@ -371,29 +202,137 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
     R^2 of predictors Z is tr(H G) / tr(G), H the hat matrix of [1, Z] (McArdle & Anderson
     2001); adjusted R^2 after Ezekiel (1930); fractions after Borcard et al. (1992) and
     Peres-Neto et al. (2006). The shared fraction can be negative (suppression); it is
-    reported as computed.
+    reported as computed. The size-only share is not tested (see
+    :mod:`tallyform.core.partition_null` for the measurements behind this).
 
     References
     ----------
     Borcard D, Legendre P, Drapeau P (1992) Ecology 73:1045-1055.
+    Davison AC, Hinkley DV (1997) Bootstrap Methods and their Application, ch. 4.
     Ezekiel M (1930) Methods of correlation analysis. Wiley.
     Gower JC (1966) Biometrika 53:325-338.
     Legendre P, Anderson MJ (1999) Ecological Monographs 69:1-24.
     McArdle BH, Anderson MJ (2001) Ecology 82:290-297.
     Peres-Neto PR, Legendre P, Dray S, Borcard D (2006) Ecology 87:2614-2625.
+    Shao J, Wu CFJ (1989) Annals of Statistics 17:1176-1197.
     """
     from .dissimilarity import dissimilarity
     _check_option("size", size, SIZE_OPTIONS)
     _check_option("shape", shape, SHAPE_OPTIONS)
+    n_permutations = _count("n_permutations", n_permutations)
+    n_boot = _count("n_boot", n_boot)
     table = as_table(table)
     n = table.n_samples
     if n < 5:
         raise DesignError(f"the partition needs at least 5 samples; the table has {n}.")
+    codes, unit_name = resampling_units(table, units) if n_boot else (None, None)
     d = dissimilarity(table, measure, transform=transform)
-    return _size_shape_from(table, d, measure=measure, transform=transform, size=size,
-                            shape=shape, shape_dims=shape_dims,
-                            n_permutations=n_permutations, rng=rng, progress=progress,
-                            cancel=cancel)
+    res = _size_shape_from(table, d, measure=measure, transform=transform, size=size,
+                           shape=shape, shape_dims=shape_dims, n_permutations=0, rng=None,
+                           progress=None, cancel=None)
+    if not (n_permutations or n_boot):
+        return res
+    test_rng, boot_rng = as_rng(rng).spawn(2)
+    total = n_permutations + n_boot
+    notes = list(res.notes)
+    extra = {}
+    if n_permutations:
+        from .partition_null import shape_null_test
+        z, _ = size_predictor(table, size)
+        sub = None if progress is None else (lambda dn, tt: progress(dn, total))
+        tests, null_shares, null, more = shape_null_test(
+            table, res.fractions, measure=measure, transform=transform, shape=shape,
+            shape_dims=shape_dims, z=z, n_sim=n_permutations, overdispersion=overdispersion,
+            rng=test_rng, progress=sub, cancel=cancel)
+        extra.update(tests=tests, null_shares=null_shares, null_distribution=null)
+        notes.extend(more)
+    if n_boot:
+        from .partition_resample import leave_out_sets
+        arrays = prepared_arrays(table, d, measure=measure, transform=transform, size=size,
+                                 shape=shape)
+        kept, dd, items = leave_out_sets(n, n_boot, boot_rng, unit_codes=codes)
+        ci, more = share_intervals(arrays, res, kept, dd, items, unit_name=unit_name,
+                                   fixed=shape_dims is not None, progress=progress,
+                                   cancel=cancel, done_before=n_permutations, total=total,
+                                   size_free=bool(d.properties.get("size_free")))
+        extra["fractions_ci"] = ci
+        notes.extend(more)
+    prov = dict(res.provenance, n_permutations=n_permutations, n_boot=n_boot,
+                units=unit_name, overdispersion=overdispersion)
+    from dataclasses import replace
+    return replace(res, notes=tuple(dict.fromkeys(notes)), provenance=prov, **extra)
+
+
+def _count(name, value) -> int:
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer)) \
+            or value < 0:
+        raise InputError(f"`{name}` must be a whole number >= 0; got {value!r}.")
+    return int(value)
+
+
+def resampling_units(table, units):
+    """(unit code of every sample, name) for ``units``, or (None, None) without units."""
+    if units is None or units is False:
+        return None, None
+    from .units import resolve_units
+    plan = resolve_units(table.samples, [], units)
+    if plan.independent:
+        return None, None
+    level = plan.levels[0]
+    return np.asarray(level.codes), level.name
+
+
+def prepared_arrays(table, d, *, measure, transform, size, shape):
+    """PartitionArrays of one choice on the whole table (for resampling)."""
+    from .partition_engine import PartitionArrays
+    z, _ = size_predictor(table, size)
+    sd = _shape_dissimilarity(table, shape, measure, transform)
+    return PartitionArrays.from_dissimilarities(d, z, sd)
+
+
+def share_intervals(arrays, res, kept, d, items, *, unit_name=None, fixed=True,
+                    progress=None, cancel=None, done_before=0, total=None, size_free=False):
+    """(fractions_ci DataFrame, notes) of one partition from its leave-out replicates."""
+    from .partition_resample import (check_resampling, jackknife_interval, replicate_shares,
+                                     small_n_note)
+    what = "units" if unit_name else "samples"
+    check_resampling(items, res.shape_dims, what)
+    reps = replicate_shares(arrays, kept, res.shape_dims, progress=progress, cancel=cancel,
+                            done_before=done_before, total=total)
+    est = res.fractions.reindex(list(FRACTIONS)).to_numpy(dtype=float)
+    low, high, centre = jackknife_interval(est, reps, items=items, d=d)
+    ci = pd.DataFrame({"low": low, "high": high, "bias_corrected": centre},
+                      index=pd.Index(FRACTIONS, name="fraction"))
+    notes = [interval_note(len(kept), unit_name, fixed, res.shape_dims)]
+    failed = int(np.isnan(reps).any(axis=1).sum())
+    if failed:
+        notes.append(f"{failed} of {len(kept)} replicates could not be partitioned (too few "
+                     "distinct samples left for the shape dimensions) and were ignored.")
+    small = small_n_note(items, what)
+    if small:
+        notes.append(small)
+    if size_free:
+        notes.append(SIZE_FREE_NOTE)
+    return ci, notes
+
+
+SIZE_FREE_NOTE = ("this measure is size-free, so its size-only share is near 0; there the "
+                  "intervals of the size-only and residual shares are conservative (in "
+                  "simulation they covered the true share in every study, against 95 % "
+                  "asked).")
+
+
+def interval_note(n_boot, unit_name, fixed, k) -> str:
+    """How the intervals were made, in words (printed with the result)."""
+    from .partition_resample import INTERVAL_METHOD
+    how = (f"95 % intervals: {INTERVAL_METHOD}; {n_boot} replicates"
+           + (f" leaving out whole units of {unit_name!r}" if unit_name else ""))
+    if fixed:
+        return how + f"; {k} shape dimension(s) as given."
+    return (how + f"; {k} shape dimension(s) held as chosen from these data. When that number "
+            "includes axes of unstructured variation, the residual interval can be too "
+            "narrow (in simulation it covered the true share in 87-90 % of studies, the "
+            "others in 93-99 %); fixing shape_dims at the number of clear axes avoids it.")
 
 
 def _cached_shape(table, shape, measure, transform, local=None):
@@ -419,6 +358,9 @@ def _cached_shape(table, shape, measure, transform, local=None):
 
 def _size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
                      n_permutations, rng, progress, cancel, shape_cache=None):
+    """The partition of one choice (no inference: ``n_permutations`` must be 0)."""
+    if n_permutations:
+        raise ValueError("_size_shape_from computes no tests; use size_shape.")
     n = table.n_samples
     z_raw, size_label = size_predictor(table, size)
     z = _centred_unit(z_raw)
@@ -468,48 +410,14 @@ def _size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
                    adjusted_r2(row["r2_both"], n, m_s + k)],
         "df": [m_s, k, m_s + k]}, index=pd.Index(["size", "shape", "size + shape"],
                                                   name="predictors"))
-    tests = None
-    if n_permutations:
-        tests = _fraction_tests(d, z, u[:, :k], n_permutations=n_permutations, rng=rng,
-                                progress=progress, cancel=cancel)
-        notes.extend(tests.attrs.get("notes", ()))
     tr_name = None if d.transform in (None, "none") else d.transform
     prov = {"measure": measure, "transform": tr_name, "size": size, "size_label": size_label,
             "shape": shape, "shape_measure": shape_measure, "shape_dims": k,
-            "n_permutations": n_permutations, "n_samples": n, "table": table.fingerprint}
+            "shape_dims_given": shape_dims is not None, "n_permutations": 0,
+            "n_samples": n, "table": table.fingerprint}
     return SizeShapeResult(
         measure=measure, transform=tr_name, size=size, shape=shape, n=n, fractions=frac,
         fractions_unadjusted=frac_raw, r2=r2, shape_dims=k, shape_dims_reason=reason,
         shape_inertia_share=float(ev[:k].sum() / shape_total), negative_share=neg,
-        shape_negative_share=shape_neg, tests=tests, notes=tuple(notes), provenance=prov,
+        shape_negative_share=shape_neg, tests=None, notes=tuple(notes), provenance=prov,
         _dims=dims)
-
-
-def _fraction_tests(d, z, u, *, n_permutations, rng, progress, cancel) -> pd.DataFrame:
-    """Partial db-RDA permutation tests of [a] (size | shape) and [c] (shape | size)."""
-    from .permutation import permutation_f_test
-    rng = as_rng(rng)
-    n = d.n
-    one = np.ones((n, 1))
-    zs = np.empty((n, 0)) if z is None else z[:, None]
-    full = np.hstack([one, zs, u])
-    rows, notes = {}, []
-    plan = [("size_only", np.hstack([one, u])), ("shape_only", np.hstack([one, zs]))]
-    for step, (name, reduced) in enumerate(plan):
-        if name == "size_only" and z is None:
-            rows[name] = {"statistic": np.nan, "pvalue": np.nan, "df": 0,
-                          "n_permutations": 0}
-            continue
-        sub_progress = None
-        if progress is not None:
-            def sub_progress(done, total, _s=step):
-                progress(_s * total + done, 2 * total)
-        res = permutation_f_test(d, full, reduced, n_permutations=n_permutations, rng=rng,
-                                 progress=sub_progress, cancel=cancel)
-        rows[name] = {"statistic": res.statistic, "pvalue": res.pvalue, "df": res.df[0],
-                      "n_permutations": res.n_permutations}
-        notes.extend(getattr(res, "notes", ()))
-    out = pd.DataFrame.from_dict(rows, orient="index")
-    out.index.name = "fraction"
-    out.attrs["notes"] = tuple(dict.fromkeys(notes))
-    return out

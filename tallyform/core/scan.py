@@ -7,7 +7,8 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError
-from .partition import FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, _check_option, _size_shape_from
+from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, _check_option, _count,
+                        _size_shape_from, prepared_arrays, resampling_units, share_intervals)
 from .results import ResultMixin
 from .table import as_table
 
@@ -23,7 +24,9 @@ class ScanResult(ResultMixin):
     """The size and shape partition over a grid of transforms x measures.
 
     ``frame`` is tidy: one row per (transform, measure) with the four fractions, the
-    negative-eigenvalue share, the shape dimensions and any error for that combination.
+    negative-eigenvalue share, the shape dimensions and any error for that combination; with
+    ``n_boot`` also ``<fraction>_low`` and ``<fraction>_high``, the 95 % interval of every
+    share (every cell resampled with the same left-out samples).
     """
 
     frame: pd.DataFrame
@@ -32,6 +35,7 @@ class ScanResult(ResultMixin):
     n: int
     results: dict = field(default_factory=dict, repr=False)
     notes: tuple = ()
+    n_boot: int = 0
 
     def to_frame(self) -> pd.DataFrame:
         return self.frame.copy()
@@ -65,9 +69,25 @@ class ScanResult(ResultMixin):
 
     def _repr_html_(self) -> str:
         import html as _html
-        body = self.pivot("size_only").to_html(float_format="{:.1%}".format)
+        piv = self.pivot("size_only")
+        if self.n_boot:
+            lo, hi = self.pivot("size_only_low"), self.pivot("size_only_high")
+            body = pd.DataFrame(
+                [[_interval_text(piv.iat[i, j], lo.iat[i, j], hi.iat[i, j])
+                  for j in range(piv.shape[1])] for i in range(piv.shape[0])],
+                index=piv.index, columns=piv.columns).to_html()
+        else:
+            body = piv.to_html(float_format="{:.1%}".format)
         return (f"<div><p><b>{_html.escape(self._title())}</b>: size-only share</p>{body}"
                 f"{self._notes_html()}</div>")
+
+
+def _interval_text(v, lo, hi) -> str:
+    if not np.isfinite(v):
+        return "n/a"
+    if not (np.isfinite(lo) and np.isfinite(hi)):
+        return f"{100 * v:.1f} %"
+    return f"{100 * v:.1f} % ({100 * lo:.0f} to {100 * hi:.0f})"
 
 
 def _as_transform_spec(t):
@@ -79,7 +99,7 @@ def _as_transform_spec(t):
 
 def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFORMS, *,
          size: str = "log_total", shape: str = "chi_square", shape_dims: int | None = None,
-         progress=None, cancel=None) -> ScanResult:
+         n_boot: int = 0, rng=None, units=None, progress=None, cancel=None) -> ScanResult:
     """The size and shape partition for every (transform, measure) pair of a grid.
 
     Parameters
@@ -92,6 +112,13 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
     size, shape, shape_dims
         As in :func:`size_shape`; the shape coordinates are computed once for the grid
         (except for ``shape='same_measure'``).
+    n_boot : int, default 0
+        Leave-out replicates for a 95 % interval of every share in every cell (columns
+        ``<fraction>_low`` / ``<fraction>_high``); the same left-out samples for every cell.
+        See :func:`size_shape`.
+    rng : None, int or numpy.random.Generator
+    units : str or list of str, optional
+        Sampling-unit column(s): replicates leave out whole units.
 
     Returns
     -------
@@ -113,10 +140,19 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
     unknown = [m for m in measures if m not in MEASURES]
     if unknown:
         raise InputError(f"unknown measure(s) {unknown}; choose from {sorted(MEASURES)}.")
+    n_boot = _count("n_boot", n_boot)
+    kept, unit_name = None, None
+    if n_boot:
+        from .partition_resample import leave_out_sets
+        from .random import as_rng
+        codes, unit_name = resampling_units(table, units)
+        boot_rng = as_rng(rng).spawn(2)[1]      # the stream size_shape uses for intervals
+        kept, dd, items = leave_out_sets(table.n_samples, n_boot, boot_rng, unit_codes=codes)
     cache: dict = {}
     rows, results = [], {}
     total = len(specs) * len(measures)
     done = 0
+    interval_notes: list = []
     for tr in specs:
         for m in measures:
             if cancel is not None and cancel():
@@ -130,19 +166,42 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
                 row.update(r.fractions.to_dict())
                 row.update(negative_share=r.negative_share, shape_dims=r.shape_dims,
                            size_free=bool(d.properties.get("size_free", False)), error="")
+                if kept is not None:
+                    arrays = prepared_arrays(table, d, measure=m, transform=tr, size=size,
+                                             shape=shape)
+                    ci, more = share_intervals(
+                        arrays, r, kept, dd, items, unit_name=unit_name,
+                        fixed=shape_dims is not None, cancel=cancel,
+                        size_free=bool(d.properties.get("size_free")))
+                    from dataclasses import replace
+                    r = replace(r, fractions_ci=ci, notes=r.notes + tuple(more))
+                    interval_notes.extend(more)
+                    for f in FRACTIONS:
+                        row[f"{f}_low"], row[f"{f}_high"] = ci.loc[f, "low"], ci.loc[f, "high"]
                 results[(tr.name, m)] = r
             except InputError as err:      # undefined for these data: keep the rest of the grid
                 row.update({f: np.nan for f in FRACTIONS}, negative_share=np.nan,
                            shape_dims=np.nan, size_free=np.nan, error=str(err))
+                if kept is not None:
+                    row.update({f"{f}_{e}": np.nan for f in FRACTIONS for e in ("low", "high")})
             rows.append(row)
             done += 1
             if progress is not None:
                 progress(done, total)
     frame = pd.DataFrame(rows)
     failed = frame["error"].astype(bool)
-    notes = ()
+    notes = []
     if failed.any():
-        notes = (f"{int(failed.sum())} combination(s) are undefined for these data and are "
-                 "left blank (see the error column).",)
+        notes.append(f"{int(failed.sum())} combination(s) are undefined for these data and "
+                     "are left blank (see the error column).")
+    if interval_notes:      # one statement of the method for the grid
+        from .partition import interval_note
+        notes.append(interval_note(n_boot, unit_name, shape_dims is not None, "each cell's")
+                     + " Every cell leaves out the same samples.")
+        from .partition import SIZE_FREE_NOTE
+        notes.extend(x for x in dict.fromkeys(interval_notes)
+                     if not x.startswith("95 % intervals") and x != SIZE_FREE_NOTE)
+        if SIZE_FREE_NOTE in interval_notes:
+            notes.append("for the size-free measures of the grid: " + SIZE_FREE_NOTE)
     return ScanResult(frame=frame, size=size, shape=shape, n=table.n_samples,
-                      results=results, notes=notes)
+                      results=results, notes=tuple(notes), n_boot=n_boot)

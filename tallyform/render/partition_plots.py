@@ -1,4 +1,5 @@
-"""Figures of the size and shape partition: bars, fractions by shape dimensions, scan heatmap.
+"""Figures of the size and shape partition: bars (with interval error bars), fractions by
+shape dimensions, scan heatmap, and the paired difference of two choices.
 
 Pure functions: a result object in, a new plotly Figure out. Every number drawn or printed
 comes from the result (fractions, negative-eigenvalue shares, p-values); nothing is computed
@@ -16,7 +17,8 @@ from .style import FRACTION_COLOURS, FRACTION_LABELS, NEUTRAL, base_layout, size
 
 NEGATIVE_BLUE = "#3B6FB6"
 
-__all__ = ["partition_bars", "dims_figure", "scan_heatmap", "setting_label", "percent"]
+__all__ = ["partition_bars", "dims_figure", "scan_heatmap", "choice_difference_figure",
+           "setting_label", "percent"]
 
 
 def percent(x, digits: int = 1) -> str:
@@ -36,8 +38,23 @@ def setting_label(measure: str, transform) -> str:
     return f"{transform} + {measure}"
 
 
+def _ci_of(result) -> dict | None:
+    ci = getattr(result, "fractions_ci", None)
+    if ci is None:
+        return None
+    return {f: (float(ci.loc[f, "low"]), float(ci.loc[f, "high"])) for f in FRACTIONS}
+
+
+def _null_of(result) -> dict | None:
+    ns = getattr(result, "null_shares", None)
+    if ns is None:
+        return None
+    return {f: tuple(float(ns.loc[f, c]) for c in ("null_median", "null_low", "null_high"))
+            for f in FRACTIONS}
+
+
 def _rows(results) -> list[dict]:
-    """One dict per bar: label, fractions, negative share, p-values, error."""
+    """One dict per bar: label, fractions, intervals, negative share, p-values, error."""
     if isinstance(results, SizeShapeResult):
         results = [results]
     if isinstance(results, ScanResult):
@@ -45,9 +62,13 @@ def _rows(results) -> list[dict]:
         for rec in results.frame.to_dict("records"):
             key = (rec["transform"], rec["measure"])
             res = results.results.get(key)
+            ci = None
+            if f"{FRACTIONS[0]}_low" in rec:
+                ci = {f: (rec[f"{f}_low"], rec[f"{f}_high"]) for f in FRACTIONS}
             rows.append({
                 "label": setting_label(rec["measure"], rec["transform"]),
-                "fractions": {f: rec[f] for f in FRACTIONS},
+                "fractions": {f: rec[f] for f in FRACTIONS}, "ci": ci,
+                "null": None if res is None else _null_of(res),
                 "negative_share": rec.get("negative_share", np.nan),
                 "tests": None if res is None else res.tests,
                 "detail": "" if res is None else res.shape_dims_reason,
@@ -64,8 +85,36 @@ def _rows(results) -> list[dict]:
                          f"{type(results).__name__}.")
     return [{"label": setting_label(r.measure, r.transform),
              "fractions": {f: float(r.fractions[f]) for f in FRACTIONS},
+             "ci": _ci_of(r), "null": _null_of(r),
              "negative_share": r.negative_share, "tests": r.tests,
              "detail": r.shape_dims_reason, "error": ""} for r in items]
+
+
+def _interval_trace(rows, labels, f, vals, hover, sz) -> go.Scatter:
+    """One fraction's shares as markers with 95 % whiskers (the side panel of the bars).
+
+    Row i of the bars is at y = i; the four fractions sit just above and below it.
+    """
+    offset = (FRACTIONS.index(f) - 1.5) * 0.17
+    return go.Scatter(
+        x=vals, y=np.arange(len(rows)) + offset, mode="markers",
+        error_x=_error_bars(rows, vals, f),
+        marker={"color": FRACTION_COLOURS[f], "size": sz["marker"],
+                "line": {"color": "#222222", "width": 1}},
+        legendgroup=f, showlegend=False, hovertext=hover,
+        hovertemplate="%{hovertext}<extra></extra>", meta={"fraction": f, "kind": "interval"})
+
+
+def _error_bars(rows, vals, f) -> dict:
+    """error_x of one fraction's markers: the interval around the share."""
+    plus, minus = [], []
+    for r, v in zip(rows, vals):
+        lo, hi = r["ci"][f] if r.get("ci") is not None else (np.nan, np.nan)
+        ok = np.isfinite(v) and np.isfinite(lo) and np.isfinite(hi)
+        plus.append(float(max(hi - v, 0.0)) if ok else 0.0)
+        minus.append(float(max(v - lo, 0.0)) if ok else 0.0)
+    return {"type": "data", "symmetric": False, "array": plus, "arrayminus": minus,
+            "visible": True, "color": FRACTION_COLOURS[f], "thickness": 2.5, "width": 4}
 
 
 def _unique_labels(labels: list[str]) -> list[str]:
@@ -141,17 +190,30 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
     sz = sizes(present)
     labels = _unique_labels([r["label"] for r in rows])
     ticks = [_tick(r) for r in rows]
-    fig = go.Figure()
+    with_ci = any(r.get("ci") is not None for r in rows)
+    if with_ci:         # the intervals get their own panel, sharing the rows
+        from plotly.subplots import make_subplots
+        fig = make_subplots(rows=1, cols=2, column_widths=[0.64, 0.36],
+                            horizontal_spacing=0.03)
+    else:
+        fig = go.Figure()
     for f in FRACTIONS:
         vals = np.array([float(r["fractions"][f]) for r in rows], dtype=float)
         text = [percent(v) for v in vals]
         hover = []
         for r, lb, v in zip(rows, labels, vals):
             bits = [f"<b>{lb}</b>", f"{FRACTION_LABELS[f]}: {percent(v)}"]
+            if r.get("ci") is not None:
+                lo, hi = r["ci"][f]
+                bits.append(f"95 % interval: {percent(lo)} to {percent(hi)}")
+            if r.get("null") is not None:
+                med, nlo, nhi = r["null"][f]
+                bits.append(f"counting noise alone: {percent(med)} ({percent(nlo)} to "
+                            f"{percent(nhi)})")
             t = r["tests"]
             if t is not None and f in t.index and np.isfinite(t.loc[f, "pvalue"]):
-                bits.append(f"permutation test: p = {t.loc[f, 'pvalue']:.3g} "
-                            f"({int(t.loc[f, 'n_permutations'])} permutations)")
+                bits.append(f"Monte Carlo test: p = {t.loc[f, 'pvalue']:.3g} "
+                            f"({int(t.loc[f, 'n_simulations'])} simulated tables)")
             if r["error"]:
                 bits.append(r["error"])
             hover.append("<br>".join(bits))
@@ -162,8 +224,11 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
             name=name, x=vals, y=labels, orientation="h",
             marker={"color": FRACTION_COLOURS[f], "line": {"color": "white", "width": 1}},
             text=text, textposition="inside", insidetextanchor="middle", textangle=0,
-            textfont={"size": sz["font"]}, hovertext=hover,
-            hovertemplate="%{hovertext}<extra></extra>", meta={"fraction": f}))
+            textfont={"size": sz["font"]}, hovertext=hover, legendgroup=f,
+            hovertemplate="%{hovertext}<extra></extra>", meta={"fraction": f}),
+            **({"row": 1, "col": 1} if with_ci else {}))
+        if with_ci:
+            fig.add_trace(_interval_trace(rows, labels, f, vals, hover, sz), row=1, col=2)
     # negative segments are thin: label them outside, left of the bar
     lows = []
     for r, lb in zip(rows, labels):
@@ -186,7 +251,8 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
     fig.add_vline(x=0, line={"color": "#222222", "width": 2})
     default_title, lines = _describe(results)
     lines.append("shares of the dissimilarity's variation (adjusted R<sup>2</sup>); "
-                 "they sum to 100 %")
+                 "they sum to 100 %"
+                 + ("; right: each share with its 95 % interval" if with_ci else ""))
     base_layout(fig, title=subtitle(title or default_title, *lines), legend_title="fraction",
                 present=present, height=max(360, 260 + (70 if present else 56) * len(rows)))
     # legend under the axis title, anchored to the figure so it never meets the title
@@ -197,9 +263,19 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
                               "traceorder": "normal"},
                       margin={"b": 70 + 2 * sz["font"] + (20 if len(rows) == 1 else 0)})
     fig.update_xaxes(title_text="share of the variation (%)", tickformat=".0%",
-                     range=[left, high + 0.02], zeroline=False, gridcolor="#E5E5E5")
+                     range=[left, high + 0.02], zeroline=False, gridcolor="#E5E5E5",
+                     **({"row": 1, "col": 1} if with_ci else {}))
     fig.update_yaxes(autorange="reversed", tickmode="array", tickvals=labels,
                      ticktext=ticks, title_text=None)
+    if with_ci:
+        ends = [v for r in rows if r.get("ci") is not None for pair in r["ci"].values()
+                for v in pair if np.isfinite(v)] + [0.0, 1.0]
+        fig.update_xaxes(title_text="share, 95 % interval", tickformat=".0%", zeroline=True,
+                         zerolinecolor="#222222", gridcolor="#E5E5E5", row=1, col=2,
+                         range=[min(ends) - 0.03, max(ends) + 0.03])
+        fig.update_yaxes(showticklabels=False, autorange=False, tickmode="auto",
+                         range=[len(rows) - 0.5, -0.5], showgrid=False, zeroline=False,
+                         row=1, col=2)
     return fig
 
 
@@ -291,6 +367,14 @@ def scan_heatmap(scan: ScanResult, *, value: str = "size_only",
     measures, transforms = list(z.index), list(z.columns)
     arr = z.to_numpy(dtype=float)
     text = [[percent(v) for v in row] for row in arr]
+    has_ci = f"{value}_low" in scan.frame.columns
+    if has_ci:          # the interval under the share, in points
+        lo, hi = scan.pivot(f"{value}_low").to_numpy(float), \
+            scan.pivot(f"{value}_high").to_numpy(float)
+        text = [[t if not (np.isfinite(a) and np.isfinite(b)) else
+                 f"{t}<br><span style='font-size:0.75em'>({100 * a:.0f} to {100 * b:.0f})"
+                 "</span>" for t, a, b in zip(tr, la, ha)]
+                for tr, la, ha in zip(text, lo, hi)]
     hover = []
     for m in measures:
         line = []
@@ -299,6 +383,9 @@ def scan_heatmap(scan: ScanResult, *, value: str = "size_only",
             bits = [f"<b>{setting_label(m, t)}</b>",
                     f"{FRACTION_LABELS.get(value, value.replace('_', ' '))}: "
                     f"{percent(rec[value])}"]
+            if has_ci and np.isfinite(rec[f"{value}_low"]):
+                bits.append(f"95 % interval: {percent(rec[f'{value}_low'])} to "
+                            f"{percent(rec[f'{value}_high'])}")
             if value != "negative_share":
                 bits.append(f"negative eigenvalues: {percent(rec['negative_share'])}")
             if rec.get("error"):
@@ -318,7 +405,8 @@ def scan_heatmap(scan: ScanResult, *, value: str = "size_only",
         colorbar={"title": {"text": f"{name} (%)"}, "tickformat": ".0%"}))
     base_layout(fig, title=subtitle(f"Share of the variation that is {name}: scan over "
                                     f"measures and transforms (n = {scan.n})",
-                                    f"size: {scan.size}; shape: {scan.shape}"),
+                                    f"size: {scan.size}; shape: {scan.shape}"
+                                    + ("; in brackets: 95 % interval (%)" if has_ci else "")),
                 legend_title=None, present=present,
                 height=max(420, 200 + (60 if present else 46) * len(measures)))
     fig.update_layout(plot_bgcolor="#D9D9D9")      # the gaps between cells show as a grid
@@ -326,4 +414,65 @@ def scan_heatmap(scan: ScanResult, *, value: str = "size_only",
                      type="category")
     fig.update_yaxes(title_text="measure", autorange="reversed", type="category",
                      ticksuffix="  ")
+    return fig
+
+
+def choice_difference_figure(comparison, *, present: bool = False) -> go.Figure:
+    """The paired difference b - a of every share, with its 95 % interval.
+
+    One row per share (size only, shared, shape only, residual): a marker at the difference
+    in the fraction's colour, whiskers for the interval (when the comparison was resampled),
+    and a line at zero. The sentence of the comparison is printed under the title.
+
+    Examples
+    --------
+    >>> import tallyform as tly
+    >>> x = tly.compare_choices(tly.demo("mesocosm"), a={"measure": "bray_curtis"},
+    ...                         b={"measure": "hellinger"}, n_boot=0)
+    >>> [t.meta["fraction"] for t in choice_difference_figure(x).data]
+    ['size_only', 'shared', 'shape_only', 'residual']
+    """
+    from ..core.choices import ChoiceComparison
+    if not isinstance(comparison, ChoiceComparison):
+        raise InputError("`comparison` must be a ChoiceComparison (from tly.compare_choices); "
+                         f"got {type(comparison).__name__}.")
+    sz = sizes(present)
+    fr = comparison.frame
+    has_ci = "low" in fr.columns
+    fig = go.Figure()
+    for f in FRACTIONS:
+        v = float(fr.loc[f, "difference"])
+        label = FRACTION_LABELS[f]
+        bits = [f"<b>{label}</b>", f"a: {percent(fr.loc[f, 'a'])}, b: {percent(fr.loc[f, 'b'])}",
+                f"b - a: {100 * v:+.1f} points"]
+        err = {"visible": False}
+        if has_ci:
+            lo, hi = float(fr.loc[f, "low"]), float(fr.loc[f, "high"])
+            bits.append(f"95 % interval: {100 * lo:+.1f} to {100 * hi:+.1f} points")
+            err = {"type": "data", "symmetric": False, "array": [max(hi - v, 0.0)],
+                   "arrayminus": [max(v - lo, 0.0)], "visible": True,
+                   "color": FRACTION_COLOURS[f], "thickness": sz["line"], "width": 8}
+        fig.add_trace(go.Scatter(
+            x=[v], y=[label], mode="markers+text", name=label, error_x=err,
+            marker={"color": FRACTION_COLOURS[f], "size": sz["marker"] + 5,
+                    "line": {"color": "#222222", "width": 1}},
+            text=[f"{100 * v:+.1f}"], textposition="top center",
+            textfont={"size": sz["small"]}, hovertext=["<br>".join(bits)],
+            hovertemplate="%{hovertext}<extra></extra>", meta={"fraction": f}))
+    fig.add_vline(x=0, line={"color": "#222222", "width": 2})
+    from ..core.choices import _describe
+    title = f"{_describe(comparison.b)} minus {_describe(comparison.a)} (n = {comparison.n})"
+    lines = [comparison.reading.replace(". ", ".<br>")] if comparison.reading else []
+    lines.append("difference in each share (b - a), percentage points"
+                 + ("; whiskers: paired 95 % interval" if has_ci else ""))
+    base_layout(fig, title=subtitle(title, *lines), legend_title="fraction", present=present,
+                height=560)
+    ends = [fr["difference"].abs().max()]
+    if has_ci:
+        ends += [fr["low"].abs().max(), fr["high"].abs().max()]
+    reach = float(np.nanmax(ends)) * 1.15 + 0.01
+    fig.update_xaxes(title_text="b - a (share of the variation, points of %)",
+                     tickformat=".0%", range=[-reach, reach], zeroline=False,
+                     gridcolor="#E5E5E5")
+    fig.update_yaxes(autorange="reversed", title_text=None)
     return fig

@@ -8,7 +8,8 @@ from __future__ import annotations
 from .taxa_plots import taxon_shape_figure, taxon_size_figure  # noqa: F401
 from .display import show  # noqa: F401
 from .export import SavedFiles, StaticExportWarning, save, static_export_available  # noqa: F401
-from .partition_plots import dims_figure, partition_bars, scan_heatmap  # noqa: F401
+from .partition_plots import (choice_difference_figure, dims_figure,  # noqa: F401
+                              partition_bars, scan_heatmap)
 from .style import (FRACTION_COLOURS, OKABE_ITO, base_layout, group_colours,  # noqa: F401
                     group_levels)
 from .ordination_plots import ordination_figure, scree_figure  # noqa: F401

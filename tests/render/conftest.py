@@ -39,5 +39,23 @@ def grid(meso):
 
 
 @pytest.fixture(scope="session")
+def partition_ci(meso):
+    return tly.size_shape(meso, "bray_curtis", n_permutations=19, n_boot=30, rng=1)
+
+
+@pytest.fixture(scope="session")
+def grid_ci(meso):
+    return tly.scan(meso, measures=["bray_curtis", "hellinger"], transforms=[1.0, 0.25],
+                    n_boot=20, rng=1)
+
+
+@pytest.fixture(scope="session")
+def comparison(meso):
+    return tly.compare_choices(meso, a={"measure": "bray_curtis"},
+                               b={"measure": "bray_curtis", "transform": "fourth_root"},
+                               n_boot=30, rng=1)
+
+
+@pytest.fixture(scope="session")
 def ordination(bray):
     return tly.pcoa(bray)

@@ -147,3 +147,64 @@ def test_undefined_cells_are_said_not_hidden(grid):
     col = list(heat.data[0].x).index(frame.loc[1, "transform"])
     assert heat.data[0].text[row][col] == "n/a"
     assert "undefined for zeros" in heat.data[0].hovertext[row][col]
+
+
+# ---------------------------------------------------------------------------- intervals
+def test_bars_with_intervals_add_a_panel_of_whiskers(partition_ci):
+    fig = plots.partition_bars(partition_ci)
+    bars = [t for t in fig.data if t.type == "bar"]
+    marks = [t for t in fig.data if t.type == "scatter"]
+    assert len(bars) == 4 and len(marks) == 4
+    ci = partition_ci.fractions_ci
+    for t in marks:
+        f = t.meta["fraction"]
+        assert t.meta["kind"] == "interval" and t.marker.color == FRACTION_COLOURS[f]
+        v = partition_ci.fractions[f]
+        assert t.x[0] == pytest.approx(v)
+        # the whiskers reach the result's interval
+        assert v + t.error_x.array[0] == pytest.approx(ci.loc[f, "high"])
+        assert v - t.error_x.arrayminus[0] == pytest.approx(ci.loc[f, "low"])
+        assert "95 % interval" in t.hovertext[0]
+    assert "95 % interval" in fig.layout.xaxis2.title.text
+    hover = bars[2].hovertext[0]           # shape only: test and counting-noise range
+    assert "Monte Carlo test: p =" in hover and "counting noise alone" in hover
+
+
+def test_scan_with_intervals(grid_ci):
+    fig = plots.partition_bars(grid_ci)
+    marks = [t for t in fig.data if t.type == "scatter"]
+    assert len(marks) == 4 and len(marks[0].x) == len(grid_ci.frame)
+    np.testing.assert_allclose(
+        np.asarray(marks[0].x) - np.asarray(marks[0].error_x.arrayminus),
+        grid_ci.frame["size_only_low"].to_numpy(float))
+    heat = plots.scan_heatmap(grid_ci)
+    lo = grid_ci.pivot("size_only_low").to_numpy(float)
+    text = heat.data[0].text[0][0]
+    assert text.startswith(f"{100 * grid_ci.pivot('size_only').iat[0, 0]:.1f} %")
+    assert f"({100 * lo[0, 0]:.0f} to" in text
+    assert "interval" in heat.layout.title.text
+
+
+def test_choice_difference_figure(comparison):
+    fig = comparison.figure()
+    assert [t.meta["fraction"] for t in fig.data] == list(FRACTIONS)
+    fr = comparison.frame
+    for t in fig.data:
+        f = t.meta["fraction"]
+        assert t.x[0] == pytest.approx(fr.loc[f, "difference"])
+        assert t.x[0] + t.error_x.array[0] == pytest.approx(fr.loc[f, "high"])
+        assert t.x[0] - t.error_x.arrayminus[0] == pytest.approx(fr.loc[f, "low"])
+        assert t.marker.color == FRACTION_COLOURS[f]
+    assert any(s.x0 == 0 for s in fig.layout.shapes)          # the zero line
+    assert "removes" in fig.layout.title.text
+    with pytest.raises(InputError, match="ChoiceComparison"):
+        plots.choice_difference_figure(comparison.frame)
+
+
+def test_examples_are_doctests():
+    # the Examples sections of the partition figures run as written
+    import doctest
+
+    import tallyform.render.partition_plots as partition_plots
+    result = doctest.testmod(partition_plots, optionflags=doctest.NORMALIZE_WHITESPACE)
+    assert result.failed == 0 and result.attempted >= 4

@@ -24,7 +24,7 @@ def _exporter_or_skip():
 
 
 @pytest.fixture(scope="module")
-def every_figure(meso, bray, partition, grid, ordination):
+def every_figure(meso, bray, partition, grid, ordination, partition_ci, grid_ci, comparison):
     group = meso.samples["treatment"]
     perm = tly.permanova(bray, meso.samples, terms=["treatment", "week"], n_permutations=99,
                          rng=1)
@@ -36,6 +36,10 @@ def every_figure(meso, bray, partition, grid, ordination):
         "partition_bars_scan_present": grid.figure(kind="bars", present=True),
         "dims": partition.figure(kind="dims"),
         "scan_heatmap": grid.figure(),
+        "partition_bars_intervals": partition_ci.figure(),
+        "scan_bars_intervals": grid_ci.figure(kind="bars"),
+        "scan_heatmap_intervals": grid_ci.figure(),
+        "choice_difference": comparison.figure(),
         "ordination": ordination.figure(group=group, symbol=meso.samples["week"],
                                         ellipses=ordination.ellipses(group)),
         "ordination_arrows": ordination.figure(group=group, taxa=taxa, top_taxa=6,

@@ -190,7 +190,6 @@ class Permutations:
         if self.blocks is not None:
             order = np.argsort(self.blocks, kind="stable")
             self._block_sorted = order
-            self._block_keys = self.blocks.astype(np.float64)
 
     # ----------------------------------------------------------------- description
     @property
@@ -255,18 +254,16 @@ class Permutations:
         return np.random.Generator(bg)
 
     def _random(self, rng: np.random.Generator, b: int) -> np.ndarray:
-        n = self.n
+        """``b`` random relabellings: one seed each from ``rng``, then a Fisher-Yates
+        shuffle of every block (:mod:`tallyform.core.shuffle`; the same on every machine)."""
+        from .shuffle import draw_seeds, shuffled_rows
         if self.blocks is None:
-            idx = np.tile(np.arange(n, dtype=np.intp), (b, 1))
-            rng.permuted(idx, axis=1, out=idx)
-            return idx
-        # random keys within each block's integer band: sorting them shuffles every block
-        keys = rng.random((b, n))
-        keys += self._block_keys
-        order = np.argsort(keys, axis=1)
-        idx = np.empty((b, n), dtype=np.intp)
-        idx[:, self._block_sorted] = order
-        return idx
+            order = np.arange(self.n, dtype=np.intp)
+            bounds = np.array([0, self.n], dtype=np.intp)
+        else:
+            order = self._block_sorted
+            bounds = np.r_[0, np.cumsum(np.bincount(self.blocks))].astype(np.intp)
+        return shuffled_rows(draw_seeds(rng, b), order, bounds, self.n)
 
     def _enumerate(self) -> Iterator[np.ndarray]:
         """Every distinct relabelling once (the identity among them)."""

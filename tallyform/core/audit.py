@@ -214,17 +214,13 @@ def _group_test_pvalue(values, labels, taxa, groups_X, measure, transform, n_per
     return float(res.pvalue), spread
 
 
-def _rarefied_pvalues(values, labels, taxa, group, groups, measure, transform,
-                      n_permutations, rng) -> tuple[float, float]:
+def _rarefied_pvalues(values, groups, measure, transform, n_permutations,
+                      rng) -> tuple[float, float]:
     """shape_test and spread_test p-values (one rarefaction, samples as independent)."""
-    from .counting import shape_test, spread_test
+    from .counting import rarefied_pvalues
     keep = values.sum(axis=0) > 0
-    frame = pd.DataFrame(values[:, keep], index=labels, columns=taxa[keep])
-    tab = CommunityTable(frame, pd.DataFrame({group: list(groups)}, index=labels))
-    kw = dict(measure=measure, transform=transform, n_permutations=n_permutations,
-              units=False, rng=rng)
-    return (float(shape_test(tab, group, **kw).pvalue),
-            float(spread_test(tab, group, **kw).pvalue))
+    return rarefied_pvalues(values[:, keep], groups, measure=measure, transform=transform,
+                            n_permutations=n_permutations, rng=rng)
 
 
 def _rate_row(p: np.ndarray, alpha: float, aspect: str, test: str) -> dict:
@@ -232,6 +228,49 @@ def _rate_row(p: np.ndarray, alpha: float, aspect: str, test: str) -> dict:
     lo, hi = _clopper_pearson(k, p.size)
     return {"false_alarm_rate": k / p.size, "ci_low": lo, "ci_high": hi, "rejections": k,
             "n_sim": p.size, "aspect": aspect, "test": test}
+
+
+def _checked(table, group, *, model, alpha, n_sim, n_permutations, spread, rarefied):
+    """The table and its group column, or the error that names what is wrong."""
+    if model not in MODELS:
+        raise InputError(f"`model` must be one of {list(MODELS)}; got {model!r}.")
+    if not 0 < alpha < 1:
+        raise InputError(f"`alpha` must be between 0 and 1; got {alpha}.")
+    if n_sim < 1 or n_permutations < 19:
+        raise InputError("`n_sim` must be at least 1 and `n_permutations` at least 19 "
+                         f"(got {n_sim} and {n_permutations}).")
+    for name, flag in (("spread", spread), ("rarefied", rarefied)):
+        if not isinstance(flag, (bool, np.bool_)):
+            raise InputError(f"`{name}` must be True or False; got {flag!r}.")
+    table = as_table(table)
+    if not table.is_integer:
+        raise InputError("the audit simulates counts, so it needs whole-number counts; these "
+                         "data hold fractions (biomass, cover or rarefied values?).",
+                         hint="Run it on the raw counts.")
+    g = table.group(group, min_levels=2)
+    levels = sorted(g.unique())
+    small = [lv for lv in levels if (g == lv).sum() < 2]
+    if small:
+        raise DesignError(f"group(s) {small} of {group!r} have a single sample; the audit "
+                          "needs at least 2 per group.")
+    return table, g
+
+
+def _extra_rows(p: dict, name: str, reference: str, alpha: float, *, spread: bool,
+                rarefied: bool) -> tuple:
+    """(DataFrame of the spread and rarefied rows or None, row label -> p-values)."""
+    rows, extra_p = {}, {}
+    if spread:
+        for key, lab in (("spread_main", f"{name}: spread"),
+                         ("spread_ref", f"{reference}: spread (size-free reference)")):
+            rows[lab] = _rate_row(p[key], alpha, "spread", "dispersion test")
+            extra_p[lab] = readonly(p[key])
+    if rarefied:
+        for key, aspect in (("rare_shape", "shape"), ("rare_spread", "spread")):
+            lab = f"{name}: {aspect}_test, one rarefaction"
+            rows[lab] = _rate_row(p[key], alpha, aspect, f"one rarefaction, {aspect}_test")
+            extra_p[lab] = readonly(p[key])
+    return (pd.DataFrame.from_dict(rows, orient="index") if rows else None), extra_p
 
 
 def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
@@ -281,27 +320,8 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
     The simulated tables treat samples as independent (sampling units are not simulated),
     and so do the audited tests.
     """
-    if model not in MODELS:
-        raise InputError(f"`model` must be one of {list(MODELS)}; got {model!r}.")
-    if not 0 < alpha < 1:
-        raise InputError(f"`alpha` must be between 0 and 1; got {alpha}.")
-    if n_sim < 1 or n_permutations < 19:
-        raise InputError("`n_sim` must be at least 1 and `n_permutations` at least 19 "
-                         f"(got {n_sim} and {n_permutations}).")
-    for name, flag in (("spread", spread), ("rarefied", rarefied)):
-        if not isinstance(flag, (bool, np.bool_)):
-            raise InputError(f"`{name}` must be True or False; got {flag!r}.")
-    table = as_table(table)
-    if not table.is_integer:
-        raise InputError("the audit simulates counts, so it needs whole-number counts; these "
-                         "data hold fractions (biomass, cover or rarefied values?).",
-                         hint="Run it on the raw counts.")
-    g = table.group(group, min_levels=2)
-    levels = sorted(g.unique())
-    small = [lv for lv in levels if (g == lv).sum() < 2]
-    if small:
-        raise DesignError(f"group(s) {small} of {group!r} have a single sample; the audit "
-                          "needs at least 2 per group.")
+    table, g = _checked(table, group, model=model, alpha=alpha, n_sim=n_sim,
+                        n_permutations=n_permutations, spread=spread, rarefied=rarefied)
     from .design import model_matrix
     X = model_matrix(pd.DataFrame({group: g}), [group]).X
     rng = as_rng(rng)
@@ -322,8 +342,7 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
             values, labels, taxa, X, reference, None, n_permutations, rng, groups=by)
         if rarefied:
             p["rare_shape"][s], p["rare_spread"][s] = _rarefied_pvalues(
-                values, labels, taxa, str(group), groups, measure, transform,
-                n_permutations, rng)
+                values, groups, measure, transform, n_permutations, rng)
         if progress is not None:
             progress(s + 1, n_sim)
     p_main, p_ref = p["main"], p["ref"]
@@ -334,18 +353,7 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
     tr = get_transform(transform).name
     tr = None if tr == "none" else tr
     name = measure if tr is None else f"{tr} + {measure}"
-    rows, extra_p = {}, {}
-    if spread:
-        for key, lab in (("spread_main", f"{name}: spread"),
-                         ("spread_ref", f"{reference}: spread (size-free reference)")):
-            rows[lab] = _rate_row(p[key], alpha, "spread", "dispersion test")
-            extra_p[lab] = readonly(p[key])
-    if rarefied:
-        for key, aspect in (("rare_shape", "shape"), ("rare_spread", "spread")):
-            lab = f"{name}: {aspect}_test, one rarefaction"
-            rows[lab] = _rate_row(p[key], alpha, aspect, f"one rarefaction, {aspect}_test")
-            extra_p[lab] = readonly(p[key])
-    extra = pd.DataFrame.from_dict(rows, orient="index") if rows else None
+    extra, extra_p = _extra_rows(p, name, reference, alpha, spread=spread, rarefied=rarefied)
     reading = _reading(name, reference, group, k_main / n_sim, ci_main, k_ref / n_sim, ci_ref,
                        alpha, n_sim)
     reading += _extra_reading(name, reference, extra, alpha)

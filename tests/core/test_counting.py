@@ -8,14 +8,13 @@ import numpy as np
 import pandas as pd
 import pytest
 from scipy import stats
-from scipy.spatial.distance import pdist
 
 import tallyform as tly
 from tallyform.core.counting import shape_test, spread_test
 from tallyform.core.counting_stats import (Embedding, location_statistic, spread_distances,
                                            spread_squared, spread_statistic)
 from tallyform.core.dispersion import centroid_distances_squared
-from tallyform.core.dissimilarity import Dissimilarity, dissimilarity
+from tallyform.core.dissimilarity import dissimilarity
 from tallyform.core.errors import Cancelled, DesignError, InputError
 from tallyform.core.rarefaction import multinomial_noise
 
@@ -85,7 +84,7 @@ def test_spread_distances_levene_and_eigen_free_form():
         stats.f_oneway(expect[:5], expect[5:]).statistic, rel=1e-10)
     # a non-Euclidean measure: principal coordinates with imaginary axes subtracted equal the
     # eigen-free form z^2 = mean_l d_il^2 - sum_lm d_lm^2 / (2 n_g^2) (Anderson 2006)
-    from tallyform.core.counting import embed
+    from tallyform.core.counting_design import embed
     tab = two_groups(5)
     x = tab.values.astype(np.int64)
     emb, _ = embed(x, list(tab.sample_labels), tab.taxon_labels, "bray_curtis", None, {},
@@ -286,6 +285,39 @@ def test_progress_cancel_and_untouched_inputs():
     pd.testing.assert_frame_equal(info, tab.samples)
     with pytest.raises(Cancelled, match="cancelled"):
         shape_test(tab, "g", n_permutations=99, units=False, rng=1, cancel=lambda: True)
+
+
+def test_array_entry_for_simulation_loops_matches_the_public_tests():
+    # the audit's fast entry runs the same draws and permutations as shape_test/spread_test
+    # given the same random streams
+    from tallyform.core.counting import rarefied_pvalues
+    tab = two_groups(18)
+    x = tab.values
+    g = tab.samples["g"].to_numpy()
+    streams = np.random.default_rng(5).spawn(2)
+    ps = rarefied_pvalues(x, g, n_permutations=99, rng=5)
+    assert ps[0] == shape_test(tab, "g", n_permutations=99, units=False, rng=streams[0]).pvalue
+    assert ps[1] == spread_test(tab, "g", n_permutations=99, units=False,
+                                rng=streams[1]).pvalue
+
+
+def test_fast_embedding_agrees_with_dissimilarity():
+    # the per-draw embedding skips the table funnel; it must give the distances
+    # tallyform.dissimilarity gives, for every registered measure it accepts
+    from tallyform.core.counting_design import embed
+    from tallyform.core.measures import MEASURES
+    tab = two_groups(19, sizes=(5, 6))
+    x = tab.values.astype(np.int64)
+    labels = list(tab.sample_labels)
+    for name in MEASURES:
+        for tr in (None, "sqrt"):
+            emb, _ = embed(x, labels, tab.taxon_labels, name, tr, {}, noise=False)
+            f = emb.features
+            s = np.ones(f.shape[1]) if emb.sign is None else emb.sign
+            diff = f[:, None, :] - f[None, :, :]
+            ours = np.sqrt(np.clip(np.einsum("ijk,k->ij", diff ** 2, s), 0, None))
+            ref = dissimilarity(pd.DataFrame(x, index=labels), name, transform=tr).square()
+            np.testing.assert_allclose(ours, ref, atol=1e-7, err_msg=f"{name}, {tr}")
 
 
 def test_figures():

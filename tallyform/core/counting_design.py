@@ -140,11 +140,39 @@ def _group(tab, group, aspect: str) -> pd.Series:
                      name=g.name)
 
 
+def _blocks(tab, blocks) -> tuple[np.ndarray | None, str | None]:
+    """Block label of every sample of the table (a column name, a Series matched by sample
+    label, or a sequence in sample order), and the blocks' name."""
+    if blocks is None:
+        return None, None
+    if isinstance(blocks, str):
+        return tab.group(blocks).to_numpy(), blocks
+    name = str(getattr(blocks, "name", None) or "blocks")
+    if isinstance(blocks, pd.Series):
+        b = blocks.copy()
+        b.index = [str(i) for i in b.index]
+        missing = [s for s in tab.sample_labels if s not in b.index]
+        if missing:
+            raise DesignError(f"`blocks` has no value for sample(s) {missing[:8]}.",
+                              location=Location(column=repr(name)))
+        values = b.loc[list(tab.sample_labels)].to_numpy()
+    else:
+        values = np.asarray(blocks, dtype=object).ravel()
+        if values.size != tab.n_samples:
+            raise InputError(f"`blocks` has {values.size} value(s) for {tab.n_samples} "
+                             "samples.")
+    if pd.isna(values).any():
+        raise DesignError(f"`blocks` has missing values ({int(pd.isna(values).sum())}).",
+                          location=Location(column=repr(name)))
+    return values.astype(str), name
+
+
 def design(tab, group, *, aspect, adjust, depth, units, blocks) -> Design:
     from .units import aggregate_by_unit, resolve_units, unit_blocks
     labels = tab.sample_labels
     g = _group(tab, group, aspect)
     gname = str(g.name)
+    block_values, block_name = _blocks(tab, blocks)
     if adjust == "rarefaction":
         x = whole_counts(tab)
         depth, keep, notes = check_depth(x.sum(axis=1), depth, labels)
@@ -167,18 +195,15 @@ def design(tab, group, *, aspect, adjust, depth, units, blocks) -> Design:
         tab = tab.subset(list(labels[keep]), empty="keep")
         x = x[keep]
         g = g[keep]
+        block_values = None if block_values is None else block_values[keep]
     levels = list(g.cat.categories)
     codes = g.cat.codes.to_numpy().astype(np.intp)
     frame = pd.DataFrame(tab.samples.to_dict("series"), index=tab.sample_labels)
     frame.attrs = {}                       # a reader's line map is not needed (and slow to copy)
     frame[gname] = g.astype(str).to_numpy()
-    block_name = blocks if isinstance(blocks, str) else (
-        None if blocks is None else str(getattr(blocks, "name", None) or "blocks"))
-    block_codes = None
-    if blocks is not None:
-        b = tab.group(blocks) if isinstance(blocks, str) else tab.group(pd.Series(blocks))
-        block_codes = pd.factorize(b.to_numpy())[0]
-    plan = resolve_units(frame, [gname], units, blocks=block_name)
+    block_codes = None if block_values is None else pd.factorize(block_values)[0]
+    plan = resolve_units(frame, [gname], units,
+                         blocks=blocks if isinstance(blocks, str) else None)
     notes += list(plan.notes)
     totals = x.sum(axis=1).astype(np.float64)
     if plan.independent:

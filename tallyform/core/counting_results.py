@@ -57,6 +57,8 @@ class CountingTestResult(ResultMixin):
     scheme : str
     units : str or None
         The sampling-unit column when whole units were compared.
+    df : tuple
+        (groups - 1, replicates - groups): the degrees of freedom of the F statistics.
     left_out : tuple of str
         Samples with fewer individuals than ``depth``.
     reading : str
@@ -84,6 +86,7 @@ class CountingTestResult(ResultMixin):
     exact: bool = False
     scheme: str = ""
     units: str | None = None
+    df: tuple = (0, 0)
     left_out: tuple = ()
     reading: str = ""
     notes: tuple = ()
@@ -128,17 +131,19 @@ class CountingTestResult(ResultMixin):
         return PermutationTest(statistic=self.statistic, pvalue=self.pvalue,
                                null_distribution=self.null_distribution,
                                n_permutations=self.n_permutations, exact=self.exact,
-                               n_distinct=None, scheme=self.scheme, df=(0, 0), ss=(0.0, 0.0),
+                               n_distinct=None, scheme=self.scheme, df=self.df, ss=(0.0, 0.0),
                                path="features", notes=self.notes)
 
     def _as_dispersion(self):
         from .dispersion import DispersionResult
         means = self.summary[["n", "mean_distance"]].copy()
+        on = self.measure if self.depth is None else \
+            f"{self.measure}, rarefied to {self.depth}"
         return DispersionResult(statistic=self.statistic, pvalue=self.pvalue,
-                                distances=self.distances, group_means=means, df=(0, 0),
+                                distances=self.distances, group_means=means, df=self.df,
                                 centre="mean", null_distribution=self.null_distribution,
                                 n_permutations=self.n_permutations, exact=self.exact,
-                                scheme=self.scheme, measure=self.measure, notes=self.notes,
+                                scheme=self.scheme, measure=on, notes=self.notes,
                                 groups=self.groups)
 
 
@@ -200,7 +205,8 @@ def make_result(aspect, des, tab, group, measure, tname, adjust, n_draws, statis
         transform=None if tname == "none" else tname, group=str(group), summary=summary,
         distances=distances, groups=groups, size_ratio=ratio, null_distribution=null,
         n_permutations=int(perms.total), exact=bool(perms.exact), scheme=scheme,
-        units=des.unit_name, left_out=des.left_out, reading=reading,
+        units=des.unit_name, df=(int(ng.size - 1), int(ng.sum() - ng.size)),
+        left_out=des.left_out, reading=reading,
         notes=tuple(dict.fromkeys(notes)),
         provenance={"aspect": aspect, "measure": measure, "transform": tname,
                     "adjust": adjust, "depth": des.depth, "n_draws": n_draws,

@@ -246,6 +246,20 @@ def test_whole_units_are_compared():
         shape_test(tab2, "g", units="tank", rng=1)
 
 
+def test_blocks_restrict_the_relabellings():
+    # 2 blocks of 2 + 2 samples: within-block relabellings only, C(4, 2)^2 = 36 of them
+    # (math.comb), and the group of a block is never moved to the other block
+    tab = two_groups(20, sizes=(4, 4))
+    info = tab.samples.assign(bench=["x", "x", "y", "y", "x", "x", "y", "y"])
+    tab = tly.CommunityTable(tab.counts, info)
+    for blocks in ("bench", info["bench"], list(info["bench"])):
+        res = shape_test(tab, "g", blocks=blocks, n_permutations=999, units=False, rng=1)
+        assert res.exact and res.n_permutations == 36
+        assert "within blocks" in res.scheme
+    with pytest.raises(InputError, match="`blocks` has 3 value"):
+        shape_test(tab, "g", blocks=["x", "y", "x"], units=False)
+
+
 def test_errors_name_the_argument():
     tab = two_groups(15)
     with pytest.raises(InputError, match="`adjust` must be one of"):

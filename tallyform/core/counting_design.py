@@ -176,6 +176,13 @@ def design(tab, group, *, aspect, adjust, depth, units, blocks) -> Design:
     if adjust == "rarefaction":
         x = whole_counts(tab)
         depth, keep, notes = check_depth(x.sum(axis=1), depth, labels)
+        if depth < 2:
+            small = [str(s) for s in labels[x.sum(axis=1) < 2]]
+            raise InputError(f"a rarefaction depth of {depth} individual leaves every sample "
+                             "a single individual, with no composition to compare"
+                             + (f"; sample(s) {small[:8]} hold fewer than 2" if small else "")
+                             + ".", hint="Pass depth=... (at least 2) to leave the smallest "
+                                         "samples out.")
     else:
         if depth is not None:
             raise InputError("`depth` is the rarefaction depth; it has no meaning with "

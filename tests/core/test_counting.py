@@ -263,7 +263,7 @@ def test_blocks_restrict_the_relabellings():
 def test_errors_name_the_argument():
     tab = two_groups(15)
     with pytest.raises(InputError, match="`adjust` must be one of"):
-        shape_test(tab, "g", adjust="rarefy")
+        shape_test(tab, "g", adjust="thin")
     with pytest.raises(InputError, match="`statistic` must be one of"):
         shape_test(tab, "g", statistic="t")
     with pytest.raises(InputError, match="`n_draws` must be a whole number"):
@@ -283,6 +283,12 @@ def test_errors_name_the_argument():
         shape_test(frac, "g")
     assert 0 <= shape_test(frac, "g", adjust="none", n_permutations=19, units=False,
                            rng=1).pvalue <= 1
+    counts = tab.counts.copy()
+    counts.loc["s00"] = 0
+    counts.iloc[0, 0] = 1                                    # one individual in s00
+    one = tly.CommunityTable(counts, tab.samples)
+    with pytest.raises(InputError, match="depth of 1 individual.*'s00'"):
+        spread_test(one, "g", units=False)
     big = int(np.sort(tab.totals)[-2])       # only group b has samples this large
     with pytest.raises(DesignError, match=r"\[.a.\] of .g. keep fewer than 2 samples with"):
         shape_test(tab, "g", depth=big, units=False)

@@ -5,6 +5,7 @@ Run from the repository root:
     python benchmarks/counting.py null  [--reps 400]   # size-only data sets: rejection rates
     python benchmarks/counting.py power [--reps 400]   # real differences: power
     python benchmarks/counting.py speed                # time against PERMANOVA, same run
+    python benchmarks/counting.py stability [--reps 100]  # how much one draw matters
 
 All data are synthetic (benchmarks/calibration_cells/counting.py:size_only_table). Rates are
 shares of data sets with p <= 0.05 (199 permutations each), with 95 % Clopper-Pearson
@@ -195,6 +196,29 @@ def table(designs: dict, reps: int, seed: int, *, ci: bool):
             print(f"  {k:58s} {h / n:6.3f}{extra}", flush=True)
 
 
+def stability(reps: int, seed: int = 99):
+    """How much does the answer depend on the rarefaction draw? Nine draws per data set:
+    the spread (interquartile range) of their p-values, and the share of data sets in which
+    the draws disagree about p <= 0.05."""
+    for name, design in POWER_DESIGNS.items():
+        out = {"shape": [], "spread": []}
+        for i in range(reps):
+            rng = np.random.default_rng([seed, i])
+            tab = size_only_table(rng, **design)
+            for aspect, fn in (("shape", shape_test), ("spread", spread_test)):
+                p = fn(tab, "g", n_draws=9, n_permutations=PERMS, units=False,
+                       rng=rng).draw_pvalues
+                q1, q3 = np.percentile(p, [25, 75])
+                dec = p <= 0.05
+                out[aspect].append((q3 - q1, dec.any() and not dec.all(), dec.mean()))
+        print(f"\n{name}  ({reps} data sets, 9 draws each)")
+        for aspect, rows in out.items():
+            r = np.array(rows, dtype=float)
+            print(f"  {aspect:7s} median IQR of p over draws {np.median(r[:, 0]):.3f}; draws "
+                  f"disagree in {r[:, 1].mean():.2f} of data sets; mean share of draws with "
+                  f"p <= 0.05 (single-draw power) {r[:, 2].mean():.3f}", flush=True)
+
+
 def speed(repeats: int = 3):
     """shape_test and spread_test against PERMANOVA on the same (rarefied) table."""
     from tallyform.core.dissimilarity import dissimilarity
@@ -222,12 +246,15 @@ def speed(repeats: int = 3):
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("what", choices=["null", "power", "speed"])
+    ap.add_argument("what", choices=["null", "power", "speed", "stability"])
     ap.add_argument("--reps", type=int, default=400)
     ap.add_argument("--only", default=None, help="designs whose name contains this")
     args = ap.parse_args(argv)
     if args.what == "speed":
         speed()
+        return 0
+    if args.what == "stability":
+        stability(args.reps)
         return 0
     designs = NULL_DESIGNS if args.what == "null" else POWER_DESIGNS
     if args.only:

@@ -172,7 +172,9 @@ def _method(aspect, measure, tname, adjust, depth, n_draws, statistic, corrected
 
 
 def make_result(aspect, des, tab, group, measure, tname, adjust, n_draws, statistic,
-            noise_correction, alpha, pvals, pvalue, observed, null, emb, ng, perms, mnotes):
+                noise_correction, alpha, pvals, pvalue, observed, null, emb, ng, perms,
+                mnotes) -> CountingTestResult:
+    """The result object, its notes and its reading, from one finished run."""
     codes, levels = des.codes, des.levels
     logt = np.log(np.maximum(des.totals, 1e-300))
     gm = np.array([np.exp(logt[codes == k].mean()) for k in range(len(levels))])

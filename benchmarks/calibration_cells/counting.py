@@ -29,11 +29,24 @@ def size_only_table(rng, generator="lognormal", sizes=(10, 10), totals=(50, 500)
     ``group_kw``: per-group options of the generator (e.g. ``({"sd": 0.5}, {"sd": 0.8})``
     for a real difference in spread); ``shift``: factor applied in group 'b' to 5 of the
     taxa (a real difference in composition); ``units``: samples per unit (tanks), with a
-    unit effect of log-normal sd 0.3 on every taxon.
+    unit effect of log-normal sd 0.3 on every taxon. Without these, every sample is drawn
+    in one call of the generator, so all samples follow one law (the groups differ in their
+    totals only). The mixture generator draws its second state per call, so it is used
+    without ``group_kw``, ``shift`` or ``units``.
     """
+    if generator == "mixture" and not (group_kw is None and shift is None and units is None):
+        raise ValueError("the mixture generator draws its states per call; use it for "
+                         "size-only designs (no group_kw, shift or units).")
     base = base_profile(p, rng)
     parts = []
-    for k, (n, tot) in enumerate(zip(sizes, totals)):
+    if group_kw is None and shift is None and units is None:
+        # one call: every sample from the same law (the mixture's second state, for one, is
+        # drawn once per call)
+        parts.append(counts_from(generator, np.repeat(totals, sizes), base, rng))
+        sizes_iter = []
+    else:
+        sizes_iter = list(zip(sizes, totals))
+    for k, (n, tot) in enumerate(sizes_iter):
         b = base.copy()
         if shift is not None and k == 1:
             b[np.arange(5, p, p // 5)[:5]] *= shift

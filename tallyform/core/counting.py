@@ -14,18 +14,29 @@ Why. A profile drawn from N individuals carries counting noise of variance about
 per taxon, so a group of small samples looks more spread out than a group of large samples
 of the same communities (Warton, Wright & Wang 2012), and a transform that is not linear in
 the proportions (Hellinger's square root, log-ratios after zero replacement) also moves the
-group centroids (Jensen's inequality). Measured (benchmarks/counting.py, docs/calibration.md):
-the unadjusted spread test rejects 30-100 % of size-only data sets at a 4- to 10-fold ratio of
-totals, the unadjusted Hellinger shape test up to 80 %.
+group centroids (Jensen's inequality). Measured on size-only data sets (docs/calibration.md,
+10 + 10 or 6 + 14 samples, four laws of biology): the unadjusted spread test rejects 34-100 %
+at 4- to 10-fold ratios of totals (chi-square and Hellinger), the unadjusted Hellinger shape
+test up to 83 %, the unadjusted chi-square shape test up to 13.5 %; the rarefied tests
+3.9-6.8 % in all 63 single-draw cells (Rueger's combination of 5 draws: 1.8-2.0 %).
+
+Stability and power (benchmarks/counting.py). One draw decides: with 4-fold totals, nine
+draws of the same data set disagree about p <= 0.05 in 15-52 % of data sets where power is
+moderate. Rueger's combination of K draws removes that dependence but costs power (shape,
+5 of 40 taxa doubled at 4-fold totals: 0.37 with one draw, 0.28 with 5, 0.20 with 9), so it
+is an option (``n_draws``), not the default. Removing the counting noise left at the common
+depth (chi-square spread) is free of any validity cost and adds 7-9 points of power when
+totals differ.
 
 What was tried and left out (measured, see benchmarks/counting.py): tests keeping every
 individual - a Welch-type statistic on the full profiles, and the noise-corrected spread
-statistic with a studentised permutation or a Welch t reference - reject 8-19 % of
-size-only data sets in some designs with 6-14 samples per group (Dirichlet-multinomial and
-gamma-Poisson biology, unbalanced groups), so they are not offered. Chi-square column masses
+statistic with a studentised permutation or a Welch t reference - reject up to 11.5 %
+(shape) and 9.5-14.5 % (spread) of size-only data sets in designs with 6-14 samples per
+group (log-normal, Dirichlet-multinomial and gamma-Poisson biology, unbalanced groups), so
+they are not offered, although they had 3-11 points more power. Chi-square column masses
 pooled over samples of unequal totals are set by the large samples and inflate even the
-balanced shape test (18 % at 500 vs 5000 individuals); after rarefaction all samples weigh
-alike.
+balanced shape test (13.5 % at 500 vs 5000 individuals, Dirichlet-multinomial); after
+rarefaction all samples weigh alike.
 """
 from __future__ import annotations
 

@@ -215,7 +215,7 @@ def design(tab, group, *, aspect, adjust, depth, units, blocks) -> Design:
     totals = x.sum(axis=1).astype(np.float64)
     if plan.independent:
         return Design(x, codes, levels, [str(s) for s in tab.sample_labels], totals, None,
-                       None, block_codes, block_name, gname, depth, left_out, tuple(notes))
+                      None, block_codes, block_name, gname, depth, left_out, tuple(notes))
     lv = plan.level_of(gname)
     if lv is None:
         raise DesignError(
@@ -237,7 +237,7 @@ def design(tab, group, *, aspect, adjust, depth, units, blocks) -> Design:
                      "samples average more communities, so whole units are exchangeable "
                      "under the null only when every unit holds the same number of samples.")
     return Design(x, ug, levels, list(lv.labels), utot, ucodes, lv.name, ub, block_name,
-                   gname, depth, left_out, tuple(notes))
+                  gname, depth, left_out, tuple(notes))
 
 
 def draw(des: Design, rng) -> np.ndarray:

@@ -176,6 +176,10 @@ POWER_DESIGNS = {
     "spread differs, Dirichlet-mult. icc 0.03 vs 0.08, 200/200":
         dict(generator="dirichlet", totals=(200, 200),
              group_kw=({"icc": 0.03}, {"icc": 0.08})),
+    "centroids equal, spreads differ, unbalanced: Dirichlet-mult. icc 0.10 in 6 vs 0.02 in 14"
+    " (200/200; a location test should stay near 0.05)":
+        dict(generator="dirichlet", sizes=(6, 14), totals=(200, 200),
+             group_kw=({"icc": 0.10}, {"icc": 0.02})),
     "5 of 40 taxa x 2, equal totals (200/200)":
         dict(generator="lognormal", totals=(200, 200), shift=2.0),
     "5 of 40 taxa x 2, 4x totals (100/400)":

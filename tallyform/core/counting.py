@@ -32,10 +32,10 @@ power for shifted taxa: with equal centroids and unequal spreads in unbalanced g
 
 What was tried and left out (measured, see benchmarks/counting.py): tests keeping every
 individual - a Welch-type statistic on the full profiles, and the noise-corrected spread
-statistic with a studentised permutation or a Welch t reference - reject up to 11.5 %
-(shape) and 9.5-14.5 % (spread) of size-only data sets in designs with 6-14 samples per
-group (log-normal, Dirichlet-multinomial and gamma-Poisson biology, unbalanced groups), so
-they are not offered, although they had 3-11 points more power. Chi-square column masses
+statistic with a studentised permutation or a Welch t reference - reject up to 11 %
+(shape) and 9-13 % (spread) of size-only data sets in designs with 6-14 samples per group
+(log-normal, Dirichlet-multinomial and gamma-Poisson biology, unbalanced groups; 200 data
+sets each), so they are not offered, although they had 0-11 points more power. Chi-square column masses
 pooled over samples of unequal totals are set by the large samples and inflate even the
 balanced shape test (13.5 % at 500 vs 5000 individuals, Dirichlet-multinomial); after
 rarefaction all samples weigh alike.

@@ -196,9 +196,9 @@ def _clopper_pearson(k: int, n: int, level: float = 0.95) -> tuple[float, float]
 
 
 def _group_test_pvalue(values, labels, taxa, groups_X, measure, transform, n_permutations,
-                       rng, *, groups=None) -> tuple[float, float]:
+                       rng, *, groups=None, spread_rng=None) -> tuple[float, float]:
     """PERMANOVA p-value of the groups, and (when ``groups`` is given) the dispersion test's
-    p-value on the same dissimilarity (NaN otherwise)."""
+    p-value on the same dissimilarity (NaN otherwise), drawn from ``spread_rng``."""
     from .dispersion import dispersion_test
     from .dissimilarity import dissimilarity
     from .permutation import permutation_f_test
@@ -210,7 +210,7 @@ def _group_test_pvalue(values, labels, taxa, groups_X, measure, transform, n_per
     spread = float("nan")
     if groups is not None:
         spread = float(dispersion_test(d, list(groups), n_permutations=n_permutations,
-                                       rng=rng).pvalue)
+                                       rng=spread_rng).pvalue)
     return float(res.pvalue), spread
 
 
@@ -325,6 +325,9 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
     from .design import model_matrix
     X = model_matrix(pd.DataFrame({group: g}), [group]).X
     rng = as_rng(rng)
+    # the spread and rarefied rows draw from their own stream, so the PERMANOVA rows are the
+    # same with and without them (spawning does not advance the parent stream)
+    extra_rng = rng.spawn(1)[0]
     groups = g.to_numpy()
     rho = estimate_overdispersion(table.values, groups) if model != "multinomial" else 0.0
     labels = np.asarray(table.sample_labels, dtype=object)
@@ -337,12 +340,14 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
             raise Cancelled("the audit was cancelled; no result was kept.")
         by = groups if spread else None
         p["main"][s], p["spread_main"][s] = _group_test_pvalue(
-            values, labels, taxa, X, measure, transform, n_permutations, rng, groups=by)
+            values, labels, taxa, X, measure, transform, n_permutations, rng, groups=by,
+            spread_rng=extra_rng)
         p["ref"][s], p["spread_ref"][s] = _group_test_pvalue(
-            values, labels, taxa, X, reference, None, n_permutations, rng, groups=by)
+            values, labels, taxa, X, reference, None, n_permutations, rng, groups=by,
+            spread_rng=extra_rng)
         if rarefied:
             p["rare_shape"][s], p["rare_spread"][s] = _rarefied_pvalues(
-                values, groups, measure, transform, n_permutations, rng)
+                values, groups, measure, transform, n_permutations, extra_rng)
         if progress is not None:
             progress(s + 1, n_sim)
     p_main, p_ref = p["main"], p["ref"]

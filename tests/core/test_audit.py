@@ -59,6 +59,12 @@ def test_size_free_reference_keeps_its_level_and_bray_curtis_does_not():
     f = a.to_frame()
     assert list(f.columns[:3]) == ["false_alarm_rate", "ci_low", "ci_high"]
     assert len(f) == 2 and a.spread_rate is None and a.rarefied_rates == {}
+    # the extra rows draw from their own stream: the PERMANOVA rows do not change with them
+    b = tly.audit(tab, "grp", "bray_curtis", n_sim=10, n_permutations=99, rng=5)
+    c = tly.audit(tab, "grp", "bray_curtis", n_sim=10, n_permutations=99, rng=5,
+                  spread=False, rarefied=False)
+    np.testing.assert_array_equal(b.pvalues, c.pvalues)
+    np.testing.assert_array_equal(b.reference_pvalues, c.reference_pvalues)
 
 
 def test_spread_rows_fire_on_size_alone_and_rarefied_rows_do_not():

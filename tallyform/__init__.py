@@ -28,6 +28,8 @@ from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
 from .core.measures import MEASURES, Measure, get_measure
 from .core.memory import memory_limit, set_memory_limit
 from .core.comparison import compare_groups
+from .core.counting import CountingTestResult, shape_test, spread_test
+from .core.rarefaction import rarefied_table
 from .core.size_tests import size_test
 from .core.table import CommunityTable
 from .core.transforms import (TRANSFORMS, Chord, Clr, Hellinger, Identity, Log1p, Power,
@@ -65,3 +67,4 @@ __all__ = [
     "taxon_contributions", "TaxonContributions", "explore", "report", "write_outputs",
     "set_memory_limit", "memory_limit",
 ]
+__all__ += ["shape_test", "spread_test", "CountingTestResult", "rarefied_table"]

@@ -5,6 +5,11 @@ in the data) and draw every sample's counts around one pooled profile (so compos
 same in every group by construction). The chosen test (PERMANOVA of the group with the chosen
 transform and measure) is run on each; the share of rejections at ``alpha`` is the false-alarm
 rate for "composition differs". The same is done with a size-free reference measure.
+
+Spread rows: on the same tables, the dispersion test (Anderson 2006) with the chosen measure
+and with the reference ("how often would the spread test fire on a pure size difference?"),
+and the tests that rarefaction protects (:func:`tallyform.core.counting.shape_test` and
+:func:`tallyform.core.counting.spread_test`, one rarefaction to the smallest total).
 """
 from __future__ import annotations
 
@@ -94,6 +99,13 @@ class AuditResult(ResultMixin):
         The same for the size-free reference measure.
     pvalues, reference_pvalues : ndarray
         p-value of every simulated data set.
+    extra : DataFrame
+        Further rows on the same simulated tables (columns as :meth:`to_frame`): the
+        dispersion test with the measure and with the reference, and ``shape_test`` /
+        ``spread_test`` after one rarefaction (see :func:`audit`'s ``spread`` and
+        ``rarefied``).
+    extra_pvalues : dict
+        Row label -> p-value of every simulated data set, for the rows of ``extra``.
     reading : str
         The outcome in plain words.
     """
@@ -118,17 +130,46 @@ class AuditResult(ResultMixin):
     reading: str = ""
     notes: tuple = ()
     provenance: dict = field(default_factory=dict)
+    extra: pd.DataFrame | None = field(default=None, repr=False)
+    extra_pvalues: dict = field(default_factory=dict, repr=False)
 
     def to_frame(self) -> pd.DataFrame:
+        """One row per audited test: the PERMANOVA rows first (measure, reference), then the
+        rows of ``extra``; columns ``false_alarm_rate``, ``ci_low``, ``ci_high``,
+        ``rejections``, ``n_sim``, ``aspect`` ('shape' or 'spread') and ``test``."""
         label = self.measure if not self.transform else f"{self.transform} + {self.measure}"
-        return pd.DataFrame(
+        out = pd.DataFrame(
             {"false_alarm_rate": [self.rate, self.reference_rate],
              "ci_low": [self.ci[0], self.reference_ci[0]],
              "ci_high": [self.ci[1], self.reference_ci[1]],
              "rejections": [self.rejections, self.reference_rejections],
-             "n_sim": [self.n_sim, self.n_sim]},
+             "n_sim": [self.n_sim, self.n_sim],
+             "aspect": ["shape", "shape"], "test": ["PERMANOVA", "PERMANOVA"]},
             index=pd.Index([label, f"{self.reference} (size-free reference)"],
                            name="measure"))
+        if self.extra is not None and len(self.extra):
+            out = pd.concat([out, self.extra])
+            out.index.name = "measure"
+        return out
+
+    def _row(self, aspect: str, test: str):
+        f = self.to_frame()
+        hit = f[(f["aspect"] == aspect) & (f["test"] == test)]
+        return None if hit.empty else hit.iloc[0]
+
+    @property
+    def spread_rate(self) -> float | None:
+        """False-alarm rate of the dispersion test with the audited measure (None if not run)."""
+        r = self._row("spread", "dispersion test")
+        return None if r is None else float(r["false_alarm_rate"])
+
+    @property
+    def rarefied_rates(self) -> dict:
+        """{'shape': rate, 'spread': rate} of shape_test / spread_test after one rarefaction
+        (empty if not run)."""
+        f = self.to_frame()
+        hit = f[f["test"].str.startswith("one rarefaction")]
+        return {a: float(r) for a, r in zip(hit["aspect"], hit["false_alarm_rate"])}
 
     def figure(self, **kwargs):
         """The two false-alarm rates with their intervals and a line at alpha
@@ -157,7 +198,10 @@ def _clopper_pearson(k: int, n: int, level: float = 0.95) -> tuple[float, float]
 
 
 def _group_test_pvalue(values, labels, taxa, groups_X, measure, transform, n_permutations,
-                       rng) -> float:
+                       rng, *, groups=None, spread_rng=None) -> tuple[float, float]:
+    """PERMANOVA p-value of the groups, and (when ``groups`` is given) the dispersion test's
+    p-value on the same dissimilarity (NaN otherwise), drawn from ``spread_rng``."""
+    from .dispersion import dispersion_test
     from .dissimilarity import dissimilarity
     from .permutation import permutation_f_test
     keep = values.sum(axis=0) > 0
@@ -165,13 +209,77 @@ def _group_test_pvalue(values, labels, taxa, groups_X, measure, transform, n_per
     d = dissimilarity(frame, measure, transform=transform)
     res = permutation_f_test(d, groups_X, np.ones((len(labels), 1)),
                              n_permutations=n_permutations, rng=rng)
-    return float(res.pvalue)
+    spread = float("nan")
+    if groups is not None:
+        spread = float(dispersion_test(d, list(groups), n_permutations=n_permutations,
+                                       rng=spread_rng).pvalue)
+    return float(res.pvalue), spread
+
+
+def _rarefied_pvalues(values, groups, measure, transform, n_permutations,
+                      rng) -> tuple[float, float]:
+    """shape_test and spread_test p-values (one rarefaction, samples as independent)."""
+    from .counting import rarefied_pvalues
+    keep = values.sum(axis=0) > 0
+    return rarefied_pvalues(values[:, keep], groups, measure=measure, transform=transform,
+                            n_permutations=n_permutations, rng=rng)
+
+
+def _rate_row(p: np.ndarray, alpha: float, aspect: str, test: str) -> dict:
+    k = int(np.sum(p <= alpha))
+    lo, hi = _clopper_pearson(k, p.size)
+    return {"false_alarm_rate": k / p.size, "ci_low": lo, "ci_high": hi, "rejections": k,
+            "n_sim": p.size, "aspect": aspect, "test": test}
+
+
+def _checked(table, group, *, model, alpha, n_sim, n_permutations, spread, rarefied):
+    """The table and its group column, or the error that names what is wrong."""
+    if model not in MODELS:
+        raise InputError(f"`model` must be one of {list(MODELS)}; got {model!r}.")
+    if not 0 < alpha < 1:
+        raise InputError(f"`alpha` must be between 0 and 1; got {alpha}.")
+    if n_sim < 1 or n_permutations < 19:
+        raise InputError("`n_sim` must be at least 1 and `n_permutations` at least 19 "
+                         f"(got {n_sim} and {n_permutations}).")
+    for name, flag in (("spread", spread), ("rarefied", rarefied)):
+        if not isinstance(flag, (bool, np.bool_)):
+            raise InputError(f"`{name}` must be True or False; got {flag!r}.")
+    table = as_table(table)
+    require_absolute(table, "the audit (it keeps every sample's total)")
+    if not np.all(counting_basis(table)[0] % 1 == 0):
+        raise InputError("the audit simulates counts, so it needs whole-number counts; these "
+                         "data hold fractions (biomass, cover or rarefied values?).",
+                         hint="Run it on the raw counts.")
+    g = table.group(group, min_levels=2)
+    levels = sorted(g.unique())
+    small = [lv for lv in levels if (g == lv).sum() < 2]
+    if small:
+        raise DesignError(f"group(s) {small} of {group!r} have a single sample; the audit "
+                          "needs at least 2 per group.")
+    return table, g
+
+
+def _extra_rows(p: dict, name: str, reference: str, alpha: float, *, spread: bool,
+                rarefied: bool) -> tuple:
+    """(DataFrame of the spread and rarefied rows or None, row label -> p-values)."""
+    rows, extra_p = {}, {}
+    if spread:
+        for key, lab in (("spread_main", f"{name}: spread"),
+                         ("spread_ref", f"{reference}: spread (size-free reference)")):
+            rows[lab] = _rate_row(p[key], alpha, "spread", "dispersion test")
+            extra_p[lab] = readonly(p[key])
+    if rarefied:
+        for key, aspect in (("rare_shape", "shape"), ("rare_spread", "spread")):
+            lab = f"{name}: {aspect}_test, one rarefaction"
+            rows[lab] = _rate_row(p[key], alpha, aspect, f"one rarefaction, {aspect}_test")
+            extra_p[lab] = readonly(p[key])
+    return (pd.DataFrame.from_dict(rows, orient="index") if rows else None), extra_p
 
 
 def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
           reference: str = "chi_square", n_sim: int = 200, n_permutations: int = 199,
-          model: str = "dirichlet_multinomial", alpha: float = 0.05, rng=None,
-          progress=None, cancel=None) -> AuditResult:
+          model: str = "dirichlet_multinomial", alpha: float = 0.05, spread: bool = True,
+          rarefied: bool = True, rng=None, progress=None, cancel=None) -> AuditResult:
     """How often would PERMANOVA with ``measure`` call a pure size difference compositional?
 
     Parameters
@@ -189,57 +297,64 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
     n_sim : int, default 200
         Simulated tables.
     n_permutations : int, default 199
-        Permutations per PERMANOVA.
+        Permutations per test.
     model : {'dirichlet_multinomial', 'multinomial'}
         Sampling model around the pooled profile; the Dirichlet-multinomial's intra-class
         correlation is estimated from the data within groups (:func:`estimate_overdispersion`).
     alpha : float, default 0.05
+    spread : bool, default True
+        Also audit the dispersion test (Anderson 2006) with ``measure`` and with
+        ``reference``: how often would the spread test fire on a pure size difference?
+    rarefied : bool, default True
+        Also audit :func:`tallyform.core.counting.shape_test` and
+        :func:`tallyform.core.counting.spread_test` with ``measure`` (their defaults: one
+        rarefaction to the smallest total), which a size difference cannot fool.
     rng : None, int or numpy.random.Generator
+    progress, cancel : callables, optional
 
     Returns
     -------
     AuditResult
-        Rates with 95 % Clopper-Pearson (1934) intervals and a plain-language reading.
+        Rates with 95 % Clopper-Pearson (1934) intervals and a plain-language reading; the
+        spread and rarefied rows are in ``extra`` (and in :meth:`AuditResult.to_frame`).
+
+    Notes
+    -----
+    The simulated tables treat samples as independent (sampling units are not simulated),
+    and so do the audited tests.
     """
-    if model not in MODELS:
-        raise InputError(f"`model` must be one of {list(MODELS)}; got {model!r}.")
-    if not 0 < alpha < 1:
-        raise InputError(f"`alpha` must be between 0 and 1; got {alpha}.")
-    if n_sim < 1 or n_permutations < 19:
-        raise InputError("`n_sim` must be at least 1 and `n_permutations` at least 19 "
-                         f"(got {n_sim} and {n_permutations}).")
-    table = as_table(table)
-    require_absolute(table, "the audit (it keeps every sample's total)")
-    if not np.all(counting_basis(table)[0] % 1 == 0):
-        raise InputError("the audit simulates counts, so it needs whole-number counts; these "
-                         "data hold fractions (biomass, cover or rarefied values?).",
-                         hint="Run it on the raw counts.")
-    g = table.group(group, min_levels=2)
-    levels = sorted(g.unique())
-    small = [lv for lv in levels if (g == lv).sum() < 2]
-    if small:
-        raise DesignError(f"group(s) {small} of {group!r} have a single sample; the audit "
-                          "needs at least 2 per group.")
+    table, g = _checked(table, group, model=model, alpha=alpha, n_sim=n_sim,
+                        n_permutations=n_permutations, spread=spread, rarefied=rarefied)
     from .design import model_matrix
     X = model_matrix(pd.DataFrame({group: g}), [group]).X
     rng = as_rng(rng)
+    # the spread and rarefied rows draw from their own stream, so the PERMANOVA rows are the
+    # same with and without them (spawning does not advance the parent stream)
+    extra_rng = rng.spawn(1)[0]
     groups = g.to_numpy()
     rho = (estimate_overdispersion(counting_basis(table)[0], groups)
            if model != "multinomial" else 0.0)
     labels = np.asarray(table.sample_labels, dtype=object)
     taxa = np.asarray(table.taxon_labels, dtype=object)
-    p_main = np.empty(n_sim)
-    p_ref = np.empty(n_sim)
+    p = {k: np.full(n_sim, np.nan) for k in ("main", "ref", "spread_main", "spread_ref",
+                                             "rare_shape", "rare_spread")}
     sims = null_shape_tables(table, n_sim, model=model, rho=rho, rng=rng)
     for s, values in enumerate(sims):
         if cancel is not None and cancel():
             raise Cancelled("the audit was cancelled; no result was kept.")
-        p_main[s] = _group_test_pvalue(values, labels, taxa, X, measure, transform,
-                                       n_permutations, rng)
-        p_ref[s] = _group_test_pvalue(values, labels, taxa, X, reference, None,
-                                      n_permutations, rng)
+        by = groups if spread else None
+        p["main"][s], p["spread_main"][s] = _group_test_pvalue(
+            values, labels, taxa, X, measure, transform, n_permutations, rng, groups=by,
+            spread_rng=extra_rng)
+        p["ref"][s], p["spread_ref"][s] = _group_test_pvalue(
+            values, labels, taxa, X, reference, None, n_permutations, rng, groups=by,
+            spread_rng=extra_rng)
+        if rarefied:
+            p["rare_shape"][s], p["rare_spread"][s] = _rarefied_pvalues(
+                values, groups, measure, transform, n_permutations, extra_rng)
         if progress is not None:
             progress(s + 1, n_sim)
+    p_main, p_ref = p["main"], p["ref"]
     # a p-value exactly at alpha is a rejection (p <= alpha), the usual convention
     k_main, k_ref = int(np.sum(p_main <= alpha)), int(np.sum(p_ref <= alpha))
     ci_main, ci_ref = _clopper_pearson(k_main, n_sim), _clopper_pearson(k_ref, n_sim)
@@ -247,8 +362,10 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
     tr = get_transform(transform).name
     tr = None if tr == "none" else tr
     name = measure if tr is None else f"{tr} + {measure}"
+    extra, extra_p = _extra_rows(p, name, reference, alpha, spread=spread, rarefied=rarefied)
     reading = _reading(name, reference, group, k_main / n_sim, ci_main, k_ref / n_sim, ci_ref,
                        alpha, n_sim)
+    reading += _extra_reading(name, reference, extra, alpha)
     notes = []
     if model == "dirichlet_multinomial":
         notes.append(f"Simulated counts are Dirichlet-multinomial around the pooled profile "
@@ -263,7 +380,35 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
         reference_pvalues=readonly(p_ref), reading=reading, notes=tuple(notes),
         provenance={"measure": measure, "transform": tr, "reference": reference,
                     "group": group, "n_sim": n_sim, "n_permutations": n_permutations,
-                    "model": model, "alpha": alpha, "table": table.fingerprint})
+                    "model": model, "alpha": alpha, "spread": spread, "rarefied": rarefied,
+                    "table": table.fingerprint},
+        extra=extra, extra_pvalues=extra_p)
+
+
+def _extra_reading(name, reference, extra, alpha) -> str:
+    """Sentences for the spread and rarefied rows."""
+    if extra is None or not len(extra):
+        return ""
+    pct = lambda v: f"{100 * v:.0f} %"                                       # noqa: E731
+    out = []
+    disp = extra[extra["test"] == "dispersion test"]
+    if len(disp):
+        parts = [f"{lab.split(':')[0]} {pct(r.false_alarm_rate)} ({pct(r.ci_low)}-"
+                 f"{pct(r.ci_high)})" for lab, r in disp.iterrows()]
+        text = ("The dispersion test (spread) fired on these size-only data sets with "
+                + " and with ".join(parts) + ".")
+        if any(_verdict(r.false_alarm_rate, (r.ci_low, r.ci_high), alpha) == "inflated"
+               for _, r in disp.iterrows()):
+            text += (" Samples with smaller totals carry more counting noise, so a spread "
+                     "difference found on these data may be a size difference.")
+        out.append(text)
+    rare = extra[extra["test"].str.startswith("one rarefaction")]
+    if len(rare):
+        parts = [f"{r.aspect} {pct(r.false_alarm_rate)} ({pct(r.ci_low)}-{pct(r.ci_high)})"
+                 for _, r in rare.iterrows()]
+        out.append(f"After one rarefaction of every sample to the smallest total "
+                   f"(shape_test / spread_test with {name}): " + ", ".join(parts) + ".")
+    return " " + " ".join(out)
 
 
 def _verdict(rate, ci, alpha) -> str:

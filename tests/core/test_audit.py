@@ -48,7 +48,8 @@ def test_size_free_reference_keeps_its_level_and_bray_curtis_does_not():
                                  size_effects={"grp": {"high": 4.0}}, profile_noise=0.01,
                                  rng=11)
     n_sim = 100
-    a = tly.audit(tab, "grp", "bray_curtis", n_sim=n_sim, n_permutations=99, rng=5)
+    a = tly.audit(tab, "grp", "bray_curtis", n_sim=n_sim, n_permutations=99, rng=5,
+                  spread=False, rarefied=False)
     # binomial band (two-sided 99 %) around the nominal 5 % for 100 simulations
     upper = binom.ppf(0.995, n_sim, 0.05) / n_sim
     assert a.reference_rate <= upper
@@ -57,6 +58,40 @@ def test_size_free_reference_keeps_its_level_and_bray_curtis_does_not():
     assert a.ci[0] <= a.rate <= a.ci[1]
     f = a.to_frame()
     assert list(f.columns[:3]) == ["false_alarm_rate", "ci_low", "ci_high"]
+    assert len(f) == 2 and a.spread_rate is None and a.rarefied_rates == {}
+    # the extra rows draw from their own stream: the PERMANOVA rows do not change with them
+    b = tly.audit(tab, "grp", "bray_curtis", n_sim=10, n_permutations=99, rng=5)
+    c = tly.audit(tab, "grp", "bray_curtis", n_sim=10, n_permutations=99, rng=5,
+                  spread=False, rarefied=False)
+    np.testing.assert_array_equal(b.pvalues, c.pvalues)
+    np.testing.assert_array_equal(b.reference_pvalues, c.reference_pvalues)
+
+
+def test_spread_rows_fire_on_size_alone_and_rarefied_rows_do_not():
+    # size-only simulation (4-fold totals): the dispersion test reads the extra counting noise
+    # of the small samples as spread, even with the size-free chi-square distance; the tests
+    # after one rarefaction keep their level (binomial band, two-sided 99 %, around 5 %)
+    design = pd.DataFrame({"grp": np.repeat(["low", "high"], 12)},
+                          index=[f"s{i:02d}" for i in range(24)])
+    tab = tly.simulate_community(design, n_taxa=25, mean_total=300,
+                                 size_effects={"grp": {"high": 4.0}}, profile_noise=0.01,
+                                 rng=11)
+    n_sim = 60
+    a = tly.audit(tab, "grp", "bray_curtis", n_sim=n_sim, n_permutations=99, rng=5)
+    upper = binom.ppf(0.995, n_sim, 0.05) / n_sim
+    f = a.to_frame()
+    assert list(f["aspect"]) == ["shape", "shape", "spread", "spread", "shape", "spread"]
+    spread_ref = f.loc["chi_square: spread (size-free reference)", "false_alarm_rate"]
+    assert spread_ref > upper
+    assert a.spread_rate == f.iloc[2]["false_alarm_rate"]
+    assert set(a.rarefied_rates) == {"shape", "spread"}
+    assert max(a.rarefied_rates.values()) <= upper
+    for label, p in a.extra_pvalues.items():
+        k = int(np.sum(p <= a.alpha))
+        assert f.loc[label, "rejections"] == k and p.size == n_sim
+    assert "dispersion test (spread) fired" in a.reading
+    assert "After one rarefaction" in a.reading
+    assert a.figure() is not None                        # the figure still draws
 
 
 def test_mesocosm_bray_curtis_is_reported():

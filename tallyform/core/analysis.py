@@ -81,8 +81,8 @@ class AnalysisResults:
             if self.comparison.size is not None:
                 out["size_test"] = self.comparison.size.to_frame()
             out["shape_test"] = self.comparison.shape.to_frame()
-            if self.comparison.welch is not None:
-                out["shape_test_welch"] = self.comparison.welch.to_frame()
+            if self.comparison.permanova is not None:
+                out["shape_permanova"] = self.comparison.permanova.to_frame()
             out["dispersion_test"] = self.comparison.dispersion.to_frame()
         if self.permanova is not None:
             out["permanova"] = self.permanova.to_frame()

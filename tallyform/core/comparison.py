@@ -36,17 +36,22 @@ class ComparisonResult(ResultMixin):
     size : SizeTestResult or None
         Test of log totals (per effort) on the units the groups were applied to; None for
         relative data without loads (``size_skipped`` says why).
-    shape : PermanovaResult
-        PERMANOVA with a size-free measure.
-    welch : WelchResult
-        The Welch-type location test with the same measure: do the centroids differ when
-        each group may have its own spread?
-    dispersion : DispersionResult
-        Dispersion test with the same measure.
+    shape : CountingTestResult or WelchResult
+        The location test of composition read in ``reading``: the Welch-type statistic
+        (each group weighted by its own spread) after every sample is rarefied to a common
+        depth (:func:`tallyform.core.counting.shape_test`), so neither unequal spreads nor
+        unequal totals make it significant; for non-count data (biomass, cover, a ready
+        Dissimilarity) :func:`welch_permanova` on the data as they are.
+    dispersion : CountingTestResult or DispersionResult
+        The spread test, rarefied likewise with the counting noise left at the common depth
+        removed (:func:`tallyform.core.counting.spread_test`), or the dispersion test.
+    permanova : PermanovaResult
+        PERMANOVA of the same measure on all individuals, for reference (it responds to
+        unequal spread and, when totals differ, to counting noise).
     reading : str
         One paragraph saying what the tests together do and do not show.
     statistic, pvalue : Series
-        Indexed ``size``, ``shape``, ``welch``, ``spread`` (size NaN when skipped).
+        Indexed ``size``, ``shape``, ``spread``, ``permanova`` (size NaN when skipped).
     group : str
     measure : str
         The shape measure.
@@ -57,6 +62,8 @@ class ComparisonResult(ResultMixin):
         each"), or "samples".
     n_replicates : int
         The number of independent replicates (units, or samples).
+    depth : int or None
+        The common number of individuals every sample was rarefied to (None: no rarefaction).
     size_skipped : str or None
         Why size was not tested.
     notes : tuple of str
@@ -72,18 +79,26 @@ class ComparisonResult(ResultMixin):
     measure: str
     alpha: float = 0.05
     notes: tuple = ()
-    welch: object = None
+    permanova: object = None
     units: str = "samples"
     n_replicates: int = 0
+    depth: int | None = None
     size_skipped: str | None = None
+
+    @property
+    def welch(self):
+        """The Welch-type location test (the shape test itself)."""
+        return self.shape
 
     def to_frame(self) -> pd.DataFrame:
         size_name = ("size: not tested" if self.size is None
                      else f"size: {self.size.method} on {self.size.measure}")
+        rare = (f", after rarefaction to {self.depth} individuals" if self.depth is not None
+                else "")
         tests = [size_name,
-                 f"shape: PERMANOVA on {self.measure}",
-                 f"shape, unequal spreads allowed: Welch-type test on {self.measure}",
-                 f"spread: dispersion test on {self.measure}"]
+                 f"shape: Welch-type test on {self.measure}{rare}",
+                 f"spread: dispersion test on {self.measure}{rare}",
+                 f"reference: PERMANOVA on {self.measure}, all individuals"]
         p = self.pvalue.to_numpy(dtype=float)
         detected = np.where(np.isfinite(p), p <= self.alpha, False)
         return pd.DataFrame({"test": tests, "statistic": self.statistic.to_numpy(),
@@ -146,62 +161,62 @@ def _size_sentence(size, group: str, alpha: float, skipped: str | None) -> str:
 
 
 def reading_text(size, shape_p: float, spread_p: float, *, group: str, measure: str,
-                 welch_p: float | None = None, alpha: float = 0.05, size_free: bool = True,
-                 n_samples: int | None = None, coarse: bool = False,
+                 welch: bool = False, permanova_p: float | None = None, alpha: float = 0.05,
+                 size_free: bool = True, n_samples: int | None = None, coarse: bool = False,
                  units_sentence: str = "", replicates: str = "samples",
-                 min_pvalue: float | None = None, size_skipped: str | None = None) -> str:
+                 min_pvalue: float | None = None, size_skipped: str | None = None,
+                 depth: int | None = None, size_ratio: float | None = None) -> str:
     """The plain-language paragraph of :func:`compare_groups` (never stronger than the tests).
 
-    A significant PERMANOVA with unequal spreads is read through the Welch-type test, which
-    allows each group its own spread: "the centroids differ even allowing for unequal
-    spread", or "PERMANOVA's result may reflect the difference in spread" (Anderson 2006;
-    Warton et al. 2012; Hamidi et al. 2019). A test that detects nothing is never read as
-    showing equality.
+    With ``welch=True`` the shape p-value is that of a location test that allows each group
+    its own spread (Welch-type; Alekseyenko 2016, Hamidi et al. 2019), so a shape difference
+    together with a spread difference is read as "composition differs, and so does spread".
+    Otherwise (a PERMANOVA p-value), it is read as "composition or spread" (Anderson 2006;
+    Warton et al. 2012). A test that detects nothing is never read as showing equality.
     """
     out = [units_sentence] if units_sentence else []
     out.append(_size_sentence(size, group, alpha, size_skipped))
+    if depth is not None:
+        why = (f", so the {size_ratio:.1f}-fold difference in totals between groups cannot by "
+               "itself make them significant" if size_ratio and size_ratio > 1.5 else
+               ", so differences in totals cannot by themselves make them significant")
+        out.append(f"Every sample was rarefied to {depth} individuals before the shape and "
+                   f"spread tests{why}.")
     sh, sp = shape_p <= alpha, spread_p <= alpha
-    we = welch_p is not None and np.isfinite(welch_p) and welch_p <= alpha
     name = _MEASURE_NAMES.get(measure, measure.replace("_", "-"))
     if size_free:
-        noun, how = "composition", f"PERMANOVA on {name} distances between relative abundances"
-        shift = "a shift in composition"
+        noun, shift = "composition", "a shift in composition"
+        how = (f"Welch-type test on {name} distances between relative abundances" if welch
+               else f"PERMANOVA on {name} distances between relative abundances")
     else:
-        noun, how = f"overall {name} dissimilarity", f"PERMANOVA on {name}"
-        shift = "a shift of the group centroids"
-    wtxt = "" if welch_p is None else f"; Welch-type test, {_p(welch_p)}"
+        noun, shift = f"overall {name} dissimilarity", "a shift of the group centroids"
+        how = f"Welch-type test on {name}" if welch else f"PERMANOVA on {name}"
     if sh and not sp:
-        out.append(f"The groups differ in {noun} ({how}, {_p(shape_p)}{wtxt}), and no "
-                   f"difference in spread was detected (dispersion test, {_p(spread_p)}), so "
-                   f"{shift} is the simplest reading; the dispersion test has little power "
-                   "with few replicates per group.")
-    elif sp and (sh or we):
-        if welch_p is None:
-            out.append(f"The groups differ in {noun} or in spread, or both ({how}, "
-                       f"{_p(shape_p)}; dispersion test, {_p(spread_p)}).")
-        elif we:
-            out.append(f"The spread within groups differs (dispersion test, {_p(spread_p)}), "
-                       f"and the centroids differ even allowing each group its own spread "
-                       f"(Welch-type test, {_p(welch_p)}; {how}, {_p(shape_p)}): {shift} "
-                       "together with a difference in variability.")
-        else:
-            out.append(f"The spread within groups differs (dispersion test, {_p(spread_p)}); "
-                       f"{how} gives {_p(shape_p)}, but the Welch-type test, which allows "
-                       f"each group its own spread, does not detect a shift ({_p(welch_p)}), "
-                       "so PERMANOVA's result may reflect the difference in spread rather "
-                       f"than in {noun}.")
+        out.append(f"The groups differ in {noun} ({how}, {_p(shape_p)}), and no difference "
+                   f"in spread was detected (dispersion test, {_p(spread_p)}), so {shift} is "
+                   "the simplest reading; the dispersion test has little power with few "
+                   "replicates per group.")
+    elif sh and sp and welch:
+        out.append(f"The groups differ in {noun} even allowing each group its own spread "
+                   f"({how}, {_p(shape_p)}), and the spread within groups differs too "
+                   f"(dispersion test, {_p(spread_p)}).")
+    elif sh and sp:
+        out.append(f"The groups differ in {noun} or in spread, or both ({how}, "
+                   f"{_p(shape_p)}; dispersion test, {_p(spread_p)}): with unequal spreads, "
+                   "PERMANOVA cannot tell a shift between groups from a difference in "
+                   "variability within them.")
     elif sp:
-        out.append(f"No shift in {noun} was detected ({how}, {_p(shape_p)}{wtxt}), but the "
-                   f"spread within groups differs (dispersion test, {_p(spread_p)}).")
-    elif we and not sh:
-        out.append(f"The Welch-type test detects a shift in {noun} ({_p(welch_p)}) that "
-                   f"PERMANOVA does not ({_p(shape_p)}); no difference in spread was detected "
-                   f"(dispersion test, {_p(spread_p)}). Read it with care: the two tests "
-                   "weigh the groups differently when their sizes differ.")
+        out.append(f"No shift in {noun} was detected ({how}, {_p(shape_p)}), but the spread "
+                   f"within groups differs (dispersion test, {_p(spread_p)}).")
     else:
         out.append(f"No difference in {noun} or in its spread was detected ({how}, "
-                   f"{_p(shape_p)}{wtxt}; dispersion test, {_p(spread_p)}); this is not "
-                   "evidence that the groups are the same.")
+                   f"{_p(shape_p)}; dispersion test, {_p(spread_p)}); this is not evidence "
+                   "that the groups are the same.")
+    if permanova_p is not None and np.isfinite(permanova_p) and (permanova_p <= alpha) != sh:
+        why = ("unequal spread" + (" and to the counting noise of unequal totals"
+                                   if depth is not None else ""))
+        out.append(f"PERMANOVA on all individuals says otherwise ({_p(permanova_p)}): it "
+                   f"also responds to {why}, which the test above does not.")
     if not size_free:
         out.append(f"The {name} measure is not size-free, so its test also responds to "
                    "differences in totals; use a size-free measure (chi-square, Hellinger, "
@@ -218,9 +233,21 @@ def reading_text(size, shape_p: float, spread_p: float, *, group: str, measure: 
     return " ".join(out)
 
 
+def _rarefiable(tab, shape_measure) -> bool:
+    """Whole counts (or reads) and a measure given by name: the counting-noise-proof tests
+    apply."""
+    from .dissimilarity import Dissimilarity
+    if isinstance(shape_measure, Dissimilarity):
+        return False
+    reads = tab.reads
+    x = tab.values if reads is None else reads.to_numpy(dtype=float)
+    return bool(np.all(x == np.round(x)))
+
+
 def compare_groups(table, group, *, units=None, shape_measure="chi_square", transform=None,
                    size_method: str = "welch", effort=None, centre: str = "mean",
-                   blocks=None, n_permutations: int = 999, rng=None, alpha: float = 0.05,
+                   blocks=None, depth: int | None = None, n_permutations: int = 999,
+                   rng=None, alpha: float = 0.05,
                    progress: Callable[[int, int], None] | None = None,
                    cancel: Callable[[], bool] | None = None) -> ComparisonResult:
     """Compare groups in size (totals), shape (composition) and spread, side by side.
@@ -233,13 +260,13 @@ def compare_groups(table, group, *, units=None, shape_measure="chi_square", tran
     units : None, False, str or list of str
         The sampling units the groups were applied to (tank, site, plot; nested levels
         coarsest first): every test then counts units, not samples (size on unit totals,
-        shape and spread by permuting whole units). None detects them (a column within
+        shape and spread by relabelling whole units). None detects them (a column within
         which the groups are constant, with at least two units per group and repeated
         samples) and says so; False treats samples as independent (and notes it when they
         repeat units).
     shape_measure : str or Dissimilarity, default 'chi_square'
-        A size-free measure for the shape tests ('chi_square', 'hellinger', 'aitchison'...),
-        or a ready Dissimilarity of these samples.
+        A size-free measure for the shape and spread tests ('chi_square', 'hellinger',
+        'aitchison'...), or a ready Dissimilarity of these samples (then no rarefaction).
     transform : optional
         Transformation applied before ``shape_measure`` (when it is a name).
     size_method : {'welch', 'anova', 'kruskal', 'permutation', 'negbin'}, default 'welch'
@@ -248,12 +275,16 @@ def compare_groups(table, group, *, units=None, shape_measure="chi_square", tran
     effort : None, False, str or array_like
         As in :func:`size_test`.
     centre : {'mean', 'median'}
-        Group centre of the dispersion test.
+        Group centre of the dispersion test (median: data that are not counts only).
     blocks : str, optional
-        Blocking column: permutations stay within blocks (and the size test models them).
+        Blocking column: relabelling stays within blocks (and the size test models them).
+    depth : int, optional
+        Rarefaction depth of the shape and spread tests (default: the smallest total);
+        samples with fewer individuals are left out, and a note says which.
     n_permutations : int, default 999
     rng : None, int or numpy.random.Generator
-        Split into independent streams for the four tests.
+        Split into independent streams for the tests (the shape and spread tests share one
+        rarefaction and one set of relabellings).
     alpha : float, default 0.05
         Level used for "detected" in the reading (the p-values are reported as they are).
     progress, cancel : callables, optional
@@ -264,19 +295,26 @@ def compare_groups(table, group, *, units=None, shape_measure="chi_square", tran
 
     Notes
     -----
-    Size: :func:`size_test` on log totals (per effort). Shape: PERMANOVA (Anderson 2001) on a
-    size-free dissimilarity, with the Welch-type test (Alekseyenko 2016; Hamidi et al.
-    2019), which allows each group its own spread. Spread: the dispersion test (Anderson
-    2006) on the same dissimilarity. When spreads differ, the reading says whether the
-    centroids differ even allowing for it. Relative data (sequencing reads) without loads
-    are compared in shape and spread only.
+    Size: :func:`size_test` on log totals (per effort). Shape and spread (counts): every
+    sample is rarefied to a common number of individuals (Sanders 1968; Hurlbert 1971), so
+    samples of the same communities are exchangeable whatever their totals, then the group
+    centroids are compared with a Welch-type statistic that allows each group its own spread
+    (Alekseyenko 2016; Hamidi et al. 2019) and the spreads with the dispersion test (Anderson
+    2006) with the counting noise left at that depth removed (:mod:`tallyform.core.counting`);
+    both hold their level when groups differ only in totals or only in spread. Data that are
+    not counts (biomass, cover) or a ready Dissimilarity: the Welch-type test and the
+    dispersion test on the data as they are (a note says they are not protected from
+    counting noise). PERMANOVA on all individuals is given for reference. Relative data
+    (sequencing reads) without loads are compared in shape and spread only.
 
     References
     ----------
     Anderson, M. J. (2006). Biometrics 62, 245-253. Hamidi, B., Wallace, K., Vasu, C. &
     Alekseyenko, A. V. (2019). Microbiome 7, 51. Hurlbert, S. H. (1984). Ecol. Monogr. 54,
-    187-211. Warton, D. I., Wright, S. T. & Wang, Y. (2012). Methods Ecol. Evol. 3, 89-101.
+    187-211. Sanders, H. L. (1968). Am. Nat. 102, 243-282. Warton, D. I., Wright, S. T. &
+    Wang, Y. (2012). Methods Ecol. Evol. 3, 89-101.
     """
+    from .counting import shape_test, spread_test
     from .dispersion import dispersion_test
     from .dissimilarity import Dissimilarity, dissimilarity
     from .inference import permanova
@@ -301,7 +339,11 @@ def compare_groups(table, group, *, units=None, shape_measure="chi_square", tran
     else:
         d = dissimilarity(tab, shape_measure, transform=transform)
     size_free = bool(d.properties.get("size_free", False))
-    streams = as_rng(rng).spawn(4)
+    counts = _rarefiable(tab, shape_measure)
+    if not counts and (depth is not None):
+        raise InputError("`depth` is a rarefaction depth; these data are not whole counts "
+                         "(or the measure is a ready Dissimilarity), so nothing is rarefied.")
+    streams = as_rng(rng).spawn(3)
     stage = [0]
     n_stages = 4
 
@@ -319,46 +361,63 @@ def compare_groups(table, group, *, units=None, shape_measure="chi_square", tran
                          n_permutations=n_permutations, cancel=cancel,
                          progress=staged if size_method in ("permutation", "negbin") else None)
     stage[0] = 1
-    shape = permanova(d, frame, [name], units=unit_arg, blocks=blocks,
-                      n_permutations=n_permutations, rng=streams[1], progress=staged,
-                      cancel=cancel)
-    stage[0] = 2
-    welch = welch_permanova(d, frame, name, units=unit_arg, blocks=blocks,
-                            n_permutations=n_permutations, rng=streams[2], progress=staged,
-                            cancel=cancel)
+    extra = ()
+    if counts:
+        kw = dict(measure=shape_measure, transform=transform, depth=depth, units=unit_arg,
+                  blocks=blocks, n_permutations=n_permutations, alpha=alpha, cancel=cancel)
+        # one seed for both: the same rarefied draw and the same relabellings
+        seed = int(streams[1].integers(2**63))
+        shape = shape_test(tab, name, rng=seed, progress=staged, **kw)
+        stage[0] = 2
+        spread = spread_test(tab, name, rng=seed, progress=staged, **kw)
+    else:
+        shape = welch_permanova(d, frame, name, units=unit_arg, blocks=blocks,
+                                n_permutations=n_permutations, rng=streams[1],
+                                progress=staged, cancel=cancel)
+        stage[0] = 2
+        spread = dispersion_test(d, name, samples=frame, units=unit_arg, blocks=blocks,
+                                 n_permutations=n_permutations, rng=streams[1], centre=centre,
+                                 progress=staged, cancel=cancel)
+        extra = ("The data are not whole counts (or the measure was given as a ready "
+                 "dissimilarity), so the shape and spread tests ran on the data as they are: "
+                 "when totals differ between groups, part of a difference in spread (and, "
+                 "for measures not linear in the proportions, in composition) can be "
+                 "counting noise.",)
     stage[0] = 3
-    spread = dispersion_test(d, name, samples=frame, units=unit_arg, blocks=blocks,
-                             n_permutations=n_permutations, rng=streams[3], centre=centre,
-                             progress=staged, cancel=cancel)
-    shape_p = float(shape.pvalue[name])
+    ref = permanova(d, frame, [name], units=unit_arg, blocks=blocks,
+                    n_permutations=n_permutations, rng=streams[2], progress=staged,
+                    cancel=cancel)
     lv = plan.level_of(name)
     n_rep = lv.m if lv is not None else tab.n_samples
     replicates = "samples" if lv is None else "units"
-    floors = [x for x in (shape.min_pvalue[name] if shape.min_pvalue is not None else None,
-                          spread.min_pvalue, welch.min_pvalue)
+    floors = [x for x in (getattr(shape, "min_pvalue", None),
+                          getattr(spread, "min_pvalue", None))
               if x is not None and np.isfinite(x)]
-    coarse = any(n.startswith("Only") for n in shape.notes + spread.notes)
-    reading = reading_text(size, shape_p, spread.pvalue, group=name, measure=d.measure,
-                           welch_p=float(welch.pvalue), alpha=alpha, size_free=size_free,
-                           n_samples=n_rep, coarse=coarse,
+    coarse = any(n.startswith("Only") for n in ref.notes + tuple(spread.notes))
+    rare_depth = getattr(shape, "depth", None) if counts else None
+    reading = reading_text(size, float(shape.pvalue), float(spread.pvalue), group=name,
+                           measure=d.measure, welch=True,
+                           permanova_p=float(ref.pvalue[name]), alpha=alpha,
+                           size_free=size_free, n_samples=n_rep, coarse=coarse,
                            units_sentence=_units_sentence(plan, name), replicates=replicates,
-                           min_pvalue=min(floors) if floors else None, size_skipped=skipped)
-    parts = ((size.notes if size is not None else ()) + plan.notes + shape.notes
-             + welch.notes + spread.notes + d.notes)
-    # the reading weighs PERMANOVA against the spread and Welch-type tests itself
+                           min_pvalue=min(floors) if floors else None, size_skipped=skipped,
+                           depth=rare_depth, size_ratio=getattr(shape, "size_ratio", None))
+    parts = ((size.notes if size is not None else ()) + plan.notes + tuple(shape.notes)
+             + tuple(spread.notes) + extra + ref.notes + d.notes)
+    # the reading weighs the tests against each other itself
     notes = tuple(dict.fromkeys(n for n in parts
                                 if not n.startswith("PERMANOVA also responds")
                                 and (not n.startswith("Sampling units detected")
                                      or n in plan.notes)))
-    idx = pd.Index(["size", "shape", "welch", "spread"], name="aspect")
+    idx = pd.Index(["size", "shape", "spread", "permanova"], name="aspect")
     size_stat = np.nan if size is None else size.statistic
     size_p = np.nan if size is None else size.pvalue
     return ComparisonResult(
-        size=size, shape=shape, dispersion=spread, welch=welch, reading=reading,
-        statistic=pd.Series([size_stat, float(shape.statistic[name]), float(welch.statistic),
-                             spread.statistic], index=idx, name="statistic"),
-        pvalue=pd.Series([size_p, shape_p, float(welch.pvalue), spread.pvalue], index=idx,
-                         name="pvalue"),
+        size=size, shape=shape, dispersion=spread, permanova=ref, reading=reading,
+        statistic=pd.Series([size_stat, float(shape.statistic), float(spread.statistic),
+                             float(ref.statistic[name])], index=idx, name="statistic"),
+        pvalue=pd.Series([size_p, float(shape.pvalue), float(spread.pvalue),
+                          float(ref.pvalue[name])], index=idx, name="pvalue"),
         group=name, measure=d.measure, alpha=alpha, notes=notes,
         units="samples" if lv is None else lv.describe(), n_replicates=int(n_rep),
-        size_skipped=skipped)
+        depth=rare_depth, size_skipped=skipped)

@@ -168,15 +168,17 @@ def rarefied_table(table, *, depth: int | None = None, rng=None) -> CommunityTab
     """
     tab = as_table(table)
     labels = tab.sample_labels
-    x = _whole_counts(tab.values, labels)
+    x = whole_counts(tab)
     depth, keep, notes = check_depth(x.sum(axis=1), depth, labels)
     rng = as_rng(rng)
     y = rarefied_counts(x[keep], depth, rng)
     kept = labels[keep]
     frame = pd.DataFrame(y.astype(np.float64), index=kept, columns=tab.taxon_labels)
     info = tab.samples.loc[list(kept)]
+    # rarefied reads stay relative data (their totals are the chosen depth, not sizes)
     out = CommunityTable(frame, info if info.shape[1] else None,
-                         tab.taxa if tab.taxa.shape[1] else None, empty="drop")
+                         tab.taxa if tab.taxa.shape[1] else None, empty="drop",
+                         abundance="relative" if tab.reads is not None else "absolute")
     out._notes = tuple(tab.notes) + tuple(notes) + (
         f"Rarefied: {depth} individuals drawn without replacement from every sample.",)
     return out
@@ -258,8 +260,11 @@ def combine_draws(pvalues) -> tuple[float, int]:
 
 
 def whole_counts(table: CommunityTable) -> np.ndarray:
-    """The table's counts as int64, or InputError (fractions, totals too large)."""
-    return _whole_counts(table.values, table.sample_labels)
+    """The table's counts as int64, or InputError (fractions, totals too large). For relative
+    data these are the reads (a load gives sizes, not individuals to draw from)."""
+    reads = table.reads
+    values = table.values if reads is None else reads.to_numpy(dtype=np.float64)
+    return _whole_counts(values, table.sample_labels)
 
 
 __all__ += ["check_depth", "whole_counts"]

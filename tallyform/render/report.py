@@ -182,15 +182,17 @@ def report_html(results: AnalysisResults, *, title: str | None = None) -> str:
                 _notes(c.size)
         else:
             body += f"<h3>Size</h3><p>Not tested: {_esc(c.size_skipped)}</p>"
-        body += ("<h3>Shape: PERMANOVA with a size-free measure</h3>" +
+        rare = (f", every sample rarefied to {c.depth} individuals" if c.depth is not None
+                else "")
+        body += (f"<h3>Shape: Welch-type location test with a size-free measure{rare}</h3>" +
                  _table(c.shape.to_frame()) + _notes(c.shape))
-        body += fig(lambda: plots.null_distribution_figure(c.shape))
-        if c.welch is not None:
-            body += ("<h3>Shape with unequal spreads allowed: Welch-type test</h3>" +
-                     _table(c.welch.to_frame()) + _notes(c.welch))
-        body += ("<h3>Spread: dispersion test</h3>" + _table(c.dispersion.to_frame()) +
+        body += fig(lambda: c.shape.figure())
+        body += (f"<h3>Spread: dispersion test{rare}</h3>" + _table(c.dispersion.to_frame()) +
                  _notes(c.dispersion))
-        body += fig(lambda: plots.dispersion_figure(c.dispersion))
+        body += fig(lambda: c.dispersion.figure(kind="distances"))
+        if c.permanova is not None:
+            body += ("<h3>For reference: PERMANOVA on all individuals</h3>" +
+                     _table(c.permanova.to_frame()) + _notes(c.permanova))
         sections.append(("tests", "Size test, shape test and dispersion", body))
     p = results.permanova
     if p is not None:

@@ -325,9 +325,8 @@ class TestsPanel(widgets.VBox):
         p = plots()
         kind = type(result).__name__
         if kind == "ComparisonResult":
-            return [p.null_distribution_figure(result.shape, term=result.group,
-                                               present=self._present),
-                    p.dispersion_figure(result.dispersion, present=self._present)]
+            return [result.shape.figure(present=self._present),
+                    result.dispersion.figure(kind="distances", present=self._present)]
         if kind == "PairwiseResult":
             return []
         if hasattr(result, "figure"):              # taxon contributions

@@ -238,7 +238,8 @@ def test_compare_groups_on_relative_data_compares_shape_and_spread_only():
     assert c.size is None and np.isnan(c.pvalue["size"])
     assert "sequencing depths" in c.size_skipped and "load=" in c.size_skipped
     assert c.reading.startswith("Size was not tested: the totals are sequencing depths")
-    assert np.isfinite(c.pvalue[["shape", "welch", "spread"]]).all()
+    assert np.isfinite(c.pvalue[["shape", "spread", "permanova"]]).all()
+    assert c.depth is not None          # reads are counts: rarefied like any counts
     assert c.to_frame().loc["size", "detected"] == False  # noqa: E712 (numpy bool)
 
 

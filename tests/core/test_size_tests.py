@@ -306,7 +306,7 @@ def _size_result(p):
 
 
 @pytest.mark.parametrize("shape_p,spread_p,must,must_not", [
-    (0.01, 0.01, "differ in composition or in spread", "simplest reading"),
+    (0.01, 0.01, "differ in composition or in spread", "simplest reading"),     # PERMANOVA
     (0.01, 0.40, "differ in composition (", "or in spread"),
     (0.40, 0.01, "spread within groups differs", "differ in composition"),
     (0.40, 0.40, "not evidence that the groups are the same", "The groups differ"),
@@ -317,6 +317,17 @@ def test_reading_never_overstates(shape_p, spread_p, must, must_not):
     assert must in text and must_not not in text
     assert "does not show that the totals are equal" in text
     assert "without adjustment" in text
+
+
+def test_reading_of_a_welch_type_shape_test_and_of_rarefaction():
+    from tallyform.core.comparison import reading_text
+    text = reading_text(_size_result(0.2), 0.01, 0.01, group="g", measure="chi_square",
+                        welch=True, permanova_p=0.3, depth=120, size_ratio=3.2)
+    assert "differ in composition even allowing each group its own spread" in text
+    assert "spread within groups differs too" in text and "or in spread" not in text
+    assert "rarefied to 120 individuals" in text and "3.2-fold difference" in text
+    assert "PERMANOVA on all individuals says otherwise (p = 0.3)" in text
+    assert "counting noise" in text
 
 
 def test_reading_of_size_and_of_a_measure_that_is_not_size_free():
@@ -339,13 +350,37 @@ def test_compare_groups_with_a_given_dissimilarity():
                                        measure="hellinger", properties={"size_free": True})
     res = compare_groups(tab, "treatment", shape_measure=hell, n_permutations=199, rng=1)
     assert res.size.pvalue < 0.001 and "Total abundance differs" in res.reading
-    assert list(res.to_frame().index) == ["size", "shape", "welch", "spread"]
-    assert res.pvalue["shape"] == res.shape.pvalue["treatment"]
-    assert res.pvalue["welch"] == res.welch.pvalue
+    assert list(res.to_frame().index) == ["size", "shape", "spread", "permanova"]
+    # a ready dissimilarity cannot be rarefied: the Welch-type and dispersion tests run on it
+    assert res.depth is None and type(res.shape).__name__ == "WelchResult"
+    assert res.pvalue["shape"] == res.shape.pvalue and res.welch is res.shape
     assert res.pvalue["spread"] == res.dispersion.pvalue
+    assert res.pvalue["permanova"] == res.permanova.pvalue["treatment"]
+    assert any("not whole counts (or the measure was given" in n for n in res.notes)
     assert res.reading in str(res) and "not size-free" not in res.reading
     again = compare_groups(tab, "treatment", shape_measure=hell, n_permutations=199, rng=1)
     pd.testing.assert_series_equal(res.pvalue, again.pvalue)
+
+
+def test_compare_groups_rarefies_counts_and_shares_the_draw():
+    from tallyform.core.comparison import compare_groups
+    from tallyform.core.counting import shape_test
+    design = pd.DataFrame({"treatment": np.repeat(["ctl", "low"], 8)},
+                          index=[f"s{i:02d}" for i in range(16)])
+    tab = simulate_community(design, n_taxa=15, size_effects={"treatment": {"low": 0.25}},
+                             rng=8)
+    res = compare_groups(tab, "treatment", n_permutations=99, rng=3)
+    assert res.depth == int(tab.totals.min())
+    assert res.shape.depth == res.dispersion.depth == res.depth
+    assert "rarefied to" in res.reading and "cannot by itself" in res.reading
+    # the shape row is shape_test with the same seed compare_groups derived for it
+    direct = shape_test(tab, "treatment", units=False, n_permutations=99,
+                        rng=int(np.random.default_rng(3).spawn(3)[1].integers(2**63)))
+    assert direct.pvalue == res.pvalue["shape"] and direct.statistic == res.statistic["shape"]
+    import tallyform as tly
+    with pytest.raises(InputError, match="rarefaction depth"):
+        compare_groups(tab, "treatment", depth=10,
+                       shape_measure=tly.dissimilarity(tab, "hellinger"))
 
 
 def test_compare_groups_on_the_mesocosm_demo():
@@ -356,7 +391,7 @@ def test_compare_groups_on_the_mesocosm_demo():
     low = tly.compare_groups(tab.subset(lambda s: s.treatment != "nutrient_high"),
                              "treatment", n_permutations=199, rng=2)
     assert low.measure == "chi_square" and low.size.pvalue < 0.001
-    assert low.pvalue["shape"] > 0.2
+    assert low.pvalue["shape"] > 0.1
     assert low.reading.startswith("Tested at the level of 'tank': 10 units")
     assert "Total abundance differs" in low.reading
     assert "No difference in composition" in low.reading and "(10 units)" in low.reading
@@ -365,7 +400,7 @@ def test_compare_groups_on_the_mesocosm_demo():
                               rng=2)
     # the shape test compares the 5 + 5 tanks (detected units), whose smallest possible
     # p-value is 2/252, so the bound is 0.05 rather than the 0.01 of 40 "independent" samples
-    assert high.shape.table.loc["treatment", "stratum"] == "between 'tank'"
+    assert high.permanova.table.loc["treatment", "stratum"] == "between 'tank'"
     assert high.pvalue["shape"] < 0.05 and "shift in composition" in high.reading
     bray = tly.compare_groups(tab, "treatment", shape_measure="bray_curtis",
                               n_permutations=99, rng=2)

@@ -198,31 +198,56 @@ def _clopper_pearson(k: int, n: int, level: float = 0.95) -> tuple[float, float]
 
 
 def _group_test_pvalue(values, labels, taxa, groups_X, measure, transform, n_permutations,
-                       rng, *, groups=None, spread_rng=None) -> tuple[float, float]:
+                       rng, *, groups=None, spread_rng=None, design=None) -> tuple[float, float]:
     """PERMANOVA p-value of the groups, and (when ``groups`` is given) the dispersion test's
-    p-value on the same dissimilarity (NaN otherwise), drawn from ``spread_rng``."""
+    p-value on the same dissimilarity (NaN otherwise), drawn from ``spread_rng``. With
+    ``design`` (sample table, group column, unit columns) the tests relabel whole units."""
     from .dispersion import dispersion_test
     from .dissimilarity import dissimilarity
+    from .inference import permanova
     from .permutation import permutation_f_test
     keep = values.sum(axis=0) > 0
     frame = pd.DataFrame(values[:, keep], index=labels, columns=taxa[keep])
     d = dissimilarity(frame, measure, transform=transform)
-    res = permutation_f_test(d, groups_X, np.ones((len(labels), 1)),
-                             n_permutations=n_permutations, rng=rng)
+    if design is not None:
+        info, gname, units = design
+        res = permanova(d, info, [gname], units=units, n_permutations=n_permutations,
+                        rng=rng)
+        shape = float(res.pvalue[gname])
+    else:
+        shape = float(permutation_f_test(d, groups_X, np.ones((len(labels), 1)),
+                                         n_permutations=n_permutations, rng=rng).pvalue)
     spread = float("nan")
     if groups is not None:
-        spread = float(dispersion_test(d, list(groups), n_permutations=n_permutations,
-                                       rng=spread_rng).pvalue)
-    return float(res.pvalue), spread
+        if design is not None:
+            info, gname, units = design
+            spread = float(dispersion_test(d, gname, samples=info, units=units,
+                                           n_permutations=n_permutations,
+                                           rng=spread_rng).pvalue)
+        else:
+            spread = float(dispersion_test(d, list(groups), n_permutations=n_permutations,
+                                           rng=spread_rng).pvalue)
+    return shape, spread
 
 
 def _rarefied_pvalues(values, groups, measure, transform, n_permutations,
-                      rng) -> tuple[float, float]:
-    """shape_test and spread_test p-values (one rarefaction, samples as independent)."""
+                      rng, *, labels=None, taxa=None, design=None) -> tuple[float, float]:
+    """shape_test and spread_test p-values (one rarefaction; whole units with ``design``)."""
     from .counting import rarefied_pvalues
     keep = values.sum(axis=0) > 0
-    return rarefied_pvalues(values[:, keep], groups, measure=measure, transform=transform,
-                            n_permutations=n_permutations, rng=rng)
+    if design is None:
+        return rarefied_pvalues(values[:, keep], groups, measure=measure,
+                                transform=transform, n_permutations=n_permutations, rng=rng)
+    from .counting import shape_test, spread_test
+    from .table import CommunityTable
+    info, gname, units = design
+    tab = CommunityTable(pd.DataFrame(values[:, keep], index=labels, columns=taxa[keep]),
+                         info)
+    seed = int(rng.integers(2**63))           # one rarefied draw for both tests
+    kw = dict(measure=measure, transform=transform, units=units,
+              n_permutations=n_permutations, rng=seed)
+    return (float(shape_test(tab, gname, **kw).pvalue),
+            float(spread_test(tab, gname, **kw).pvalue))
 
 
 def _rate_row(p: np.ndarray, alpha: float, aspect: str, test: str) -> dict:
@@ -279,7 +304,8 @@ def _extra_rows(p: dict, name: str, reference: str, alpha: float, *, spread: boo
 def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
           reference: str = "chi_square", n_sim: int = 200, n_permutations: int = 199,
           model: str = "dirichlet_multinomial", alpha: float = 0.05, spread: bool = True,
-          rarefied: bool = True, rng=None, progress=None, cancel=None) -> AuditResult:
+          rarefied: bool = True, units=None, rng=None, progress=None,
+          cancel=None) -> AuditResult:
     """How often would PERMANOVA with ``measure`` call a pure size difference compositional?
 
     Parameters
@@ -309,6 +335,11 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
         Also audit :func:`tallyform.core.counting.shape_test` and
         :func:`tallyform.core.counting.spread_test` with ``measure`` (their defaults: one
         rarefaction to the smallest total), which a size difference cannot fool.
+    units : None, False, str or list of str
+        The sampling units of the design (:func:`tallyform.core.units.resolve_units`; None
+        detects them): the audited tests relabel whole units, as the tests a user runs on
+        such a design do. The simulated tables keep every sample's observed total (so
+        unit-to-unit differences in size stay) and draw compositions independently.
     rng : None, int or numpy.random.Generator
     progress, cancel : callables, optional
 
@@ -320,13 +351,19 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
 
     Notes
     -----
-    The simulated tables treat samples as independent (sampling units are not simulated),
-    and so do the audited tests.
+    Compositions are simulated independently for every sample (no unit-level composition
+    effects: the null is "composition the same everywhere"), while the totals keep the
+    design's unit structure; with units, the audited tests relabel whole units.
     """
     table, g = _checked(table, group, model=model, alpha=alpha, n_sim=n_sim,
                         n_permutations=n_permutations, spread=spread, rarefied=rarefied)
     from .design import model_matrix
+    from .units import resolve_units
     X = model_matrix(pd.DataFrame({group: g}), [group]).X
+    info = table.samples.copy()
+    info[group] = g.to_numpy()
+    plan = resolve_units(info, [group], units)
+    design = None if plan.independent else (info, group, [lv.name for lv in plan.levels])
     rng = as_rng(rng)
     # the spread and rarefied rows draw from their own stream, so the PERMANOVA rows are the
     # same with and without them (spawning does not advance the parent stream)
@@ -345,13 +382,14 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
         by = groups if spread else None
         p["main"][s], p["spread_main"][s] = _group_test_pvalue(
             values, labels, taxa, X, measure, transform, n_permutations, rng, groups=by,
-            spread_rng=extra_rng)
+            spread_rng=extra_rng, design=design)
         p["ref"][s], p["spread_ref"][s] = _group_test_pvalue(
             values, labels, taxa, X, reference, None, n_permutations, rng, groups=by,
-            spread_rng=extra_rng)
+            spread_rng=extra_rng, design=design)
         if rarefied:
             p["rare_shape"][s], p["rare_spread"][s] = _rarefied_pvalues(
-                values, groups, measure, transform, n_permutations, extra_rng)
+                values, groups, measure, transform, n_permutations, extra_rng,
+                labels=labels, taxa=taxa, design=design)
         if progress is not None:
             progress(s + 1, n_sim)
     p_main, p_ref = p["main"], p["ref"]
@@ -366,7 +404,10 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
     reading = _reading(name, reference, group, k_main / n_sim, ci_main, k_ref / n_sim, ci_ref,
                        alpha, n_sim)
     reading += _extra_reading(name, reference, extra, alpha)
-    notes = []
+    notes = list(plan.notes)
+    if design is not None:
+        notes.append(f"The audited tests relabel whole units ({plan.describe(group)}), as "
+                     "the tests of this design do.")
     if model == "dirichlet_multinomial":
         notes.append(f"Simulated counts are Dirichlet-multinomial around the pooled profile "
                      f"with intra-class correlation {rho:.4f}, estimated within groups.")
@@ -381,6 +422,7 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
         provenance={"measure": measure, "transform": tr, "reference": reference,
                     "group": group, "n_sim": n_sim, "n_permutations": n_permutations,
                     "model": model, "alpha": alpha, "spread": spread, "rarefied": rarefied,
+                    "units": [lv.name for lv in plan.levels] or None,
                     "table": table.fingerprint},
         extra=extra, extra_pvalues=extra_p)
 

@@ -117,3 +117,18 @@ def test_audit_input_errors():
         tly.audit(one, "treatment")
     with pytest.raises(InputError, match="`model` must be one of"):
         tly.audit(tab, "treatment", model="poisson")
+
+
+def test_audit_relabels_whole_units_when_the_design_has_them():
+    # the mesocosm's treatment was applied to tanks: the audited PERMANOVA must be the one a
+    # user runs on this design (whole tanks relabelled), as the note says
+    import tallyform as tly
+    tab = tly.demo("mesocosm")
+    a = tly.audit(tab, "treatment", "bray_curtis", n_sim=3, n_permutations=19,
+                  spread=False, rarefied=False, rng=2)
+    assert a.provenance["units"] == ["tank"]
+    assert any("relabel whole units" in n for n in a.notes)
+    b = tly.audit(tab, "treatment", "bray_curtis", n_sim=3, n_permutations=19,
+                  spread=False, rarefied=False, units=False, rng=2)
+    assert b.provenance["units"] is None
+    assert any("treated as independent" in n for n in b.notes)

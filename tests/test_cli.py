@@ -20,7 +20,11 @@ def test_demo_summary_only_prints_totals_by_group():
     out = run("demo", "--summary-only")
     assert out.returncode == 0, out.stderr
     assert "60 samples x 36 taxa" in out.stdout
-    assert "Sample totals (size) by treatment" in out.stdout
+    assert "60 samples from 15 tanks (4 samples each)" in out.stdout      # units counted
+    assert "Sample totals (size: total abundance) by treatment" in out.stdout
+    assert "'treatment' between tanks, 'week' within tanks" in out.stdout
+    assert "--no-units treats samples as independent" in out.stdout
+    assert "units=False" not in out.stdout
     for level in ("control", "nutrient_low", "nutrient_high"):
         assert level in out.stdout
     assert "synthetic" in out.stdout

@@ -23,11 +23,15 @@ OTHER = {  # a different valid value for every choice of the spec
     "audit_n_sim": 500, "audit_n_permutations": 99, "audit_model": "multinomial",
     "audit_reference": "hellinger", "alpha": 0.01, "abundance": "relative",
     "load": "qpcr_copies", "spike_in": {"taxon": "spike", "added": "spike_copies"},
+    "units": "tank", "n_boot": 0, "scan_n_boot": 199, "pairwise_statistic": "welch",
+    "compare_with": {"transform": "fourth_root"},
 }
+# where the data are read from is not a method: the paragraph never names files
+NOT_METHODS = {"source", "version"}
 
 
 def test_every_choice_changes_the_text():
-    names = {f.name for f in dataclasses.fields(AnalysisSpec)} - {"version"}
+    names = {f.name for f in dataclasses.fields(AnalysisSpec)} - NOT_METHODS
     assert names == set(OTHER), names ^ set(OTHER)
     base = methods_text(BASE)
     for key, value in OTHER.items():
@@ -39,6 +43,8 @@ def test_every_choice_changes_the_text():
         if key == "correction":                 # the correction only shows with PCoA
             changed = changed.replace(ordination="pcoa")
         assert methods_text(changed) != base, key
+    with_source = BASE.replace(source={"counts": "/home/me/secret/counts.csv"})
+    assert "secret" not in methods_text(with_source)
 
 
 def test_references_are_listed_for_what_is_cited():

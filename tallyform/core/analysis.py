@@ -163,13 +163,16 @@ def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisRes
         except (DesignError, InputError):
             contrast = None          # the steps that need it say why
     calls: dict[str, list] = {}
-    for call in build_calls(spec, contribution=units.contribution, contrast=contrast):
+    for call in build_calls(spec, contribution=units.contribution, contrast=contrast,
+                            n_boot=units.n_boot, scan_n_boot=units.scan_n_boot):
         calls.setdefault(call.step, []).append(call)
     total = sum(w for _, w in _STEPS)
     done = 0
     space: dict = {"tab": table, "units": units.arg}
     res: dict = {}
     skipped: dict = {}
+    if units.boot_skipped:
+        skipped["partition intervals"] = units.boot_skipped
 
     def tick(step_weight):
         nonlocal done

@@ -85,9 +85,13 @@ def spec_code(spec, table=None) -> str:
         except (InputError, DesignError):
             resolved = None
     contrast = None
+    boot = {}
     if resolved is not None:
         lines.append(f"units = {literal(resolved.arg)}   # {units_comment(resolved)}")
         contribution = Expr(resolved.contribution_code)
+        if resolved.boot_skipped:
+            lines.append(f"# n_boot=0: {resolved.boot_skipped}")
+            boot = {"n_boot": resolved.n_boot, "scan_n_boot": resolved.scan_n_boot}
         if spec.group and not spec.contrast:
             try:
                 contrast = tuple(first_two_levels(table, spec.group))
@@ -97,9 +101,10 @@ def spec_code(spec, table=None) -> str:
         lines += ["u = tly.core.steps.resolve_spec_units(spec, tab)   # sampling units, as "
                   "tly.run resolves them", "units = u.arg"]
         contribution = Expr("u.contribution")
+        boot = {"n_boot": Expr("u.n_boot"), "scan_n_boot": Expr("u.scan_n_boot")}
     if spec.group and not spec.contrast and contrast is None:
         lines.append(f"levels = tly.core.steps.first_two_levels(tab, {spec.group!r})   "
                      "# the first two groups")
-    for call in build_calls(spec, contribution=contribution, contrast=contrast):
+    for call in build_calls(spec, contribution=contribution, contrast=contrast, **boot):
         lines.append(call.code())
     return "\n".join(lines)

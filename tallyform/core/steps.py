@@ -142,6 +142,11 @@ class SpecUnits:
         The terms the units were resolved against.
     requested : None, False, str or tuple
         What the spec asked for (``spec.units``).
+    n_boot, scan_n_boot : int
+        The spec's interval replicates of the partition (and ``compare_with``) and of the
+        scan, or 0 when the units (or samples) are too few to leave a quarter out.
+    boot_skipped : str or None
+        Why the intervals were not made.
     """
 
     plan: object
@@ -150,6 +155,9 @@ class SpecUnits:
     contribution_code: str
     terms: tuple
     requested: object = None
+    n_boot: int = 0
+    scan_n_boot: int = 0
+    boot_skipped: str | None = None
 
 
 def spec_terms(spec) -> tuple:
@@ -166,13 +174,29 @@ def resolve_spec_units(spec, table) -> SpecUnits:
     from .units import resolve_units
     terms = spec_terms(spec)
     if not terms and spec.units in (None, False):
-        return SpecUnits(None, False, None, "None", terms, spec.units)
+        return SpecUnits(None, False, None, "None", terms, spec.units,
+                         **_intervals(spec, table.n_samples, "samples"))
     units = list(spec.units) if isinstance(spec.units, tuple) else spec.units
     plan = resolve_units(table.samples, list(terms), units, blocks=spec.blocks)
     names = [lv.name for lv in plan.levels]
     arg = False if not names else names[0] if len(names) == 1 else names
     value, code = contribution_units(table, plan, spec.group)
-    return SpecUnits(plan, arg, value, code, terms, spec.units)
+    items = (table.n_samples, "samples") if not names else \
+        (plan.levels[0].m, f"units of {names[0]!r}")
+    return SpecUnits(plan, arg, value, code, terms, spec.units, **_intervals(spec, *items))
+
+
+def _intervals(spec, n_items: int, what: str) -> dict:
+    """The interval replicates the partition can take: each leaves out a quarter of the
+    items (samples, or units of the coarsest level) and keeps at least 4
+    (:func:`tallyform.core.partition_resample.check_resampling`)."""
+    if n_items - max(1, int(round(n_items / 4))) >= 4 or not (spec.n_boot or
+                                                               spec.scan_n_boot):
+        return {"n_boot": spec.n_boot, "scan_n_boot": spec.scan_n_boot}
+    return {"n_boot": 0, "scan_n_boot": 0,
+            "boot_skipped": (f"intervals of the partition's shares need at least 5 {what} "
+                             f"(each replicate leaves out a quarter of them); there are "
+                             f"{n_items}, so the shares are given without intervals.")}
 
 
 def contribution_units(table, plan, group) -> tuple:
@@ -209,12 +233,17 @@ def read_call(spec) -> Call | None:
 
 
 # ---------------------------------------------------------------------------- calls
-def build_calls(spec, *, contribution=None, contrast=None) -> list[Call]:
+def build_calls(spec, *, contribution=None, contrast=None, n_boot=None,
+                scan_n_boot=None) -> list[Call]:
     """Every call of ``spec`` in order, with ``units=units`` (a variable of the namespace).
 
     ``contribution`` is the ``units=`` of the taxon contributions and ``contrast`` the two
-    groups compared when the spec names none: values for ``run``, :class:`Expr` for code.
+    groups compared when the spec names none; ``n_boot`` and ``scan_n_boot`` the interval
+    replicates the data allow (default: the spec's): values for ``run``, :class:`Expr`
+    for code.
     """
+    n_boot = spec.n_boot if n_boot is None else n_boot
+    scan_n_boot = spec.scan_n_boot if scan_n_boot is None else scan_n_boot
     tab = Ref("tab")
     seed = spec.seed
     tr = spec.transform_arg()
@@ -222,16 +251,16 @@ def build_calls(spec, *, contribution=None, contrast=None) -> list[Call]:
     u = Ref("units")
     calls = [Call("size_shape", "s", "size_shape", (tab, spec.measure), dict(
         **trk, size=spec.size, shape=spec.shape, shape_dims=spec.shape_dims,
-        n_permutations=spec.n_permutations, n_boot=spec.n_boot, units=u, rng=seed))]
+        n_permutations=spec.n_permutations, n_boot=n_boot, units=u, rng=seed))]
     calls.append(Call("scan", "g", "scan", (tab, spec.scan_measures, spec.scan_transforms), dict(
-        size=spec.size, shape=spec.shape, shape_dims=spec.shape_dims, n_boot=spec.scan_n_boot,
+        size=spec.size, shape=spec.shape, shape_dims=spec.shape_dims, n_boot=scan_n_boot,
         units=u, rng=seed)))
     if spec.compare_with:
         a = {"measure": spec.measure, "transform": tr, "size": spec.size, "shape": spec.shape,
              "shape_dims": spec.shape_dims}
         b = dict(a, **spec.compare_with)
         calls.append(Call("choices", "x", "compare_choices", (tab,), dict(
-            a=a, b=b, n_boot=spec.n_boot, units=u, rng=seed)))
+            a=a, b=b, n_boot=n_boot, units=u, rng=seed)))
     calls.append(Call("dissimilarity", "d", "dissimilarity", (tab, spec.measure), dict(trk)))
     if spec.ordination == "pcoa":
         calls.append(Call("ordination", "o", "pcoa", (Ref("d"),),

@@ -86,3 +86,32 @@ def test_failed_export_leaves_old_file_and_no_partial(tmp_path, monkeypatch):
         write_tables({"t": pd.DataFrame({"a": [1]})}, tmp_path)
     assert target.read_bytes() == b"old"
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+@pytest.mark.parametrize("measure", ["chi_square", "hellinger", "bray_curtis", "jaccard",
+                                     "quantitative_jaccard", "aitchison"])
+def test_no_doubled_nouns(measure):
+    # "Chi-square distance distances" and the like (a label that ends in a noun)
+    text = methods_text(BASE.replace(measure=measure, shape_measure="chi_square",
+                                     contribution_measure="hellinger",
+                                     audit_reference="chi_square"))
+    for doubled in ("distance distance", "distances distances", "distance dissimilarit",
+                    "dissimilarity dissimilarit"):
+        assert doubled not in text
+
+
+def test_every_cited_work_is_listed_and_nothing_else():
+    from tallyform.render.methods import _CITED_AS, REFERENCES
+    text = methods_text(BASE.replace(size_method="negbin", ellipse="bootstrap"))
+    refs = methods_references(text)
+    for key, (authors, year) in _CITED_AS.items():
+        cited = REFERENCES[key] in refs
+        assert cited == (f"{authors} {year}" in text or f"{authors} ({year}" in text
+                         or f"{authors}'s ({year}" in text), key
+    assert any(r.startswith("Dunn PK, Smyth GK (1996)") for r in refs)
+    assert any(r.startswith("Efron B, Tibshirani RJ (1993)") for r in refs)
+    assert CALIBRATION in text
+
+
+CALIBRATION = ("Every test used here was checked by simulation; see the calibration table "
+               "(docs/calibration.md in the tallyform repository).")

@@ -265,6 +265,10 @@ def units_frame(units) -> pd.DataFrame:
     for t in units.terms:
         rows[f"term: {t}"] = {"what": "term", "n": None, "samples_each": "",
                               "stratum": plan.stratum_name(t), "detected": plan.detected}
+    for k, v in rows.items():
+        if v["n"] is None:
+            v["n"] = pd.NA
     out = pd.DataFrame.from_dict(rows, orient="index")
+    out["n"] = pd.array(out["n"].tolist(), dtype="Int64")
     out.index.name = "item"
     return out

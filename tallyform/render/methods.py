@@ -249,7 +249,7 @@ def _partition_words(spec, results, measure) -> list[str]:
             f"95 % intervals of every fraction came from {spec.n_boot} delete-d jackknife "
             f"replicates (d = n/4 {lv} left out at a time; Shao & Wu 1989), bias-corrected, "
             "with t quantiles.")
-    if spec.compare_with:
+    if spec.compare_with and (results is None or results.choices is not None):
         a = {"measure": spec.measure, "transform": spec.transform, "size": spec.size,
              "shape": spec.shape, "shape_dims": spec.shape_dims}
         b = dict(a, **{k: ("none" if k == "transform" and v is None else v)
@@ -258,14 +258,30 @@ def _partition_words(spec, results, measure) -> list[str]:
                    f"{_choice_words(b)} as paired differences"
                    + (" with intervals from the same leave-out replicates." if spec.n_boot
                       else "."))
-    out.append(
-        f"The same partition was computed for {len(spec.scan_measures)} measures "
+    return out
+
+
+_STEP_WORDS = {"size_shape": "the size and shape partition", "scan": "the scan",
+               "choices": "the comparison of two choices",
+               "partition intervals": "intervals of the partition's shares",
+               "dissimilarity": "the dissimilarities", "ordination": "the ordination",
+               "ellipses": "the ellipses", "comparison": "the size, shape and spread tests",
+               "permanova": "the PERMANOVA of the chosen measure",
+               "pairwise": "the pairwise contrasts", "contributions": "the taxon contributions",
+               "audit": "the audit"}
+
+
+def _scan_words(spec, results) -> str:
+    same = "The same" if results is None or results.size_shape is not None else "The size " \
+        "and shape"
+    nm, nt = len(spec.scan_measures), len(spec.scan_transforms)
+    return (
+        f"{same} partition was computed for {nm} measure{'s' if nm != 1 else ''} "
         f"({', '.join(_measure_label(m) for m in spec.scan_measures)}) under "
-        f"{len(spec.scan_transforms)} transformations "
+        f"{nt} transformation{'s' if nt != 1 else ''} "
         f"({', '.join(map(str, spec.scan_transforms))})"
         + (f", each with intervals from {spec.scan_n_boot} replicates." if spec.scan_n_boot
            else "."))
-    return out
 
 
 def _choice_words(choice: dict) -> str:
@@ -335,11 +351,11 @@ def _tests_words(spec, results) -> list[str]:
     blocks = f", within blocks of {spec.blocks}" if spec.blocks else ""
     centre = "centroid" if spec.dispersion_centre == "mean" else "spatial median"
     if c is not None and c.size is not None:
-        size = size_test_words(c.size)
+        size = f"in size, by {size_test_words(c.size)}, and "
     elif c is not None:
-        size = f"not tested ({c.size_skipped})"
+        size = ""
     else:
-        size = f"{_SIZE_METHOD_WORDS[spec.size_method]} of log total abundance"
+        size = f"in size, by {_SIZE_METHOD_WORDS[spec.size_method]} of log total abundance, and "
     shape_name = "PERMANOVA (Anderson 2001)"
     scheme = ""
     if c is not None:
@@ -348,9 +364,12 @@ def _tests_words(spec, results) -> list[str]:
             shape_name = label
         scheme = getattr(c.shape, "scheme", "") or ""
     perms = scheme or f"{spec.n_permutations} permutations{blocks}"
+    skipped = (f"Size was not compared: {c.size_skipped[:1].lower()}{c.size_skipped[1:]} "
+               if c is not None and c.size is None and c.size_skipped else "")
     out = [
-        f"Differences between {spec.group} groups were tested separately in size, by {size}, "
-        f"and in shape, by {shape_name} of {measure_phrase(spec.shape_measure)} ({perms}), "
+        f"{skipped}Differences between {spec.group} groups were tested "
+        f"{'separately ' if size else ''}{size}"
+        f"in shape, by {shape_name} of {measure_phrase(spec.shape_measure)} ({perms}), "
         "next to the Welch-type test, which allows each group its own spread (Alekseyenko "
         "2016; Hamidi et al. 2019), and the test of homogeneity of multivariate dispersions "
         f"(distances to the group {centre}, scaled by sqrt(n_g / (n_g - 1)) so that groups "
@@ -361,8 +380,9 @@ def _tests_words(spec, results) -> list[str]:
               None: "not adjusted for multiple testing"}[spec.pairwise_adjust]
     stat = ("the Welch-type statistic" if spec.pairwise_statistic == "welch"
             else "PERMANOVA's pseudo-F")
-    out.append(f"Pairwise contrasts between groups used {stat} on the same units, "
-               f"{adjust}.")
+    if results is None or results.pairwise is not None:
+        out.append(f"Pairwise contrasts between groups used {stat} on the same units, "
+                   f"{adjust}.")
     return out
 
 
@@ -446,13 +466,27 @@ def methods_text(spec, results=None, *, software: dict | None = None) -> str:
     parts.extend(_units_words(spec, results))
     parts.append(f"Abundances were {_transform_words(spec.transform)} and compared with "
                  f"{measure_phrase(spec.measure)}.")
-    parts.extend(_partition_words(spec, results, measure))
-    parts.append(_ordination_words(spec, results, measure))
+
+    def ran(step):          # the paragraph describes what ran, not what the spec hoped
+        return results is None or getattr(results, step) is not None
+    if ran("size_shape"):
+        parts.extend(_partition_words(spec, results, measure))
+    if ran("scan") and (results is None or results.scan.to_frame()["size_only"].notna().any()):
+        parts.append(_scan_words(spec, results))
+    if ran("ordination"):
+        parts.append(_ordination_words(spec, results, measure))
     if spec.group:
-        parts.extend(_tests_words(spec, results))
-        parts.append(_permanova_words(spec, results, measure))
-        parts.append(_taxa_words(spec, results))
-        parts.append(_audit_words(spec, measure))
+        if ran("comparison"):
+            parts.extend(_tests_words(spec, results))
+        if spec.model_terms and ran("permanova"):
+            parts.append(_permanova_words(spec, results, measure))
+        if ran("contributions"):
+            parts.append(_taxa_words(spec, results))
+        if ran("audit"):
+            parts.append(_audit_words(spec, measure))
+    if results is not None and results.skipped:
+        parts.append("Not run on these data (the report says why): "
+                     + ", ".join(_STEP_WORDS.get(k, k) for k in results.skipped) + ".")
     parts.append(CALIBRATION_SENTENCE)
     parts.append(f"Every random step used the seed {spec.seed}." if spec.seed is not None
                  else "Random steps were not seeded (results vary slightly between runs).")

@@ -159,3 +159,9 @@ def test_relative_data_totals_are_never_called_sizes():
     assert "Sample totals (size" not in page and "sum of all counts" not in page
     assert "size_shape" in res.skipped           # no loads: the partition refuses, said so
     assert "Size</h3><p>Not tested: the totals are sequencing depths" in page
+    # the methods paragraph describes what ran, not what the spec asked for
+    from tallyform.render.methods import methods_text
+    text = methods_text(spec, res)
+    assert "Size was not compared: the totals are sequencing depths" in text
+    assert "Taxon contributions" not in text and "db-RDA" not in text
+    assert "Not run on these data (the report says why): the size and shape partition" in text

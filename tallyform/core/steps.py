@@ -10,6 +10,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numpy as np
+
 __all__ = ["Ref", "Expr", "Call", "literal", "resolve_spec_units", "SpecUnits",
            "contribution_units", "build_calls", "read_call", "first_two_levels", "spec_terms"]
 
@@ -62,6 +64,8 @@ def literal(v) -> str:
         return "[" + ", ".join(literal(x) for x in v) + "]"
     if isinstance(v, dict):
         return "{" + ", ".join(f"{literal(k)}: {literal(x)}" for k, x in v.items()) + "}"
+    if isinstance(v, np.generic):          # np.int64(3) -> 3, as a fresh session reads it
+        return repr(v.item())
     return repr(v)
 
 

@@ -123,3 +123,14 @@ def test_code_reads_the_data_first():
     code = AnalysisSpec(group="habitat").code(sub)
     assert "tly.demo" not in code and "# tab = tly.read_counts(" in code
     assert sub.fingerprint in code
+
+
+def test_code_literals_read_back_in_a_fresh_session():
+    # numpy scalars (group levels read from a table) are written as plain Python values
+    import numpy as np
+
+    from tallyform.core.steps import literal
+    value = (np.int64(3), np.str_("a"), 0.95, None, {"x": np.float64(1.5)}, ("p", "q"))
+    text = literal(value)
+    assert "np." not in text
+    assert eval(text, {}) == [3, "a", 0.95, None, {"x": 1.5}, ["p", "q"]]  # noqa: S307

@@ -1,13 +1,17 @@
 """The command line: a thin shell over the core and the report.
 
     tallyform demo [NAME] [--out DIR]      full analysis of a synthetic demo scenario
-    tallyform report --counts F --samples F --group COL [--spec F] --out DIR
+    tallyform report --counts F --samples F --group COL [--units COL] [--spec F] --out DIR
     tallyform lab [--dir DIR]              JupyterLab on the walkthrough notebooks
+
+Messages from the core name Python keywords (``units=False``); the shell says them as its
+own options (``--no-units``), or as a key of the ``--spec`` JSON where it has no option.
 """
 from __future__ import annotations
 
 import argparse
 import os
+import re
 import shutil
 import sys
 import time
@@ -42,16 +46,17 @@ class Progress:
         self.stream.flush()
 
 
-def _print_table_overview(tab, group: str | None) -> None:
+def _print_table_overview(tab, group: str | None, units=None) -> None:
+    from .render.wording import totals_heading, units_headline
     print(repr(tab))
+    if units is not None and units.plan is not None:
+        print(units_headline(tab.n_samples, units.plan))
     print()
     facts = tab.summary().map(lambda v: f"{v:,.4g}" if isinstance(v, float) else v)
     print(facts.to_string())
     if group:
-        from .core.abundance import totals_meaning
         print()
-        what = "size" if tab.abundance == "absolute" else totals_meaning(tab, short=True)
-        print(f"Sample totals ({what}) by {group}:")
+        print(totals_heading(tab, group) + ":")
         with pd.option_context("display.float_format", "{:,.1f}".format,
                                "display.width", 120):
             print(tab.totals_by(group).to_string())
@@ -61,8 +66,49 @@ def _print_table_overview(tab, group: str | None) -> None:
             with pd.option_context("display.float_format", "{:,.2f}".format,
                                    "display.width", 120):
                 print(tab.totals_by(group, per_effort=True).to_string())
+    if units is not None and units.terms:
+        from .render.wording import units_paragraph
+        print()
+        print(cli_words(units_paragraph(units, cli=True)))
     for note in tab.notes:
-        print(f"note: {note}")
+        print(f"note: {cli_words(note)}")
+
+
+# Python keywords in messages -> this command line's options (or --spec keys)
+_CLI_WORDS = [
+    (r"\bunits=False\b", "--no-units"),
+    (r"\bunits=(?:\.\.\.|'[^']*'|\[[^\]]*\])", "--units COLUMN"),
+    (r"\babundance='(relative|absolute)'", r"--abundance \1"),
+    (r"\bload=(?:'[^']*'|\.\.\.)?", "--load COLUMN"),
+    (r"\bspike_in=(?:\{[^}]*\}|\.\.\.)?", "--spike-in TAXON --spike-added COLUMN"),
+    (r"\beffort=(?:'[^']*'|\.\.\.)?", "--effort COLUMN"),
+    (r"\brows='(samples|taxa)'", r"--rows \1"),
+    (r"\bencoding='([^']*)'", r"--encoding \1"),
+    (r"\bsep=(?:'([^']*)'|\.\.\.)", r"--sep SEPARATOR"),
+    (r"\bdecimal='([^']*)'", r"--decimal '\1'"),
+    (r"\bthousands='([^']*)'", r"--thousands '\1'"),
+    (r"\bheader_row=(\w+)", r"--header-row \1"),
+    (r"\bempty='(\w+)'", r"--empty \1"),
+    (r"\bmethod='(\w+)'", r'"size_method": "\1" in --spec'),
+]
+
+
+def cli_words(text: str) -> str:
+    """A core message as the command line says it: its options instead of Python keywords,
+    and ``"key": value in --spec`` for a spec key the command line has no option for."""
+    from .core.spec import AnalysisSpec
+    for pattern, repl in _CLI_WORDS:
+        text = re.sub(pattern, repl, text)
+    keys = set(AnalysisSpec.__dataclass_fields__)
+
+    def spec_key(m):
+        key, value = m.group(1), m.group(2)
+        if key not in keys:
+            return m.group(0)
+        value = f'"{value[1:-1]}"' if value.startswith("'") else value
+        value = {"True": "true", "False": "false", "None": "null"}.get(value, value)
+        return f'"{key}": {value} in --spec'
+    return re.sub(r"\b([a-z_]+)=('[^']*'|[\w.]+)", spec_key, text)
 
 
 def _print_findings(results) -> None:
@@ -80,11 +126,11 @@ def _print_findings(results) -> None:
             print("\nSize-only share by measure (rows) and transformation (columns):")
             print(piv.to_string())
     if c is not None:
-        print(f"\n{c.reading}")
+        print(f"\n{cli_words(c.reading)}")
     if a is not None:
-        print(f"\n{a.reading}")
+        print(f"\n{cli_words(a.reading)}")
     for step, why in results.skipped.items():
-        print(f"\nnot run: {step}: {why}")
+        print(f"\nnot run: {step}: {cli_words(why)}")
 
 
 def _analyse(spec, tab):
@@ -115,6 +161,35 @@ def _write_all(results, out: Path, *, notebook: bool, title: str) -> None:
         print(f"      {nb}")
 
 
+def _units_option(args):
+    """The spec's ``units`` from --units (repeatable, or a comma list) and --no-units."""
+    if getattr(args, "no_units", False):
+        if args.units:
+            raise InputError("--units and --no-units contradict each other; keep one.")
+        return False
+    if not args.units:
+        return None
+    names = [u.strip() for item in args.units for u in item.split(",") if u.strip()]
+    return names[0] if len(names) == 1 else tuple(names)
+
+
+def _with_units(spec, args):
+    units = _units_option(args)
+    return spec if units is None and not args.units else spec.replace(units=units)
+
+
+def _resolved_units(spec, tab):
+    """The units the run will use (None when the spec does not fit the table: the run then
+    says why)."""
+    from .core.errors import DesignError
+    from .core.steps import resolve_spec_units
+    try:
+        spec.validate(tab)
+        return resolve_spec_units(spec, tab)
+    except (InputError, DesignError):
+        return None
+
+
 def _cmd_demo(args) -> int:
     from .core.scenarios import SCENARIOS, demo
     from .core.spec import AnalysisSpec
@@ -124,10 +199,9 @@ def _cmd_demo(args) -> int:
     print()
     group = args.group or {"mesocosm": "treatment", "moths": "habitat",
                            "soil": "land_use"}[args.name]
-    _print_table_overview(tab, group)
-    if args.summary_only:
-        return 0
-    if args.name == "mesocosm":
+    if args.spec:
+        spec = AnalysisSpec.from_json(args.spec)
+    elif args.name == "mesocosm":
         spec = AnalysisSpec(group=group, terms=(group, "week"), blocks="tank_block",
                             contrast=("control", "nutrient_high"))
     elif args.name == "soil":
@@ -136,8 +210,12 @@ def _cmd_demo(args) -> int:
     else:
         spec = AnalysisSpec(group=group, size="log_total_per_effort",
                             size_method="negbin", contrast=("woodland", "arable"))
-    if args.spec:
-        spec = AnalysisSpec.from_json(args.spec)
+    if args.group and args.group != spec.group:
+        spec = spec.replace(group=args.group, terms=None, contrast=None)
+    spec = _with_units(spec, args).replace(source={"demo": args.name})
+    _print_table_overview(tab, spec.group, _resolved_units(spec, tab))
+    if args.summary_only:
+        return 0
     results = _analyse(spec, tab)
     _write_all(results, Path(args.out), notebook=not args.no_notebook,
                title=f"tallyform report: {args.name} demo (synthetic data)")
@@ -159,15 +237,21 @@ def _cmd_report(args) -> int:
                             abundance=args.abundance or "relative")
     if args.abundance:
         spec = spec.replace(abundance=args.abundance)
-    tab = read_counts(args.counts, args.samples, rows=args.rows, effort=args.effort,
-                      sheet=args.sheet, encoding=args.encoding, **spec.table_options())
+    reader = {"counts": args.counts, "samples": args.samples, "rows": args.rows,
+              "effort": args.effort, "sheet": args.sheet, "encoding": args.encoding,
+              "sep": args.sep, "decimal": args.decimal, "thousands": args.thousands,
+              "header_row": args.header_row, "empty": args.empty}
+    reader = {k: v for k, v in reader.items() if v is not None}
+    tab = read_counts(reader.pop("counts"), **reader, **spec.table_options())
+    spec = spec.replace(source={"counts": args.counts, **reader})
     if args.group:
         spec = spec.replace(group=args.group)
     if args.measure:
         spec = spec.replace(measure=args.measure)
     if args.transform:
         spec = spec.replace(transform=args.transform)
-    _print_table_overview(tab, spec.group)
+    spec = _with_units(spec, args)
+    _print_table_overview(tab, spec.group, _resolved_units(spec, tab))
     results = _analyse(spec, tab)
     _write_all(results, Path(args.out), notebook=False,
                title=f"tallyform report: {Path(args.counts).name}")
@@ -188,6 +272,16 @@ def _cmd_lab(args) -> int:
     return 0                    # pragma: no cover
 
 
+def _unit_arguments(sub) -> None:
+    sub.add_argument("--units", action="append", metavar="COLUMN",
+                     help="sample column of the sampling units (tank, site, plot) whose "
+                          "samples are not independent replicates; nested units coarsest "
+                          "first, repeated or as a comma list (--units site,plot). Default: "
+                          "found from the design")
+    sub.add_argument("--no-units", action="store_true",
+                     help="treat every sample as an independent replicate")
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="tallyform", description=(
         "Size and shape of community data: how much of the variation between samples a "
@@ -199,6 +293,7 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--out", default="tallyform-demo",
                    help="folder for the report, tables and notebook (default: tallyform-demo)")
     d.add_argument("--group", help="sample column whose groups are compared")
+    _unit_arguments(d)
     d.add_argument("--spec", help="analysis spec (JSON) to use instead of the default")
     d.add_argument("--summary-only", action="store_true",
                    help="print the table summary and totals by group, write nothing")
@@ -209,6 +304,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--counts", required=True, help="counts table (CSV, TSV or XLSX)")
     r.add_argument("--samples", help="sample information table")
     r.add_argument("--group", help="sample column whose groups are compared")
+    _unit_arguments(r)
     r.add_argument("--spec", help="analysis spec (JSON)")
     r.add_argument("--measure", help="dissimilarity under study (default bray_curtis)")
     r.add_argument("--transform", help="transformation (none, sqrt, fourth_root, log1p...)")
@@ -224,6 +320,12 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--spike-added", help="sample column with the amount of spike-in added")
     r.add_argument("--sheet", help="spreadsheet sheet of the counts")
     r.add_argument("--encoding", help="text encoding of the files (default UTF-8)")
+    r.add_argument("--sep", help="column separator of text files (default: detected)")
+    r.add_argument("--decimal", help="decimal mark of the numbers (default '.')")
+    r.add_argument("--thousands", help="thousands separator of the numbers (default none)")
+    r.add_argument("--header-row", type=int, help="line of the header (default 1)")
+    r.add_argument("--empty", choices=["error", "drop", "keep"],
+                   help="samples or taxa with no counts: refuse (default), drop or keep them")
     r.add_argument("--out", required=True, help="output folder")
     r.set_defaults(func=_cmd_report)
     lab = sub.add_parser("lab", help="open JupyterLab on the walkthrough notebooks")
@@ -237,7 +339,7 @@ def main(argv=None) -> int:
     try:
         return args.func(args)
     except TallyformError as err:
-        print(f"\ntallyform: error: {err}", file=sys.stderr)
+        print(f"\ntallyform: error: {cli_words(str(err))}", file=sys.stderr)
         return 2
     except Cancelled as err:
         print(f"\ntallyform: stopped: {err}", file=sys.stderr)

@@ -1,9 +1,11 @@
 """``tly.run(spec, table)``: every result of an analysis spec, in one object.
 
-Each step is one public call with the spec's choices (so ``spec.code()`` reproduces it step by
-step with the same numbers: every random step gets ``rng=spec.seed``). A step that cannot run
-on these data (a DesignError, e.g. a group with one sample) is recorded with its message and
-the others still run; nothing is silently skipped.
+Each step is one public call with the spec's choices, the calls written once in
+:mod:`tallyform.core.steps` (so ``spec.code()`` prints exactly the calls made here and gives
+the same numbers: every random step gets ``rng=spec.seed``). The sampling units are resolved
+once (:func:`tallyform.core.steps.resolve_spec_units`) and every step gets the same ones. A
+step that cannot run on these data (a DesignError, e.g. a group with one sample) is recorded
+with its message and the others still run; nothing is silently skipped.
 """
 from __future__ import annotations
 
@@ -20,9 +22,16 @@ from .table import CommunityTable, as_table
 __all__ = ["run", "AnalysisResults", "software_versions"]
 
 # relative cost of each step, for a progress bar that moves evenly
-_STEPS = [("summary", 1), ("size_shape", 3), ("scan", 3), ("ordination", 2),
-          ("comparison", 6), ("permanova", 4), ("pairwise", 4), ("contributions", 4),
-          ("audit", 12)]
+_STEPS = [("summary", 1), ("size_shape", 3), ("scan", 3), ("choices", 2),
+          ("dissimilarity", 1), ("ordination", 2), ("ellipses", 1), ("comparison", 6),
+          ("permanova", 4), ("pairwise", 4), ("contributions", 4), ("audit", 12)]
+_NEEDS_GROUP = ("comparison", "pairwise", "contributions", "audit")
+# caution added to centre regions drawn from the samples of a design with units
+_ELLIPSE_UNITS_NOTE = (
+    "The ellipses are drawn from the samples, as if each were an independent replicate; "
+    "here samples share sampling units ({units}), so a region for a group's centre drawn "
+    "from them is too small when samples of a unit resemble each other. The tests count "
+    "units; read these regions as descriptive.")
 
 
 def software_versions() -> dict:
@@ -59,6 +68,12 @@ class AnalysisResults:
     audit: object
     skipped: dict = field(default_factory=dict)
     software: dict = field(default_factory=dict)
+    choices: object = None
+    units: object = None
+
+    def code(self) -> str:
+        """Python that reproduces these results in a fresh session (``spec.code(table)``)."""
+        return self.spec.code(self.table)
 
     def tables(self) -> dict[str, pd.DataFrame]:
         """Every result table, named for export (CSV files / XLSX sheets)."""
@@ -67,9 +82,13 @@ class AnalysisResults:
             out["totals_by_group"] = self.totals
         if self.totals_per_effort is not None:
             out["totals_per_effort"] = self.totals_per_effort
+        if self.units is not None and self.units.plan is not None:
+            out["sampling_units"] = units_frame(self.units)
         if self.size_shape is not None:
             out["size_shape"] = self.size_shape.to_frame()
             out["size_shape_by_dims"] = self.size_shape.by_dims()
+        if self.choices is not None:
+            out["choice_comparison"] = self.choices.to_frame()
         if self.scan is not None:
             out["scan"] = self.scan.to_frame()
         if self.ordination is not None:
@@ -78,6 +97,7 @@ class AnalysisResults:
         if self.ellipses is not None:
             out["ellipses"] = self.ellipses.to_frame()
         if self.comparison is not None:
+            out["comparison"] = self.comparison.to_frame()
             if self.comparison.size is not None:
                 out["size_test"] = self.comparison.size.to_frame()
             out["shape_test"] = self.comparison.shape.to_frame()
@@ -86,6 +106,8 @@ class AnalysisResults:
             out["dispersion_test"] = self.comparison.dispersion.to_frame()
         if self.permanova is not None:
             out["permanova"] = self.permanova.to_frame()
+            if self.permanova.schemes is not None:
+                out["permanova_schemes"] = self.permanova.schemes
         if self.pairwise is not None:
             out["pairwise"] = self.pairwise.to_frame()
         if self.contributions is not None:
@@ -116,15 +138,15 @@ def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisRes
     Returns
     -------
     AnalysisResults
+        ``units`` holds the sampling units every step used (resolved once).
+
+    Raises
+    ------
+    InputError, DesignError
+        A spec that does not fit the table (unknown columns, a table read with other
+        ``abundance``/``load``/``spike_in``, sampling units that do not fit the design).
     """
-    from .audit import audit
-    from .dissimilarity import dissimilarity
-    from .inference import pairwise_permanova, permanova
-    from .nmds import nmds
-    from .ordination import pcoa
-    from .partition import size_shape
-    from .scan import scan
-    from .comparison import compare_groups
+    from .steps import build_calls, first_two_levels, resolve_spec_units
     if isinstance(spec, dict):
         spec = AnalysisSpec.from_dict(spec)
     elif isinstance(spec, str):
@@ -133,10 +155,25 @@ def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisRes
         raise InputError("`spec` must be an AnalysisSpec (or its dict or JSON).")
     table = as_table(table)
     spec.validate(table)
+    units = resolve_spec_units(spec, table)
+    group = spec.group
+    contrast = None
+    if group and not spec.contrast:
+        try:
+            contrast = tuple(first_two_levels(table, group))
+        except (DesignError, InputError):
+            contrast = None          # the steps that need it say why
+    calls: dict[str, list] = {}
+    for call in build_calls(spec, contribution=units.contribution, contrast=contrast,
+                            n_boot=units.n_boot, scan_n_boot=units.scan_n_boot):
+        calls.setdefault(call.step, []).append(call)
     total = sum(w for _, w in _STEPS)
     done = 0
+    space: dict = {"tab": table, "units": units.arg}
     res: dict = {}
     skipped: dict = {}
+    if units.boot_skipped:
+        skipped["partition intervals"] = units.boot_skipped
 
     def tick(step_weight):
         nonlocal done
@@ -150,91 +187,89 @@ def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisRes
         start = done
         return lambda d, t: progress(start + weight * d / max(t, 1), total)
 
-    def check():
+    for name, weight in _STEPS:
         if cancel is not None and cancel():
             raise Cancelled("the analysis was cancelled; no result was kept.")
-
-    tr = spec.transform_arg()
-    seed = spec.seed
-    group = spec.group
-    for name, weight in _STEPS:
-        check()
-        needs_group = name in ("comparison", "pairwise", "contributions", "audit")
-        if needs_group and not group:
+        if name == "summary":
+            res["summary"] = table.summary()
+            res["totals"] = table.totals_by(group) if group else None
+            res["totals_per_effort"] = (table.totals_by(group, per_effort=True)
+                                        if group and table.effort is not None else None)
+        elif name in _NEEDS_GROUP and not group:
             skipped[name] = "no group column in the spec"
-            tick(weight)
-            continue
-        try:
-            if name == "summary":
-                res["summary"] = table.summary()
-                res["totals"] = table.totals_by(group) if group else None
-                res["totals_per_effort"] = (table.totals_by(group, per_effort=True)
-                                            if group and table.effort is not None else None)
-            elif name == "size_shape":
-                res["size_shape"] = size_shape(
-                    table, spec.measure, transform=tr, size=spec.size, shape=spec.shape,
-                    shape_dims=spec.shape_dims, n_permutations=spec.n_permutations,
-                    rng=seed, progress=sub(weight), cancel=cancel)
-            elif name == "scan":
-                res["scan"] = scan(table, spec.scan_measures, spec.scan_transforms,
-                                   size=spec.size, shape=spec.shape,
-                                   shape_dims=spec.shape_dims, progress=sub(weight),
-                                   cancel=cancel)
-            elif name == "ordination":
-                d = dissimilarity(table, spec.measure, transform=tr)
-                res["dissimilarity"] = d
-                o = (pcoa(d, correction=spec.correction) if spec.ordination == "pcoa"
-                     else nmds(d, rng=seed, cancel=cancel))
-                res["ordination"] = o
-                if group and spec.ellipse:
-                    res["ellipses"] = o.ellipses(table.samples[group], kind=spec.ellipse,
-                                                 level=spec.ellipse_level, rng=seed)
-            elif name == "comparison":
-                res["comparison"] = compare_groups(
-                    table, group, shape_measure=spec.shape_measure,
-                    size_method=spec.size_method, centre=spec.dispersion_centre,
-                    blocks=spec.blocks, n_permutations=spec.n_permutations, rng=seed,
-                    alpha=spec.alpha, progress=sub(weight), cancel=cancel)
-            elif name == "permanova":
-                if not spec.model_terms:
-                    skipped[name] = "no terms or group in the spec"
-                else:
-                    d = res.get("dissimilarity") or dissimilarity(table, spec.measure,
-                                                                   transform=tr)
-                    res["permanova"] = permanova(
-                        d, table, list(spec.model_terms), blocks=spec.blocks,
-                        n_permutations=spec.n_permutations, rng=seed, ss=spec.ss,
-                        progress=sub(weight), cancel=cancel)
-            elif name == "pairwise":
-                ds = dissimilarity(table, spec.shape_measure)
-                res["pairwise"] = pairwise_permanova(
-                    ds, table, group, adjust=spec.pairwise_adjust, blocks=spec.blocks,
-                    n_permutations=spec.n_permutations, rng=seed, progress=sub(weight),
-                    cancel=cancel)
-            elif name == "contributions":
-                from .contributions import taxon_contributions
-                a, b = spec.contrast or _first_two_levels(table, group)
-                res["contributions"] = taxon_contributions(
-                    table, group, a, b, measure=spec.contribution_measure, rng=seed,
-                    progress=sub(weight), cancel=cancel)
-            elif name == "audit":
-                res["audit"] = audit(
-                    table, group, spec.measure, transform=tr,
-                    reference=spec.audit_reference, n_sim=spec.audit_n_sim,
-                    n_permutations=spec.audit_n_permutations,
-                    model=spec.audit_model, alpha=spec.alpha, rng=seed,
-                    progress=sub(weight), cancel=cancel)
-        except (DesignError, InputError) as err:
-            skipped[name] = str(err)
+        elif name == "permanova" and not spec.model_terms:
+            skipped[name] = "no terms or group in the spec"
+        else:
+            try:
+                _run_step(name, calls.get(name, []), space, res, sub(weight), cancel)
+            except (DesignError, InputError, _Missing) as err:
+                skipped[name] = str(err)
         tick(weight)
+    e = res.get("ellipses")
+    if e is not None and units.plan is not None and not units.plan.independent:
+        import dataclasses
+        what = "; ".join(lv.describe() for lv in units.plan.levels)
+        e = dataclasses.replace(e, notes=e.notes + (_ELLIPSE_UNITS_NOTE.format(units=what),))
+        res["ellipses"] = e
     keys = ["summary", "totals", "totals_per_effort", "size_shape", "scan", "dissimilarity",
             "ordination", "ellipses", "comparison", "permanova", "pairwise", "contributions",
-            "audit"]
-    return AnalysisResults(spec=spec, table=table, skipped=skipped,
+            "audit", "choices"]
+    return AnalysisResults(spec=spec, table=table, skipped=skipped, units=units,
                            software=software_versions(), **{k: res.get(k) for k in keys})
 
 
-def _first_two_levels(table, group):
-    from .design import factor_levels
-    levels = factor_levels(table.group(group, min_levels=2))
-    return levels[0], levels[1]
+class _Missing(Exception):
+    """A step's input comes from a step that could not run."""
+
+
+# where each step's result is kept (the variable of the reproduce-this code -> result name)
+_KEEP = {"s": "size_shape", "g": "scan", "x": "choices", "d": "dissimilarity",
+         "o": "ordination", "e": "ellipses", "c": "comparison", "p": "permanova",
+         "w": "pairwise", "k": "contributions", "a": "audit"}
+# calls that take progress / cancel callbacks
+_CALLBACKS = {"size_shape": ("progress", "cancel"), "scan": ("progress", "cancel"),
+              "compare_choices": ("progress", "cancel"), "nmds": ("cancel",),
+              "compare_groups": ("progress", "cancel"), "permanova": ("progress", "cancel"),
+              "pairwise_permanova": ("progress", "cancel"),
+              "taxon_contributions": ("progress", "cancel"), "audit": ("progress", "cancel")}
+
+
+def _run_step(name, calls, space, res, progress, cancel) -> None:
+    """Evaluate the calls of one step in ``space`` (the reproduce-this namespace)."""
+    from .steps import Ref
+    for call in calls:
+        missing = [v.name for v in list(call.args) + list(call.kwargs.values())
+                   if isinstance(v, Ref) and v.name not in space]
+        if missing:
+            raise _Missing(f"needs {', '.join(missing)} from a step that did not run")
+        extra = {}
+        wanted = _CALLBACKS.get(call.func, ())
+        if "progress" in wanted and progress is not None:
+            extra["progress"] = progress
+        if "cancel" in wanted and cancel is not None:
+            extra["cancel"] = cancel
+        out = call(space, **extra)
+        if call.target in _KEEP:
+            res[_KEEP[call.target]] = out
+
+
+def units_frame(units) -> pd.DataFrame:
+    """The sampling units of a run: one row per level, then the stratum of every term."""
+    plan = units.plan
+    rows = {}
+    for lv in plan.levels:
+        s = lv.sizes
+        rows[f"units: {lv.name}"] = {"what": "units", "n": lv.m,
+                                     "samples_each": (f"{s.min()}" if lv.balanced
+                                                      else f"{s.min()}-{s.max()}"),
+                                     "stratum": "", "detected": plan.detected}
+    for t in units.terms:
+        rows[f"term: {t}"] = {"what": "term", "n": None, "samples_each": "",
+                              "stratum": plan.stratum_name(t), "detected": plan.detected}
+    for k, v in rows.items():
+        if v["n"] is None:
+            v["n"] = pd.NA
+    out = pd.DataFrame.from_dict(rows, orient="index")
+    out["n"] = pd.array(out["n"].tolist(), dtype="Int64")
+    out.index.name = "item"
+    return out

@@ -369,8 +369,8 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
     # same with and without them (spawning does not advance the parent stream)
     extra_rng = rng.spawn(1)[0]
     groups = g.to_numpy()
-    rho = (estimate_overdispersion(counting_basis(table)[0], groups)
-           if model != "multinomial" else 0.0)
+    reads_basis, read_scale = counting_basis(table)
+    rho = (estimate_overdispersion(reads_basis, groups) if model != "multinomial" else 0.0)
     labels = np.asarray(table.sample_labels, dtype=object)
     taxa = np.asarray(table.taxon_labels, dtype=object)
     p = {k: np.full(n_sim, np.nan) for k in ("main", "ref", "spread_main", "spread_ref",
@@ -387,8 +387,10 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
             values, labels, taxa, X, reference, None, n_permutations, rng, groups=by,
             spread_rng=extra_rng, design=design)
         if rarefied:
+            # rarefaction draws individuals: the simulated reads (loads scaled back out)
+            reads = np.rint(values / read_scale[:, None])
             p["rare_shape"][s], p["rare_spread"][s] = _rarefied_pvalues(
-                values, groups, measure, transform, n_permutations, extra_rng,
+                reads, groups, measure, transform, n_permutations, extra_rng,
                 labels=labels, taxa=taxa, design=design)
         if progress is not None:
             progress(s + 1, n_sim)

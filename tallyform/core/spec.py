@@ -32,7 +32,14 @@ _CHOICES = {
     "ellipse": ("confidence", "prediction", "data", "bootstrap", None),
     "ss": ("sequential", "marginal"),
     "audit_model": ("dirichlet_multinomial", "multinomial"),
+    "pairwise_statistic": ("pseudo_f", "welch"),
 }
+#: reader options a spec may record under ``source`` (keywords of ``tly.read_counts``)
+SOURCE_KEYS = ("counts", "samples", "rows", "id_column", "taxa", "effort", "sheet",
+               "samples_sheet", "samples_id_column", "encoding", "sep", "decimal",
+               "thousands", "header_row", "empty")
+#: keys of ``compare_with`` (the second choice of ``tly.compare_choices``)
+COMPARE_KEYS = ("measure", "transform", "size", "shape", "shape_dims")
 DEFAULT_SCAN_MEASURES = ("euclidean", "manhattan", "bray_curtis", "canberra", "chi_square",
                          "hellinger", "chord", "jaccard")
 DEFAULT_SCAN_TRANSFORMS = ("none", "sqrt", "fourth_root", "presence", "log1p")
@@ -82,6 +89,30 @@ class AnalysisSpec:
         ``load`` (a sample column) or ``spike_in`` (``{'taxon': ..., 'added': ...}``) it
         says where the absolute sizes of relative data come from. The table is read with
         these keywords (``spec.table_options()``); ``run`` checks that it was.
+    units : None, False, str or tuple of str
+        The sampling units (tank, site, plot) whose samples are not independent replicates:
+        a column, or nested columns coarsest first (``["site", "plot"]``). None detects them
+        from the design (a column within which a tested factor is constant); False treats
+        every sample as an independent replicate. ``run`` resolves them once and every step
+        uses the same units (tests count units; intervals leave out whole units).
+    n_boot : int
+        Leave-out replicates of the 95 % intervals of the partition's shares (and of
+        ``compare_with``); 0 gives none. 999 take about 0.4 s at 60 samples.
+    scan_n_boot : int
+        The same for every cell of the scan (0: none; 199 take about 3 s for the default
+        grid at 60 samples).
+    pairwise_statistic : {'pseudo_f', 'welch'}
+        Statistic of the pairwise contrasts: PERMANOVA's pseudo-F, or the Welch-type
+        statistic, which allows each group its own spread.
+    compare_with : dict, optional
+        A second choice (keys ``measure``, ``transform``, ``size``, ``shape``,
+        ``shape_dims``; missing keys keep this spec's) whose partition is compared with
+        this spec's choice by ``tly.compare_choices``.
+    source : dict, optional
+        Where the table comes from, so that ``spec.code()`` can read it: ``{"demo":
+        "mesocosm"}``, or ``tly.read_counts`` keywords with the file as ``counts``
+        (``{"counts": "counts.csv", "samples": "samples.csv", "effort": "trap_nights"}``).
+        ``abundance``, ``load`` and ``spike_in`` stay keys of their own.
     """
 
     group: str | None = None
@@ -115,15 +146,25 @@ class AnalysisSpec:
     abundance: str | None = None
     load: str | None = None
     spike_in: dict | None = None
+    units: object = None
+    n_boot: int = 999
+    scan_n_boot: int = 0
+    pairwise_statistic: str = "pseudo_f"
+    compare_with: dict | None = None
+    source: dict | None = None
     version: int = field(default=SPEC_VERSION)
 
     def __post_init__(self):
-        for name in ("terms", "scan_measures", "scan_transforms", "contrast"):
+        for name in ("terms", "scan_measures", "scan_transforms", "contrast", "units"):
             v = getattr(self, name)
             if isinstance(v, list):
                 object.__setattr__(self, name, tuple(v))
-        if isinstance(self.spike_in, dict):             # a private copy
-            object.__setattr__(self, "spike_in", dict(self.spike_in))
+        for name in ("spike_in", "compare_with", "source"):      # private copies
+            v = getattr(self, name)
+            if isinstance(v, dict):
+                object.__setattr__(self, name, dict(v))
+        if isinstance(self.units, tuple) and len(self.units) == 1:
+            object.__setattr__(self, "units", self.units[0])
         self.validate()
 
     # ------------------------------------------------------------------ checks
@@ -151,6 +192,8 @@ class AnalysisSpec:
         _int_key("n_permutations", self.n_permutations, low=0)
         _int_key("audit_n_sim", self.audit_n_sim, low=1)
         _int_key("audit_n_permutations", self.audit_n_permutations, low=19)
+        _int_key("n_boot", self.n_boot, low=0)
+        _int_key("scan_n_boot", self.scan_n_boot, low=0)
         if self.shape_dims is not None:
             _int_key("shape_dims", self.shape_dims, low=1)
         if self.seed is not None:
@@ -171,10 +214,13 @@ class AnalysisSpec:
                                           self.contrast[0] == self.contrast[1]):
             raise InputError("spec key 'contrast' must name two different groups.")
         self._validate_abundance(table)
+        self._validate_units()
+        self._validate_compare_with()
+        self._validate_source()
         if table is not None:
             cols = set(table.samples.columns)
             named = [self.group, self.blocks] + [p for t in self.model_terms
-                                                 for p in t.split(":")]
+                                                 for p in t.split(":")] + self.unit_columns
             for c in named:
                 if c is not None and c not in cols:
                     raise InputError(f"the spec names column {c!r}, which is not in the "
@@ -209,6 +255,77 @@ class AnalysisSpec:
                 + ", ".join(f"{k}={v!r}" for k, v in have.items() if v is not None) + ".",
                 hint=f"Read the table with {shown} (e.g. tly.read_counts(..., {shown})), or "
                      "change the spec.")
+
+    def _validate_units(self) -> None:
+        u = self.units
+        if u is None or u is False:
+            return
+        names = u if isinstance(u, tuple) else (u,)
+        if not names or not all(isinstance(x, str) and x.strip() for x in names):
+            raise InputError("spec key 'units' must be null (detect), false (independent "
+                             "samples), a column name or a list of nested column names "
+                             f"(coarsest first); got {u!r}.")
+        if len(set(names)) != len(names):
+            raise InputError(f"spec key 'units' lists a column twice: {list(names)}.")
+
+    @property
+    def unit_columns(self) -> list:
+        """The columns named by ``units`` (empty when detected or independent)."""
+        u = self.units
+        if u is None or u is False:
+            return []
+        return list(u) if isinstance(u, tuple) else [u]
+
+    def _validate_compare_with(self) -> None:
+        cw = self.compare_with
+        if cw is None:
+            return
+        if not isinstance(cw, dict) or not cw or set(cw) - set(COMPARE_KEYS):
+            raise InputError("spec key 'compare_with' must be a non-empty object with keys "
+                             f"from {list(COMPARE_KEYS)}; got {cw!r}.")
+        from .measures import MEASURES
+        from .transforms import get_transform
+        if "measure" in cw and cw["measure"] not in MEASURES:
+            raise InputError(f"spec key 'compare_with' names unknown measure "
+                             f"{cw['measure']!r}.")
+        if cw.get("transform") is not None:
+            try:
+                get_transform(cw["transform"])
+            except InputError as err:
+                raise InputError(f"spec key 'compare_with': {err}") from None
+        for key in ("size", "shape"):
+            if key in cw and cw[key] not in _CHOICES[key]:
+                raise InputError(f"spec key 'compare_with' {key!r} must be one of "
+                                 f"{list(_CHOICES[key])}; got {cw[key]!r}.")
+        if cw.get("shape_dims") is not None:
+            _int_key("compare_with shape_dims", cw["shape_dims"], low=1)
+
+    def _validate_source(self) -> None:
+        src = self.source
+        if src is None:
+            return
+        from .scenarios import demo_names
+        if not isinstance(src, dict):
+            raise InputError(f"spec key 'source' must be an object; got {src!r}.")
+        if "demo" in src:
+            if set(src) != {"demo"} or src["demo"] not in demo_names():
+                raise InputError("spec key 'source' with 'demo' names a bundled scenario "
+                                 f"({demo_names()}) and nothing else; got {src!r}.")
+            return
+        unknown = sorted(set(src) - set(SOURCE_KEYS))
+        if unknown or not isinstance(src.get("counts"), str):
+            raise InputError("spec key 'source' must give the counts file as 'counts' and "
+                             f"reader options from {list(SOURCE_KEYS[1:])}"
+                             + (f"; unknown key(s) {unknown}" if unknown else "") + ".",
+                             hint="Loads and spike-ins are the spec keys 'abundance', "
+                                  "'load' and 'spike_in'.")
+        for k, v in src.items():
+            ok = isinstance(v, int) and not isinstance(v, bool) if k == "header_row" \
+                else v is None or isinstance(v, str)
+            if not ok:
+                raise InputError(f"spec key 'source': {k!r} must be "
+                                 f"{'a whole number' if k == 'header_row' else 'text'}; "
+                                 f"got {v!r}.")
 
     def table_options(self) -> dict:
         """Keywords for the readers and CommunityTable that read the table as the spec says
@@ -298,46 +415,18 @@ class AnalysisSpec:
         """The transform as passed to core functions (None for 'none')."""
         return None if self.transform == "none" else self.transform
 
-    def code(self, table_name: str = "tab") -> str:
-        """Python code that reproduces the analysis with public calls ("reproduce this")."""
-        tr = f", transform={self.transform!r}" if self.transform != "none" else ""
-        seed = self.seed
-        lines = [
-            "import tallyform as tly",
-            "",
-            f"spec = tly.AnalysisSpec.from_json({self.to_json(indent=None)!r})",
-            *([f"# {table_name} is read with "
-               + ", ".join(f"{k}={v!r}" for k, v in self.table_options().items())
-               + " (what its totals mean)"] if self.table_options() else []),
-            f"results = tly.run(spec, {table_name})          # everything below at once",
-            "",
-            "# or step by step:",
-            f"s = tly.size_shape({table_name}, {self.measure!r}{tr}, size={self.size!r}, "
-            f"shape={self.shape!r}, shape_dims={self.shape_dims!r}, "
-            f"n_permutations={self.n_permutations}, rng={seed!r})",
-            f"d = tly.dissimilarity({table_name}, {self.measure!r}{tr})",
-        ]
-        if self.ordination == "pcoa":
-            lines.append(f"o = tly.pcoa(d, correction={self.correction!r})")
-        else:
-            lines.append(f"o = tly.nmds(d, rng={seed!r})")
-        if self.group:
-            if self.ellipse:
-                lines.append(f"e = o.ellipses({table_name}.samples[{self.group!r}], "
-                             f"kind={self.ellipse!r}, level={self.ellipse_level!r})")
-            lines += [
-                f"c = tly.compare_groups({table_name}, {self.group!r}, "
-                f"shape_measure={self.shape_measure!r}, size_method={self.size_method!r}, "
-                f"blocks={self.blocks!r}, n_permutations={self.n_permutations}, rng={seed!r})",
-                f"p = tly.permanova(d, {table_name}, {list(self.model_terms)!r}, "
-                f"blocks={self.blocks!r}, n_permutations={self.n_permutations}, "
-                f"ss={self.ss!r}, rng={seed!r})",
-                f"a = tly.audit({table_name}, {self.group!r}, {self.measure!r}{tr}, "
-                f"reference={self.audit_reference!r}, n_sim={self.audit_n_sim}, "
-                f"n_permutations={self.audit_n_permutations}, model={self.audit_model!r}, "
-                f"rng={seed!r})",
-            ]
-        return "\n".join(lines)
+    def code(self, table=None) -> str:
+        """Python code that reproduces the analysis with public calls ("reproduce this").
+
+        It reads the table (``tly.demo`` or ``tly.read_counts`` from ``source``, with the
+        spec's ``abundance``, ``load`` and ``spike_in``), runs ``tly.run``, then makes the
+        same calls step by step; pasted into a fresh session it gives the same numbers as
+        ``tly.run(spec, table)``. With ``table`` (or a ``source`` that can be read), the
+        sampling units and the default contrast are written out as resolved; otherwise the
+        code resolves them as ``run`` does.
+        """
+        from .reproduce import spec_code
+        return spec_code(self, table)
 
 
 def _int_key(key, value, *, low):

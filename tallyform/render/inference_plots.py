@@ -90,17 +90,17 @@ def totals_figure(table, group, *, log: bool = True, per_effort: bool = False,
         raise DesignError("per_effort=True needs a sampling-effort column; load the table with "
                           "effort='column name', or use per_effort=False.")
     values = size_measure(tab, effort=None if per_effort else False, log=False)
-    unit = f"total per {tab.effort_name}" if per_effort else "total"
+    what, name, line = _totals_words(tab)
+    unit = f"{what} per {tab.effort_name}" if per_effort else what
     sz = sizes(present)
     fig = go.Figure()
     _boxes(fig, values, groups, sz=sz, unit=unit)
-    lines = ["sum of all counts in each sample" + (f", divided by {tab.effort_name}"
-                                                   if per_effort else "")]
+    lines = [line + (f", divided by {tab.effort_name}" if per_effort else "")]
     zero = int((values.to_numpy() <= 0).sum())
     if log and zero:
         lines.append(f"{zero} sample(s) with a total of 0 cannot be drawn on a log scale "
                      "(log=False shows them)")
-    base_layout(fig, title=subtitle(f"Sample totals by {groups.name} ({tab.n_samples} samples)",
+    base_layout(fig, title=subtitle(f"{name} by {groups.name} ({tab.n_samples} samples)",
                                     *lines),
                 legend_title=str(groups.name), present=present, height=540)
     fig.update_yaxes(title_text=f"sample {unit}" + (" (log scale)" if log else ""),
@@ -110,6 +110,21 @@ def totals_figure(table, group, *, log: bool = True, per_effort: bool = False,
         fig.update_yaxes(tickmode="array", tickvals=ticks, ticktext=[f"{t:,.6g}" for t in ticks])
     fig.update_xaxes(title_text=str(groups.name))
     return fig
+
+
+def _totals_words(tab) -> tuple[str, str, str]:
+    """(axis word, title, explanatory line) for what a table's totals are: counted
+    abundances, sequencing depths (technical) or the loads of relative data."""
+    if getattr(tab, "abundance", "absolute") == "absolute":
+        return "total", "Sample totals", "sum of all counts in each sample (size)"
+    if tab.load is None:
+        return ("reads", "Sequencing depths",
+                "reads per sample: set by the sequencing, not the size of the community")
+    if tab.spike_in is not None:
+        return ("load", "Sample loads (size)",
+                f"absolute load from the spike-in {tab.spike_in['taxon']!r} (amount added: "
+                f"{tab.spike_in['added']})")
+    return "load", "Sample loads (size)", f"absolute load of each sample ({tab.load_name})"
 
 
 def _null_parts(result, term):

@@ -105,8 +105,9 @@ def _title_lines(o: Ordination, ellipses) -> tuple[str, list[str]]:
     lines = [f"scaling: {o.scaling}"]
     if o.stress is not None:
         lines.append(f"stress {o.stress:.3f}: {o.stress_reading}")
-    if o.r_squared is not None:
-        lines.append(f"constrained share {100 * o.r_squared:.1f} % of the total")
+    summary = o.constrained_summary() if o.r_squared is not None else None
+    if summary:                 # share, chance level, adjusted share, p when tested
+        lines.append(summary)
     if o.negative_share > 0:
         lines.append(f"negative eigenvalues hold {100 * o.negative_share:.1f} % of the total: "
                      "no axis shows that part")

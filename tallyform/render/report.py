@@ -100,166 +100,246 @@ class _FigureError:
         self.err = err
 
 
+class _Page:
+    """What every section builder needs: the results, the figures and escaped helpers."""
+
+    def __init__(self, results: AnalysisResults):
+        from . import plots
+        self.results, self.plots = results, plots
+        self.spec, self.tab = results.spec, results.table
+        self.figs = _Figures()
+
+    def fig(self, make, height=None) -> str:
+        f = _safe_figure(make)
+        if isinstance(f, _FigureError):
+            return f"<p class='skipped'>Figure not drawn: {_esc(f.err)}</p>"
+        return self.figs.html(f, height=height)
+
+
+def _pct(x) -> str:
+    return f"{100 * float(x):.1f}"
+
+
+def _data_section(pg: _Page) -> str:
+    from .wording import totals_heading, units_paragraph
+    res, tab, group = pg.results, pg.tab, pg.spec.group
+    body = _table(res.summary.to_frame("value"))
+    if tab.notes:
+        body += "<ul class='notes'>" + "".join(f"<li>{_esc(n)}</li>" for n in tab.notes) + \
+            "</ul>"
+    units = res.units
+    if units is not None and units.terms:
+        body += "<h3>Sampling units</h3>"
+        body += f"<p class='reading'>{_esc(units_paragraph(units))}</p>"
+        if units.plan is not None and not units.plan.independent:
+            from ..core.analysis import units_frame
+            body += _table(units_frame(units))
+    if res.totals is not None:
+        body += f"<h3>{_esc(totals_heading(tab, group))}</h3>" + _table(res.totals)
+        body += pg.fig(lambda: pg.plots.totals_figure(tab, group, log=True))
+    if res.totals_per_effort is not None:
+        body += (f"<h3>Totals per unit of effort ({_esc(tab.effort_name)}) by {_esc(group)}"
+                 "</h3>" + _table(res.totals_per_effort))
+        body += pg.fig(lambda: pg.plots.totals_figure(tab, group, log=True, per_effort=True))
+    return body
+
+
+def _partition_reading(s) -> str:
+    """The partition in words: every share with its interval, the Monte Carlo test."""
+    fr, ci = s.fractions, s.fractions_ci
+
+    def share(f):
+        if ci is None or f not in ci.index:
+            return f"{_pct(fr[f])} %"
+        return f"{_pct(fr[f])} % (95 % interval {_pct(ci.loc[f, 'low'])} to " \
+               f"{_pct(ci.loc[f, 'high'])})"
+    name = f"{s.transform} + {s.measure}" if s.transform else s.measure
+    text = (f"Of the variation between samples in {name}, {share('size_only')} is size only "
+            f"(total abundance), {share('shape_only')} shape only (composition), "
+            f"{share('shared')} cannot be attributed to either (shared) and "
+            f"{share('residual')} is unexplained. {s.shape_dims_reason}.")
+    if s.tests is not None and "shape_only" in s.tests.index:
+        p = float(s.tests.loc["shape_only", "pvalue"])
+        n_sim = s.tests.loc["shape_only"].get("n_simulations", None)
+        null = s.null_shares
+        rng = ""
+        if null is not None and "shape_only" in null.index:
+            rng = (f"; counting noise alone gave {_pct(null.loc['shape_only', 'null_low'])} to "
+                   f"{_pct(null.loc['shape_only', 'null_high'])} %")
+        sims = f" on {int(n_sim)} simulated tables" if n_sim is not None else ""
+        text += (f" Monte Carlo test of the shape-only share against one composition for all "
+                 f"samples (shape axes re-derived on each of them){sims}: p = {p:.3g}{rng}.")
+    return text
+
+
+def _partition_section(pg: _Page) -> str:
+    s = pg.results.size_shape
+    body = f"<p class='reading'>{_esc(_partition_reading(s))}</p>"
+    body += pg.fig(lambda: pg.plots.partition_bars(s))
+    body += _table(s.to_frame()) + _table(s.r2) + _notes(s)
+    if s.null_shares is not None:
+        body += ("<p>Columns null_median, null_low, null_high: every share over tables "
+                 "simulated with one composition for all samples, each sample's counts drawn "
+                 "at its observed total (what counting noise alone gives).</p>")
+    body += "<h3>Stability: fractions against the number of shape dimensions</h3>"
+    body += pg.fig(lambda: pg.plots.dims_figure(s))
+    x = pg.results.choices
+    if x is not None:
+        body += "<h3>Compared with another choice</h3>"
+        body += f"<p class='reading'>{_esc(x.reading)}</p>"
+        body += pg.fig(lambda: x.figure()) + _table(x.to_frame()) + _notes(x)
+    return body
+
+
+def _scan_section(pg: _Page) -> str:
+    g = pg.results.scan
+    body = ("<p>The size-only share for every measure and transformation of the grid: "
+            "high values mean the measure mostly answers 'how much', not 'what'.</p>")
+    body += pg.fig(lambda: pg.plots.scan_heatmap(g))
+    body += pg.fig(lambda: pg.plots.partition_bars(g))
+    body += _table(g.to_frame().drop(columns=["error"], errors="ignore")) + _notes(g)
+    return body
+
+
+def _ordination_section(pg: _Page) -> str:
+    o, e, group = pg.results.ordination, pg.results.ellipses, pg.spec.group
+    body = pg.fig(lambda: pg.plots.ordination_figure(
+        o, group=pg.tab.samples[group] if group else None, ellipses=e))
+    body += _notes(o)
+    if e is not None:
+        body += f"<p>Ellipses: {_esc(e.covers)}.</p>"
+        body += _table(e.to_frame()) + _notes(e)
+    body += "<h3>Eigenvalues</h3>" + pg.fig(lambda: pg.plots.scree_figure(o))
+    return body
+
+
+def _tests_section(pg: _Page) -> str:
+    from .wording import size_test_words, test_label
+    c = pg.results.comparison
+    body = f"<p class='reading'>{_esc(c.reading)}</p>" + _table(c.to_frame())
+    if c.size is not None:
+        body += (f"<h3>Size: total abundance</h3><p>{_esc(size_test_words(c.size))}; "
+                 f"p = {c.size.pvalue:.4g}.</p>" + _table(c.size.to_frame()) + _notes(c.size))
+    else:
+        body += f"<h3>Size</h3><p>Not tested: {_esc(c.size_skipped)}</p>"
+    body += f"<h3>Shape: {_esc(test_label(c, 'shape'))}</h3>"
+    body += ("<p>Each group may have its own spread (Alekseyenko 2016; Hamidi et al. 2019)"
+             + (f"; every sample rarefied to {c.depth} individuals, so unequal totals do not "
+                "make it significant" if c.depth is not None else "") + ".</p>")
+    scheme = getattr(c.shape, "scheme", "")
+    if scheme:
+        body += f"<p>Permutations: {_esc(scheme)}.</p>"
+    body += _table(c.shape.to_frame()) + _notes(c.shape)
+    body += pg.fig(lambda: c.shape.figure())
+    body += (f"<h3>Spread: {_esc(test_label(c, 'spread'))}</h3>"
+             + _table(c.dispersion.to_frame()) + _notes(c.dispersion))
+    body += pg.fig(lambda: c.dispersion.figure(kind="distances"))
+    if c.permanova is not None:
+        body += (f"<h3>For reference: {_esc(test_label(c, 'permanova'))}</h3>"
+                 "<p>PERMANOVA responds to unequal spread and, when totals differ, to "
+                 "counting noise; read it beside the two tests above.</p>"
+                 + _table(c.permanova.to_frame()) + _notes(c.permanova))
+    return body
+
+
+def _permanova_section(pg: _Page) -> str:
+    spec, p = pg.spec, pg.results.permanova
+    body = (f"<p>PERMANOVA of the chosen measure ({_esc(spec.measure)}"
+            f"{', ' + _esc(spec.transform) if spec.transform != 'none' else ''}) with "
+            f"the terms {_esc(' + '.join(spec.model_terms))}: what this measure itself "
+            "responds to (size and shape together).</p>")
+    if p.reading:
+        body += f"<p class='reading'>{_esc(p.reading)}</p>"
+    body += _table(p.to_frame())
+    if p.schemes is not None:
+        body += "<h3>How each term was tested</h3>" + _table(p.schemes)
+    return body + _notes(p)
+
+
+def _taxa_section(pg: _Page) -> str:
+    k = pg.results.contributions
+    how = ("delete-one jackknife-t intervals"
+           + (f", one unit of {k.provenance['units']!r} left out at a time"
+              if k.provenance.get("units") else "") if k.interval_method != "none"
+           else "no intervals")
+    body = (f"<p>{_esc(k.a)} against {_esc(k.b)}; {int(100 * k.level)} % "
+            f"{_esc(how)}.</p>" + _notes(k))
+    body += "<h3>Shape: which taxa make the composition differ</h3>"
+    body += pg.fig(lambda: k.figure("shape"))
+    body += _table(k.to_frame(), max_rows=25)
+    body += "<h3>Size: which taxa carry the change in abundance</h3>"
+    body += pg.fig(lambda: k.figure("size"))
+    body += _table(k.size_frame(), max_rows=25)
+    return body
+
+
+def _methods_section(pg: _Page) -> str:
+    text = methods_text(pg.spec, pg.results)
+    refs = methods_references(text)
+    return (f"<p>{_esc(text)}</p><h3>References</h3><ol>"
+            + "".join(f"<li>{_esc(r)}</li>" for r in refs) + "</ol>")
+
+
+def _spec_section(pg: _Page) -> str:
+    return ("<p>Every choice of this analysis. Load it with "
+            "<code>tly.AnalysisSpec.from_json(...)</code> and run "
+            "<code>tly.run(spec, table)</code> to reproduce these results.</p>"
+            f"<pre>{_esc(pg.spec.to_json())}</pre><h3>The same in Python, from reading "
+            "the data on</h3>"
+            f"<pre>{_esc(pg.results.code())}</pre>")
+
+
+_SECTIONS = [  # (anchor, title, result that must exist, builder)
+    ("data", "Data", "summary", _data_section),
+    ("partition", "Size and shape of the chosen measure", "size_shape", _partition_section),
+    ("scan", "Which measure? The partition over a grid", "scan", _scan_section),
+    ("ordination", "Ordination", "ordination", _ordination_section),
+    ("tests", "Size test, shape test and dispersion", "comparison", _tests_section),
+    ("permanova", "PERMANOVA of the chosen measure", "permanova", _permanova_section),
+    ("pairwise", "Pairwise contrasts (shape)", "pairwise",
+     lambda pg: _table(pg.results.pairwise.to_frame()) + _notes(pg.results.pairwise)),
+    ("taxa", "Which taxa", "contributions", _taxa_section),
+    ("audit", "Audit: would this measure mistake size for composition?", "audit",
+     lambda pg: (f"<p class='reading'>{_esc(pg.results.audit.reading)}</p>"
+                 + pg.fig(lambda: pg.results.audit.figure())
+                 + _table(pg.results.audit.to_frame()) + _notes(pg.results.audit))),
+    ("methods", "Methods", None, _methods_section),
+    ("spec", "Analysis spec", None, _spec_section),
+]
+
+
 def report_html(results: AnalysisResults, *, title: str | None = None) -> str:
     """The report of ``results`` as one self-contained HTML page."""
     import plotly.offline
 
-    from . import plots
-    spec, tab = results.spec, results.table
-    figs = _Figures()
-    group = spec.group
-    samples = tab.samples
-
-    def fig(make, height=None):
-        f = _safe_figure(make)
-        if isinstance(f, _FigureError):
-            return f"<p class='skipped'>Figure not drawn: {_esc(f.err)}</p>"
-        return figs.html(f, height=height)
-
-    sections: list[tuple[str, str, str]] = []     # (anchor, title, body)
-    src = tab.origin.file or "(in-memory table)"
-    from ..core.scenarios import DEMO_LABEL
-    synthetic = DEMO_LABEL in str(src)
-
-    # 1. data
-    body = _table(results.summary.to_frame("value"))
-    if tab.notes:
-        body += "<ul class='notes'>" + "".join(f"<li>{_esc(n)}</li>" for n in tab.notes) + \
-            "</ul>"
-    if results.totals is not None:
-        body += f"<h3>Sample totals (size) by {_esc(group)}</h3>" + _table(results.totals)
-        body += fig(lambda: plots.totals_figure(tab, group, log=True))
-    if results.totals_per_effort is not None:
-        body += (f"<h3>Totals per unit of effort ({_esc(tab.effort_name)}) by {_esc(group)}"
-                 "</h3>" + _table(results.totals_per_effort))
-        body += fig(lambda: plots.totals_figure(tab, group, log=True, per_effort=True))
-    sections.append(("data", "Data", body))
-
-    # 2. size and shape of the chosen measure
-    s = results.size_shape
-    if s is not None:
-        fr = s.fractions
-        name = f"{s.transform} + {s.measure}" if s.transform else s.measure
-        reading = (f"Of the variation between samples in {name}, "
-                   f"{100 * fr['size_only']:.1f} % is size only (total abundance), "
-                   f"{100 * fr['shape_only']:.1f} % shape only (composition), "
-                   f"{100 * fr['shared']:.1f} % cannot be attributed to either (shared) and "
-                   f"{100 * fr['residual']:.1f} % is unexplained. {s.shape_dims_reason}.")
-        body = f"<p class='reading'>{_esc(reading)}</p>"
-        body += fig(lambda: plots.partition_bars(s))
-        body += _table(s.to_frame()) + _table(s.r2) + _notes(s)
-        body += "<h3>Stability: fractions against the number of shape dimensions</h3>"
-        body += fig(lambda: plots.dims_figure(s))
-        sections.append(("partition", "Size and shape of the chosen measure", body))
-
-    # 3. scan
-    g = results.scan
-    if g is not None:
-        body = ("<p>The size-only share for every measure and transformation of the grid: "
-                "high values mean the measure mostly answers 'how much', not 'what'.</p>")
-        body += fig(lambda: plots.scan_heatmap(g))
-        body += fig(lambda: plots.partition_bars(g))
-        body += _table(g.to_frame().drop(columns=["error"], errors="ignore")) + _notes(g)
-        sections.append(("scan", "Which measure? The partition over a grid", body))
-
-    # 4. ordination
-    o = results.ordination
-    if o is not None:
-        body = fig(lambda: plots.ordination_figure(
-            o, group=samples[group] if group else None, ellipses=results.ellipses))
-        body += _notes(o)
-        if results.ellipses is not None:
-            body += _table(results.ellipses.to_frame()) + _notes(results.ellipses)
-        body += "<h3>Eigenvalues</h3>" + fig(lambda: plots.scree_figure(o))
-        sections.append(("ordination", "Ordination", body))
-
-    # 5. size test, shape test, dispersion
-    c = results.comparison
-    if c is not None:
-        body = f"<p class='reading'>{_esc(c.reading)}</p>"
-        if c.size is not None:
-            body += "<h3>Size: log total abundance</h3>" + _table(c.size.to_frame()) + \
-                _notes(c.size)
-        else:
-            body += f"<h3>Size</h3><p>Not tested: {_esc(c.size_skipped)}</p>"
-        rare = (f", every sample rarefied to {c.depth} individuals" if c.depth is not None
-                else "")
-        body += (f"<h3>Shape: Welch-type location test with a size-free measure{rare}</h3>" +
-                 _table(c.shape.to_frame()) + _notes(c.shape))
-        body += fig(lambda: c.shape.figure())
-        body += (f"<h3>Spread: dispersion test{rare}</h3>" + _table(c.dispersion.to_frame()) +
-                 _notes(c.dispersion))
-        body += fig(lambda: c.dispersion.figure(kind="distances"))
-        if c.permanova is not None:
-            body += ("<h3>For reference: PERMANOVA on all individuals</h3>" +
-                     _table(c.permanova.to_frame()) + _notes(c.permanova))
-        sections.append(("tests", "Size test, shape test and dispersion", body))
-    p = results.permanova
-    if p is not None:
-        body = (f"<p>PERMANOVA of the chosen measure ({_esc(spec.measure)}"
-                f"{', ' + _esc(spec.transform) if spec.transform != 'none' else ''}) with "
-                f"the terms {_esc(' + '.join(spec.model_terms))}: what this measure itself "
-                "responds to (size and shape together).</p>")
-        body += _table(p.to_frame()) + _notes(p)
-        sections.append(("permanova", "PERMANOVA of the chosen measure", body))
-    w = results.pairwise
-    if w is not None:
-        body = _table(w.to_frame()) + _notes(w)
-        sections.append(("pairwise", "Pairwise contrasts (shape)", body))
-
-    # 6. taxa
-    k = results.contributions
-    if k is not None:
-        body = _notes(k)
-        body += "<h3>Shape: which taxa make the composition differ</h3>"
-        body += fig(lambda: k.figure("shape"))
-        body += _table(k.to_frame(), max_rows=25)
-        body += "<h3>Size: which taxa carry the change in abundance</h3>"
-        body += fig(lambda: k.figure("size"))
-        body += _table(k.size_frame(), max_rows=25)
-        sections.append(("taxa", "Which taxa", body))
-
-    # 7. audit
-    a = results.audit
-    if a is not None:
-        body = f"<p class='reading'>{_esc(a.reading)}</p>" + fig(lambda: a.figure())
-        body += _table(a.to_frame()) + _notes(a)
-        sections.append(("audit", "Audit: would this measure mistake size for composition?",
-                         body))
-
-    # 8. methods, spec
-    text = methods_text(spec, results)
-    refs = methods_references(text)
-    body = f"<p>{_esc(text)}</p><h3>References</h3><ul>" + \
-        "".join(f"<li>{_esc(r)}</li>" for r in refs) + "</ul>"
-    sections.append(("methods", "Methods", body))
-    body = ("<p>Every choice of this analysis. Load it with "
-            "<code>tly.AnalysisSpec.from_json(...)</code> and run "
-            "<code>tly.run(spec, table)</code> to reproduce these results.</p>"
-            f"<pre>{_esc(spec.to_json())}</pre><h3>The same, step by step</h3>"
-            f"<pre>{_esc(spec.code())}</pre>")
-    sections.append(("spec", "Analysis spec", body))
+    from .wording import units_headline
+    pg = _Page(results)
+    tab = results.table
+    sections = [(a, t, build(pg)) for a, t, need, build in _SECTIONS
+                if need is None or getattr(results, need) is not None]
     if results.skipped:
         body = "<ul class='skipped'>" + "".join(
             f"<li><b>{_esc(k)}</b>: {_esc(v)}</li>" for k, v in results.skipped.items()) + \
             "</ul>"
         sections.insert(0, ("skipped", "Steps that could not run", body))
-
+    src = tab.origin.file or "(in-memory table)"
+    from ..core.scenarios import DEMO_LABEL
     title = title or "tallyform report"
     when = _dt.datetime.now().strftime("%Y-%m-%d %H:%M")
     nav = "<nav><ol>" + "".join(f"<li><a href='#{a}'>{_esc(t)}</a></li>"
                                 for a, t, _ in sections) + "</ol></nav>"
     banner = ("<p class='synthetic'>These are the bundled demo data: invented (synthetic), "
-              "no real survey behind them.</p>" if synthetic else "")
+              "no real survey behind them.</p>" if DEMO_LABEL in str(src) else "")
     content = "".join(f"<section id='{a}'><h2>{_esc(t)}</h2>{b}</section>"
                       for a, t, b in sections)
-    plotly_js = plotly.offline.get_plotlyjs()
+    plan = results.units.plan if results.units is not None else None
+    head = units_headline(tab.n_samples, plan)
     return (
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
         f"<title>{_esc(title)}</title><style>{_CSS}</style>"
-        f"<script type='text/javascript'>{plotly_js}</script></head><body>"
-        f"<h1>{_esc(title)}</h1><p>{_esc(tab.n_samples)} samples &times; "
-        f"{_esc(tab.n_taxa)} taxa from {_esc(src)}; written {_esc(when)} by tallyform "
+        f"<script type='text/javascript'>{plotly.offline.get_plotlyjs()}</script></head><body>"
+        f"<h1>{_esc(title)}</h1><p>{_esc(head)} &times; {_esc(tab.n_taxa)} taxa from "
+        f"{_esc(src)}; written {_esc(when)} by tallyform "
         f"{_esc(results.software.get('tallyform', ''))}.</p>{banner}{nav}{content}"
         "</body></html>")
 

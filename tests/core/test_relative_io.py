@@ -160,13 +160,14 @@ def test_cli_report_with_abundance_and_load(tmp_path):
               "--abundance", "relative", "--load", "copies", "--spec", light,
               "--out", str(tmp_path / "r"))
     assert out.returncode == 0, out.stderr[-3000:]
-    assert "Sample totals (absolute loads 'copies') by g" in out.stdout
+    assert "Sample sizes by g: absolute loads (copies)" in out.stdout
     spec = json.loads((tmp_path / "r" / "spec.json").read_text())
     assert (spec["abundance"], spec["load"]) == ("relative", "copies")
     out = cli("report", "--counts", str(c), "--samples", str(s), "--group", "g",
               "--abundance", "relative", "--spec", light, "--out", str(tmp_path / "q"))
     assert out.returncode == 0, out.stderr[-3000:]
-    assert "Sample totals (sequencing depths (technical)) by g" in out.stdout
+    assert "Sequencing depths by g (reads per sample: technical" in out.stdout
+    assert "Sample totals" not in out.stdout and "(size" not in out.stdout
     assert "Size was not tested: the totals are sequencing depths" in out.stdout
     out = cli("report", "--counts", str(c), "--samples", str(s), "--spike-in", "spike",
               "--out", str(tmp_path / "x"))

@@ -64,3 +64,73 @@ def test_reproduce_code_is_valid_python_with_every_choice():
     compile(code, "<reproduce>", "exec")
     for word in ("'hellinger'", "transform='sqrt'", "blocks='tank_block'", "rng=3"):
         assert word in code
+
+
+@pytest.mark.parametrize("units", [None, False, "tank", ("site", "plot")])
+def test_units_round_trip(units):
+    spec = AnalysisSpec(group="treatment", units=units)
+    back = AnalysisSpec.from_json(spec.to_json())
+    assert back == spec and back.units == units
+    # a list from JSON becomes a tuple; a one-column list is that column
+    assert AnalysisSpec(units=["site", "plot"]).units == ("site", "plot")
+    assert AnalysisSpec(units=["tank"]).units == "tank"
+
+
+@pytest.mark.parametrize("data, match", [
+    ({"units": True}, "spec key 'units' must be null \\(detect\\), false"),
+    ({"units": 3}, "spec key 'units' must be null"),
+    ({"units": []}, "spec key 'units' must be null"),
+    ({"units": ["site", "site"]}, "lists a column twice"),
+    ({"n_boot": -1}, "spec key 'n_boot' must be a whole number"),
+    ({"scan_n_boot": 1.5}, "spec key 'scan_n_boot' must be a whole number"),
+    ({"pairwise_statistic": "t"}, "spec key 'pairwise_statistic' must be one of"),
+    ({"compare_with": {"measure": "bray"}}, "names unknown measure 'bray'"),
+    ({"compare_with": {"colour": "red"}}, "keys from \\['measure', 'transform'"),
+    ({"compare_with": {}}, "non-empty object"),
+    ({"compare_with": {"transform": "cube"}}, "spec key 'compare_with'"),
+    ({"compare_with": {"shape_dims": 0}}, "shape_dims' must be a whole number >= 1"),
+    ({"source": {"demo": "forest"}}, "names a bundled scenario"),
+    ({"source": {"samples": "s.csv"}}, "must give the counts file as 'counts'"),
+    ({"source": {"counts": "c.csv", "load": "qpcr"}}, "unknown key\\(s\\) \\['load'\\]"),
+    ({"source": {"counts": "c.csv", "header_row": "2"}}, "'header_row' must be a whole"),
+])
+def test_new_keys_are_checked(data, match):
+    with pytest.raises(InputError, match=match):
+        AnalysisSpec.from_dict(data)
+
+
+def test_units_columns_are_checked_against_the_table():
+    tab = tly.demo("mesocosm")
+    AnalysisSpec(group="treatment", units="tank").validate(tab)
+    with pytest.raises(InputError, match="column 'plot'"):
+        AnalysisSpec(group="treatment", units=["tank", "plot"]).validate(tab)
+
+
+def test_code_reads_the_data_first():
+    # from the spec's source (demo or files, with the table options), or from the table
+    demo = AnalysisSpec(group="treatment", source={"demo": "mesocosm"}).code()
+    assert demo.splitlines()[2] == "tab = tly.demo('mesocosm')"
+    files = AnalysisSpec(group="g", source={"counts": "c.csv", "samples": "s.csv",
+                                            "effort": "nights"},
+                         abundance="relative", load="copies").code()
+    flat = " ".join(files.split())                       # long calls are wrapped
+    assert ("tab = tly.read_counts('c.csv', samples='s.csv', effort='nights', "
+            "abundance='relative', load='copies')") in flat
+    tab = tly.demo("moths")
+    assert "tab = tly.demo('moths')" in AnalysisSpec(group="habitat").code(tab)
+    # a changed demo table is not the demo: the code says so instead of reading the demo
+    sub = tab.subset(list(tab.sample_labels[:40]))
+    code = AnalysisSpec(group="habitat").code(sub)
+    assert "tly.demo" not in code and "# tab = tly.read_counts(" in code
+    assert sub.fingerprint in code
+
+
+def test_code_literals_read_back_in_a_fresh_session():
+    # numpy scalars (group levels read from a table) are written as plain Python values
+    import numpy as np
+
+    from tallyform.core.steps import literal
+    value = (np.int64(3), np.str_("a"), 0.95, None, {"x": np.float64(1.5)}, ("p", "q"))
+    text = literal(value)
+    assert "np." not in text
+    assert eval(text, {}) == [3, "a", 0.95, None, {"x": 1.5}, ["p", "q"]]  # noqa: S307

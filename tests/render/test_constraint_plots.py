@@ -33,3 +33,21 @@ def test_figure_shows_the_row_and_its_null(test_result):
         ct.table.loc["trt", "pseudo_f"])                       # default: the first row
     with pytest.raises(InputError, match="`row` must be one of"):
         ct.figure(row="residual")
+
+
+def test_ordination_title_shows_chance_level_adjusted_share_and_p():
+    from tallyform.render.plots import ordination_figure
+    rng = np.random.default_rng(4)
+    info = pd.DataFrame({"trt": list("abc") * 6, "temp": rng.normal(size=18)},
+                        index=[f"s{i}" for i in range(18)])            # synthetic
+    x = pd.DataFrame(rng.poisson(6, (18, 9)) + 1.0, index=info.index)
+    o = cca(x, info, terms=["trt", "temp"])
+    title = ordination_figure(o).layout.title.text
+    assert o.constrained_summary() in title and "chance level" in title
+    assert "not tested" in title
+    # the chance level is m / (n - 1) for m constraint degrees of freedom (3 here, n = 18)
+    assert f"chance level {100 * 3 / 17:.1f} %" in title
+    tested = o.with_test(constraint_test(o, n_permutations=99, rng=1))
+    title = ordination_figure(tested).layout.title.text
+    assert "overall p = " in title and "99 permutations" in title
+    assert tested.constrained_summary() in title

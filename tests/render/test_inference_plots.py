@@ -105,3 +105,19 @@ def test_audit_rates_intervals_and_alpha(meso):
     assert r.y[0] + r.error_y.array[0] == pytest.approx(a.reference_ci[1])
     assert fig.layout.shapes[0].y0 == a.alpha
     assert fig.layout.yaxis.range[0] < 0 and fig.layout.yaxis.range[1] > 1
+
+
+def test_totals_figure_says_what_relative_totals_are():
+    from tallyform.core.scenarios import demo_dir
+    c, s = demo_dir() / "soil_counts.csv", demo_dir() / "soil_samples.csv"
+    depths = plots.totals_figure(tly.read_counts(c, s, abundance="relative"), "land_use")
+    assert depths.layout.title.text.startswith("Sequencing depths by land_use")
+    assert "sum of all counts" not in depths.layout.title.text
+    assert "reads" in depths.layout.yaxis.title.text
+    loads = plots.totals_figure(tly.demo("soil"), "land_use")
+    assert loads.layout.title.text.startswith("Sample loads (size) by land_use")
+    assert "qpcr_copies_per_g" in loads.layout.title.text
+    # the drawn values are the loads (tab.totals), not the reads
+    soil = tly.demo("soil")
+    got = np.sort(np.concatenate([t.y for t in loads.data]))
+    np.testing.assert_allclose(got, np.sort(soil.totals.to_numpy()))

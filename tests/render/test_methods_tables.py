@@ -23,11 +23,15 @@ OTHER = {  # a different valid value for every choice of the spec
     "audit_n_sim": 500, "audit_n_permutations": 99, "audit_model": "multinomial",
     "audit_reference": "hellinger", "alpha": 0.01, "abundance": "relative",
     "load": "qpcr_copies", "spike_in": {"taxon": "spike", "added": "spike_copies"},
+    "units": "tank", "n_boot": 0, "scan_n_boot": 199, "pairwise_statistic": "welch",
+    "compare_with": {"transform": "fourth_root"},
 }
+# where the data are read from is not a method: the paragraph never names files
+NOT_METHODS = {"source", "version"}
 
 
 def test_every_choice_changes_the_text():
-    names = {f.name for f in dataclasses.fields(AnalysisSpec)} - {"version"}
+    names = {f.name for f in dataclasses.fields(AnalysisSpec)} - NOT_METHODS
     assert names == set(OTHER), names ^ set(OTHER)
     base = methods_text(BASE)
     for key, value in OTHER.items():
@@ -39,6 +43,8 @@ def test_every_choice_changes_the_text():
         if key == "correction":                 # the correction only shows with PCoA
             changed = changed.replace(ordination="pcoa")
         assert methods_text(changed) != base, key
+    with_source = BASE.replace(source={"counts": "/home/me/secret/counts.csv"})
+    assert "secret" not in methods_text(with_source)
 
 
 def test_references_are_listed_for_what_is_cited():
@@ -80,3 +86,32 @@ def test_failed_export_leaves_old_file_and_no_partial(tmp_path, monkeypatch):
         write_tables({"t": pd.DataFrame({"a": [1]})}, tmp_path)
     assert target.read_bytes() == b"old"
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+@pytest.mark.parametrize("measure", ["chi_square", "hellinger", "bray_curtis", "jaccard",
+                                     "quantitative_jaccard", "aitchison"])
+def test_no_doubled_nouns(measure):
+    # "Chi-square distance distances" and the like (a label that ends in a noun)
+    text = methods_text(BASE.replace(measure=measure, shape_measure="chi_square",
+                                     contribution_measure="hellinger",
+                                     audit_reference="chi_square"))
+    for doubled in ("distance distance", "distances distances", "distance dissimilarit",
+                    "dissimilarity dissimilarit"):
+        assert doubled not in text
+
+
+def test_every_cited_work_is_listed_and_nothing_else():
+    from tallyform.render.methods import _CITED_AS, REFERENCES
+    text = methods_text(BASE.replace(size_method="negbin", ellipse="bootstrap"))
+    refs = methods_references(text)
+    for key, (authors, year) in _CITED_AS.items():
+        cited = REFERENCES[key] in refs
+        assert cited == (f"{authors} {year}" in text or f"{authors} ({year}" in text
+                         or f"{authors}'s ({year}" in text), key
+    assert any(r.startswith("Dunn PK, Smyth GK (1996)") for r in refs)
+    assert any(r.startswith("Efron B, Tibshirani RJ (1993)") for r in refs)
+    assert CALIBRATION in text
+
+
+CALIBRATION = ("Every test used here was checked by simulation; see the calibration table "
+               "(docs/calibration.md in the tallyform repository).")

@@ -107,3 +107,61 @@ def test_failed_report_keeps_the_old_file(tmp_path, demo_results, monkeypatch):
         rep.write_report(demo_results, target)
     assert target.read_text() == "old report"
     assert [q.name for q in tmp_path.iterdir()] == ["report.html"]
+
+
+def test_report_says_the_units_tests_and_calibration(demo_results):
+    page = report_html(demo_results)
+    text = " ".join(page.split())
+    # units and strata (DESIGN: sampling units; Hurlbert 1984)
+    assert "60 samples from 15 tanks (4 samples each) &times; 36 taxa" in text
+    assert "15 tanks, each sampled 4 times. Tested: &#x27;treatment&#x27; between tanks, " \
+           "&#x27;week&#x27; within tanks." in text
+    assert "found from the design" in text
+    # the tests actually used, from the results
+    assert "Welch-type test" in text and "Alekseyenko 2016" in text
+    assert "Hotelling&#x27;s T² on within-block differences" in text   # the size test ran
+    assert "random permutations of whole units of &#x27;tank&#x27;" in text
+    assert "How each term was tested" in text
+    # partition: intervals and the Monte Carlo test
+    assert "(95 % interval" in text and "Monte Carlo test of the shape-only share" in text
+    # ellipses say what they cover, and that they count samples
+    assert "region for the group&#x27;s true centre" in text and "descriptive" in text
+    assert "delete-one jackknife-t intervals, one unit of &#x27;tank&#x27;" in text
+    assert "Every test used here was checked by simulation; see the calibration table " \
+           "(docs/calibration.md in the tallyform repository)." in text
+    # the reproduce-this code starts from reading the data
+    assert "tab = tly.demo(&#x27;mesocosm&#x27;)" in text
+
+
+def test_references_are_in_citation_order(demo_results):
+    from tallyform.render.methods import methods_references, methods_text
+    text = methods_text(demo_results.spec, demo_results)
+    refs = methods_references(text)
+    assert refs[0].startswith("Hurlbert SH (1984)")            # the first work cited
+    assert any(r.startswith("Hamidi B") for r in refs)
+    assert any(r.startswith("Shao J, Wu CFJ (1989)") for r in refs)
+    # order of first citation; a co-author's citation is not the author's own work
+    made_up = "Tested (Welch 1951), then McArdle & Anderson 2001, then Holm's (1979) method."
+    assert [r.split(" (")[0] for r in methods_references(made_up)] == \
+        ["Welch BL", "McArdle BH, Anderson MJ", "Holm S"]
+    page = report_html(demo_results)
+    assert page.index("<ol><li>Hurlbert SH (1984)") > page.index("<h3>References</h3>")
+
+
+def test_relative_data_totals_are_never_called_sizes():
+    tab = tly.read_counts(tly.core.scenarios.demo_dir() / "soil_counts.csv",
+                          tly.core.scenarios.demo_dir() / "soil_samples.csv",
+                          abundance="relative")
+    spec = tly.AnalysisSpec(group="land_use", abundance="relative", **FAST)
+    res = tly.run(spec, tab)
+    page = report_html(res)
+    assert "Sequencing depths by land_use" in page
+    assert "Sample totals (size" not in page and "sum of all counts" not in page
+    assert "size_shape" in res.skipped           # no loads: the partition refuses, said so
+    assert "Size</h3><p>Not tested: the totals are sequencing depths" in page
+    # the methods paragraph describes what ran, not what the spec asked for
+    from tallyform.render.methods import methods_text
+    text = methods_text(spec, res)
+    assert "Size was not compared: the totals are sequencing depths" in text
+    assert "Taxon contributions" not in text and "db-RDA" not in text
+    assert "Not run on these data (the report says why): the size and shape partition" in text

@@ -11,8 +11,9 @@ Two parts, kept apart so that either can change alone:
   build theirs for the same design and seed (same seed, same relabellings, same p-value).
 - A *choice test* (:class:`ChoiceTest`) turns one choice into per-relabelling statistics:
   ``prepare(table, choice, layout)`` computes the choice's dissimilarity once and returns a
-  :class:`Prepared` with the observed statistic and ``evaluate(idx)``, the statistic of every
-  relabelling in a batch ``idx`` (rows as the scheme yields them). Larger is more extreme.
+  :class:`Prepared` whose ``evaluate(idx)`` returns the observed statistic and the statistic
+  of every relabelling in a batch ``idx`` (rows as the scheme yields them). Larger is more
+  extreme.
   The statistics themselves come from the engine: :func:`~tallyform.core.permutation.permuted_f`
   (samples, or within units), :func:`~tallyform.core.unit_engine.unit_f` (between units) and
   the dispersion test's residual permutation.
@@ -99,17 +100,24 @@ class Layout:
     base: np.ndarray | None = field(default=None, repr=False)
     tested: np.ndarray | None = field(default=None, repr=False)
     unit_groups: np.ndarray | None = field(default=None, repr=False)
+    data_seed: int = 0
 
     @property
     def n(self) -> int:
         return int(self.codes.size)
 
+    def stream(self, choice) -> np.random.Generator:
+        """A random stream of the data side for one choice (e.g. the draw of a rarefied
+        table), the same for the same seed and choice whatever the other choices."""
+        import zlib
+        return np.random.default_rng([self.data_seed, zlib.crc32(choice.name.encode())])
+
 
 @dataclass(frozen=True, eq=False)
 class Prepared:
-    """One choice, ready to be evaluated on batches of relabellings."""
+    """One choice, ready to be evaluated on batches of relabellings: ``evaluate(idx)``
+    returns (observed statistic, statistics of the relabellings in ``idx``)."""
 
-    observed: float
     evaluate: Callable = field(repr=False)
     nbytes: int = 0
     notes: tuple = ()
@@ -135,10 +143,6 @@ class ChoiceTest:
         return 8 * n * n * 2
 
 
-def _empty(n: int) -> np.ndarray:
-    return np.empty((0, n), dtype=np.intp)
-
-
 class ShapeTest(ChoiceTest):
     """PERMANOVA of the group (the shape test of :func:`compare_groups`): pseudo-F with
     samples, whole units or samples within units relabelled."""
@@ -161,20 +165,17 @@ class ShapeTest(ChoiceTest):
             args = (y, signs, w, layout.base, none, layout.tested, none, layout.base)
 
             def evaluate(idx):
-                return unit_f(*args, FixedBatch(idx))[1]
-            observed = unit_f(*args, FixedBatch(_empty(m)))[0]
-            return Prepared(float(observed), evaluate, y.nbytes, d.notes, free)
+                return unit_f(*args, FixedBatch(idx))[:2]
+            return Prepared(evaluate, y.nbytes, d.notes, free)
         if layout.kind == "within":
             resp = resp.centred_within(layout.unit_codes)
         qt, nz = layout.qt, np.empty((layout.n, 0))
 
         def evaluate(idx):
             return permuted_f(resp, qt, 0, qt.shape[1], nz, FixedBatch(idx),
-                              df_res=layout.df_res, batch_size=idx.shape[0])[1]
-        observed = permuted_f(resp, qt, 0, qt.shape[1], nz, FixedBatch(_empty(layout.n)),
-                              df_res=layout.df_res)[0]
+                              df_res=layout.df_res, batch_size=idx.shape[0])[:2]
         held = resp.features if resp.features is not None else resp.gower
-        return Prepared(float(observed), evaluate, held.nbytes, d.notes, free)
+        return Prepared(evaluate, held.nbytes, d.notes, free)
 
 
 class SpreadTest(ChoiceTest):
@@ -202,10 +203,8 @@ class SpreadTest(ChoiceTest):
         size = space[1].nbytes
 
         def evaluate(idx):
-            return _residual_null(space, codes, FixedBatch(idx), correction=True)[1]
-        observed = _residual_null(space, codes, FixedBatch(_empty(codes.size)),
-                                  correction=True)[0]
-        return Prepared(float(observed), evaluate, size, d.notes, free)
+            return _residual_null(space, codes, FixedBatch(idx), correction=True)[:2]
+        return Prepared(evaluate, size, d.notes, free)
 
 
 #: The test of each ``aspect`` (see the module notes to plug in another).
@@ -243,14 +242,16 @@ def build_layout(tab, group, *, units=None, blocks=None, n_permutations: int = 9
     """The group, its stratum and the one relabelling scheme of a family of tests.
 
     ``rng`` is consumed exactly as :func:`permanova` consumes it for the same design (one
-    draw seeds the scheme), so the relabellings are those of ``permanova(..., rng=rng)``.
+    draw seeds the scheme), so the relabellings are those of ``permanova(..., rng=rng)``;
+    a second draw seeds :meth:`Layout.stream`.
     """
+    from dataclasses import replace
+
     from .design import model_matrix
     from .inference import align_labels
-    from .permutation import Permutations, nested_bases
-    from .schemes import label_symmetries, within_units
-    from .strata import constant_within, main_effects
+    from .random import as_rng
     from .units import resolve_units
+    rng = as_rng(rng)
     frame, name, levels, codes = _group_frame(tab, group)
     labels = pd.Index(tab.sample_labels)
     block_codes, block_name = _blocks(frame, blocks, labels)
@@ -260,8 +261,18 @@ def build_layout(tab, group, *, units=None, blocks=None, n_permutations: int = 9
     plan = resolve_units(frame, [name], units, blocks=block_name)
     mm = model_matrix(frame, [name])
     cols = mm.term_columns[name]
-    n = len(codes)
     common = dict(group=name, levels=levels, codes=codes, plan=plan)
+    layout = _layout(frame, mm, cols, plan, block_codes, block_name, n_permutations, rng,
+                     common)
+    return replace(layout, data_seed=int(rng.integers(2**63)))
+
+
+def _layout(frame, mm, cols, plan, block_codes, block_name, n_permutations, rng,
+            common) -> Layout:
+    from .permutation import Permutations, nested_bases
+    from .schemes import label_symmetries
+    from .strata import constant_within, main_effects
+    name, n = common["group"], len(common["codes"])
     if plan.independent:
         if constant_within(mm.X[:, cols], block_codes):
             raise _not_in_blocks(name, block_name, "samples")

@@ -345,3 +345,35 @@ def test_examples_are_doctests():
     for mod in (module, choice_grid):
         result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
         assert result.failed == 0 and result.attempted > 0, mod.__name__
+
+
+def test_a_difference_in_counting_depth_is_said():
+    rng = np.random.default_rng(17)
+    tab = _table(rng)
+    res = choice_adjusted(tab, "g", FAMILY[:2], n_permutations=19, rng=1, **P)
+    assert not any("counted to different depths" in n for n in res.notes)
+    values = pd.DataFrame(tab.values, index=tab.sample_labels, columns=tab.taxon_labels)
+    deeper = values.mul(np.where(tab.samples["g"] == "g1", 3.0, 1.0), axis=0)
+    res = choice_adjusted(tly.CommunityTable(deeper, tab.samples), "g", FAMILY[:2],
+                          n_permutations=19, rng=1, **P)
+    note = next(n for n in res.notes if "counted to different depths" in n)
+    gm = np.exp(np.log(deeper.sum(axis=1)).groupby(tab.samples["g"]).mean())
+    assert f"{gm['g1'] / gm['g0']:.2g} times" in note and "'g1'" in note
+    # fractions (biomass, cover) are not counts: no counting depth to speak of
+    res = choice_adjusted(tly.CommunityTable(deeper * 1.01, tab.samples), "g", FAMILY[:2],
+                          n_permutations=19, rng=1, **P)
+    assert not any("counted to different depths" in n for n in res.notes)
+
+
+def test_coarse_adjusted_p_values_are_said():
+    # 27 choices on 99 relabellings under a null: several relabellings are each some
+    # choice's most extreme one, so the adjusted p-values cannot be small; 999 refine them
+    tab = _table(np.random.default_rng(5))
+    few = choice_adjusted(tab, "g", n_permutations=99, rng=1, **P)
+    note = next(n for n in few.notes if "coarse" in n)
+    ties = int(note.split(": ")[1].split(" of the")[0])
+    low = min(few.min_null.min(), few.pvalue.min())
+    assert ties == np.sum(np.isclose(few.min_null, low)) + int(few.pvalue.min() == low)
+    assert few.pvalue_adjusted.min() >= ties / 100 - 1e-12
+    many = choice_adjusted(tab, "g", n_permutations=999, rng=1, **P)
+    assert not any("coarse" in n for n in many.notes)

@@ -86,11 +86,11 @@ def _shift(base, shift):
 
 
 def independent(rng, *, generator, ratio=1.0, shift=1.0, groups=(8, 12), depth=3000,
-                sd=0.3, rarefy=False):
+                sd=0.3, subsample_to_smallest=False):
     """Two groups of independent samples from one law (``shift``: 5 taxa in group 2). One
     call of the generator for all samples under the null (the mixture draws its second
-    state per call). ``rarefy``: every sample subsampled without replacement to the
-    smallest total (Sanders 1968; Hurlbert 1971)."""
+    state per call). ``subsample_to_smallest``: every sample subsampled without
+    replacement to the smallest total (Sanders 1968; Hurlbert 1971)."""
     base = base_profile(P_TAXA, rng)
     totals = _totals(rng, groups, ratio, depth, sd)
     if shift == 1.0:
@@ -102,7 +102,7 @@ def independent(rng, *, generator, ratio=1.0, shift=1.0, groups=(8, 12), depth=3
     labels = [f"s{i:02d}" for i in range(n)]
     info = pd.DataFrame({"g": np.repeat(["a", "b"], groups)}, index=labels)
     x = np.vstack(parts)
-    if rarefy:
+    if subsample_to_smallest:
         m = int(x.sum(axis=1).min())
         x = np.vstack([rng.multivariate_hypergeometric(row.astype(np.int64), m)
                        for row in x]).astype(float)
@@ -202,7 +202,7 @@ def _level_cells() -> list:
         out.append(Cell(id_, "choice-adjusted",
                         f"choice_adjusted({k} choices{units}), smallest p, adjusted",
                         where, replicate(design, fam, k, gen, **data), band=(0.02, 0.07),
-                        reps=1000, short_reps=20 if design == "visits" else 30))
+                        reps=1000, short_reps=40 if design == "visits" else 60))
         out.append(Cell(id_ + "-raw", "choice-adjusted",
                         f"smallest raw p over {k} choices (choosing after looking)",
                         where, replicate(design, fam, k, gen, what="raw", **data),
@@ -239,7 +239,7 @@ def _depth_cells() -> list:
                         replicate("independent", "size_free", 30, "lognormal",
                                   what="fixed", **data),
                         reps=1000, check=False, seed=out[-1].seed))
-    data = dict(ratio=3.0, depth=3000, rarefy=True)
+    data = dict(ratio=3.0, depth=3000, subsample_to_smallest=True)
     out.append(Cell("choice/independent-deeper-b-3000-rarefied", "choice-adjusted",
                     "choice_adjusted(30 choices) after rarefying to the smallest total, "
                     "smallest p, adjusted",

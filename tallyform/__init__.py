@@ -21,6 +21,7 @@ from .core.audit import AuditResult, audit
 from .core.partition import SizeShapeResult, size_shape
 from .core.scan import ScanResult, scan
 from .core.choices import ChoiceComparison, compare_choices
+from .core.choice_adjusted import ChoiceAdjustedResult, choice_adjusted
 from .core.scenarios import demo, demo_names
 from .core.simulate import simulate_community
 from .core.spec import AnalysisSpec
@@ -57,7 +58,7 @@ __all__ = [
     "TooLargeError", "__version__",
     "AnalysisSpec", "run", "AnalysisResults",
     "size_shape", "SizeShapeResult", "scan", "ScanResult", "compare_choices",
-    "ChoiceComparison", "audit", "AuditResult",
+    "ChoiceComparison", "choice_adjusted", "ChoiceAdjustedResult", "audit", "AuditResult",
     "pcoa", "ca", "cca", "rda", "db_rda", "nmds", "Ordination", "constraint_test",
     "ConstraintTest",
     "Dissimilarity", "dissimilarity", "feature_matrix", "MEASURES", "Measure", "get_measure",

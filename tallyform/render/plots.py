@@ -6,6 +6,7 @@ The functions live in topic modules and are gathered here, so ``tly.plots.<name>
 from __future__ import annotations
 
 from .taxa_plots import taxon_shape_figure, taxon_size_figure  # noqa: F401
+from .choice_plots import choice_adjusted_figure  # noqa: F401
 from .display import show  # noqa: F401
 from .export import SavedFiles, StaticExportWarning, save, static_export_available  # noqa: F401
 from .partition_plots import (choice_difference_figure, dims_figure,  # noqa: F401

@@ -31,6 +31,9 @@ def every_figure(meso, bray, partition, grid, ordination, partition_ci, grid_ci,
     spread = tly.dispersion_test(bray, group, n_permutations=99, rng=1)
     audit = tly.audit(meso, "treatment", n_sim=8, n_permutations=19, rng=3)
     taxa = ordination.taxon_scores(meso, method="correlation")
+    adjusted = tly.choice_adjusted(meso, "treatment", [
+        {"measure": "bray_curtis"}, {"measure": "bray_curtis", "transform": "sqrt"},
+        {"measure": "hellinger"}, {"measure": "chi_square"}], n_permutations=99, rng=2)
     return {
         "partition_bars": partition.figure(),
         "partition_bars_scan_present": grid.figure(kind="bars", present=True),
@@ -49,6 +52,7 @@ def every_figure(meso, bray, partition, grid, ordination, partition_ci, grid_ci,
         "null_distribution": perm.figure(),
         "dispersion": spread.figure(),
         "audit": audit.figure(),
+        "choice_adjusted": adjusted.figure(),
     }
 
 

@@ -10,6 +10,10 @@ and copies them into the FigureWidgets. Printed per table size and measure:
 * handler: the whole update (compute + figures + widget copies), median;
 * both as ratios to one cold ``tly.dissimilarity`` call of the same setting, timed in the
   same run (a bare time means little on a shared machine);
+* the share intervals (``n_boot``, the panel's default) that follow in the background once
+  the slider settles: seconds from the end of the handler to the intervals drawn (the
+  settle delay excluded), also as a ratio to the handler. The handler itself only
+  schedules them (steps come faster than the settle delay, so none starts mid-drag);
 * where the compute goes: the core functions that take the most time in one step.
 
 Targets (DESIGN.md): compute under 150 ms at 200 samples x 100 taxa and under 1.5 s at
@@ -70,6 +74,21 @@ def slider_steps(panel, exponents):
     return statistics.median(compute), statistics.median(handler)
 
 
+def background_intervals(panel, exponent):
+    """Seconds from the handler's end to the intervals drawn (no settle delay)."""
+    delay = panel._runner.delay
+    panel._runner.delay = 0.0
+    try:
+        panel.exponent.value = exponent
+        t = time.perf_counter()
+        assert panel.wait_intervals(600)
+        elapsed = time.perf_counter() - t
+        assert panel.intervals_result is not None, panel.interval_state.value
+    finally:
+        panel._runner.delay = delay
+    return elapsed
+
+
 def where_time_goes(panel, exponent, top=6):
     prof = cProfile.Profile()
     prof.enable()
@@ -100,17 +119,24 @@ def main(quick=False):
             clear_cache()
             panel = ShapePanel(tab, group="grp")
             panel.measure.value = measure               # warm-up: numba, imports, figures
+            panel.cancel_intervals()           # nothing in the background while timing
             ref = reference(tab, measure, [a + 0.001 for a in exponents])
             compute, handler = slider_steps(panel, exponents)
+            boot = background_intervals(panel, 0.321)
             print(f"  {measure:12s} compute median {1000 * compute:8.1f} ms "
                   f"(target < {1000 * target:.0f} ms: {'met' if compute < target else 'NOT met'})"
                   f" = {compute / ref:6.1f} x one dissimilarity call ({1000 * ref:.1f} ms); "
                   f"whole handler {1000 * handler:8.1f} ms = {handler / ref:6.1f} x; "
                   f"slider live while dragging: {panel.exponent.continuous_update}")
+            print(f"  {'':12s} intervals ({panel.intervals.value} resamples, background) "
+                  f"{1000 * boot:8.1f} ms after the handler = {boot / handler:6.1f} x the "
+                  "handler")
             if compute > target:
                 print("    where one step's compute goes (cumulative seconds):")
+                panel.intervals.value = 0            # the live path alone
                 for cum, name in where_time_goes(panel, 0.123):
                     print(f"      {cum:7.3f}  {name}")
+            panel.cancel_intervals()
 
 
 if __name__ == "__main__":

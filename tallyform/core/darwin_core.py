@@ -103,9 +103,9 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
             label = {"eventid": "eventID", "scientificname": "scientificName"}[need]
             raise InputError(f"the occurrence table has no {label} column.",
                              location=oc_cells.where(0),
-                             hint=f"Darwin Core occurrences name their event in eventID and "
-                                  f"their taxon in scientificName; add or rename the "
-                                  f"column.")
+                             hint="Darwin Core occurrences name their event in eventID and "
+                                  "their taxon in scientificName; add or rename the "
+                                  "column.")
     ev_j = lower_ev["eventid"]
     ev_ids = [_to_text(x) for x in ev_body.iloc[:, ev_j]]
     _check_ids(ev_cells, ev_ids, ev_j, "eventID", "event")

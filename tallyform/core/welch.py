@@ -176,21 +176,7 @@ class WelchResult(ResultMixin):
         """The permutation distribution of the statistic with the observed value and p
         (:func:`tallyform.render.inference_plots.null_distribution_figure`)."""
         from ..render.inference_plots import null_distribution_figure  # lazy: plotly
-        fig = null_distribution_figure(self.as_permutation_test(), **kwargs)
-        # the generic plot names its statistic "pseudo-F"; name ours
-        name = "Welch statistic"
-        for tr in fig.data:
-            for attr in ("name", "hovertemplate"):
-                v = getattr(tr, attr, None)
-                if isinstance(v, str):
-                    setattr(tr, attr, v.replace("pseudo-F", name))
-            if getattr(tr, "hovertext", None) is not None:
-                tr.hovertext = [str(h).replace("pseudo-F", name) for h in tr.hovertext]
-        title = fig.layout.title.text or ""
-        fig.update_layout(title_text=title.replace(
-            "Permutation test", f"Welch-type test on {self.measure}: {self.group!r}", 1))
-        fig.update_xaxes(title_text=name)
-        return fig
+        return null_distribution_figure(self, **kwargs)
 
 
 # ---------------------------------------------------------------------------- the test

@@ -5,6 +5,8 @@ objects; box plots and histograms are drawn from the values by plotly itself.
 """
 from __future__ import annotations
 
+import textwrap
+
 import numpy as np
 import pandas as pd
 import plotly.graph_objects as go
@@ -15,6 +17,7 @@ from ..core.errors import DesignError, InputError
 from ..core.inference import PermanovaResult
 from ..core.permutation import PermutationTest
 from ..core.table import CommunityTable, as_table
+from ..core.welch import WelchResult
 from .style import (MARKER_EDGE, NEUTRAL, OBSERVED, base_layout, group_colours, group_levels,
                     sizes, subtitle)
 
@@ -127,17 +130,58 @@ def _totals_words(tab) -> tuple[str, str, str]:
     return "load", "Sample loads (size)", f"absolute load of each sample ({tab.load_name})"
 
 
+def _perms_text(exact: bool, n_permutations: int) -> str:
+    return ("all distinct relabellings (exact)" if exact
+            else f"{int(n_permutations)} permutations")
+
+
+def _permanova_parts(result, term):
+    """PERMANOVA: one term's own scheme and permutation count (terms in different strata
+    are relabelled differently: whole units for one, within units for another)."""
+    terms = list(result.terms)
+    term = terms[0] if term is None else term
+    if term not in terms:
+        raise InputError(f"`term` must be one of {terms}; got {term!r}.")
+    null = result.null_distribution.get(term)
+    stat, p = float(result.statistic[term]), float(result.pvalue[term])
+    what = f"PERMANOVA on {result.measure}: term {term!r}"
+    schemes = result.schemes
+    if schemes is not None and term in schemes.index:
+        row = schemes.loc[term]
+        perms = _perms_text(bool(row["exact"]), int(row["n_permutations"]))
+        against = (result.table.loc[term, "tested_against"]
+                   if "tested_against" in result.table.columns else "")
+        if isinstance(against, str) and against:
+            perms += f"; tested against {against}"
+        lines = [f"{row['stratum']}: {row['permutations']}"]
+        reduced = row.get("reduced_model", "")
+        if isinstance(reduced, str) and reduced and reduced != "intercept":
+            lines.append(f"residuals of the model with {reduced} permuted (Freedman & Lane "
+                         "1983)")
+    else:
+        perms, lines = _perms_text(result.exact, result.n_permutations), [result.scheme]
+    return stat, p, null, "pseudo-F", what, perms, lines
+
+
+def _welch_parts(result):
+    """The Welch-type test: its own statistic, units and (prepivoted) null."""
+    on = f" (centroids of {result.units!r} units)" if result.units else ""
+    what = f"Welch-type test on {result.measure}: {result.group!r}{on}"
+    stat_name = ("T_w<sup>2</sup> (Alekseyenko 2016)" if len(result.groups) == 2
+                 else "W_d (Hamidi et al. 2019)")
+    lines = [f"{stat_name}: each group weighed by its own spread", result.scheme]
+    return (float(result.statistic), float(result.pvalue), result.null_distribution,
+            "Welch statistic", what, _perms_text(result.exact, result.n_permutations), lines)
+
+
 def _null_parts(result, term):
-    """(observed, p-value, null values, statistic name, what, permutations text)."""
+    """(observed, p-value, null values, statistic name, what, permutations text, lines)."""
     if isinstance(result, PermanovaResult):
-        terms = list(result.terms)
-        term = terms[0] if term is None else term
-        if term not in terms:
-            raise InputError(f"`term` must be one of {terms}; got {term!r}.")
-        null = result.null_distribution.get(term)
-        stat, p = float(result.statistic[term]), float(result.pvalue[term])
-        what = f"PERMANOVA on {result.measure}: term {term!r}"
-        name = "pseudo-F"
+        stat, p, null, name, what, perms, lines = _permanova_parts(result, term)
+    elif isinstance(result, WelchResult):
+        if term is not None:
+            raise InputError("a WelchResult holds one test; leave `term` out.")
+        stat, p, null, name, what, perms, lines = _welch_parts(result)
     elif isinstance(result, (PermutationTest, DispersionResult)):
         if term is not None:
             raise InputError(f"a {type(result).__name__} holds one test; leave `term` out.")
@@ -147,15 +191,14 @@ def _null_parts(result, term):
             name = "F of the distances"
         else:
             what, name = "Permutation test", "pseudo-F"
+        perms, lines = _perms_text(result.exact, result.n_permutations), []
     else:
-        raise InputError("`result` must be a PermanovaResult, PermutationTest or "
-                         f"DispersionResult; got {type(result).__name__}.")
+        raise InputError("`result` must be a PermanovaResult, WelchResult, PermutationTest "
+                         f"or DispersionResult; got {type(result).__name__}.")
     if null is None or len(null) == 0 or not np.isfinite(stat):
         raise InputError(f"{what} has no permutation distribution to draw (was it run with "
                          "n_permutations=0?).")
-    perms = ("all distinct relabellings (exact)" if result.exact
-             else f"{result.n_permutations} permutations")
-    return stat, p, np.asarray(null, dtype=float), name, what, perms
+    return stat, p, np.asarray(null, dtype=float), name, what, perms, lines
 
 
 def null_distribution_figure(result, *, term: str | None = None,
@@ -164,10 +207,20 @@ def null_distribution_figure(result, *, term: str | None = None,
 
     Parameters
     ----------
-    result : PermanovaResult, PermutationTest or DispersionResult
+    result : PermanovaResult, WelchResult, PermutationTest or DispersionResult
     term : str, optional
-        PERMANOVA only: which term (default: the first).
+        PERMANOVA only: which term (default: the first). Each term is drawn with its own
+        scheme and permutation count (``result.schemes``): terms in different error strata
+        are relabelled differently (whole units, or within units), and the title says how
+        and against which residual the term was tested.
     present : bool, default False
+
+    Notes
+    -----
+    A WelchResult is drawn with its own statistic (the Welch-type W_d, or T_w^2 for two
+    groups); with ``small_sample=True`` its null holds each relabelling's statistic mapped
+    to the observed degrees of freedom, so the share at or above the observed value is the
+    p-value.
 
     Examples
     --------
@@ -178,7 +231,7 @@ def null_distribution_figure(result, *, term: str | None = None,
     >>> [t.name.split(" =")[0] for t in null_distribution_figure(p).data]
     ['permuted pseudo-F', 'observed pseudo-F']
     """
-    stat, p, null, name, what, perms = _null_parts(result, term)
+    stat, p, null, name, what, perms, lines = _null_parts(result, term)
     sz = sizes(present)
     fig = go.Figure()
     fig.add_trace(go.Histogram(
@@ -197,6 +250,7 @@ def null_distribution_figure(result, *, term: str | None = None,
                               "bgcolor": "rgba(255,255,255,0.8)"},
                   annotation_position="top right")
     notes = [f"p = {p:.3g} from {perms}"]
+    notes += [part for ln in lines for part in textwrap.wrap(ln, 90)]
     base_layout(fig, title=subtitle(what, *notes), legend_title="permutation test",
                 present=present, height=500)
     fig.update_layout(bargap=0.04, legend={"orientation": "h", "yref": "container", "y": 0.0,

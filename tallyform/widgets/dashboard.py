@@ -19,8 +19,9 @@ TAB_TITLES = ("Data", "Size & shape", "Tests", "Report")
 class Dashboard(widgets.VBox):
     """Data, Size & shape, Tests and Report panels over one table.
 
-    The group chosen in one panel is the group of every panel (linked controls); the
-    Report panel follows every change. See :func:`explore`.
+    The group chosen in one panel is the group of every panel (linked controls), and so
+    is the seed; the sampling units chosen in the Tests panel are those the Size & shape
+    intervals leave out whole. The Report panel follows every change. See :func:`explore`.
 
     Attributes
     ----------
@@ -40,7 +41,10 @@ class Dashboard(widgets.VBox):
         self.tests = TestsPanel(self.table, group=self.data.group.value, core=core)
         self.report = ReportPanel(self)
         self._links = [widgets.link((self.data.group, "value"), (self.shape.group, "value")),
-                       widgets.link((self.data.group, "value"), (self.tests.group, "value"))]
+                       widgets.link((self.data.group, "value"), (self.tests.group, "value")),
+                       widgets.link((self.tests.seed, "value"), (self.shape.seed, "value"))]
+        self.tests.units.observe(self._units_to_shape, names="value")
+        self._units_to_shape()
         self.tabs = widgets.Tab(children=[self.data, self.shape, self.tests, self.report],
                                 titles=TAB_TITLES)
         self.tabs.add_class("tf-tabs")
@@ -56,6 +60,14 @@ class Dashboard(widgets.VBox):
         self.report.refresh()
         if present:
             self.set_present(True)
+
+    def _units_to_shape(self, change=None) -> None:
+        """The intervals leave out the units of the tests (the coarsest level if nested)."""
+        value = self.tests.units.value
+        if isinstance(value, tuple):
+            value = value[0] if value else False
+        if value in [v for _, v in self.shape.units.options]:
+            self.shape.units.value = value
 
     @property
     def spec(self):

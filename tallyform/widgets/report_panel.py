@@ -14,6 +14,7 @@ from pathlib import Path
 import ipywidgets as widgets
 
 from .common import TABLE, MessageArea, literal
+from .tests_panel import strata_frame
 
 __all__ = ["ReportPanel", "reproduce_code", "dashboard_spec", "spec_code"]
 
@@ -59,7 +60,9 @@ def reproduce_code(dashboard, spec=None) -> str:
             lines.append(f"{_NAMES[data[key].func]} = {data[key].code()}")
     lines += ["", "# Size & shape"]
     calls = dashboard.shape.calls
-    for key in ("partition", "ordination", "ellipses"):
+    # with intervals, one call gives the shares on screen and their intervals
+    for key in ("intervals" if "intervals" in calls else "partition", "ordination",
+                "ellipses"):
         if key in calls:
             lines.append(f"{_NAMES[calls[key].func]} = {calls[key].code()}")
     group = f", group={calls['group'].code()}" if "group" in calls else ""
@@ -185,7 +188,7 @@ class ReportPanel(widgets.VBox):
         d = self._dash
         figs = [("totals", d.data.totals_plot), ("partition", d.shape.partition_plot),
                 ("ordination", d.shape.ordination_plot), ("tests", d.tests.plot),
-                ("tests_2", d.tests.plot2)]
+                ("tests_2", d.tests.plot2), ("tests_3", d.tests.plot3)]
         return [(name, go.Figure(fw)) for name, fw in figs if len(fw.data)]
 
     def _tables(self) -> dict:
@@ -198,7 +201,9 @@ class ReportPanel(widgets.VBox):
             out["totals_per_effort" if d.data.per_effort.value else "totals_by_group"] = \
                 d.data.result
         if d.shape.result is not None:
-            out["size_shape"] = d.shape.result.to_frame()
+            shown = (d.shape.intervals_result if d.shape.intervals_result is not None
+                     else d.shape.result)                    # with its intervals when done
+            out["size_shape"] = shown.to_frame()
             out["size_shape_by_dims"] = d.shape.result.by_dims()
         if d.shape.ordination is not None:
             out["ordination_axes"] = d.shape.ordination.to_frame()
@@ -208,9 +213,14 @@ class ReportPanel(widgets.VBox):
         r = d.tests.result
         kind = type(r).__name__
         if kind == "ComparisonResult":
-            out["size_test"] = r.size.to_frame()
+            if r.size is not None:                 # None: relative data without loads
+                out["size_test"] = r.size.to_frame()
+            out["comparison"] = r.to_frame()
             out["shape_test"] = r.shape.to_frame()
+            if r.permanova is not None:
+                out["shape_permanova"] = r.permanova.to_frame()
             out["dispersion_test"] = r.dispersion.to_frame()
+            out["strata"] = strata_frame(r)
         elif kind == "PairwiseResult":
             out["pairwise"] = r.to_frame()
         elif r is not None:

@@ -1,11 +1,15 @@
 """The Size & shape panel: transform exponent, measure, shape basis; partition and ordination.
 
-Two core calls drive it, each shown as code by the Report panel:
+Core calls, each shown as code by the Report panel:
 
 * ``tly.size_shape(tab, measure, transform=..., size=..., shape=..., shape_dims=...)``
-  -> partition bars;
+  -> partition bars, at once (the live path);
+* ``tly.size_shape(..., n_boot=..., units=..., rng=...)`` -> the same shares with their 95 %
+  intervals, drawn as the bars' side panel. It runs in the background once the controls
+  have settled (debounced), is cancelled when they move again, and says "intervals:
+  computing" meanwhile;
 * ``tly.pcoa(tly.dissimilarity(tab, measure, transform=...), dims=2)`` (and
-  ``o.ellipses(tab.group(column))`` when a group is chosen) -> ordination.
+  ``o.ellipses(tab.group(column), kind=...)`` when a group is chosen) -> ordination.
 
 A change re-runs only the calls whose arguments changed: the group touches only the
 ellipses and colours, the shape basis only the partition.
@@ -14,18 +18,22 @@ from __future__ import annotations
 
 import contextlib
 import html
+import inspect
 import time
 
 import ipywidgets as widgets
 import traitlets
 
+from ..core.ellipses import describe as describe_ellipse
 from ..core.measures import MEASURES
 from ..core.partition import SHAPE_OPTIONS, SIZE_OPTIONS
 from ..core.transforms import TRANSFORMS
-from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, given,
-                     new_figure_widget, plots, transform_code)
+from .background import SettledRunner
+from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, error_text,
+                     given, new_figure_widget, plots, transform_code)
 
-__all__ = ["ShapePanel", "LIVE_BUDGET", "POWER", "group_options"]
+__all__ = ["ShapePanel", "LIVE_BUDGET", "POWER", "group_options", "INTERVAL_CHOICES",
+           "SETTLE_DELAY"]
 
 LIVE_BUDGET = 0.15        # seconds of compute under which the slider updates while dragged
 POWER = "power"           # the transform choice read from the exponent slider
@@ -36,6 +44,20 @@ _SHAPE_LABELS = {"chi_square": "chi-square profiles", "hellinger": "Hellinger pr
                  "aitchison": "Aitchison (log-ratios)",
                  "same_measure": "same measure, equal totals"}
 _MAX_DIMS_LISTED = 30
+ELLIPSE_KINDS = ("confidence", "prediction", "data")      # quick enough for the live path
+ELLIPSE_LEVEL = 0.95
+INTERVAL_CHOICES = (0, 199, 999)   # resamples of the share intervals (0: none)
+SETTLE_DELAY = 0.5                 # seconds of quiet before the intervals start
+
+
+def ellipse_options(extra: str | None = None) -> list[tuple[str, object]]:
+    """``(none)`` and every ellipse kind, worded by the core (``ellipses.describe``)."""
+    kinds = list(ELLIPSE_KINDS) + ([extra] if extra and extra not in ELLIPSE_KINDS else [])
+    return [("(none)", None)] + [(describe_ellipse(k, ELLIPSE_LEVEL), k) for k in kinds]
+
+
+def _quiet(done, total) -> None:
+    """Progress callback of the live calls: no bar for work that takes a blink."""
 
 
 def transform_options() -> list[tuple[str, str]]:
@@ -80,9 +102,18 @@ class ShapePanel(widgets.VBox):
     Attributes
     ----------
     exponent, transform, measure, size, shape, shape_dims, group, ellipses : widgets
-        The controls (set ``.value`` to drive the panel from code).
+        The controls (set ``.value`` to drive the panel from code). ``ellipses`` is the
+        ellipse kind (None for none), its options worded by the core.
+    intervals, units, seed : widgets
+        Resamples of the share intervals (0: none), the sampling units they leave out
+        whole (False: single samples) and their seed.
     result : SizeShapeResult or None
         The partition shown (None after an error).
+    intervals_result : SizeShapeResult or None
+        The same partition with ``fractions_ci``, once the background run for the current
+        settings has finished (None before, and when intervals are off).
+    interval_state : HTML
+        "intervals: computing", what was drawn, or why there are none.
     ordination, ellipse_set : Ordination, EllipseSet or None
     partition_plot, ordination_plot : plotly FigureWidget
     messages : MessageArea
@@ -90,7 +121,8 @@ class ShapePanel(widgets.VBox):
     notes : NotesArea
         Plain-language notes of the results shown.
     calls : dict
-        The core calls behind what is shown (``partition``, ``ordination``, ``ellipses``).
+        The core calls behind what is shown (``partition``, ``intervals``, ``ordination``,
+        ``ellipses``).
     last_compute : float
         Seconds spent in core calls by the last update.
     """
@@ -105,6 +137,10 @@ class ShapePanel(widgets.VBox):
         self._hold = False
         self._done: dict = {}        # call code -> result, for the calls now on screen
         self.result = self.ordination = self.ellipse_set = None
+        self.intervals_result = None
+        self._intervals_done: tuple | None = None    # (call code, result, error), last
+        self._intervals_code: str | None = None      # the call in the background now
+        self._runner = SettledRunner(SETTLE_DELAY)
         self.error: BaseException | None = None
         self.calls: dict = {}
         self.last_compute = 0.0
@@ -135,9 +171,26 @@ class ShapePanel(widgets.VBox):
         self.group = widgets.Dropdown(options=group_options(table), description="Group",
                                       value=default_group(table) if group is None else group)
         self.group.add_class("tf-group")
-        self.ellipses = widgets.Checkbox(value=True, description="95 % confidence ellipses",
-                                         indent=False)
+        self.ellipses = widgets.Dropdown(options=ellipse_options(), value="confidence",
+                                         description="Ellipses",
+                                         layout=widgets.Layout(width="520px"))
         self.ellipses.add_class("tf-ellipses")
+        self.intervals = widgets.Dropdown(
+            options=[("none", 0)] + [(f"95 %, {k} resamples", k)
+                                     for k in INTERVAL_CHOICES if k],
+            value=INTERVAL_CHOICES[1], description="Intervals")
+        self.intervals.add_class("tf-intervals")
+        self.units = widgets.Dropdown(
+            options=[("single samples", False)]
+            + [(f"whole units of {c!r}", str(c)) for c in table.samples.columns],
+            value=False, description="Leave out")
+        self.units.add_class("tf-interval-units")
+        self.seed = widgets.BoundedIntText(value=1, min=0, max=2**31 - 1, description="Seed",
+                                           continuous_update=False,
+                                           layout=widgets.Layout(width="160px"))
+        self.seed.add_class("tf-interval-seed")
+        self.interval_state = widgets.HTML()
+        self.interval_state.add_class("tf-interval-state")
 
         self.partition_plot = new_figure_widget("tf-partition-plot")
         self.ordination_plot = new_figure_widget("tf-ordination-plot")
@@ -147,14 +200,16 @@ class ShapePanel(widgets.VBox):
         self.notes = NotesArea()
 
         self.controls = [self.transform, self.measure, self.size, self.shape,
-                         self.shape_dims, self.group, self.ellipses]
+                         self.shape_dims, self.group, self.ellipses, self.intervals,
+                         self.units, self.seed]
         row1 = widgets.HBox([self.exponent, self.transform, self.measure])
         row2 = widgets.HBox([self.size, self.shape, self.shape_dims])
         row3 = widgets.HBox([self.group, self.ellipses])
+        row4 = widgets.HBox([self.intervals, self.units, self.seed, self.interval_state])
         plots_row = widgets.HBox([self.partition_plot, self.ordination_plot],
                                  layout=widgets.Layout(flex_flow="row wrap"))
-        super().__init__([row1, row2, row3, self.messages, self.fractions_text, plots_row,
-                          self.notes])
+        super().__init__([row1, row2, row3, row4, self.messages, self.fractions_text,
+                          plots_row, self.notes])
         self.add_class("tf-panel-shape")
 
         self.exponent.observe(self._exponent_moved, names="value")
@@ -185,11 +240,17 @@ class ShapePanel(widgets.VBox):
             "ordination": Call("pcoa", (Call("dissimilarity", (tab, measure),
                                              given(transform=tr)),), {"dims": 2}),
         }
+        if int(self.intervals.value):
+            units = self.units.value or None
+            calls["intervals"] = Call("size_shape", (tab, measure), given(
+                transform=tr, size=self.size.value, shape=self.shape.value,
+                shape_dims=self.shape_dims.value or None, n_boot=int(self.intervals.value),
+                units=units, rng=int(self.seed.value)))
         if self.group.value:
             calls["group"] = Call("group", (self.group.value,), obj=tab)
             if self.ellipses.value:
                 calls["ellipses"] = Call("ellipses", (calls["group"],),
-                                         {"kind": "confidence"}, obj=Ref("o", None))
+                                         {"kind": self.ellipses.value}, obj=Ref("o", None))
         return calls
 
     def spec_values(self) -> dict:
@@ -197,8 +258,9 @@ class ShapePanel(widgets.VBox):
         return {"transform": self.transform_value() or "none", "measure": self.measure.value,
                 "size": self.size.value, "shape": self.shape.value,
                 "shape_dims": self.shape_dims.value or None,
-                "ellipse": "confidence" if self.ellipses.value else None,
-                "group": self.group.value or None}
+                "ellipse": self.ellipses.value,
+                "group": self.group.value or None,
+                **({"n_boot": int(self.intervals.value)} if _spec_has("n_boot") else {})}
 
     def apply_spec(self, spec) -> None:
         """Set the controls from a spec, with one update (the group is set by the dashboard)."""
@@ -217,7 +279,17 @@ class ShapePanel(widgets.VBox):
             self.size.value = spec.size
             self.shape.value = spec.shape
             self.shape_dims.value = spec.shape_dims or 0
-            self.ellipses.value = spec.ellipse is not None
+            if spec.ellipse not in [v for _, v in self.ellipses.options]:
+                self.ellipses.options = ellipse_options(spec.ellipse)
+            self.ellipses.value = spec.ellipse
+            if spec.seed is not None:
+                self.seed.value = int(spec.seed)
+            n_boot = getattr(spec, "n_boot", None)
+            if n_boot is not None:
+                if n_boot not in [v for _, v in self.intervals.options]:
+                    self.intervals.options = list(self.intervals.options) + [
+                        (f"95 %, {int(n_boot)} resamples", int(n_boot))]
+                self.intervals.value = int(n_boot)
 
     # ------------------------------------------------------------------ events
     @contextlib.contextmanager
@@ -247,8 +319,13 @@ class ShapePanel(widgets.VBox):
 
     # ------------------------------------------------------------------ the one handler
     def refresh(self) -> None:
-        """Run the calls whose arguments changed, then redraw from the results."""
+        """Run the calls whose arguments changed, then redraw from the results; the
+        intervals follow in the background once the controls settle."""
         calls = self.build_calls()
+        code = calls["intervals"].code() if "intervals" in calls else None
+        if code != self._intervals_code:     # a result for other settings is dropped
+            self._runner.cancel()
+            self._intervals_code = None
         t0 = time.perf_counter()
         self.messages.clear()
         self.notes.clear()
@@ -271,24 +348,38 @@ class ShapePanel(widgets.VBox):
                          and ("group" not in calls or groups is not None)
                          and ("ellipses" not in calls or self.ellipse_set is not None))
         # figures: pure functions of the results, copied into the widgets in one batch each
-        try:
-            p = plots()
-            if self.result is not None:
-                copy_figure(self.partition_plot,
-                            p.partition_bars(self.result, present=self._present))
-            if ordination_ok:
-                copy_figure(self.ordination_plot, p.ordination_figure(
-                    self.ordination, group=groups, ellipses=self.ellipse_set,
-                    present=self._present))
-        except Exception as err:             # a figure failed: say so, in one line
-            if self.error is None:
-                self.error = err
-                self.messages.show_error(err)
-        if self.error is None:
-            self.notes.show(list(self.result.notes) + list(self.ordination.notes)
-                            + list(getattr(self.ellipse_set, "notes", ())))
-        self.fractions_text.value = _fractions_html(self.result, self._present)
+        with self._runner.hold():            # no interval result lands while we draw
+            ready, failed = self._ready_intervals(code)
+            self.intervals_result = ready
+            try:
+                p = plots()
+                if self.result is not None:
+                    copy_figure(self.partition_plot, p.partition_bars(
+                        ready if ready is not None else self.result, present=self._present))
+                if ordination_ok:
+                    copy_figure(self.ordination_plot, p.ordination_figure(
+                        self.ordination, group=groups, ellipses=self.ellipse_set,
+                        present=self._present))
+            except Exception as err:         # a figure failed: say so, in one line
+                if self.error is None:
+                    self.error = err
+                    self.messages.show_error(err)
+            self._show_notes()
+            self.fractions_text.value = _fractions_html(self.result, self._present)
+            if code is None or self.result is None:
+                self.interval_state.value = ""
+            elif ready is not None or failed is not None:
+                self._say_intervals(ready, failed)
+            elif self._intervals_code != code:
+                self._start_intervals(calls["intervals"], code)
         self.revision += 1
+
+    def _show_notes(self) -> None:
+        if self.error is None:
+            self.notes.show(list(self.result.notes)
+                            + list(getattr(self.intervals_result, "notes", ()))
+                            + list(self.ordination.notes)
+                            + list(getattr(self.ellipse_set, "notes", ())))
 
     def _attempt(self, name: str, calls: dict, plot, *, key_extra: str = ""):
         """Result of one call (reused when its arguments are unchanged), or None on error."""
@@ -297,7 +388,7 @@ class ShapePanel(widgets.VBox):
             return self._done[key]
         self._done = {k: v for k, v in self._done.items() if k[0] != name}
         try:
-            result = calls[name].run(self._core)
+            result = calls[name].run(self._core, **_live_extra(self._core, calls[name]))
         except Exception as err:              # shown in the panel, never as a traceback
             if self.error is None:
                 self.error = err
@@ -310,6 +401,71 @@ class ShapePanel(widgets.VBox):
         self._done[key] = result
         return result
 
+    # ------------------------------------------------------------------ intervals
+    def _ready_intervals(self, code: str | None):
+        """(result, error) of these interval settings when computed before, else Nones."""
+        if code is None or self.result is None or self._intervals_done is None:
+            return None, None
+        done, result, err = self._intervals_done
+        return (result, err) if done == code else (None, None)
+
+    def _start_intervals(self, call: Call, code: str) -> None:
+        self.interval_state.value = _state_html("intervals: computing")
+        self._intervals_code = code
+        core = self._core
+        self._runner.request(
+            lambda progress, cancel: call.run(core, progress=progress, cancel=cancel),
+            lambda result, err: self._intervals_finished(code, result, err),
+            on_progress=self._intervals_progress)
+
+    def _intervals_progress(self, done: int, total: int) -> None:
+        if total > 0:
+            self.interval_state.value = _state_html(
+                f"intervals: computing ({int(done)} of {int(total)} resamples)")
+
+    def _intervals_finished(self, code: str, result, err) -> None:
+        """Background thread, for the latest settings only (the runner drops the rest)."""
+        self._intervals_code = None
+        if err is None:
+            try:
+                fig = plots().partition_bars(result, present=self._present)
+                copy_figure(self.partition_plot, fig)
+            except Exception as fig_err:     # a figure failed: say so, in one line
+                result, err = None, fig_err
+        self._intervals_done = (code, result, err)
+        self.intervals_result = result
+        self._say_intervals(result, err)
+        if result is not None:
+            self._show_notes()
+        self.revision += 1
+
+    def _say_intervals(self, result, err) -> None:
+        if err is not None:
+            self.interval_state.value = _state_html(f"no intervals: {error_text(err)}",
+                                                    warn=True)
+            return
+        prov = result.provenance
+        how = f"{prov.get('n_boot')} resamples" + (
+            f" leaving out whole units of {prov['units']!r}" if prov.get("units") else "")
+        self.interval_state.value = _state_html(f"intervals: {how}")
+
+    def wait_intervals(self, timeout: float | None = None) -> bool:
+        """Wait for the background intervals of the current settings; True when done."""
+        return self._runner.wait(timeout)
+
+    def cancel_intervals(self) -> None:
+        """Stop the background intervals (the bars stay, without them)."""
+        self._runner.cancel()
+        self._intervals_code = None
+        if self.intervals_result is None:
+            self.interval_state.value = "" if "intervals" not in self.calls else \
+                _state_html("intervals: stopped")
+
+    @property
+    def intervals_pending(self) -> bool:
+        """True while the intervals of the current settings wait or run."""
+        return self._runner.busy
+
     # ------------------------------------------------------------------ presentation
     def set_present(self, on: bool = True) -> None:
         """Projector mode: only the exponent slider stays; figures use large fonts."""
@@ -317,6 +473,30 @@ class ShapePanel(widgets.VBox):
         for w in self.controls:
             w.layout.display = "none" if on else None
         self.refresh()
+
+
+def _spec_has(key: str) -> bool:
+    """Does this version's AnalysisSpec hold ``key``? (Keys are read defensively.)"""
+    from dataclasses import fields
+
+    from ..core.spec import AnalysisSpec
+    return key in {f.name for f in fields(AnalysisSpec)}
+
+
+def _live_extra(core, call) -> dict:
+    """``progress=_quiet`` for a live call that takes a progress argument (no bar for it)."""
+    if call.obj is not None:
+        return {}
+    try:
+        params = inspect.signature(getattr(core, call.func)).parameters
+    except (AttributeError, TypeError, ValueError):
+        return {}
+    return {"progress": _quiet} if "progress" in params else {}
+
+
+def _state_html(text: str, *, warn: bool = False) -> str:
+    colour = "#A33" if warn else "#555"
+    return f"<span style='color:{colour}'>{html.escape(text)}</span>"
 
 
 def _fractions_html(result, present: bool = False) -> str:

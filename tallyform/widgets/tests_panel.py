@@ -3,14 +3,17 @@
 Each run is one core call, run in a background thread with ``progress`` and ``cancel``
 callbacks so the notebook stays responsive:
 
-* ``tly.compare_groups(tab, group, shape_measure=..., ...)`` (size test, shape test,
-  dispersion test and a plain reading);
-* ``tly.pairwise_permanova(tly.dissimilarity(tab, shape_measure), tab, group, ...)``;
-* ``tly.taxon_contributions(tab, group, a, b, measure=..., rng=...)`` when the core has it.
+* ``tly.compare_groups(tab, group, units=..., shape_measure=..., ...)`` (size test,
+  PERMANOVA, the Welch-type test, dispersion test and a plain reading);
+* ``tly.pairwise_permanova(tly.dissimilarity(tab, shape_measure), tab, group, units=...)``;
+* ``tly.taxon_contributions(tab, group, a, b, measure=..., units=..., rng=...)`` when the
+  core has it.
 
+Every call gets the sampling units of the units chooser (default: the column the core
+detects for the group, named with its counts), so the code shown reruns the same tests.
 The options are those of :class:`tallyform.AnalysisSpec` (shape measure, size method,
-blocks, permutations, seed, pairwise adjustment, contrast, contribution measure), so the
-panel's settings are always a valid spec and ``tly.run(spec, tab)`` gives the same numbers.
+blocks, permutations, seed, pairwise adjustment, contrast, contribution measure; the units
+when the spec holds them), so ``tly.run(spec, tab)`` gives the same numbers.
 
 Widgets are updated from the thread by trait assignment only, which ipywidgets supports.
 """
@@ -25,19 +28,31 @@ import ipywidgets as widgets
 import traitlets
 
 from ..core.errors import Cancelled, DesignError
+from ..core.spec import AnalysisSpec
 from ..core.measures import MEASURES
 from ..core.spec import _CHOICES
 from ..core.taxon_terms import PAIR_MEASURES, SPLIT_MEASURES
 from .common import (LABEL_STYLE, TABLE, Call, MessageArea, Ref, copy_figure, given,
-                     new_figure_widget, plots)
+                     new_figure_widget)
 from .shape_panel import default_group, group_options
+from .units_choice import unit_choices
 
 __all__ = ["TestsPanel", "ANALYSES"]
 
 ANALYSES = {"compare": "size, shape and spread", "pairwise": "pairwise PERMANOVA",
             "contributions": "taxon contributions"}
-_SIZE_METHOD_LABELS = {"anova": "ANOVA", "welch": "Welch ANOVA", "kruskal": "Kruskal-Wallis",
-                       "permutation": "permutation F", "negbin": "negative binomial"}
+_SIZE_METHOD_LABELS = {"welch": "Welch ANOVA (default)", "anova": "ANOVA",
+                       "kruskal": "Kruskal-Wallis", "permutation": "permutation F",
+                       "negbin": "negative binomial"}
+BLOCKS_HELP = ("Blocks only restrict the permutations of the shape and spread tests to "
+               "within blocks, and enter the size test's model as a factor; they are not "
+               "sampling units (choose those under Units).")
+
+
+def spec_has(key: str) -> bool:
+    """Does this version's AnalysisSpec hold ``key``? (Keys are read defensively.)"""
+    from dataclasses import fields
+    return key in {f.name for f in fields(AnalysisSpec)}
 _ADJUST_LABELS = {"holm": "Holm", "bh": "Benjamini-Hochberg", None: "none"}
 
 
@@ -46,13 +61,19 @@ class TestsPanel(widgets.VBox):
 
     Attributes
     ----------
-    analysis, group, shape_measure, contribution_measure, size_method, adjust, blocks,
-    pair_a, pair_b, n_permutations, seed : widgets
+    analysis, group, units, shape_measure, contribution_measure, size_method, adjust,
+    blocks, pair_a, pair_b, n_permutations, seed : widgets
+        ``units`` offers the column the core detects for the group (first, with its
+        counts), "none" (samples independent) and every other column; its value (a column
+        name, a tuple of nested columns, or False) is passed as ``units=``.
     run_button, cancel_button : Button
     progress : IntProgress
     results : HTML
         The result's table, notes and reading.
-    plot, plot2 : plotly FigureWidget
+    strata : HTML
+        After a PERMANOVA-based run: term, stratum, tested against, df, p and the smallest
+        possible p of every term (:func:`strata_frame`).
+    plot, plot2, plot3 : plotly FigureWidget
     result : ComparisonResult, PairwiseResult, TaxonContributions or None
         The last completed run (None while running, after an error or a cancel).
     call : Call or None
@@ -106,6 +127,16 @@ class TestsPanel(widgets.VBox):
         self.blocks = widgets.Dropdown(options=group_options(table), value="",
                                        description="Blocks", style=LABEL_STYLE)
         self.blocks.add_class("tf-blocks")
+        self.blocks_help = widgets.HTML(f"<small>{html.escape(BLOCKS_HELP)}</small>")
+        self.blocks_help.add_class("tf-blocks-help")
+        self.units = widgets.Dropdown(options=[("none: samples independent", False)],
+                                      value=False, description="Units", style=LABEL_STYLE,
+                                      layout=widgets.Layout(width="460px"))
+        self.units.add_class("tf-units")
+        self._units_auto = True          # follow the detection until the user picks
+        self._units_busy = False
+        self._units_extra = None         # nested units given by a spec
+        self._detected_units = False
         self.pair_a = widgets.Dropdown(options=[], description="Group A", style=LABEL_STYLE)
         self.pair_b = widgets.Dropdown(options=[], description="Group B", style=LABEL_STYLE)
         self.pair_a.add_class("tf-pair-a")
@@ -130,23 +161,28 @@ class TestsPanel(widgets.VBox):
         self.state.add_class("tf-run-state")
         self.results = widgets.HTML()
         self.results.add_class("tf-test-results")
+        self.strata = widgets.HTML()
+        self.strata.add_class("tf-strata")
         self.plot = new_figure_widget("tf-test-plot")
         self.plot2 = new_figure_widget("tf-test-plot2")
-        self._plot_boxes = (widgets.Box([self.plot]), widgets.Box([self.plot2]))
+        self.plot3 = new_figure_widget("tf-test-plot3")
+        self._plots = (self.plot, self.plot2, self.plot3)
+        self._plot_boxes = tuple(widgets.Box([p]) for p in self._plots)
         self.messages = MessageArea()
 
-        self.controls = [self.analysis, self.group, self.shape_measure,
+        self.controls = [self.analysis, self.group, self.units, self.shape_measure,
                          self.contribution_measure, self.size_method, self.adjust, self.blocks,
-                         self.pair_a, self.pair_b, self.n_permutations, self.seed,
-                         self.run_button, self.cancel_button]
+                         self.blocks_help, self.pair_a, self.pair_b, self.n_permutations,
+                         self.seed, self.run_button, self.cancel_button]
         self._options = widgets.VBox([
             self.analysis,
-            widgets.HBox([self.group, self.blocks]),
+            widgets.HBox([self.group, self.units]),
+            widgets.HBox([self.blocks, self.blocks_help]),
             widgets.HBox([self.shape_measure, self.contribution_measure]),
             widgets.HBox([self.size_method, self.adjust, self.pair_a, self.pair_b]),
             widgets.HBox([self.n_permutations, self.seed]),
             widgets.HBox([self.run_button, self.cancel_button, self.progress, self.state])])
-        super().__init__([self._options, self.messages, self.results,
+        super().__init__([self._options, self.messages, self.results, self.strata,
                           widgets.HBox(list(self._plot_boxes),
                                        layout=widgets.Layout(flex_flow="row wrap"))])
         self.add_class("tf-panel-tests")
@@ -155,9 +191,11 @@ class TestsPanel(widgets.VBox):
         self.cancel_button.on_click(lambda _: self.cancel())
         self.analysis.observe(self._analysis_changed, names="value")
         self.group.observe(self._group_changed, names="value")
-        for w in (self.group, self.shape_measure, self.contribution_measure, self.size_method,
-                  self.adjust, self.blocks, self.pair_a, self.pair_b, self.n_permutations,
-                  self.seed):
+        self.blocks.observe(self._refresh_units, names="value")
+        self.units.observe(self._units_picked, names="value")
+        for w in (self.group, self.units, self.shape_measure, self.contribution_measure,
+                  self.size_method, self.adjust, self.blocks, self.pair_a, self.pair_b,
+                  self.n_permutations, self.seed):
             w.observe(lambda change: self._bump(), names="value")
         self._group_changed()
         self._analysis_changed()
@@ -174,7 +212,8 @@ class TestsPanel(widgets.VBox):
                self.shape_measure: a != "contributions",
                self.contribution_measure: a == "contributions",
                self.pair_a: a == "contributions", self.pair_b: a == "contributions",
-               self.blocks: a != "contributions", self.n_permutations: a != "contributions"}
+               self.blocks: a != "contributions", self.blocks_help: a != "contributions",
+               self.n_permutations: a != "contributions"}
         for w, on in vis.items():
             w.layout.display = None if on and not self._present else "none"
         self._bump()
@@ -192,6 +231,35 @@ class TestsPanel(widgets.VBox):
         self.pair_b.options = levels
         if len(levels) >= 2:
             self.pair_a.value, self.pair_b.value = levels[0], levels[-1]
+        self._refresh_units()
+
+    # ------------------------------------------------------------------ units
+    def _refresh_units(self, change=None) -> None:
+        """Offer the units for the current group and blocks (the core's detection first);
+        follow the detection until the user picks a choice of their own."""
+        choices = unit_choices(self._table, self.group.value or None,
+                               self.blocks.value or None, extra=self._units_extra)
+        values = [v for _, v in choices.options]
+        keep = self.units.value
+        self._units_busy = True
+        try:
+            self.units.options = choices.options
+            if self._units_auto or not _holds(values, keep):
+                self._units_auto = True
+                self.units.value = choices.default
+            else:
+                self.units.value = keep
+        finally:
+            self._units_busy = False
+        self._detected_units = choices.default
+
+    def _units_picked(self, change) -> None:
+        if not self._units_busy:      # the user's own choice (the detected one: follow it)
+            self._units_auto = _same(change.new, self._detected_units)
+
+    def units_value(self):
+        """The ``units=`` of the calls: a column name, a tuple of columns, or False."""
+        return self.units.value
 
     def _bump(self) -> None:
         self.revision += 1
@@ -203,19 +271,24 @@ class TestsPanel(widgets.VBox):
         group = self.group.value or None
         seed = int(self.seed.value)
         blocks = self.blocks.value or None
+        units = self.units_value()
         a = self.analysis.value
         if a == "compare":
             return Call("compare_groups", (tab, group), given(
-                shape_measure=self.shape_measure.value, size_method=self.size_method.value,
-                blocks=blocks, n_permutations=int(self.n_permutations.value), rng=seed))
+                units=units, shape_measure=self.shape_measure.value,
+                size_method=self.size_method.value, blocks=blocks,
+                n_permutations=int(self.n_permutations.value), rng=seed))
         if a == "pairwise":
             d = Call("dissimilarity", (tab, self.shape_measure.value))
             return Call("pairwise_permanova", (d, tab, group), {
                 "adjust": self.adjust.value,           # None (no adjustment) is explicit
-                **given(blocks=blocks, n_permutations=int(self.n_permutations.value),
-                        rng=seed)})
+                **given(units=units, blocks=blocks,
+                        n_permutations=int(self.n_permutations.value), rng=seed)})
+        # the contributions take one column of units (their jackknife leaves out units)
+        unit_col = units if isinstance(units, str) else (
+            units[0] if isinstance(units, tuple) and units else None)
         return Call("taxon_contributions", (tab, group, self.pair_a.value, self.pair_b.value),
-                    given(measure=self.contribution_measure.value, rng=seed))
+                    given(measure=self.contribution_measure.value, units=unit_col, rng=seed))
 
     def spec_values(self) -> dict:
         """This panel's choices under their :class:`tallyform.AnalysisSpec` names."""
@@ -226,7 +299,8 @@ class TestsPanel(widgets.VBox):
                 "n_permutations": int(self.n_permutations.value),
                 "seed": int(self.seed.value), "pairwise_adjust": self.adjust.value,
                 "contrast": (a, b) if a and b and a != b else None,
-                "contribution_measure": self.contribution_measure.value}
+                "contribution_measure": self.contribution_measure.value,
+                **({"units": self.units_value()} if spec_has("units") else {})}
 
     def apply_spec(self, spec) -> None:
         """Set the controls from a spec (the group is set by the dashboard)."""
@@ -240,6 +314,24 @@ class TestsPanel(widgets.VBox):
             self.contribution_measure.value = spec.contribution_measure
         if spec.contrast and set(spec.contrast) <= set(self.pair_a.options):
             self.pair_a.value, self.pair_b.value = spec.contrast
+        if spec_has("units"):
+            self.set_units(getattr(spec, "units"))
+
+    def set_units(self, units) -> None:
+        """Choose the units: None follows the detection; False, a column or a list of
+        nested columns is taken as given."""
+        if units is None:
+            self._units_auto = True
+            self._refresh_units()
+            return
+        value = tuple(units) if isinstance(units, (list, tuple)) else units
+        if isinstance(value, tuple) and len(value) == 1:
+            value = value[0]
+        if isinstance(value, tuple):
+            self._units_extra = value
+            self._refresh_units()
+        self.units.value = value          # a TraitError names a column the table lacks
+        self._units_auto = _same(value, self._detected_units)
 
     # ------------------------------------------------------------------ running
     @property
@@ -263,6 +355,7 @@ class TestsPanel(widgets.VBox):
         self.status = "running"
         self.messages.clear()
         self.results.value = ""
+        self.strata.value = ""
         self._hide_plots()
         self.progress.value = 0
         self.progress.bar_style = ""
@@ -322,11 +415,13 @@ class TestsPanel(widgets.VBox):
 
     def _figures(self, result) -> list:
         """Figures of the result (pure render functions)."""
-        p = plots()
         kind = type(result).__name__
         if kind == "ComparisonResult":
-            return [result.shape.figure(present=self._present),
+            figs = [result.shape.figure(present=self._present),
                     result.dispersion.figure(kind="distances", present=self._present)]
+            if result.permanova is not None:           # the reference, drawn third
+                figs.append(result.permanova.figure(present=self._present))
+            return figs
         if kind == "PairwiseResult":
             return []
         if hasattr(result, "figure"):              # taxon contributions
@@ -342,7 +437,8 @@ class TestsPanel(widgets.VBox):
             self.progress.bar_style = "warning" if status == "cancelled" else "danger"
         else:
             self.results.value = _result_html(result)
-            for fig, target, box in zip(figs, (self.plot, self.plot2), self._plot_boxes):
+            self.strata.value = _strata_html(result)
+            for fig, target, box in zip(figs, self._plots, self._plot_boxes):
                 copy_figure(target, fig)
                 box.layout.display = None
             self.progress.value = 100
@@ -353,7 +449,7 @@ class TestsPanel(widgets.VBox):
         self.revision += 1
 
     def _hide_plots(self) -> None:
-        for target, box in zip((self.plot, self.plot2), self._plot_boxes):
+        for target, box in zip(self._plots, self._plot_boxes):
             with target.batch_update():
                 target.data = ()
             box.layout.display = "none"
@@ -372,3 +468,58 @@ def _result_html(result) -> str:
     body = result._repr_html_() if hasattr(result, "_repr_html_") else html.escape(str(result))
     return f"<div class='tf-result'>{body}</div>"
 
+
+
+def _holds(values: list, value) -> bool:
+    return any(_same(v, value) for v in values)
+
+
+def _same(a, b) -> bool:
+    """Equal option values (False is not the column named 0, a tuple is not a list)."""
+    return type(a) is type(b) and a == b
+
+
+def strata_frame(result):
+    """Where each term of a PERMANOVA was tested: ``stratum``, ``tested against`` (its
+    denominator), ``df`` (term and denominator), ``p`` and the ``smallest possible p``
+    (NaN when the relabellings are too many for it to matter). Columns are selected from
+    ``result.table`` and ``result.schemes`` (nothing is computed).
+
+    ``result`` is a PermanovaResult or a ComparisonResult (its reference PERMANOVA); None
+    otherwise.
+    """
+    import pandas as pd
+    perm = getattr(result, "permanova", None) if type(result).__name__ == "ComparisonResult" \
+        else result
+    if type(perm).__name__ != "PermanovaResult":
+        return None
+    terms = list(perm.terms)
+    table = perm.table.loc[terms]
+    out = pd.DataFrame(index=pd.Index(terms, name="term"))
+    out["stratum"] = table.get("stratum", pd.Series("samples", index=terms))
+    out["tested against"] = table.get("tested_against", pd.Series("Residual", index=terms))
+    den = table.get("df_denominator")
+    out["df"] = [f"{int(a)}, {int(b)}" if b is not None and not pd.isna(b) else str(int(a))
+                 for a, b in zip(table["df"], den if den is not None else [None] * len(terms))]
+    out["p"] = table["pvalue"].to_numpy(dtype=float)
+    floor = (perm.schemes["min_pvalue"].reindex(terms) if perm.schemes is not None
+             else pd.Series(float("nan"), index=terms))
+    out["smallest possible p"] = floor.to_numpy(dtype=float)
+    return out
+
+
+def _strata_html(result) -> str:
+    frame = strata_frame(result)
+    if frame is None:
+        return ""
+    perm = result.shape if type(result).__name__ == "ComparisonResult" else result
+    shown = frame.copy()
+    shown["p"] = [f"{v:.4g}" for v in frame["p"]]
+    shown["smallest possible p"] = [f"{v:.3g}" if v == v else "\u2014"
+                                    for v in frame["smallest possible p"]]
+    note = ("&mdash;: many distinct relabellings, so only the number of permutations limits "
+            "p" if (shown["smallest possible p"] == "\u2014").any() else "")
+    return (f"<div class='tf-strata-box'><b>Error strata</b>: where each term was tested "
+            f"({html.escape(perm.scheme)})<br>"
+            f"{shown.to_html(border=1, classes='tf-table tf-strata-table')}"
+            f"<small>{note}</small></div>")

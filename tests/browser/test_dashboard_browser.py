@@ -84,6 +84,35 @@ PARTITION_EQUALS = """([root, expected]) => {
 }"""
 
 
+# the share intervals drawn beside the bars: each share with its whiskers
+INTERVALS = """(root) => {
+  const d = document.querySelector(root + ' .tf-partition-plot.js-plotly-plot');
+  if (!d || !d._fullData) return null;
+  const t = d._fullData.filter(t => t.meta && t.meta.kind === 'interval');
+  if (t.length < 4) return null;
+  return t.map(t => ({fraction: t.meta.fraction, x: Number(Array.from(t.x)[0]),
+    plus: Number(Array.from(t.error_x.array)[0]),
+    minus: Number(Array.from(t.error_x.arrayminus)[0])}));
+}"""
+
+# rows of an HTML table: the cells' text, header cell first
+TABLE_ROWS = """(sel) => [...document.querySelectorAll(sel + ' tbody tr')].map(r =>
+  [...r.children].map(c => c.textContent.trim()))"""
+
+# (ipywidgets writes the spaces of option labels as no-break spaces)
+SELECTED = """(sel) => { const s = document.querySelector(sel);
+  return s ? s.options[s.selectedIndex].textContent.replace(/\\u00a0/g, ' ').trim() : null; }"""
+OPTION_INDEX = """([sel, label]) => [...document.querySelector(sel).options].findIndex(
+  o => o.textContent.replace(/\\u00a0/g, ' ').trim() === label)"""
+
+
+def choose(p, select: str, label: str) -> None:
+    """Pick a dropdown option by its label, as a user does."""
+    index = p.page.evaluate(OPTION_INDEX, [select, label])
+    assert index >= 0, f"no option {label!r}"
+    p.page.locator(select).select_option(index=index)
+
+
 def open_notebook(p, lab, name: str) -> None:
     """Open a notebook of the served copy and wait for its kernel to be connected and idle
     (the toolbar's indicator flips too early to rely on)."""
@@ -206,6 +235,21 @@ def test_exponent_slider_by_keyboard_redraws_to_the_core_numbers(quickstart):
     # the sentence under the controls follows (a message of its own, after the figures)
     expect(p.page.locator(f"{DASH} .tf-partition-summary")).to_contain_text(
         f"size only {100 * s.fractions['size_only']:.1f}%")
+    # once the slider has settled, the intervals are computed in the background and drawn
+    # beside the bars: those of the same call, leaving out whole tanks (the units the Tests
+    # panel detected)
+    state = p.page.locator(f"{DASH} .tf-interval-state")
+    expect(state).to_contain_text("leaving out whole units of 'tank'", timeout=120_000)
+    ci = tly.size_shape(MESOCOSM, "bray_curtis", transform=tly.Power(value), n_boot=199,
+                        units="tank", rng=1)
+    shown = {r["fraction"]: r for r in p.page.wait_for_function(INTERVALS, arg=DASH)
+             .json_value()}
+    assert set(shown) == set(FRACTIONS)
+    for f in FRACTIONS:
+        share, (lo, hi) = ci.fractions[f], ci.fractions_ci.loc[f, ["low", "high"]]
+        assert shown[f]["x"] == pytest.approx(share, abs=1e-9)
+        assert shown[f]["x"] + shown[f]["plus"] == pytest.approx(max(hi, share), abs=1e-9)
+        assert shown[f]["x"] - shown[f]["minus"] == pytest.approx(min(lo, share), abs=1e-9)
     p.shot("2_exponent_slider_moved")
 
 
@@ -286,10 +330,10 @@ def test_tests_panel_progress_results_and_cancel(quickstart):
         "(sel) => [...document.querySelectorAll(sel + ' tbody tr')].map(r => "
         "[...r.children].map(c => c.textContent.trim()))",
         f"{panel} .tf-test-results table")
-    c = tly.compare_groups(MESOCOSM, "treatment", shape_measure="chi_square",
+    c = tly.compare_groups(MESOCOSM, "treatment", units="tank", shape_measure="chi_square",
                            n_permutations=199, rng=1).to_frame()
     shown = {r[0]: r for r in rows}
-    assert list(shown) == list(c.index)
+    assert list(shown) == list(c.index) == ["size", "shape", "welch", "spread"]
     for aspect in c.index:
         _, _, statistic, pvalue, _ = shown[aspect]
         assert float(statistic) == pytest.approx(c.loc[aspect, "statistic"], rel=1e-3)
@@ -297,6 +341,91 @@ def test_tests_panel_progress_results_and_cancel(quickstart):
     assert state.inner_text().startswith("done")
     p.page.locator(f"{panel} .tf-test-plot.js-plotly-plot").wait_for(state="visible")
     p.shot("4c_tests_done")
+
+
+def _run_and_wait(p, panel: str, stratum: str) -> None:
+    """Press Run; wait until this run is over: the strata table (cleared when a run starts)
+    names the expected stratum and the state says done."""
+    p.page.locator(f"{panel} .tf-run-button").click()
+    p.page.wait_for_function(
+        """([panel, stratum]) => {
+             const s = document.querySelector(panel + ' .tf-run-state');
+             const cells = [...document.querySelectorAll(panel + ' .tf-strata tbody td')];
+             return s && s.textContent.startsWith('done') && cells.length > 0
+                    && cells[0].textContent.trim() === stratum; }""",
+        arg=[panel, stratum], timeout=120_000, polling=200)
+
+
+def _kernel_has(p, units_label: str, seed: str) -> None:
+    """Wait until the kernel has taken the units and seed: it echoes them into the Size &
+    shape panel (the intervals leave out the same units, with the same seed)."""
+    p.page.wait_for_function(
+        """([root, label, seed]) => {
+             const s = document.querySelector(root + ' .tf-interval-units select');
+             const i = document.querySelector(root + ' .tf-interval-seed input');
+             return s && i && i.value === seed && s.options[s.selectedIndex].textContent
+               .replace(/\\u00a0/g, ' ').trim() === label; }""",
+        arg=[DASH, units_label, seed])
+
+
+def _check_run(p, panel: str, units) -> None:
+    """The results and strata tables on the page == the API call with the same options."""
+    direct = tly.compare_groups(MESOCOSM, "treatment", units=units,
+                                shape_measure="chi_square", n_permutations=199, rng=7)
+    rows = {r[0]: r for r in p.page.evaluate(TABLE_ROWS, f"{panel} .tf-test-results table")}
+    assert list(rows) == list(direct.pvalue.index)
+    for aspect, pvalue in direct.pvalue.items():
+        assert float(rows[aspect][3]) == pytest.approx(pvalue, rel=1e-3)
+    strata = p.page.evaluate(TABLE_ROWS, f"{panel} .tf-strata table")
+    assert [r[0] for r in strata] == ["treatment"]
+    _, stratum, against, df, pvalue, floor = strata[0]
+    table = direct.shape.table
+    assert stratum == table.loc["treatment", "stratum"]
+    assert against == table.loc["treatment", "tested_against"]
+    den = table.loc["treatment", "df_denominator"]
+    assert df == f"{table.loc['treatment', 'df']}, {den}"
+    assert float(pvalue) == pytest.approx(direct.pvalue["shape"], rel=1e-3)
+    assert floor == "\u2014"             # many relabellings: only the permutations limit p
+
+
+def test_units_chosen_in_the_tests_panel_reach_the_tests(quickstart):
+    """Choose the sampling units, run, and read the strata table and p-values: they are
+    those of the API call with the same units, options and seed."""
+    from playwright.sync_api import expect
+    p = quickstart
+    show_tab(p, DASH, "Tests")
+    panel = f"{DASH} .tf-panel-tests"
+    select = f"{panel} .tf-units select"
+    p.page.locator(select).wait_for(state="visible")
+    detected = "tank: 15 units, 4 samples each (detected)"
+    assert p.page.evaluate(SELECTED, select) == detected      # the core's detection
+    expect(p.page.locator(f"{panel} .tf-blocks-help")).to_contain_text(
+        "Blocks only restrict the permutations")
+    perms = p.page.locator(f"{panel} .tf-permutations input")
+    perms.fill("199")
+    perms.press("Enter")
+    seed = p.page.locator(f"{panel} .tf-seed input")
+    seed.fill("7")
+    seed.press("Enter")
+
+    # samples as independent replicates (60 samples)
+    choose(p, select, "none: samples independent")
+    _kernel_has(p, "single samples", "7")
+    _run_and_wait(p, panel, "samples")
+    _check_run(p, panel, False)
+    expect(p.page.locator(f"{panel} .tf-strata")).to_contain_text("Residual")
+    p.page.locator(f"{panel} .tf-strata").scroll_into_view_if_needed()
+    p.shot("8a_units_none")
+
+    # back to the tanks: tested between tanks, against the residual between tanks
+    choose(p, select, detected)
+    _kernel_has(p, "whole units of 'tank'", "7")
+    _run_and_wait(p, panel, "between 'tank'")
+    _check_run(p, panel, "tank")
+    expect(p.page.locator(f"{panel} .tf-strata")).to_contain_text("between 'tank'")
+    assert p.page.locator(f"{panel} .tf-error").inner_text().strip() == ""
+    p.page.locator(f"{panel} .tf-strata").scroll_into_view_if_needed()
+    p.shot("8b_units_tank")
 
 
 # ------------------------------------------------------------------ the template notebook

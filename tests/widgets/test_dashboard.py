@@ -56,15 +56,34 @@ def test_reproduce_code_reruns_to_the_same_numbers(dash):
     dash.shape.measure.value = "hellinger"
     dash.tests.n_permutations.value = 99
     dash.tests.run(block=True)
+    assert dash.shape.wait_intervals(60) and dash.shape.intervals_result is not None
     code = dash.report.code
     assert "tly.size_shape(tab, \"hellinger\", transform=\"sqrt\"" in code
     assert "(as last run)" in code
+    # the detected units reach every call: the tests and the intervals' resampling
+    assert 'tly.compare_groups(tab, "treatment", units="tank"' in code
+    assert 'n_boot=199, units="tank", rng=1)' in code
     ns = {"tab": dash.table}
     exec(code.replace("tab = ...", "tab = tab"), ns)        # the shared-notebook path
     pd.testing.assert_series_equal(ns["s"].fractions, dash.shape.result.fractions)
+    pd.testing.assert_frame_equal(ns["s"].fractions_ci, dash.shape.intervals_result.fractions_ci)
     pd.testing.assert_frame_equal(ns["o"].scores, dash.shape.ordination.scores)
     pd.testing.assert_series_equal(ns["c"].pvalue, dash.tests.result.pvalue)
+    pd.testing.assert_series_equal(ns["c"].statistic, dash.tests.result.statistic)
     pd.testing.assert_frame_equal(ns["totals"], dash.data.result)
+
+
+def test_units_and_seed_are_shared(mesocosm):
+    d = tly.explore(mesocosm)
+    assert d.tests.units.value == "tank" == d.shape.units.value
+    d.tests.units.value = False
+    assert d.shape.units.value is False
+    assert "units=" not in d.shape.calls["intervals"].code()
+    d.tests.set_units(["tank_block", "tank"])          # nested: the coarsest is left out
+    assert d.shape.units.value == "tank_block"
+    d.tests.seed.value = 7
+    assert d.shape.seed.value == 7 and "rng=7" in d.shape.calls["intervals"].code()
+    d.shape.cancel_intervals()
 
 
 def test_report_follows_changes(dash):
@@ -104,11 +123,17 @@ def test_run_of_the_spec_gives_the_numbers_on_screen(mesocosm):
 
 
 def test_export_writes_tables_and_figures(dash, tmp_path):
+    if dash.tests.result is None:
+        dash.tests.n_permutations.value = 49
+        dash.tests.run(block=True)
     written = dash.report.export(tmp_path / "out")
     assert dash.report.error is None, dash.report.messages.text
     names = {p.name for p in written}
     assert {"size_shape.csv", "partition.html", "ordination.html", "spec.json",
             "reproduce.py", "methods.txt", "totals_by_group.csv", "tables.xlsx"} <= names
+    assert {"strata.csv", "comparison.csv", "shape_permanova.csv", "tests_3.html"} <= names
+    strata = pd.read_csv(tmp_path / "out" / "strata.csv", index_col=0)
+    assert strata.loc["treatment", "stratum"] == "between 'tank'"
     assert tly.AnalysisSpec.from_json(tmp_path / "out" / "spec.json") == dash.spec
     frame = pd.read_csv(tmp_path / "out" / "size_shape.csv", index_col=0)
     assert frame["share"].to_dict() == pytest.approx(

@@ -4,8 +4,8 @@ from __future__ import annotations
 import html
 import threading
 
+import numpy as np
 import pandas as pd
-import pytest
 
 import tallyform as tly
 from tallyform.errors import Cancelled
@@ -14,19 +14,37 @@ from tallyform.widgets import TestsPanel
 
 def test_compare_run_matches_direct_call(mesocosm):
     panel = TestsPanel(mesocosm, group="treatment")
+    assert panel.units.value == "tank"              # the core's detection, made explicit
     panel.n_permutations.value = 199
     panel.seed.value = 5
     panel.run()
     assert panel.wait(timeout=60)
     assert panel.status == "done", panel.messages.text
-    direct = tly.compare_groups(mesocosm, "treatment", shape_measure="chi_square",
-                                n_permutations=199, rng=5)
+    assert panel.call.code() == (
+        'tly.compare_groups(tab, "treatment", units="tank", shape_measure="chi_square", '
+        'size_method="welch", n_permutations=199, rng=5)')
+    direct = tly.compare_groups(mesocosm, "treatment", units="tank",
+                                shape_measure="chi_square", n_permutations=199, rng=5)
     pd.testing.assert_series_equal(panel.result.pvalue, direct.pvalue)
     pd.testing.assert_series_equal(panel.result.statistic, direct.statistic)
+    assert list(panel.result.pvalue.index) == ["size", "shape", "spread", "permanova"]
+    # the same tests as the detection would run (only the words about detection differ)
+    detected = tly.compare_groups(mesocosm, "treatment", n_permutations=199, rng=5)
+    pd.testing.assert_series_equal(panel.result.pvalue, detected.pvalue)
     assert panel.progress.value == 100
     assert not panel.run_button.disabled and panel.cancel_button.disabled
     assert direct.reading in html.unescape(panel.results.value)
-    assert len(panel.plot.data) > 0 and len(panel.plot2.data) > 0
+    assert all(len(p.data) > 0 for p in (panel.plot, panel.plot2, panel.plot3))
+    # each figure is the core's own figure of that test (widgets draw, never compute)
+    for widget, fig in ((panel.plot, direct.shape.figure()),
+                        (panel.plot2, direct.dispersion.figure(kind="distances")),
+                        (panel.plot3, direct.permanova.figure())):
+        assert len(widget.data) == len(fig.data)
+        for got, want in zip(widget.data, fig.data):
+            for axis in ("x", "y"):
+                a, b = getattr(got, axis, None), getattr(want, axis, None)
+                if b is not None:
+                    np.testing.assert_array_equal(np.asarray(a), np.asarray(b))
 
 
 def test_pairwise_run(mesocosm):
@@ -39,10 +57,12 @@ def test_pairwise_run(mesocosm):
     assert panel.status == "done", panel.messages.text
     assert panel.call.code() == (
         'tly.pairwise_permanova(tly.dissimilarity(tab, "hellinger"), tab, "treatment", '
-        'adjust=None, n_permutations=99, rng=1)')
+        'adjust=None, units="tank", n_permutations=99, rng=1)')
     direct = tly.pairwise_permanova(tly.dissimilarity(mesocosm, "hellinger"), mesocosm,
-                                    "treatment", adjust=None, n_permutations=99, rng=1)
+                                    "treatment", adjust=None, units="tank",
+                                    n_permutations=99, rng=1)
     pd.testing.assert_frame_equal(panel.result.table, direct.table)
+    assert set(panel.result.table["stratum"]) == {"between 'tank'"}
 
 
 def test_cancel_from_another_thread_leaves_panel_usable(mesocosm, recorder, clean):
@@ -123,7 +143,11 @@ def test_contributions_run(mesocosm):
     panel.contribution_measure.value = "chi_square"
     panel.run(block=True)
     assert panel.status == "done", panel.messages.text
+    assert panel.call.code() == ('tly.taxon_contributions(tab, "treatment", "control", '
+                                 '"nutrient_high", measure="chi_square", units="tank", rng=1)')
     direct = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_high",
-                                     measure="chi_square", rng=1)
+                                     measure="chi_square", units="tank", rng=1)
     pd.testing.assert_frame_equal(panel.result.to_frame(), direct.to_frame())
+    panel.units.value = False                  # samples independent: no units= at all
+    assert "units" not in panel.build_call().code()
     assert len(panel.plot.data) > 0 and len(panel.plot2.data) > 0

@@ -333,7 +333,7 @@ def test_tests_panel_progress_results_and_cancel(quickstart):
     c = tly.compare_groups(MESOCOSM, "treatment", units="tank", shape_measure="chi_square",
                            n_permutations=199, rng=1).to_frame()
     shown = {r[0]: r for r in rows}
-    assert list(shown) == list(c.index) == ["size", "shape", "welch", "spread"]
+    assert list(shown) == list(c.index) == ["size", "shape", "spread", "permanova"]
     for aspect in c.index:
         _, _, statistic, pvalue, _ = shown[aspect]
         assert float(statistic) == pytest.approx(c.loc[aspect, "statistic"], rel=1e-3)
@@ -379,12 +379,12 @@ def _check_run(p, panel: str, units) -> None:
     strata = p.page.evaluate(TABLE_ROWS, f"{panel} .tf-strata table")
     assert [r[0] for r in strata] == ["treatment"]
     _, stratum, against, df, pvalue, floor = strata[0]
-    table = direct.shape.table
+    table = direct.permanova.table
     assert stratum == table.loc["treatment", "stratum"]
     assert against == table.loc["treatment", "tested_against"]
     den = table.loc["treatment", "df_denominator"]
     assert df == f"{table.loc['treatment', 'df']}, {den}"
-    assert float(pvalue) == pytest.approx(direct.pvalue["shape"], rel=1e-3)
+    assert float(pvalue) == pytest.approx(direct.pvalue["permanova"], rel=1e-3)
     assert floor == "\u2014"             # many relabellings: only the permutations limit p
 
 

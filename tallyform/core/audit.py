@@ -18,11 +18,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .random import as_rng
-from .errors import Cancelled, DesignError, InputError
-from .results import ResultMixin, readonly
 from .abundance import counting_basis, require_absolute
+from .errors import Cancelled, DesignError, InputError
+from .random import as_rng
+from .results import ResultMixin, readonly
 from .table import CommunityTable, as_table
+from .validation import check_fraction
 
 __all__ = ["audit", "AuditResult", "null_shape_tables", "estimate_overdispersion"]
 
@@ -261,8 +262,7 @@ def _checked(table, group, *, model, alpha, n_sim, n_permutations, spread, raref
     """The table and its group column, or the error that names what is wrong."""
     if model not in MODELS:
         raise InputError(f"`model` must be one of {list(MODELS)}; got {model!r}.")
-    if not 0 < alpha < 1:
-        raise InputError(f"`alpha` must be between 0 and 1; got {alpha}.")
+    check_fraction("alpha", alpha)
     if n_sim < 1 or n_permutations < 19:
         raise InputError("`n_sim` must be at least 1 and `n_permutations` at least 19 "
                          f"(got {n_sim} and {n_permutations}).")

@@ -14,13 +14,14 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from .random import as_rng
 from .errors import InputError
 from .inference import check_n_permutations, check_option
+from .random import as_rng
 from .results import ResultMixin
 from .size_tests import SIZE_METHODS, SizeTestResult, group_factor, size_test
 from .table import as_table
 from .units import resolve_units
+from .validation import check_fraction
 
 __all__ = ["compare_groups", "ComparisonResult", "reading_text"]
 
@@ -319,8 +320,7 @@ def compare_groups(table, group, *, units=None, shape_measure="chi_square", tran
     from .dissimilarity import Dissimilarity, dissimilarity
     from .inference import permanova
     from .welch import welch_permanova
-    if not 0 < alpha < 1:
-        raise InputError(f"`alpha` must be between 0 and 1; got {alpha!r}.")
+    alpha = check_fraction("alpha", alpha)
     check_option("size_method", size_method, _METHODS)
     n_permutations = check_n_permutations(n_permutations)
     tab = as_table(table)

@@ -207,10 +207,8 @@ def _group_labels(tab: CommunityTable, group, name: str = "group") -> pd.Series:
     return tab.group(pd.Series(values, index=tab.sample_labels, name=name))
 
 
-def _check_int(name: str, value, low: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < low:
-        raise InputError(f"`{name}` must be a whole number of at least {low}; got {value!r}.")
-    return int(value)
+from .validation import check_fraction  # noqa: E402
+from .validation import check_whole as _check_int  # noqa: E402
 
 
 # ============================================================================== public
@@ -439,9 +437,7 @@ def _prepare(table, group, a, b, *, measure, transform, intervals, level, pseudo
         else:
             notes.append("n_boot is no longer used: the intervals are jackknife-t (a "
                          "percentile bootstrap of D^2 missed the true value too often).")
-    if isinstance(level, bool) or not isinstance(level, (int, float)) or not 0 < level < 1:
-        raise InputError(f"`level` must be a number between 0 and 1 (e.g. 0.95); got "
-                         f"{level!r}.")
+    level = check_fraction("level", level)
     if isinstance(pseudocount, bool) or not isinstance(pseudocount, (int, float)) or \
             not (np.isfinite(pseudocount) and pseudocount >= 0):
         raise InputError(f"`pseudocount` must be a number >= 0; got {pseudocount!r}.")

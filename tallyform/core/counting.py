@@ -55,6 +55,7 @@ from .permutation import Permutations, pvalue_from_null
 from .random import as_rng
 from .rarefaction import combine_draws
 from .table import as_table
+from .validation import check_fraction
 
 __all__ = ["shape_test", "spread_test", "CountingTestResult", "rarefied_pvalues", "embed",
            "ADJUSTMENTS", "SHAPE_STATISTICS"]
@@ -77,8 +78,7 @@ def _check_common(adjust, n_draws, n_permutations, alpha):
     if n_permutations < 19:
         raise InputError(f"`n_permutations` must be at least 19 for a p-value that can reach "
                          f"0.05; got {n_permutations}.")
-    if not 0 < alpha < 1:
-        raise InputError(f"`alpha` must be between 0 and 1; got {alpha!r}.")
+    alpha = check_fraction("alpha", alpha)
     return int(n_draws), n_permutations
 
 

@@ -30,17 +30,7 @@ _ADJUST = ("holm", "bh", None)
 
 
 # ---------------------------------------------------------------------------- checks
-def check_option(name: str, value, allowed) -> None:
-    if value not in allowed:
-        raise InputError(f"`{name}` must be one of {list(allowed)}; got {value!r}.")
-
-
-def check_n_permutations(n_permutations) -> int:
-    if isinstance(n_permutations, bool) or not isinstance(n_permutations, (int, np.integer)) \
-            or n_permutations < 0:
-        raise InputError(f"`n_permutations` must be a whole number >= 0; got "
-                         f"{n_permutations!r}.")
-    return int(n_permutations)
+from .validation import check_n_permutations, check_option  # noqa: E402  (re-exported)
 
 
 def check_dissimilarity(d, name: str = "d") -> Dissimilarity:

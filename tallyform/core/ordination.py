@@ -32,10 +32,7 @@ __all__ = ["Ordination", "pcoa", "weighted_average_scores", "correlation_scores"
 
 
 # ---------------------------------------------------------------------------- helpers
-def check_option(name: str, value, allowed) -> None:
-    """Raise InputError unless ``value`` is one of ``allowed`` (the message lists them)."""
-    if value not in allowed:
-        raise InputError(f"`{name}` must be one of {list(allowed)}; got {value!r}.")
+from .validation import check_option  # noqa: E402  (re-exported)
 
 
 def as_dissimilarity(d, *, name: str = "d") -> Dissimilarity:

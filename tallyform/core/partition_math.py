@@ -28,9 +28,7 @@ FRACTIONS = ("size_only", "shared", "shape_only", "residual")
 SHAPE_INERTIA_TARGET = 0.75
 
 
-def _check_option(name: str, value, allowed) -> None:
-    if value not in allowed:
-        raise InputError(f"`{name}` must be one of {list(allowed)}; got {value!r}.")
+from .validation import check_option as _check_option  # noqa: E402
 
 
 # ---------------------------------------------------------------------------- variation of D

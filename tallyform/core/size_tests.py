@@ -16,13 +16,14 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from .abundance import require_absolute
 from .design import factor_levels
 from .errors import DesignError, InputError, Location
 from .inference import check_option
 from .results import ResultMixin
-from .abundance import require_absolute
-from .size_methods import anova_note, run_method, collect_replicates, variance_ratio
+from .size_methods import anova_note, collect_replicates, run_method, variance_ratio
 from .table import CommunityTable, as_table
+from .validation import check_fraction, check_whole
 
 __all__ = ["size_test", "SizeTestResult", "size_measure", "group_factor", "SIZE_METHODS"]
 
@@ -313,10 +314,8 @@ def size_test(table, group, *, method: str = "welch", effort=None, units=None, b
     """
     check_option("method", method, _METHODS)
     check_option("nb_reference", nb_reference, ("F", "bootstrap"))
-    if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 19:
-        raise InputError(f"`n_boot` must be a whole number of at least 19; got {n_boot!r}.")
-    if not 0 < level < 1:
-        raise InputError(f"`level` must be between 0 and 1; got {level!r}.")
+    n_boot = check_whole("n_boot", n_boot, 19)
+    level = check_fraction("level", level)
     tab = as_table(table)
     load_notes = require_absolute(tab, "a size test", counts=(method == "negbin"))
     g = group_factor(tab, group)

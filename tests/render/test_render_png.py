@@ -64,15 +64,18 @@ def test_every_figure_renders_to_png(every_figure, tmp_path):
     names = list(every_figure)
     files = [folder / f"{n}.png" for n in names]
     figs = [every_figure[n] for n in names]
-    for attempt in range(2):      # kaleido 1.x now and then calls into an unloaded page
-        try:
+    for attempt in range(3):      # kaleido 1.x now and then calls into an unloaded page,
+        try:                      # or (on a loaded machine) returns before every file is out
             pio.write_images(figs, [str(f) for f in files],    # one browser for all
                              width=[f.layout.width or 1000 for f in figs],
                              height=[f.layout.height or 650 for f in figs])
-            break
         except Exception:
-            if attempt:
+            if attempt == 2:
                 raise
+        missing = [f.name for f in files if not f.exists()]
+        if not missing:
+            break
+        assert attempt < 2, f"the exporter wrote no file for {missing}"
     for f, fig in zip(files, figs):
         data = f.read_bytes()
         assert data[:8] == b"\x89PNG\r\n\x1a\n", f

@@ -30,6 +30,7 @@ sys.path.insert(0, str(ROOT))
 import pandas as pd  # noqa: E402
 
 from benchmarks.calibration_cells import all_cells, run_cell  # noqa: E402
+from benchmarks.calibration_cells.base import verdict  # noqa: E402
 
 
 def _run(args):
@@ -101,6 +102,8 @@ def main(argv=None) -> int:
                 frame = pd.concat([old, frame], ignore_index=True)
             order = {c.id: i for i, c in enumerate(all_cells())}
             frame = frame.sort_values("id", key=lambda s: s.map(order).fillna(1e9))
+        frame["verdict"] = [verdict(bool(r.checked), r.kind, r.observed, r.band_low,
+                                    r.band_high) for r in frame.itertuples()]
         frame.to_csv(ROOT / "docs" / "calibration.csv", index=False)
         (ROOT / "docs" / "calibration.md").write_text(markdown(frame, command.strip()))
     return 1 if len(bad) else 0

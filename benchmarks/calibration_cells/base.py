@@ -123,9 +123,20 @@ class CellResult:
                 "mc_low": self.ci[0], "mc_high": self.ci[1], "band_low": lo, "band_high": hi,
                 "replicates": self.reps - self.failed, "failed": self.failed,
                 "checked": self.cell.check,
-                "verdict": ("reference" if not self.cell.check else
-                            "ok" if self.inside else "OUT OF BAND"),
+                "verdict": verdict(self.cell.check, self.cell.kind, self.rate, lo, hi),
                 "seconds": round(self.seconds, 1)}
+
+
+def verdict(checked: bool, kind: str, rate: float, lo: float, hi: float) -> str:
+    """'ok', 'reference', or which side of its band a checked cell fell on, in words."""
+    if not checked:
+        return "reference"
+    if lo <= rate <= hi:
+        return "ok"
+    if kind == "coverage":
+        return "OUT OF BAND: covers too rarely" if rate < lo else "OUT OF BAND: covers too often"
+    return ("OUT OF BAND: conservative" if rate < lo
+            else "OUT OF BAND: rejects too often")
 
 
 def clopper_pearson(k: int, n: int, level: float = 0.95) -> tuple:

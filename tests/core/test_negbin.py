@@ -170,3 +170,25 @@ def test_poisson_group_is_said():
     res = size_test(_table(y, list("aaaabbbb")), "g", method="negbin", nb_reference="F")
     assert any("Poisson" in n for n in res.notes)
     assert np.isfinite(res.pvalue)
+
+
+def test_note_for_a_small_group_beside_a_large_one():
+    # calibration (docs/calibration.md, size/negbin/5x20 and 20x5): 7-8 % at alpha = 0.05
+    import tallyform as tly
+    rng = np.random.default_rng(1)
+
+    def table(sizes):
+        g = np.repeat(["a", "b"], sizes)
+        n = len(g)
+        y = rng.negative_binomial(5, 5 / (5 + 200), n)
+        labels = [f"s{i}" for i in range(n)]
+        x = pd.DataFrame(np.c_[y + 1, rng.integers(1, 5, n)], index=labels,
+                         columns=["t1", "t2"])
+        return tly.CommunityTable(x, pd.DataFrame({"g": g}, index=labels))
+
+    def noted(sizes):
+        res = tly.size_test(table(sizes), "g", method="negbin", units=False, n_boot=19, rng=1)
+        return any("poorly estimated" in n for n in res.notes)
+
+    assert noted((5, 20)) and noted((20, 4))
+    assert not noted((8, 8)) and not noted((6, 20))

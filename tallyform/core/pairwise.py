@@ -21,6 +21,9 @@ __all__ = ["pairwise_permanova", "adjust_pvalues", "PairwiseResult"]
 def adjust_pvalues(pvalues, method: str | None = "holm") -> np.ndarray:
     """Holm (1979) step-down or Benjamini & Hochberg (1995) step-up adjusted p-values.
 
+    The arithmetic is statsmodels' ``multipletests`` (methods ``'holm'`` and ``'fdr_bh'``);
+    missing p-values (NaN) stay missing and do not count among the tests.
+
     Examples
     --------
     >>> adjust_pvalues([0.01, 0.04, 0.03], "holm").round(3).tolist()
@@ -29,20 +32,18 @@ def adjust_pvalues(pvalues, method: str | None = "holm") -> np.ndarray:
     [0.03, 0.04, 0.04]
     """
     check_option("adjust", method, _ADJUST)
-    p = np.asarray(pvalues, dtype=float)
+    p = np.array(pvalues, dtype=float)           # a copy: the caller's array is not touched
     if method is None or p.size == 0:
-        return p.copy()
-    m = p.size
-    order = np.argsort(p, kind="stable")
-    ranked = p[order]
-    if method == "holm":
-        adj = np.maximum.accumulate(np.minimum(1.0, (m - np.arange(m)) * ranked))
-    else:
-        adj = np.minimum.accumulate((m / np.arange(m, 0, -1) * ranked[::-1]))[::-1]
-        adj = np.minimum(1.0, adj)
-    out = np.empty(m)
-    out[order] = adj
-    return out
+        return p
+    from statsmodels.stats.multitest import multipletests
+    flat = p.reshape(-1)
+    ok = np.isfinite(flat)
+    if ok.any():
+        flat[ok] = multipletests(flat[ok], method=_MULTIPLETESTS[method])[1]
+    return flat.reshape(p.shape)
+
+
+_MULTIPLETESTS = {"holm": "holm", "bh": "fdr_bh"}
 
 
 @dataclass(frozen=True, eq=False)

@@ -14,6 +14,7 @@ from .inference import (_ADJUST, align_samples, block_labels, check_dissimilarit
                         check_n_permutations, check_option, permanova)
 from .random import as_rng
 from .results import ResultMixin
+from .progress import reports_progress
 
 __all__ = ["pairwise_permanova", "adjust_pvalues", "PairwiseResult"]
 
@@ -87,6 +88,7 @@ class PairwiseResult(ResultMixin):
                 f"({how} adjustment)")
 
 
+@reports_progress("Pairwise PERMANOVA", knob="n_permutations")
 def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", units=None,
                        blocks=None, n_permutations: int = 999, rng=None,
                        statistic: str = "pseudo_f",

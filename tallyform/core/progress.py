@@ -30,6 +30,7 @@ import functools
 import inspect
 import math
 import sys
+import threading
 import time
 from typing import Callable
 
@@ -44,6 +45,8 @@ ESTIMATE_AFTER = 30.0
 WARMUP = 1.0
 #: Seconds between two redraws of a bar (the work may report far more often).
 REDRAW = 0.2
+#: A bar appears only once the call has run this long: quick calls leave no trace.
+SHOW_AFTER = 0.5
 
 _default: dict = {"progress": True}
 _active: contextvars.ContextVar = contextvars.ContextVar("tallyform_progress", default=None)
@@ -131,6 +134,8 @@ class _TerminalLine:
 
 
 def _display_for(label: str):
+    if threading.current_thread() is not threading.main_thread():
+        return None             # a background job (the dashboard's) reports by callable
     if _in_notebook():
         try:
             from ..widgets.progress import NotebookBar   # lazy: the interaction ring
@@ -170,7 +175,8 @@ class Reporter:
             elapsed = now - self.started
             if not self.estimated and done and elapsed >= WARMUP:
                 self._estimate(elapsed, done, total)
-            if self.display is not None and now - self._drawn >= REDRAW:
+            if (self.display is not None and now - self._drawn >= REDRAW
+                    and elapsed >= SHOW_AFTER):
                 self._drawn = now
                 rate = done / elapsed if elapsed > 0 else float("inf")
                 left = (total - done) / rate if rate > 0 else float("inf")
@@ -200,13 +206,13 @@ class Reporter:
         return f"{self.label} was {how}{where}; no result was kept."
 
     def finish(self):
-        if self.display is not None:
+        if self.display is not None and self._drawn > -math.inf:
             self.display.show(self.total, self.total, 0.0,
                               time.monotonic() - self.started, final=True)
             self.display.close()
 
     def fail(self):
-        if self.display is not None:
+        if self.display is not None and self._drawn > -math.inf:
             self.display.close(failed=True)
 
 

@@ -76,6 +76,9 @@ def test_estimate_after_warmup_names_the_knob(monkeypatch):
 def test_terminal_line_and_silence_without_terminal(monkeypatch, capsys):
     monkeypatch.setattr(P, "_stderr_is_terminal", lambda: True)
     count(3, progress=True)
+    assert capsys.readouterr().err == ""                    # quick calls leave no trace
+    monkeypatch.setattr(P, "SHOW_AFTER", 0.0)
+    count(3, progress=True)
     err = capsys.readouterr().err
     assert "Counting: 3/3 done in" in err
     # a script whose stderr is not a terminal prints nothing

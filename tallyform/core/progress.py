@@ -16,8 +16,9 @@ run permutations) reports nothing of its own unless it was handed a callable.
 
 Before a run predicted to take more than ``ESTIMATE_AFTER`` seconds, one line says the
 estimate and, when the call has an obvious knob (``n_permutations``, ``n_sim``, ``n_boot``),
-what a smaller value would take. The estimate is measured, not guessed: it is projected from
-the time the first few percent of the work took (at least ``WARMUP`` seconds of it).
+what a smaller value would take. The estimate is measured, not guessed: the set-up (up to the
+call's first report) counts once, and the rest is projected from the pace of the steps
+measured since then (after at least ``WARMUP`` seconds in all).
 
 Interrupting (KeyboardInterrupt, a notebook's stop button) or cancelling (``cancel()``
 returning True) stops the call at its next step and raises :class:`Cancelled`, saying how
@@ -164,7 +165,9 @@ class Reporter:
         self.started = time.monotonic()
         self.estimated = False
         self.estimate_text: str | None = None
+        self.projected: float | None = None  # seconds the whole call should take
         self._drawn = -math.inf              # when the display was last redrawn
+        self._first = None                   # (seconds, done) at the first report
 
     def __call__(self, done, total):
         self.done, self.total = done, total
@@ -173,7 +176,9 @@ class Reporter:
         if self.display is not None or not self.estimated:
             now = time.monotonic()
             elapsed = now - self.started
-            if not self.estimated and done and elapsed >= WARMUP:
+            if self._first is None:
+                self._first = (elapsed, done)
+            elif not self.estimated and done > self._first[1] and elapsed >= WARMUP:
                 self._estimate(elapsed, done, total)
             if (self.display is not None and now - self._drawn >= REDRAW
                     and elapsed >= SHOW_AFTER):
@@ -186,7 +191,9 @@ class Reporter:
 
     def _estimate(self, elapsed, done, total):
         self.estimated = True
-        projected = elapsed * total / done
+        # set-up (up to the first report) once, then the measured pace of the steps
+        t0, d0 = self._first
+        projected = self.projected = t0 + (elapsed - t0) * (total - d0) / (done - d0)
         if projected <= ESTIMATE_AFTER:
             return
         text = f"{self.label}: about {format_seconds(projected)} in all"

@@ -65,10 +65,12 @@ def test_estimate_after_warmup_names_the_knob(monkeypatch):
     clock = iter(range(0, 10_000, 2))                        # every call: 2 s later
     monkeypatch.setattr(P.time, "monotonic", lambda: float(next(clock)))
     rep = P.Reporter("PERMANOVA", None, None, None, ("n_permutations", 9999))
-    rep(10, 9999)           # 2 s for 10 of 9999: about 2000 s in all
+    rep(10, 9999)           # first report at 2 s (set-up), then 2 s per 10 steps:
+    rep(20, 9999)           # 2 + 2 * 9989 / 10 = about 2000 s in all
     assert rep.estimate_text.startswith("PERMANOVA: about 33 min in all")
     assert "n_permutations=999 would take about 3 min" in rep.estimate_text
     quick = P.Reporter("scan", None, None, None, None)
+    quick(800, 1000)
     quick(900, 1000)
     assert quick.estimated and quick.estimate_text is None   # short runs say nothing
 
@@ -95,3 +97,41 @@ def test_terminal_line_and_silence_without_terminal(monkeypatch, capsys):
 def test_format_seconds():
     assert [P.format_seconds(s) for s in (3, 89.4, 240, 7200)] == \
         ["3 s", "89 s", "4 min", "2.0 h"]
+
+
+def test_estimate_counts_the_set_up_once(monkeypatch):
+    # set-up 5 s, then 10 steps every 2 s: 5 + 2 * (1000 - 10) / 10 = 203 s (arithmetic)
+    clock = iter([0.0, 5.0, 7.0])
+    monkeypatch.setattr(P.time, "monotonic", lambda: next(clock))
+    rep = P.Reporter("PERMANOVA", None, None, None, None)
+    rep(10, 1000)
+    rep(20, 1000)
+    assert rep.projected == pytest.approx(203.0)
+    assert rep.estimate_text == "PERMANOVA: about 3 min in all."
+
+
+def test_knob_names_and_functions():
+    import inspect
+
+    def f(*, n_permutations=999, n_boot=0, method="a", progress=None, cancel=None):
+        pass
+    sig = inspect.signature(f)
+    assert P._knob_of("n_boot", sig, {"n_boot": 5000}) == ("n_boot", 5000)
+    assert P._knob_of(("n_permutations", "n_boot"), sig, {}) == ("n_permutations", 999)
+    assert P._knob_of(("n_permutations", "n_boot"), sig, {"n_boot": 99}) is None  # both
+    assert P._knob_of(lambda a: "n_boot" if a["method"] == "b" else None, sig,
+                      {"method": "b"}) == ("n_boot", 0)
+    assert P._knob_of(lambda a: None, sig, {}) is None
+
+
+def test_every_looping_public_call_reports_progress():
+    import tallyform as tly
+    looping = ["permanova", "pairwise_permanova", "dispersion_test", "welch_permanova",
+               "size_test", "size_shape", "scan", "compare_choices", "choice_adjusted",
+               "audit", "taxon_contributions", "compare_groups", "constraint_test",
+               "shape_test", "spread_test", "run", "nmds", "report"]
+    for name in looping:
+        fn = getattr(tly, name)
+        assert hasattr(fn, "__wrapped__"), name               # wrapped by reports_progress
+        params = __import__("inspect").signature(fn).parameters
+        assert params["progress"].default is None and params["cancel"].default is None

@@ -186,8 +186,6 @@ class Reporter:
                 rate = done / elapsed if elapsed > 0 else float("inf")
                 left = (total - done) / rate if rate > 0 else float("inf")
                 self.display.show(done, total, rate, left)
-        if self.cancel is not None and self.cancel():
-            raise Cancelled(self.stopped_text("cancelled"))
 
     def _estimate(self, elapsed, done, total):
         self.estimated = True

@@ -28,6 +28,7 @@ from .core.spec import AnalysisSpec
 from .core.dissimilarity import Dissimilarity, dissimilarity, feature_matrix
 from .core.measures import MEASURES, Measure, get_measure
 from .core.memory import memory_limit, set_memory_limit
+from .core.progress import get_progress, set_progress
 from .core.comparison import compare_groups
 from .core.counting import CountingTestResult, shape_test, spread_test
 from .core.rarefaction import rarefied_table
@@ -66,6 +67,6 @@ __all__ = [
     "Profile", "Hellinger", "Chord", "Wisconsin", "Clr",
     "permanova", "pairwise_permanova", "welch_permanova", "WelchResult", "dispersion_test", "size_test", "compare_groups",
     "taxon_contributions", "TaxonContributions", "explore", "report", "write_outputs",
-    "set_memory_limit", "memory_limit",
+    "set_memory_limit", "memory_limit", "set_progress", "get_progress",
 ]
 __all__ += ["shape_test", "spread_test", "CountingTestResult", "rarefied_table"]

@@ -18,6 +18,7 @@ import pandas as pd
 from .errors import Cancelled, DesignError, InputError
 from .spec import AnalysisSpec
 from .table import CommunityTable, as_table
+from .progress import reports_progress
 
 __all__ = ["run", "AnalysisResults", "software_versions"]
 
@@ -123,6 +124,7 @@ class AnalysisResults:
                 f"{', '.join(done)}; skipped: {list(self.skipped) or 'none'})")
 
 
+@reports_progress("Analysis")
 def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisResults:
     """Run every step of ``spec`` on ``table``.
 

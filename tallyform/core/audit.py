@@ -23,6 +23,7 @@ from .errors import Cancelled, DesignError, InputError
 from .random import as_rng
 from .results import ResultMixin, readonly
 from .table import CommunityTable, as_table
+from .progress import reports_progress
 from .validation import check_fraction
 
 __all__ = ["audit", "AuditResult", "null_shape_tables", "estimate_overdispersion"]
@@ -301,6 +302,7 @@ def _extra_rows(p: dict, name: str, reference: str, alpha: float, *, spread: boo
     return (pd.DataFrame.from_dict(rows, orient="index") if rows else None), extra_p
 
 
+@reports_progress("Audit", knob="n_sim")
 def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
           reference: str = "chi_square", n_sim: int = 200, n_permutations: int = 199,
           model: str = "dirichlet_multinomial", alpha: float = 0.05, spread: bool = True,

@@ -20,6 +20,7 @@ from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, _check_option,
 from .random import as_rng
 from .results import ResultMixin
 from .table import as_table
+from .progress import reports_progress
 
 __all__ = ["compare_choices", "ChoiceComparison", "CHOICE_KEYS"]
 
@@ -148,6 +149,7 @@ class ChoiceComparison(ResultMixin):
         return super().__str__() + ("\n" + self.reading if self.reading else "")
 
 
+@reports_progress("Choice comparison", knob="n_boot")
 def compare_choices(table, a: dict, b: dict, *, n_boot: int = 999, rng=None,
                     units=None, progress=None, cancel=None) -> ChoiceComparison:
     """Shares of the size and shape partition under two choices, and their difference.

@@ -21,6 +21,7 @@ from .results import ResultMixin
 from .size_tests import SIZE_METHODS, SizeTestResult, group_factor, size_test
 from .table import as_table
 from .units import resolve_units
+from .progress import reports_progress
 from .validation import check_fraction
 
 __all__ = ["compare_groups", "ComparisonResult", "reading_text"]
@@ -245,6 +246,7 @@ def _rarefiable(tab, shape_measure) -> bool:
     return bool(np.all(x == np.round(x)))
 
 
+@reports_progress("Group comparison", knob="n_permutations")
 def compare_groups(table, group, *, units=None, shape_measure="chi_square", transform=None,
                    size_method: str = "welch", effort=None, centre: str = "mean",
                    blocks=None, depth: int | None = None, n_permutations: int = 999,

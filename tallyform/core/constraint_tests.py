@@ -52,6 +52,7 @@ from .permutation import Permutations, PermutationTest
 from .random import as_rng
 from .results import ResultMixin, readonly
 from .units import resolve_units, unit_blocks
+from .progress import reports_progress
 
 __all__ = ["constraint_test", "ConstraintTest", "SCOPES"]
 
@@ -255,6 +256,7 @@ def _split_terms(terms: list, t: str, ss: str) -> tuple[list, list]:
 
 
 # ---------------------------------------------------------------------------- public
+@reports_progress("Constraint test", knob="n_permutations")
 def constraint_test(ordination, scope: str = "all", *, n_permutations: int = 999, rng=None,
                     units=None, blocks=None, ss: str = "sequential",
                     progress: Callable[[int, int], None] | None = None,

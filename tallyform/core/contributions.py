@@ -40,6 +40,7 @@ from .contribution_tables import (Prepared, shape_notes, shape_part, size_notes,
                                   size_part)
 from .taxon_terms import (MIN_UNITS, PAIR_MEASURES, SPLIT_MEASURES, Groups, Ticker,
                           pair_terms, size_ratios, split_terms)
+from .progress import reports_progress
 
 __all__ = ["TaxonContributions", "taxon_contributions", "SPLIT_MEASURES", "PAIR_MEASURES"]
 
@@ -212,6 +213,7 @@ from .validation import check_whole as _check_int  # noqa: E402
 
 
 # ============================================================================== public
+@reports_progress("Taxon contributions", knob="n_boot")
 def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", transform=None,
                         intervals: bool = True, level: float = 0.95,
                         pseudocount: float = 0.5, units=None, rng=None, progress=None,

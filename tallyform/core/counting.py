@@ -55,6 +55,7 @@ from .permutation import Permutations, pvalue_from_null
 from .random import as_rng
 from .rarefaction import combine_draws
 from .table import as_table
+from .progress import reports_progress
 from .validation import check_fraction
 
 __all__ = ["shape_test", "spread_test", "CountingTestResult", "rarefied_pvalues", "embed",
@@ -231,6 +232,7 @@ _DOC_COMMON = """
 """
 
 
+@reports_progress("Shape test", knob="n_permutations")
 def shape_test(table, group, *, measure="chi_square", transform=None,
                adjust: str = "rarefaction", depth: int | None = None, n_draws: int = 1,
                statistic: str = "welch", n_permutations: int = 999, units=None, blocks=None,
@@ -277,6 +279,7 @@ def shape_test(table, group, *, measure="chi_square", transform=None,
                 rng=rng, progress=progress, cancel=cancel, params=measure_options)
 
 
+@reports_progress("Spread test", knob="n_permutations")
 def spread_test(table, group, *, measure="chi_square", transform=None,
                 adjust: str = "rarefaction", depth: int | None = None, n_draws: int = 1,
                 noise_correction: bool = True, n_permutations: int = 999, units=None,

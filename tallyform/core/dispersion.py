@@ -20,6 +20,8 @@ from .memory import check_memory
 from .permutation import permutation_f_test, prepare_response, pvalue_from_null
 from .random import as_rng
 from .results import ResultMixin, readonly
+from .progress import reports_progress
+from .interrupt import eigh as interruptible_eigh
 
 __all__ = ["dispersion_test", "DispersionResult", "centroid_distances_squared", "pcoa_axes"]
 
@@ -140,7 +142,7 @@ def pcoa_axes(gower: np.ndarray, *, rtol: float = 1e-10) -> tuple[np.ndarray, np
     1966), eigenvalues smaller than ``rtol`` times the largest treated as 0. Squared
     distances are reproduced as ||x+_i - x+_j||^2 - ||x-_i - x-_j||^2.
     """
-    vals, vecs = np.linalg.eigh(gower)
+    vals, vecs = interruptible_eigh(gower)
     tol = rtol * max(float(np.abs(vals).max()), 1e-300)
     pos, neg = vals > tol, vals < -tol
     return vecs[:, pos] * np.sqrt(vals[pos]), vecs[:, neg] * np.sqrt(-vals[neg])
@@ -301,6 +303,7 @@ def _group_frame(d: Dissimilarity, groups, samples) -> tuple[pd.DataFrame, str, 
     return frame, name, notes
 
 
+@reports_progress("Dispersion test", knob="n_permutations")
 def dispersion_test(d, groups, *, samples=None, units=None, blocks=None,
                     n_permutations: int = 999, rng=None, centre: str = "mean",
                     group_size_correction: bool = True,

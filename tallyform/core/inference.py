@@ -20,6 +20,7 @@ from .random import as_rng
 from .errors import DesignError, InputError, Location
 from .permutation import prepare_response
 from .results import ResultMixin, readonly
+from .progress import reports_progress
 
 __all__ = ["permanova", "pairwise_permanova", "adjust_pvalues", "PermanovaResult",
            "PairwiseResult", "check_option", "check_n_permutations", "align_samples",
@@ -210,6 +211,7 @@ def _resolve_plan(frame: pd.DataFrame, terms: list, units, block_name):
     return resolve_units(frame, terms, units, blocks=block_name)
 
 
+@reports_progress("PERMANOVA", knob="n_permutations")
 def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
               cyclic: str | None = None, n_permutations: int = 999, rng=None,
               ss: str = "sequential", progress: Callable[[int, int], None] | None = None,

@@ -16,6 +16,7 @@ from scipy.spatial.distance import pdist
 from .random import as_rng
 from .errors import Cancelled, InputError
 from .ordination import Ordination, _labels_index, as_dissimilarity, axis_names, flip_signs
+from .progress import reports_progress
 
 __all__ = ["nmds", "stress_reading", "kruskal_stress"]
 
@@ -71,6 +72,7 @@ def kruskal_stress(dissim: np.ndarray, dist: np.ndarray) -> tuple[float, np.ndar
     return (float(np.sqrt(num / den)) if den > 0 else float("nan")), fitted
 
 
+@reports_progress("NMDS", knob="n_starts")
 def nmds(d, *, n_axes: int = 2, n_starts: int = 20, rng=None, max_iter: int = 300,
          tol: float = 1e-6, progress=None, cancel=None) -> Ordination:
     """Non-metric multidimensional scaling of a dissimilarity.

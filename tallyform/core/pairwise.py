@@ -14,12 +14,16 @@ from .inference import (_ADJUST, align_samples, block_labels, check_dissimilarit
                         check_n_permutations, check_option, permanova)
 from .random import as_rng
 from .results import ResultMixin
+from .progress import reports_progress
 
 __all__ = ["pairwise_permanova", "adjust_pvalues", "PairwiseResult"]
 
 
 def adjust_pvalues(pvalues, method: str | None = "holm") -> np.ndarray:
     """Holm (1979) step-down or Benjamini & Hochberg (1995) step-up adjusted p-values.
+
+    The arithmetic is statsmodels' ``multipletests`` (methods ``'holm'`` and ``'fdr_bh'``);
+    missing p-values (NaN) stay missing and do not count among the tests.
 
     Examples
     --------
@@ -29,20 +33,18 @@ def adjust_pvalues(pvalues, method: str | None = "holm") -> np.ndarray:
     [0.03, 0.04, 0.04]
     """
     check_option("adjust", method, _ADJUST)
-    p = np.asarray(pvalues, dtype=float)
+    p = np.array(pvalues, dtype=float)           # a copy: the caller's array is not touched
     if method is None or p.size == 0:
-        return p.copy()
-    m = p.size
-    order = np.argsort(p, kind="stable")
-    ranked = p[order]
-    if method == "holm":
-        adj = np.maximum.accumulate(np.minimum(1.0, (m - np.arange(m)) * ranked))
-    else:
-        adj = np.minimum.accumulate((m / np.arange(m, 0, -1) * ranked[::-1]))[::-1]
-        adj = np.minimum(1.0, adj)
-    out = np.empty(m)
-    out[order] = adj
-    return out
+        return p
+    from statsmodels.stats.multitest import multipletests
+    flat = p.reshape(-1)
+    ok = np.isfinite(flat)
+    if ok.any():
+        flat[ok] = multipletests(flat[ok], method=_MULTIPLETESTS[method])[1]
+    return flat.reshape(p.shape)
+
+
+_MULTIPLETESTS = {"holm": "holm", "bh": "fdr_bh"}
 
 
 @dataclass(frozen=True, eq=False)
@@ -86,6 +88,7 @@ class PairwiseResult(ResultMixin):
                 f"({how} adjustment)")
 
 
+@reports_progress("Pairwise PERMANOVA", knob="n_permutations")
 def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", units=None,
                        blocks=None, n_permutations: int = 999, rng=None,
                        statistic: str = "pseudo_f",

@@ -42,6 +42,7 @@ from .partition_math import (FRACTIONS, SHAPE_INERTIA_TARGET, SHAPE_OPTIONS,  # 
 from .random import as_rng
 from .results import ResultMixin
 from .table import as_table
+from .progress import reports_progress
 
 __all__ = ["size_shape", "SizeShapeResult", "SIZE_OPTIONS", "SHAPE_OPTIONS", "FRACTIONS",
            "size_predictor", "shape_coordinates", "Variation", "fractions_from_r2"]
@@ -149,6 +150,7 @@ class SizeShapeResult(ResultMixin):
 
 
 # ---------------------------------------------------------------------------- public
+@reports_progress("Size and shape", knob=("n_permutations", "n_boot"))
 def size_shape(table, measure: str = "bray_curtis", *, transform=None,
                size: str = "log_total", shape: str = "chi_square", shape_dims: int | None = None,
                n_permutations: int = 0, n_boot: int = 0, units=None, overdispersion=None,

@@ -16,6 +16,7 @@ from __future__ import annotations
 import numpy as np
 
 from .partition_math import SHAPE_INERTIA_TARGET
+from .interrupt import eigh as interruptible_eigh
 
 __all__ = ["PartitionArrays", "arrays_from_counts", "shares_from_traces", "small_blas"]
 
@@ -73,7 +74,7 @@ def _leading_axes(features: np.ndarray | None, g: np.ndarray | None):
             u = (fc @ v) / np.sqrt(ev)
             return u, ev
         g = fc @ fc.T
-    ev, vec = np.linalg.eigh(g)
+    ev, vec = interruptible_eigh(g)
     ev, vec = ev[::-1], vec[:, ::-1]
     keep = ev > _TOL * max(ev[0], 1e-300)
     return vec[:, keep], ev[keep]

@@ -17,6 +17,7 @@ from .dissimilarity import Dissimilarity
 from .abundance import require_absolute
 from .errors import DesignError, InputError
 from .table import CommunityTable
+from .interrupt import eigh as interruptible_eigh
 
 __all__ = ["Variation", "negative_share", "size_predictor", "shape_coordinates",
            "default_dims", "adjusted_r2", "fractions_from_r2", "SIZE_OPTIONS",
@@ -140,7 +141,7 @@ def shape_coordinates(shape_d: Dissimilarity, *, max_dims: int | None = None
         neg = 0.0
     else:
         g = shape_d.gower()
-        ev_all, vec = np.linalg.eigh(g)
+        ev_all, vec = interruptible_eigh(g)
         ev_all, vec = ev_all[::-1], vec[:, ::-1]
         neg = negative_share(ev_all)
         u, ev = vec, ev_all

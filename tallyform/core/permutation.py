@@ -105,6 +105,9 @@ __all__ = ["Permutations", "UnitPermutations", "CyclicShifts", "within_units",
 TIE_RTOL = 1e-9
 #: Bytes of permuted basis columns handled per batch (the working set of one BLAS call).
 _BATCH_BYTES = 48 * 2**20
+#: Multiply-adds per batch: about a quarter of a second of one core, so that an interruption
+#: or a cancel is honoured within a second however large the table.
+_BATCH_WORK = 4e9
 
 
 # ---------------------------------------------------------------------------- bases
@@ -397,7 +400,9 @@ def pvalue_from_null(observed: float, null: np.ndarray, *, exact: bool) -> float
 
 def _batch_size(n: int, k: int, q: int | None) -> int:
     width = n + (q if q is not None else n)
-    return max(16, int(_BATCH_BYTES // (8 * max(k, 1) * width)))
+    by_memory = max(16, int(_BATCH_BYTES // (8 * max(k, 1) * width)))
+    by_work = max(1, int(_BATCH_WORK // (max(k, 1) * n * (q if q is not None else n))))
+    return min(by_memory, by_work)
 
 
 def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray, perms, *,

@@ -16,8 +16,9 @@ run permutations) reports nothing of its own unless it was handed a callable.
 
 Before a run predicted to take more than ``ESTIMATE_AFTER`` seconds, one line says the
 estimate and, when the call has an obvious knob (``n_permutations``, ``n_sim``, ``n_boot``),
-what a smaller value would take. The estimate is measured, not guessed: it is projected from
-the time the first few percent of the work took (at least ``WARMUP`` seconds of it).
+what a smaller value would take. The estimate is measured, not guessed: the set-up (up to the
+call's first report) counts once, and the rest is projected from the pace of the steps
+measured since then (after at least ``WARMUP`` seconds in all).
 
 Interrupting (KeyboardInterrupt, a notebook's stop button) or cancelling (``cancel()``
 returning True) stops the call at its next step and raises :class:`Cancelled`, saying how
@@ -30,6 +31,7 @@ import functools
 import inspect
 import math
 import sys
+import threading
 import time
 from typing import Callable
 
@@ -42,6 +44,10 @@ __all__ = ["set_progress", "get_progress", "reports_progress", "Reporter", "form
 ESTIMATE_AFTER = 30.0
 #: Seconds of work measured before the estimate is trusted.
 WARMUP = 1.0
+#: Seconds between two redraws of a bar (the work may report far more often).
+REDRAW = 0.2
+#: A bar appears only once the call has run this long: quick calls leave no trace.
+SHOW_AFTER = 0.5
 
 _default: dict = {"progress": True}
 _active: contextvars.ContextVar = contextvars.ContextVar("tallyform_progress", default=None)
@@ -111,6 +117,7 @@ class _TerminalLine:
             return
         self._last = now
         pct = 100.0 * done / total if total else 100.0
+        done, total = int(round(done)), int(round(total))
         text = (f"\r{self.label}: {done}/{total} ({pct:3.0f} %), {rate:.3g}/s, "
                 f"{format_seconds(left)} left" if not final else
                 f"\r{self.label}: {done}/{total} done in {format_seconds(left)}")
@@ -128,6 +135,8 @@ class _TerminalLine:
 
 
 def _display_for(label: str):
+    if threading.current_thread() is not threading.main_thread():
+        return None             # a background job (the dashboard's) reports by callable
     if _in_notebook():
         try:
             from ..widgets.progress import NotebookBar   # lazy: the interaction ring
@@ -156,31 +165,39 @@ class Reporter:
         self.started = time.monotonic()
         self.estimated = False
         self.estimate_text: str | None = None
+        self.projected: float | None = None  # seconds the whole call should take
+        self._drawn = -math.inf              # when the display was last redrawn
+        self._first = None                   # (seconds, done) at the first report
 
     def __call__(self, done, total):
         self.done, self.total = done, total
         if self.callback is not None:
             self.callback(done, total)
         if self.display is not None or not self.estimated:
-            elapsed = time.monotonic() - self.started
-            rate = done / elapsed if elapsed > 0 else float("inf")
-            left = (total - done) / rate if rate > 0 else float("inf")
-            if not self.estimated and done and elapsed >= WARMUP:
+            now = time.monotonic()
+            elapsed = now - self.started
+            if self._first is None:
+                self._first = (elapsed, done)
+            elif not self.estimated and done > self._first[1] and elapsed >= WARMUP:
                 self._estimate(elapsed, done, total)
-            if self.display is not None:
+            if (self.display is not None and now - self._drawn >= REDRAW
+                    and elapsed >= SHOW_AFTER):
+                self._drawn = now
+                rate = done / elapsed if elapsed > 0 else float("inf")
+                left = (total - done) / rate if rate > 0 else float("inf")
                 self.display.show(done, total, rate, left)
-        if self.cancel is not None and self.cancel():
-            raise Cancelled(self.stopped_text("cancelled"))
 
     def _estimate(self, elapsed, done, total):
         self.estimated = True
-        projected = elapsed * total / done
+        # set-up (up to the first report) once, then the measured pace of the steps
+        t0, d0 = self._first
+        projected = self.projected = t0 + (elapsed - t0) * (total - d0) / (done - d0)
         if projected <= ESTIMATE_AFTER:
             return
         text = f"{self.label}: about {format_seconds(projected)} in all"
         if self.knob is not None:
             name, value = self.knob
-            if isinstance(value, int) and value > 100:
+            if isinstance(value, int) and not isinstance(value, bool) and value > 100:
                 smaller = 999 if value > 999 else max(99, value // 10)
                 text += (f"; {name}={smaller} would take about "
                          f"{format_seconds(projected * smaller / value)}")
@@ -189,50 +206,90 @@ class Reporter:
             self.display.message(self.estimate_text)
 
     def stopped_text(self, how: str) -> str:
-        where = (f" after {self.done} of {self.total} steps" if self.total else
-                 " before its first step")
+        where = (f" after {_count(self.done)} of {_count(self.total)} steps" if self.total
+                 else " before its first step")
         return f"{self.label} was {how}{where}; no result was kept."
 
     def finish(self):
-        if self.display is not None:
+        if self.display is not None and self._drawn > -math.inf:
             self.display.show(self.total, self.total, 0.0,
                               time.monotonic() - self.started, final=True)
             self.display.close()
 
     def fail(self):
-        if self.display is not None:
+        if self.display is not None and self._drawn > -math.inf:
             self.display.close(failed=True)
 
 
-def reports_progress(label: str, *, knob: str | None = None):
+def _count(x) -> str:
+    return f"{x:.0f}" if isinstance(x, float) else str(x)
+
+
+def _knob_of(knob, sig: inspect.Signature, arguments: dict):
+    """(name, value) of the argument that sets the amount of work, or None.
+
+    ``knob`` is a name, a tuple of names (the one given a positive whole number, if exactly
+    one is), or a function of the call's arguments (defaults filled in) returning a name.
+    """
+    if knob is None:
+        return None
+
+    def value(name):
+        if name in arguments:
+            return arguments[name]
+        par = sig.parameters.get(name)
+        return None if par is None or par.default is inspect.Parameter.empty else par.default
+
+    if callable(knob):
+        full = {k: value(k) for k in sig.parameters}
+        name = knob(full)
+        return None if name is None else (name, value(name))
+    if isinstance(knob, str):
+        return (knob, value(knob))
+    used = [(k, value(k)) for k in knob
+            if isinstance(value(k), int) and not isinstance(value(k), bool) and value(k) > 0]
+    return used[0] if len(used) == 1 else None
+
+
+def reports_progress(label: str, *, knob=None):
     """Decorator for a public call with ``progress`` and ``cancel`` keyword arguments.
 
     Resolves ``progress`` (see the module notes) into a :class:`Reporter` passed to the call
     as its ``progress`` callable, shows one bar for nested calls, and turns an interruption
-    into :class:`Cancelled`. ``knob`` names the argument that sets the amount of work (for
-    the estimate's advice).
+    into :class:`Cancelled` (in the outermost call only, which knows how far the whole work
+    got). ``knob`` names the argument that sets the amount of work, for the estimate's
+    advice: a name, a tuple of names (whichever one is given a positive number), or a
+    function of the call's arguments returning a name (or None).
+
+    Examples
+    --------
+    >>> @reports_progress("Counting", knob="n_steps")
+    ... def count(n_steps=10, *, progress=None, cancel=None):
+    ...     for i in range(n_steps):
+    ...         progress(i + 1, n_steps)       # always callable inside: a Reporter
+    ...     return n_steps
+    >>> count(5, progress=False)
+    5
     """
     def wrap(fn):
         sig = inspect.signature(fn)
-        if "progress" not in sig.parameters:
-            raise TypeError(f"{fn.__name__} has no `progress` argument")
+        if "progress" not in sig.parameters or "cancel" not in sig.parameters:
+            raise TypeError(f"{fn.__name__} needs `progress` and `cancel` arguments")
 
         @functools.wraps(fn)
         def inner(*args, **kwargs):
             bound = sig.bind_partial(*args, **kwargs)
             progress = bound.arguments.get("progress")
+            outer = _active.get()
             if progress is None:
-                progress = _default["progress"] if _active.get() is None else False
+                progress = _default["progress"] if outer is None else False
             if not (isinstance(progress, bool) or callable(progress)):
                 raise InputError(f"`progress` must be None, True, False or a "
                                  f"callable(done, total); got {progress!r}.")
             display = _display_for(label) if progress is True else None
             callback = None if isinstance(progress, bool) else progress
-            value = bound.arguments.get(knob) if knob else None
-            if value is None and knob and knob in sig.parameters:
-                value = sig.parameters[knob].default
             rep = Reporter(label, display, callback, bound.arguments.get("cancel"),
-                           (knob, value) if knob else None)
+                           _knob_of(knob, sig, bound.arguments))
             kwargs = dict(kwargs)
             kwargs["progress"] = rep
             token = _active.set(rep)
@@ -240,6 +297,8 @@ def reports_progress(label: str, *, knob: str | None = None):
                 out = fn(*args, **kwargs)
             except KeyboardInterrupt:
                 rep.fail()
+                if outer is not None:        # the outermost call says how far it all got
+                    raise
                 raise Cancelled(rep.stopped_text("interrupted")) from None
             except BaseException:
                 rep.fail()

@@ -11,6 +11,7 @@ from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, _check_option, _
                         _size_shape_from, prepared_arrays, resampling_units, share_intervals)
 from .results import ResultMixin
 from .table import as_table
+from .progress import reports_progress
 
 __all__ = ["scan", "ScanResult", "DEFAULT_SCAN_MEASURES", "DEFAULT_SCAN_TRANSFORMS"]
 
@@ -97,6 +98,7 @@ def _as_transform_spec(t):
     return get_transform(t)
 
 
+@reports_progress("Scan", knob="n_boot")
 def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFORMS, *,
          size: str = "log_total", shape: str = "chi_square", shape_dims: int | None = None,
          n_boot: int = 0, rng=None, units=None, progress=None, cancel=None) -> ScanResult:

@@ -23,6 +23,7 @@ from .inference import check_option
 from .results import ResultMixin
 from .size_methods import anova_note, collect_replicates, run_method, variance_ratio
 from .table import CommunityTable, as_table
+from .progress import reports_progress
 from .validation import check_fraction, check_whole
 
 __all__ = ["size_test", "SizeTestResult", "size_measure", "group_factor", "SIZE_METHODS"]
@@ -222,6 +223,16 @@ def _summary(d, rows, levels, g) -> pd.DataFrame:
     return summary
 
 
+def _size_knob(args: dict):
+    """The repetitions that set the run time of :func:`size_test`: permutations or draws."""
+    if args.get("method") == "permutation":
+        return "n_permutations"
+    if args.get("method") == "negbin" and args.get("nb_reference") == "bootstrap":
+        return "n_boot"
+    return None
+
+
+@reports_progress("Size test", knob=_size_knob)
 def size_test(table, group, *, method: str = "welch", effort=None, units=None, blocks=None,
               level: float = 0.95, n_permutations: int = 999,
               nb_reference: str = "bootstrap", n_boot: int = 999, rng=None,

@@ -68,6 +68,7 @@ from .results import ResultMixin, readonly
 from .units import resolve_units, unit_blocks
 from .welch_kernel import (calibrate, effective_dims, equivalent, remove_blocks,
                            run_permutations, unit_response, welch_statistic)
+from .progress import reports_progress
 
 __all__ = ["welch_permanova", "WelchResult", "welch_statistic"]
 
@@ -332,6 +333,7 @@ def _result_notes(plan: _Plan, perms, sizes, stat, null, small_sample, d) -> tup
     return notes
 
 
+@reports_progress("Welch-type PERMANOVA", knob="n_permutations")
 def welch_permanova(d, samples, group, *, n_permutations: int = 999, rng=None, units=None,
                     blocks=None, small_sample: bool = True,
                     progress: Callable[[int, int], None] | None = None,

@@ -19,6 +19,7 @@ from ..core.fileio import write_text_atomic
 from ..core.spec import AnalysisSpec
 from .methods import methods_references, methods_text
 from .tables import write_tables
+from ..core.progress import reports_progress
 
 __all__ = ["report", "write_report", "write_outputs", "report_html"]
 
@@ -349,6 +350,7 @@ def write_report(results: AnalysisResults, path, *, title: str | None = None) ->
     return write_text_atomic(path, report_html(results, title=title))
 
 
+@reports_progress("Report")
 def report(table, spec: AnalysisSpec | None = None, path="report.html", *,
            title: str | None = None, progress=None, cancel=None) -> Path:
     """Run ``spec`` on ``table`` and write the self-contained HTML report to ``path``.

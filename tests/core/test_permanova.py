@@ -233,13 +233,39 @@ def test_cancel_leaves_no_result(unbalanced):
 
 # ---------------------------------------------------------------------------- pairwise
 def test_adjustments_equal_statsmodels_multipletests():
-    # reference: statsmodels.stats.multitest.multipletests (holm, fdr_bh)
+    # reference: statsmodels.stats.multitest.multipletests (holm, fdr_bh), to 1e-15
     from statsmodels.stats.multitest import multipletests
-    p = np.random.default_rng(2).uniform(0, 0.2, size=11)
-    p[3] = p[7]                                               # a tie
-    assert adjust_pvalues(p, "holm") == pytest.approx(multipletests(p, method="holm")[1])
-    assert adjust_pvalues(p, "bh") == pytest.approx(multipletests(p, method="fdr_bh")[1])
-    assert adjust_pvalues(p, None) == pytest.approx(p)
+    rng = np.random.default_rng(2)
+    for m in (1, 2, 5, 11, 40, 300):
+        p = rng.uniform(0, 0.3, size=m) ** rng.uniform(0.5, 3)
+        if m > 3:
+            p[3] = p[m - 1]                                   # a tie
+        kept = p.copy()
+        for ours, theirs in (("holm", "holm"), ("bh", "fdr_bh")):
+            np.testing.assert_allclose(adjust_pvalues(p, ours),
+                                       multipletests(p, method=theirs)[1], rtol=0, atol=1e-15)
+        np.testing.assert_array_equal(p, kept)                # the input is not modified
+        assert adjust_pvalues(p, None) == pytest.approx(p)
+
+
+def test_adjustments_match_their_definitions():
+    # Holm (1979): p_(i) -> max_{j<=i} min(1, (m-j+1) p_(j)); Benjamini & Hochberg (1995):
+    # p_(i) -> min_{j>=i} min(1, m p_(j) / j)  (written from the papers' definitions)
+    rng = np.random.default_rng(5)
+    p = rng.uniform(0, 0.2, size=9)
+    m = p.size
+    order = np.argsort(p)
+    holm = np.empty(m)
+    bh = np.empty(m)
+    for i, k in enumerate(order):
+        holm[k] = max(min(1.0, (m - j) * p[order[j]]) for j in range(i + 1))
+        bh[k] = min(min(1.0, m * p[order[j]] / (j + 1)) for j in range(i, m))
+    np.testing.assert_allclose(adjust_pvalues(p, "holm"), holm, rtol=0, atol=1e-15)
+    np.testing.assert_allclose(adjust_pvalues(p, "bh"), bh, rtol=0, atol=1e-15)
+    # a missing p-value stays missing and is not counted among the tests
+    q = np.array([0.01, np.nan, 0.04])
+    out = adjust_pvalues(q, "holm")
+    assert np.isnan(out[1]) and out[[0, 2]] == pytest.approx([0.02, 0.04])
 
 
 @pytest.mark.parametrize("adjust,method", [("holm", "holm"), ("bh", "fdr_bh")])

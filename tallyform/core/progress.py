@@ -4,7 +4,8 @@ long run, and a clean stop on interruption.
 Every public call that loops (permutations, simulations, resamples, the scan grid, ``run``)
 is wrapped by :func:`reports_progress`. Its ``progress`` argument means:
 
-- ``None`` (the default): the session default, :func:`set_progress` (initially ``True``);
+- ``None`` (the default): the session default, :func:`set_progress` (initially ``True``,
+  or ``False`` when the environment variable ``TALLYFORM_PROGRESS`` is ``0``);
 - ``True``: a bar where someone is watching: an ipywidgets bar in a notebook, one line on
   stderr in a terminal, nothing when output goes to a file, a pipe or a log (scripts, CI);
 - ``False``: nothing;
@@ -49,7 +50,15 @@ REDRAW = 0.2
 #: A bar appears only once the call has run this long: quick calls leave no trace.
 SHOW_AFTER = 0.5
 
-_default: dict = {"progress": True}
+def _from_environment() -> bool:
+    """The starting default: True, unless TALLYFORM_PROGRESS is 0, false, no or off (for
+    notebooks executed to be shared, logs, CI)."""
+    import os
+    return os.environ.get("TALLYFORM_PROGRESS", "").strip().lower() not in (
+        "0", "false", "no", "off")
+
+
+_default: dict = {"progress": _from_environment()}
 _active: contextvars.ContextVar = contextvars.ContextVar("tallyform_progress", default=None)
 
 

@@ -53,6 +53,7 @@ def execute_notebook(source, target, *, cwd=None, timeout: int = 900, progress=N
         env = dict(os.environ)
         env["PYTHONPATH"] = os.pathsep.join(p for p in (pkg_parent, env.get("PYTHONPATH"))
                                             if p)
+        env["TALLYFORM_PROGRESS"] = "0"     # a shared notebook keeps results, not bars
         with client.setup_kernel(env=env):
             for index, cell in enumerate(nb.cells):
                 if cell.cell_type != "code":

@@ -137,3 +137,15 @@ def test_every_looping_public_call_reports_progress():
         assert hasattr(fn, "__wrapped__"), name               # wrapped by reports_progress
         params = __import__("inspect").signature(fn).parameters
         assert params["progress"].default is None and params["cancel"].default is None
+
+
+def test_environment_variable_sets_the_starting_default():
+    # common practice: an environment switch for output meant for logs or shared files
+    import subprocess
+    import sys
+    code = "import tallyform as tly; print(tly.get_progress())"
+    for value, want in (("0", "False"), ("off", "False"), ("", "True"), ("1", "True")):
+        env = dict(__import__("os").environ, TALLYFORM_PROGRESS=value)
+        out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True,
+                             text=True, check=True).stdout.strip()
+        assert out == want, (value, out)

@@ -29,7 +29,7 @@ def test_notebook_shows_a_bar_for_a_long_call_only(tmp_path):
     from nbclient import NotebookClient
     nb = nbformat.v4.new_notebook()
     nb.cells = [nbformat.v4.new_code_cell(c) for c in (SETUP, QUICK, LONG)]
-    env = dict(os.environ, OMP_NUM_THREADS="1",
+    env = dict(os.environ, OMP_NUM_THREADS="1", TALLYFORM_PROGRESS="",
                PYTHONPATH=os.pathsep.join(p for p in (ROOT, os.environ.get("PYTHONPATH"))
                                           if p))
     client = NotebookClient(nb, timeout=300, kernel_name="python3",

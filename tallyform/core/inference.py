@@ -479,8 +479,8 @@ def _closing_notes(table, tested, mm, ss, terms, path, total) -> list:
     hit = [t for t in tested if mm.kinds.get(t) != "numeric" and table.loc[t, "pvalue"] <= 0.05]
     if hit:
         out.append("PERMANOVA also responds to differences in spread (dispersion) between "
-                   "groups, not only to shifts of their centroids; check dispersion_test "
-                   f"before reading {hit[0]!r} as a difference in location.")
+                   "groups, not only to shifts of their centroids; read the spread "
+                   f"(dispersion) test before reading {hit[0]!r} as a difference in location.")
     if path == "distances" and total <= 0:
         out.append("The total sum of squares is not positive; the dissimilarities are "
                    "degenerate.")

@@ -324,8 +324,21 @@ MEASURES: dict[str, Measure] = {m.name: m for m in _RECORDS}
 
 _ALIASES = {"braycurtis": "bray_curtis", "bray": "bray_curtis", "cityblock": "manhattan",
             "chisquare": "chi_square", "chi2": "chi_square", "ruzicka": "quantitative_jaccard",
-            "dice": "sorensen", "jensenshannon": "jensen_shannon", "morisita": "morisita_horn",
-            "horn": "morisita_horn"}
+            "dice": "sorensen", "jensenshannon": "jensen_shannon", "horn": "morisita_horn"}
+# names that mean another measure elsewhere: an error that names ours
+_MISLEADING = {
+    "morisita": "'morisita' usually names Morisita's original index (for counts), which "
+                "tallyform does not compute; write measure='morisita_horn' for the "
+                "Morisita-Horn index (Horn 1966).",
+}
+
+
+def setting_name(measure, transform=None) -> str:
+    """A measure with its transform, as notes name it: ``'sqrt + bray_curtis'``
+    (the measure alone without a transform)."""
+    name = getattr(measure, "name", measure)
+    tr = getattr(transform, "name", transform)
+    return str(name) if tr in (None, "", "none") else f"{tr} + {name}"
 
 
 def measure_names() -> list[str]:
@@ -345,6 +358,9 @@ def get_measure(measure) -> Measure:
     if not isinstance(measure, str):
         raise InputError(f"`measure` must be a name; got {type(measure).__name__}.")
     key = measure.strip().lower().replace("-", "_").replace(" ", "_")
+    if key in _MISLEADING:
+        raise InputError(f"measure {measure!r} is not one of ours: {_MISLEADING[key]}",
+                         hint=f"choose one of {measure_names()}.")
     key = _ALIASES.get(key, key)
     if key not in MEASURES:
         raise InputError(f"unknown measure {measure!r}; choose one of {measure_names()}.")

@@ -149,7 +149,7 @@ def _describe(results) -> tuple[str, list[str]]:
         return (f"Size and shape of {setting_label(first.measure, first.transform)} "
                 f"(n = {first.n})",
                 [f"size: {size_label}; shape: {first.shape_dims} {first.shape} dimension(s) "
-                 f"({100 * first.shape_inertia_share:.0f} % of the shape inertia)"])
+                 f"({100 * first.shape_inertia_share:.0f} % of the variation in composition)"])
     return (f"Size and shape over {len(items)} settings",
             [f"size: {size_label}; shape: {first.shape}"])
 

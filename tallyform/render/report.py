@@ -15,6 +15,7 @@ from pathlib import Path
 import pandas as pd
 
 from ..core.analysis import AnalysisResults, run
+from ..core.errors import InputError
 from ..core.fileio import write_text_atomic
 from ..core.spec import AnalysisSpec
 from .methods import methods_references, methods_text
@@ -345,8 +346,22 @@ def report_html(results: AnalysisResults, *, title: str | None = None) -> str:
 
 
 def write_report(results: AnalysisResults, path, *, title: str | None = None) -> Path:
-    """Write the HTML report of ``results`` to ``path`` (atomic)."""
+    """Write the HTML report of ``results`` to ``path`` (atomic); a missing folder is
+    created, as ``tly.plots.save`` does."""
+    _make_folder(Path(path).parent)
     return write_text_atomic(path, report_html(results, title=title))
+
+
+def _make_folder(folder: Path) -> None:
+    """Create ``folder`` (and its parents); a path in the way is named, not a traceback."""
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except (FileExistsError, NotADirectoryError):
+        raise InputError(f"cannot create the folder {str(folder)!r}: a file of that name is "
+                         "in the way.", hint="Choose another path for the report.") from None
+    except OSError as err:
+        raise InputError(f"cannot create the folder {str(folder)!r}: {err.strerror}.",
+                         hint="Choose a folder you can write to.") from None
 
 
 def report(table, spec: AnalysisSpec | None = None, path="report.html", *,
@@ -359,7 +374,7 @@ def report(table, spec: AnalysisSpec | None = None, path="report.html", *,
     spec : AnalysisSpec, dict or JSON text, optional
         Default: an AnalysisSpec with default choices (give at least ``group`` for the tests).
     path : str or path
-        The HTML file (written atomically).
+        The HTML file (written atomically; missing folders are created).
 
     Returns
     -------

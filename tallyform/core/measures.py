@@ -149,15 +149,24 @@ def _f_chi_square(x, ctx):
     masses = ctx.params.get("column_masses")
     if masses is None:
         col = x.sum(axis=0)
+        if np.any(col < 0):
+            raise InputError("the chi-square distance needs non-negative values; some taxa "
+                             "have a negative total.")
         empty = np.flatnonzero(col <= 0)
-        if empty.size:
-            names = [str(ctx.taxa[j]) for j in empty]
-            raise InputError(
-                f"the chi-square distance divides by each taxon's column mass; "
-                f"{len(names)} taxon/taxa have a total of 0: {_listing(names)}.",
-                hint="Remove empty taxa (CommunityTable(..., empty='drop')).")
         masses = col / col.sum()
         ctx.record["column_masses"] = "table"
+        if empty.size:
+            # a taxon absent from every sample adds 0 to every distance (its profile
+            # differences are all 0), so leaving it out is exact, not an approximation
+            names = [str(ctx.taxa[j]) for j in empty]
+            ctx.notes.append(f"{len(names)} taxon/taxa absent from every sample "
+                             f"({_listing(names)}) were left out of the chi-square distance: "
+                             "it divides by each taxon's total, and an absent taxon adds "
+                             "nothing to any distance.")
+            keep = col > 0
+            out = np.zeros_like(x, dtype=np.float64)
+            out[:, keep] = _profiles(x)[:, keep] / np.sqrt(masses[keep])
+            return out
     else:
         try:
             masses = np.asarray(masses, dtype=np.float64).ravel()

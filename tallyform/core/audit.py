@@ -184,7 +184,7 @@ class AuditResult(ResultMixin):
     def _repr_html_(self) -> str:
         import html
         return (f"<div><p><b>{html.escape(self._title())}</b></p>"
-                f"{self.to_frame().to_html(float_format='{:.3g}'.format)}"
+                f"{self._frame_html(self.to_frame(), '{:.3g}')}"
                 f"<p>{html.escape(self.reading)}</p>{self._notes_html()}</div>")
 
     def __str__(self) -> str:

@@ -14,6 +14,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from .display import p_words
 from .design import as_samples, model_matrix
 from .dissimilarity import Dissimilarity
 from .random import as_rng
@@ -506,7 +507,7 @@ def _reading(tests: dict, tested: list, plan, alpha: float = 0.05) -> str:
                  .replace("within ", "within units of ", 1))
         out.append(f"{t!r}: pseudo-F = {r.pseudo_f:.3g} on {r.df} and {r.df_denominator} df"
                    f"{', tested' + where if where else ''} against {r.tested_against}, "
-                   f"p = {r.pvalue:.3g}.")
+                   f"{p_words(r.pvalue)}.")
         if r.min_pvalue is not None and r.min_pvalue > alpha:
             out.append(f"The smallest possible p-value for {t!r} is {r.min_pvalue:.2g}, "
                        f"above {alpha:g}: this design cannot show an effect of {t!r} at "

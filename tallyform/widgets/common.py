@@ -216,5 +216,8 @@ LABEL_STYLE = {"description_width": "110px"}   # room for "Permutations", "Shape
 
 
 def html_table(frame, *, float_format="{:.4g}".format) -> str:
-    """A DataFrame as an HTML table for display (formatting only)."""
-    return frame.to_html(float_format=float_format, border=0, classes="tf-table")
+    """A DataFrame as an HTML table for display (formatting only: columns in words,
+    p < 0.001, yes/no)."""
+    from ..core.display import display_frame
+    return display_frame(frame).to_html(float_format=float_format, border=0,
+                                        classes="tf-table", na_rep="")

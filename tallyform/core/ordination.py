@@ -175,6 +175,11 @@ class Ordination(ResultMixin):
     def axis_label(self, axis) -> str:
         """``'PCoA1 (31.2 %)'``: an axis name with its share of the total, for plot titles."""
         name = self.scores.columns[axis] if isinstance(axis, (int, np.integer)) else str(axis)
+        rot = self.provenance.get("rotation") or {}
+        if rot.get("mixed") and name in list(self.scores.columns[: rot.get("dims", 2)]):
+            plane = self.explained.reindex(self.scores.columns[: rot.get("dims", 2)]).sum()
+            return (f"{name}, rotated {abs(rot['angle']):.0f}\u00b0 (the plane holds "
+                    f"{100 * float(plane):.1f} %)")
         if name in self.explained.index:
             return f"{name} ({100 * float(self.explained[name]):.1f} %)"
         return name

@@ -27,6 +27,7 @@ import traitlets
 from ..core.ellipses import describe as describe_ellipse
 from ..core.measures import MEASURES
 from ..core.partition import SHAPE_OPTIONS, SIZE_OPTIONS
+from ..core.procrustes import align_ordination
 from ..core.transforms import TRANSFORMS
 from .background import SettledRunner
 from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, error_text,
@@ -115,6 +116,10 @@ class ShapePanel(widgets.VBox):
     interval_state : HTML
         "intervals: computing", what was drawn, or why there are none.
     ordination, ellipse_set : Ordination, EllipseSet or None
+    shown_ordination : Ordination or None
+        The ordination as drawn: its axes rotated/reflected onto the previous view
+        (``tallyform.core.procrustes.align_ordination``), so points move smoothly when a
+        control changes; the ellipses are computed on it.
     partition_plot, ordination_plot : plotly FigureWidget
     messages : MessageArea
         The error that stopped an update (empty when all is well).
@@ -137,6 +142,8 @@ class ShapePanel(widgets.VBox):
         self._hold = False
         self._done: dict = {}        # call code -> result, for the calls now on screen
         self.result = self.ordination = self.ellipse_set = None
+        self.shown_ordination = None     # the ordination as drawn (axes kept continuous)
+        self._shown_scores = None
         self.intervals_result = None
         self._intervals_done: tuple | None = None    # (call code, result, error), last
         self._intervals_code: str | None = None      # the call in the background now
@@ -332,16 +339,22 @@ class ShapePanel(widgets.VBox):
         self.error = None
         self.result = self._attempt("partition", calls, self.partition_plot)
         self.ordination = self._attempt("ordination", calls, self.ordination_plot)
+        # continuity: the new axes rotated/reflected onto those on screen (core function)
+        self.shown_ordination = (align_ordination(self.ordination, self._shown_scores)
+                                 if self.ordination is not None else None)
         groups = self.ellipse_set = None
         if self.ordination is not None and "group" in calls:
             groups = self._attempt("group", calls, self.ordination_plot)
             if groups is not None and "ellipses" in calls:
                 # the ellipses belong to the ordination on screen: key them by its call
+                # and its rotation (ellipses turn with the points)
                 calls["ellipses"] = Call("ellipses", calls["ellipses"].args,
                                          calls["ellipses"].kwargs,
-                                         obj=Ref("o", self.ordination))
-                self.ellipse_set = self._attempt("ellipses", calls, self.ordination_plot,
-                                                 key_extra=calls["ordination"].code())
+                                         obj=Ref("o", self.shown_ordination))
+                rot = self.shown_ordination.provenance.get("rotation")
+                self.ellipse_set = self._attempt(
+                    "ellipses", calls, self.ordination_plot,
+                    key_extra=calls["ordination"].code() + repr(rot))
         self.last_compute = time.perf_counter() - t0
         self.calls = calls
         ordination_ok = (self.ordination is not None
@@ -358,8 +371,9 @@ class ShapePanel(widgets.VBox):
                         ready if ready is not None else self.result, present=self._present))
                 if ordination_ok:
                     copy_figure(self.ordination_plot, p.ordination_figure(
-                        self.ordination, group=groups, ellipses=self.ellipse_set,
+                        self.shown_ordination, group=groups, ellipses=self.ellipse_set,
                         present=self._present))
+                    self._shown_scores = self.shown_ordination.scores
             except Exception as err:         # a figure failed: say so, in one line
                 if self.error is None:
                     self.error = err
@@ -378,7 +392,7 @@ class ShapePanel(widgets.VBox):
         if self.error is None:
             self.notes.show(list(self.result.notes)
                             + list(getattr(self.intervals_result, "notes", ()))
-                            + list(self.ordination.notes)
+                            + list(self.shown_ordination.notes)
                             + list(getattr(self.ellipse_set, "notes", ())))
 
     def _attempt(self, name: str, calls: dict, plot, *, key_extra: str = ""):

@@ -85,7 +85,7 @@ def totals_figure(table, group, *, log: bool = True, per_effort: bool = False,
     >>> import tallyform as tly
     >>> fig = totals_figure(tly.demo("mesocosm"), "treatment")
     >>> [t.name for t in fig.data]
-    ['control', 'nutrient_high', 'nutrient_low']
+    ['control', 'nutrient_low', 'nutrient_high']
     """
     from ..core.size_tests import size_measure
     tab = table if isinstance(table, CommunityTable) else as_table(table)
@@ -272,7 +272,7 @@ def dispersion_figure(result, *, present: bool = False) -> go.Figure:
     >>> q = tly.dispersion_test(tly.dissimilarity(tab, "bray_curtis"),
     ...                         tab.samples["treatment"], n_permutations=99, rng=1)
     >>> [t.name for t in dispersion_figure(q).data]
-    ['control', 'nutrient_high', 'nutrient_low', 'group mean']
+    ['control', 'nutrient_low', 'nutrient_high', 'group mean']
     """
     if not isinstance(result, DispersionResult):
         raise InputError("`result` must be a DispersionResult (from tly.dispersion_test); got "

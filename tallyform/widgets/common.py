@@ -219,5 +219,12 @@ def html_table(frame, *, float_format="{:.4g}".format) -> str:
     """A DataFrame as an HTML table for display (formatting only: columns in words,
     p < 0.001, yes/no)."""
     from ..core.display import display_frame
-    return display_frame(frame).to_html(float_format=float_format, border=0,
-                                        classes="tf-table", na_rep="")
+    return TABLE_STYLE + display_frame(frame).to_html(float_format=float_format, border=0,
+                                                      classes="tf-table", na_rep="")
+
+
+# widgets' HTML is not styled by the notebook's table rules: a small style of our own
+TABLE_STYLE = ("<style>.tf-table{border-collapse:collapse;font-size:13px;margin:4px 0}"
+               ".tf-table th,.tf-table td{border:1px solid #d6d6d6;padding:2px 8px;"
+               "text-align:right}.tf-table thead th{background:#f1f3f5}"
+               ".tf-table tbody tr:nth-child(even){background:#fafafa}</style>")

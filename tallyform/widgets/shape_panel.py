@@ -30,6 +30,7 @@ from ..core.partition import SHAPE_OPTIONS, SIZE_OPTIONS
 from ..core.procrustes import align_ordination
 from ..core.transforms import TRANSFORMS
 from .background import SettledRunner
+from .help import add_help, exponent_words, transform_words
 from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, error_text,
                      given, new_figure_widget, plots, transform_code)
 
@@ -63,7 +64,8 @@ def _quiet(done, total) -> None:
 
 def transform_options() -> list[tuple[str, str]]:
     """Dropdown options: the exponent slider, then the named transforms it cannot reach."""
-    named = [(t.label, name) for name, t in TRANSFORMS.items() if name not in _POWER_FAMILY]
+    named = [(transform_words(name), name) for name in TRANSFORMS
+             if name not in _POWER_FAMILY]
     return [("power (exponent slider)", POWER)] + named
 
 
@@ -168,12 +170,12 @@ class ShapePanel(widgets.VBox):
                                      value="log_total", description="Size")
         self.size.add_class("tf-size")
         self.shape = widgets.Dropdown(options=[(_SHAPE_LABELS[s], s) for s in SHAPE_OPTIONS],
-                                      value="chi_square", description="Shape basis")
+                                      value="chi_square", description="Shape as")
         self.shape.add_class("tf-shape-basis")
         top = max(1, min(table.n_samples - 3, _MAX_DIMS_LISTED))
         self.shape_dims = widgets.Dropdown(
-            options=[("auto", 0)] + [(str(k), k) for k in range(1, top + 1)], value=0,
-            description="Shape dims")
+            options=[("auto (75 % of composition)", 0)]
+            + [(str(k), k) for k in range(1, top + 1)], value=0, description="Shape axes")
         self.shape_dims.add_class("tf-shape-dims")
         self.group = widgets.Dropdown(options=group_options(table), description="Group",
                                       value=default_group(table) if group is None else group)
@@ -209,12 +211,22 @@ class ShapePanel(widgets.VBox):
         self.controls = [self.transform, self.measure, self.size, self.shape,
                          self.shape_dims, self.group, self.ellipses, self.intervals,
                          self.units, self.seed]
-        row1 = widgets.HBox([self.exponent, self.transform, self.measure])
+        for w in [self.exponent] + self.controls:
+            add_help(w)
+        self.exponent_words = widgets.HTML(_exponent_html(self.exponent.value))
+        self.exponent_words.add_class("tf-exponent-words")
+        row1 = widgets.HBox([self.exponent, self.exponent_words, self.transform,
+                             self.measure])
         row2 = widgets.HBox([self.size, self.shape, self.shape_dims])
         row3 = widgets.HBox([self.group, self.ellipses])
         row4 = widgets.HBox([self.intervals, self.units, self.seed, self.interval_state])
-        plots_row = widgets.HBox([self.partition_plot, self.ordination_plot],
-                                 layout=widgets.Layout(flex_flow="row wrap"))
+        # side by side when the width allows (two columns from ~900 px), else stacked
+        side = dict(flex="1 1 0%", min_width="420px")
+        plots_row = widgets.HBox(
+            [widgets.Box([self.partition_plot], layout=widgets.Layout(**side)),
+             widgets.Box([self.ordination_plot], layout=widgets.Layout(**side))],
+            layout=widgets.Layout(flex_flow="row wrap", width="100%"))
+        plots_row.add_class("tf-shape-plots")
         super().__init__([row1, row2, row3, row4, self.messages, self.fractions_text,
                           plots_row, self.notes])
         self.add_class("tf-panel-shape")
@@ -310,6 +322,7 @@ class ShapePanel(widgets.VBox):
         self.refresh()
 
     def _exponent_moved(self, change):
+        self.exponent_words.value = _exponent_html(self.exponent.value)
         if self._hold:
             return
         if self.transform.value != POWER:
@@ -506,6 +519,11 @@ def _live_extra(core, call) -> dict:
     except (AttributeError, TypeError, ValueError):
         return {}
     return {"progress": _quiet} if "progress" in params else {}
+
+
+def _exponent_html(a) -> str:
+    """The exponent in words beside the slider: ``0.50 = square root``."""
+    return f"<span style='color:#555'>{html.escape(exponent_words(a))}</span>"
 
 
 def _state_html(text: str, *, warn: bool = False) -> str:

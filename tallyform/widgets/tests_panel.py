@@ -32,8 +32,11 @@ from ..core.spec import AnalysisSpec
 from ..core.measures import MEASURES
 from ..core.spec import _CHOICES
 from ..core.taxon_terms import PAIR_MEASURES, SPLIT_MEASURES
-from .common import (LABEL_STYLE, TABLE, Call, MessageArea, Ref, copy_figure, given,
+from ..core.display import format_p
+from .common import (LABEL_STYLE, TABLE, TABLE_STYLE, Call, MessageArea, Ref, copy_figure,
+                     given,
                      new_figure_widget)
+from .help import add_help
 from .shape_panel import default_group, group_options
 from .units_choice import unit_choices
 
@@ -129,6 +132,7 @@ class TestsPanel(widgets.VBox):
         self.blocks.add_class("tf-blocks")
         self.blocks_help = widgets.HTML(f"<small>{html.escape(BLOCKS_HELP)}</small>")
         self.blocks_help.add_class("tf-blocks-help")
+        self.blocks_help.tooltip = BLOCKS_HELP
         self.units = widgets.Dropdown(options=[("none: samples independent", False)],
                                       value=False, description="Units", style=LABEL_STYLE,
                                       layout=widgets.Layout(width="460px"))
@@ -177,6 +181,8 @@ class TestsPanel(widgets.VBox):
                          self.contribution_measure, self.size_method, self.adjust, self.blocks,
                          self.blocks_help, self.pair_a, self.pair_b, self.n_permutations,
                          self.seed, self.run_button, self.cancel_button]
+        for w in self.controls:
+            add_help(w)
         self._options = widgets.VBox([
             self.analysis,
             widgets.HBox([self.group, self.units]),
@@ -559,12 +565,12 @@ def _strata_html(result) -> str:
         return ""
     perm = result.shape if type(result).__name__ == "ComparisonResult" else result
     shown = frame.copy()
-    shown["p"] = [f"{v:.4g}" for v in frame["p"]]
+    shown["p"] = [format_p(v) for v in frame["p"]]
     shown["smallest possible p"] = [f"{v:.3g}" if v == v else "\u2014"
                                     for v in frame["smallest possible p"]]
     note = ("&mdash;: many distinct relabellings, so only the number of permutations limits "
             "p" if (shown["smallest possible p"] == "\u2014").any() else "")
     return (f"<div class='tf-strata-box'><b>Error strata</b>: where each term was tested "
             f"({html.escape(perm.scheme)})<br>"
-            f"{shown.to_html(border=1, classes='tf-table tf-strata-table')}"
+            f"{TABLE_STYLE}{shown.to_html(border=0, classes='tf-table tf-strata-table')}"
             f"<small>{note}</small></div>")

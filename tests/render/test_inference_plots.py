@@ -87,7 +87,7 @@ def test_dispersion_distances_and_means(meso, spread):
     fig = spread.figure()
     boxes = [t for t in fig.data if t.type == "box"]
     means = [t for t in fig.data if (t.meta or {}).get("role") == "group mean"][0]
-    assert [t.name for t in boxes] == ["control", "nutrient_high", "nutrient_low"]
+    assert [t.name for t in boxes] == ["control", "nutrient_low", "nutrient_high"]
     for t in boxes:
         labels = [h.split("</b>")[0][3:] for h in t.hovertext]
         np.testing.assert_allclose(t.y, spread.distances[labels].to_numpy())

@@ -131,7 +131,7 @@ def test_export_writes_tables_and_figures(dash, tmp_path):
     names = {p.name for p in written}
     assert {"size_shape.csv", "partition.html", "ordination.html", "spec.json",
             "reproduce.py", "methods.txt", "totals_by_group.csv", "tables.xlsx"} <= names
-    assert {"strata.csv", "comparison.csv", "shape_permanova.csv", "tests_3.html"} <= names
+    assert {"strata.csv", "comparison.csv", "shape_permanova.csv", "permanova_reference.html"} <= names
     strata = pd.read_csv(tmp_path / "out" / "strata.csv", index_col=0)
     assert strata.loc["treatment", "stratum"] == "between 'tank'"
     assert tly.AnalysisSpec.from_json(tmp_path / "out" / "spec.json") == dash.spec

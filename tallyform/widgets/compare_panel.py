@@ -17,14 +17,15 @@ import traitlets
 from ..core.measures import MEASURES
 from ..core.procrustes import align_ordination
 from ..core.transforms import TRANSFORMS
-from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, given,
-                     new_figure_widget, plots, transform_code)
+from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, figure_widths,
+                     fit_width, given, new_figure_widget, plots, transform_code)
 from .help import add_help, transform_words
 
 __all__ = ["ComparePanel", "DEFAULT_A", "DEFAULT_B"]
 
 DEFAULT_A = ("none", "bray_curtis")          # counts as they are + Bray-Curtis
 DEFAULT_B = ("none", "hellinger")            # Hellinger: composition only
+COLUMN_WIDTH = 420                           # px: two columns on a 970 px screen
 
 
 def _transform_options() -> list[tuple[str, str]]:
@@ -83,17 +84,22 @@ class ComparePanel(widgets.VBox):
             w.add_class(cls)
             w.style.description_width = "90px"
             add_help(w, cls)
+        for w, name in ((self.transform_a, "transform-a"), (self.measure_a, "measure-a"),
+                        (self.transform_b, "transform-b"), (self.measure_b, "measure-b")):
+            w.add_class(f"tf-compare-{name}")
         self.controls = [self.transform_a, self.measure_a, self.transform_b, self.measure_b,
                          self.group]
         self.partition_a = new_figure_widget("tf-compare-partition-a")
         self.partition_b = new_figure_widget("tf-compare-partition-b")
         self.ordination_a = new_figure_widget("tf-compare-ordination-a")
         self.ordination_b = new_figure_widget("tf-compare-ordination-b")
+        style = figure_widths({f"tf-compare-{w}-{k}": COLUMN_WIDTH
+                               for w in ("partition", "ordination") for k in "ab"})
         self.heading_a = widgets.HTML()
         self.heading_b = widgets.HTML()
         self.messages = MessageArea()
         self.notes = NotesArea()
-        side = dict(flex="1 1 0%", min_width="420px")
+        side = dict(width=f"{COLUMN_WIDTH + 6}px")
         col_a = widgets.VBox([self.heading_a, self.partition_a, self.ordination_a],
                              layout=widgets.Layout(**side))
         col_b = widgets.VBox([self.heading_b, self.partition_b, self.ordination_b],
@@ -106,7 +112,7 @@ class ComparePanel(widgets.VBox):
                          "unchanged)."),
             widgets.HBox([self.transform_a, self.measure_a]),
             widgets.HBox([self.transform_b, self.measure_b, self.group]),
-            self.messages,
+            self.messages, style,
             widgets.HBox([col_a, col_b], layout=widgets.Layout(flex_flow="row wrap",
                                                                width="100%")),
             self.notes])
@@ -168,6 +174,11 @@ class ComparePanel(widgets.VBox):
                           f"{f['residual']:.1%}</div>")
         self.notes.show(notes)
         self.revision += 1
+
+    def fit_figures(self) -> None:
+        """Size the four figures for two columns (called when the tab is shown)."""
+        for fw in (self.partition_a, self.partition_b, self.ordination_a, self.ordination_b):
+            fit_width(fw, COLUMN_WIDTH)
 
     def code_lines(self) -> list[str]:
         """The calls as code (for the Report panel)."""

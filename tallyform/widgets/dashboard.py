@@ -53,6 +53,7 @@ class Dashboard(widgets.VBox):
                                           self.report],
                                 titles=TAB_TITLES)
         self.tabs.add_class("tf-tabs")
+        self.tabs.observe(self._tab_shown, names="selected_index")
         src = getattr(self.table.origin, "file", None)
         self.header = widgets.HTML(
             f"<b>tallyform</b>: {self.table.n_samples} samples &times; "
@@ -66,6 +67,13 @@ class Dashboard(widgets.VBox):
         self.report.refresh()
         if present:
             self.set_present(True)
+
+    def _tab_shown(self, change=None) -> None:
+        """Figures first drawn in a hidden tab take their width once shown."""
+        panel = self.tabs.children[self.tabs.selected_index or 0]
+        fit = getattr(panel, "fit_figures", None)
+        if fit is not None:
+            fit()
 
     def _units_to_shape(self, change=None) -> None:
         """The intervals leave out the units of the tests (the coarsest level if nested)."""

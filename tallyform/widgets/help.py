@@ -5,6 +5,8 @@ control carries its help. Words only: nothing here computes.
 """
 from __future__ import annotations
 
+import html
+
 __all__ = ["HELP", "add_help", "exponent_words", "controls_without_help", "TRANSFORM_WORDS",
            "transform_words"]
 
@@ -99,8 +101,16 @@ def exponent_words(a: float) -> str:
 def add_help(widget, css_class: str | None = None):
     """Give ``widget`` its help line (by its CSS class) as a tooltip; returns the widget."""
     key = css_class or next((c for c in widget._dom_classes if c in HELP), None)
-    if key is not None:
-        widget.tooltip = HELP[key]
+    if key is None:
+        return widget
+    widget.tooltip = HELP[key]
+    # a described control shows its tooltip on its label only when set after display
+    # (ipywidgets 8): the label carries the help itself, so it is there from the start
+    label = getattr(widget, "description", "")
+    if label and hasattr(widget, "description_allow_html") and "<" not in label:
+        widget.description_allow_html = True
+        widget.description = (f"<span title=\"{html.escape(HELP[key])}\">"
+                              f"{html.escape(label)}</span>")
     return widget
 
 

@@ -32,6 +32,7 @@ from ..core.transforms import TRANSFORMS
 from .background import SettledRunner
 from .help import add_help, exponent_words, transform_words
 from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, error_text,
+                     figure_widths, fit_width,
                      given, new_figure_widget, plots, transform_code)
 
 __all__ = ["ShapePanel", "LIVE_BUDGET", "POWER", "group_options", "INTERVAL_CHOICES",
@@ -50,6 +51,9 @@ ELLIPSE_KINDS = ("confidence", "prediction", "data")      # quick enough for the
 ELLIPSE_LEVEL = 0.95
 INTERVAL_CHOICES = (0, 199, 999)   # resamples of the share intervals (0: none)
 SETTLE_DELAY = 0.5                 # seconds of quiet before the intervals start
+PARTITION_WIDTH = 370             # px: side by side on a 970 px screen (754 px of
+                                   # notebook with the side bar closed), wrapped below
+ORDINATION_WIDTH = 380
 
 
 def ellipse_options(extra: str | None = None) -> list[tuple[str, object]]:
@@ -213,19 +217,19 @@ class ShapePanel(widgets.VBox):
                          self.units, self.seed]
         for w in [self.exponent] + self.controls:
             add_help(w)
-        self.exponent_words = widgets.HTML(_exponent_html(self.exponent.value))
+        self.exponent_words = widgets.HTML(_exponent_html(self.exponent.value),
+                                           layout=widgets.Layout(width="230px"))
         self.exponent_words.add_class("tf-exponent-words")
         row1 = widgets.HBox([self.exponent, self.exponent_words, self.transform,
                              self.measure])
         row2 = widgets.HBox([self.size, self.shape, self.shape_dims])
         row3 = widgets.HBox([self.group, self.ellipses])
         row4 = widgets.HBox([self.intervals, self.units, self.seed, self.interval_state])
-        # side by side when the width allows (two columns from ~900 px), else stacked
-        side = dict(flex="1 1 0%", min_width="420px")
-        plots_row = widgets.HBox(
-            [widgets.Box([self.partition_plot], layout=widgets.Layout(**side)),
-             widgets.Box([self.ordination_plot], layout=widgets.Layout(**side))],
-            layout=widgets.Layout(flex_flow="row wrap", width="100%"))
+        # side by side when the width allows (about 880 px of notebook), else stacked
+        plots_row = widgets.HBox([figure_widths({"tf-partition-plot": PARTITION_WIDTH,
+                                                 "tf-ordination-plot": ORDINATION_WIDTH}),
+                                  self.partition_plot, self.ordination_plot],
+                                 layout=widgets.Layout(flex_flow="row wrap", width="100%"))
         plots_row.add_class("tf-shape-plots")
         super().__init__([row1, row2, row3, row4, self.messages, self.fractions_text,
                           plots_row, self.notes])
@@ -492,6 +496,11 @@ class ShapePanel(widgets.VBox):
     def intervals_pending(self) -> bool:
         """True while the intervals of the current settings wait or run."""
         return self._runner.busy
+
+    def fit_figures(self) -> None:
+        """Size the figures for side by side (called when the panel's tab is shown)."""
+        fit_width(self.partition_plot, PARTITION_WIDTH)
+        fit_width(self.ordination_plot, ORDINATION_WIDTH, legend_below=True)
 
     # ------------------------------------------------------------------ presentation
     def set_present(self, on: bool = True) -> None:

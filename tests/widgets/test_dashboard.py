@@ -28,7 +28,8 @@ def test_tabs_and_classes(dash):
     assert isinstance(dash, Dashboard) and "tf-dashboard" in dash._dom_classes
     assert tuple(dash.tabs.titles) == TAB_TITLES
     classes = [p._dom_classes for p in dash.tabs.children]
-    assert [c[0] for c in classes] == ["tf-panel-data", "tf-panel-shape", "tf-panel-tests",
+    assert [c[0] for c in classes] == ["tf-panel-data", "tf-panel-shape",
+                                       "tf-panel-compare", "tf-panel-tests",
                                        "tf-panel-report"]
 
 

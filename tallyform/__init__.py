@@ -18,6 +18,7 @@ from .core.nmds import nmds
 from .core.ordination import Ordination, pcoa
 from .core.analysis import AnalysisResults, run
 from .core.audit import AuditResult, audit
+from .core.outliers import OutlierSamples, outlier_samples
 from .core.partition import SizeShapeResult, size_shape
 from .core.scan import ScanResult, scan
 from .core.choices import ChoiceComparison, compare_choices
@@ -69,4 +70,5 @@ __all__ = [
     "taxon_contributions", "TaxonContributions", "explore", "report", "write_outputs",
     "set_memory_limit", "memory_limit", "set_progress", "get_progress",
 ]
+__all__ += ["outlier_samples", "OutlierSamples"]
 __all__ += ["shape_test", "spread_test", "CountingTestResult", "rarefied_table"]

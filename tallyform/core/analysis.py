@@ -17,6 +17,7 @@ import pandas as pd
 
 from .errors import Cancelled, DesignError, InputError
 from .spec import AnalysisSpec
+from .outliers import outlier_samples
 from .table import CommunityTable, as_table
 from .progress import reports_progress
 
@@ -71,6 +72,7 @@ class AnalysisResults:
     software: dict = field(default_factory=dict)
     choices: object = None
     units: object = None
+    outliers: object = None
 
     def code(self) -> str:
         """Python that reproduces these results in a fresh session (``spec.code(table)``)."""
@@ -79,6 +81,8 @@ class AnalysisResults:
     def tables(self) -> dict[str, pd.DataFrame]:
         """Every result table, named for export (CSV files / XLSX sheets)."""
         out = {"summary": self.summary.to_frame("value")}
+        if self.outliers is not None:
+            out["outlier_samples"] = self.outliers.to_frame()
         if self.totals is not None:
             out["totals_by_group"] = self.totals
         if self.totals_per_effort is not None:
@@ -194,6 +198,10 @@ def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisRes
             raise Cancelled("the analysis was cancelled; no result was kept.")
         if name == "summary":
             res["summary"] = table.summary()
+            try:
+                res["outliers"] = outlier_samples(table, group)
+            except (DesignError, InputError) as err:
+                skipped["outlier flags"] = str(err)
             res["totals"] = table.totals_by(group) if group else None
             res["totals_per_effort"] = (table.totals_by(group, per_effort=True)
                                         if group and table.effort is not None else None)
@@ -215,7 +223,7 @@ def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisRes
         res["ellipses"] = e
     keys = ["summary", "totals", "totals_per_effort", "size_shape", "scan", "dissimilarity",
             "ordination", "ellipses", "comparison", "permanova", "pairwise", "contributions",
-            "audit", "choices"]
+            "audit", "choices", "outliers"]
     return AnalysisResults(spec=spec, table=table, skipped=skipped, units=units,
                            software=software_versions(), **{k: res.get(k) for k in keys})
 

@@ -186,7 +186,7 @@ class AuditResult(ResultMixin):
     def _repr_html_(self) -> str:
         import html
         return (f"<div><p><b>{html.escape(self._title())}</b></p>"
-                f"{self.to_frame().to_html(float_format='{:.3g}'.format)}"
+                f"{self._frame_html(self.to_frame(), '{:.3g}')}"
                 f"<p>{html.escape(self.reading)}</p>{self._notes_html()}</div>")
 
     def __str__(self) -> str:
@@ -465,6 +465,24 @@ def _verdict(rate, ci, alpha) -> str:
     return "nominal"
 
 
+def _inflated_words(name, reference, rate, alpha) -> str:
+    """The verdict on an inflated rate, as strong as the evidence (the rate's size)."""
+    times = rate / alpha
+    if rate >= 0.5:
+        return (f"So on these data most significant {name} results would come from size "
+                f"alone ({times:.0f} times the nominal rate): a {name} result says nothing "
+                f"about composition here; test composition with {reference} (or another "
+                "size-free measure) instead.")
+    if rate >= 4 * alpha:
+        return (f"So on these data a significant {name} result often comes from size alone "
+                f"({times:.1f} times the nominal rate) and must not be read as a difference "
+                f"in composition; test composition with {reference} (or another size-free "
+                "measure) instead.")
+    return (f"The rate is somewhat above the nominal {100 * alpha:.0f} % ({times:.1f} times): "
+            f"size alone sometimes makes {name} significant here, so read a p-value near "
+            f"{alpha:g} with caution and confirm a difference in composition with {reference}.")
+
+
 def _reading(name, reference, group, rate, ci, ref_rate, ref_ci, alpha, n_sim) -> str:
     pct = lambda v: f"{100 * v:.0f} %"                                       # noqa: E731
     text = (f"In {n_sim} simulated data sets where the {group} groups differ only in size "
@@ -474,9 +492,7 @@ def _reading(name, reference, group, rate, ci, ref_rate, ref_ci, alpha, n_sim) -
             f"({pct(ref_ci[0])}-{pct(ref_ci[1])}). ")
     v = _verdict(rate, ci, alpha)
     if v == "inflated":
-        text += (f"So on these data a significant {name} result can come from size alone and "
-                 f"must not be read as a difference in composition; test composition with "
-                 f"{reference} (or another size-free measure) instead.")
+        text += _inflated_words(name, reference, rate, alpha)
     elif v == "nominal":
         text += (f"The rate is consistent with the nominal {pct(alpha)}: {name} does not mistake "
                  "these size differences for composition.")

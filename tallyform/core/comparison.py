@@ -116,7 +116,7 @@ class ComparisonResult(ResultMixin):
 
     def _repr_html_(self) -> str:
         import html
-        frame = self.to_frame().to_html(float_format="{:.4g}".format)
+        frame = self._frame_html(self.to_frame())
         return (f"<div><p><b>{html.escape(self._title())}</b></p>{frame}"
                 f"<p>{html.escape(self.reading)}</p>{self._notes_html()}</div>")
 

@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .display import p_words
 from .constraint_engine import ConstraintData, f_test
 from .errors import InputError
 from .permutation import Permutations
@@ -127,7 +128,7 @@ def share_summary(o) -> str | None:
         p = float(t.table.loc[row, "pvalue"])
         perms = "exact" if t.exact else f"{t.n_permutations} permutations"
         what = "overall" if t.scope == "all" else repr(row)
-        bits.append(f"{what} p = {p:.3g}, {perms}" if np.isfinite(p) else f"{what}: no p-value")
+        bits.append(f"{what} {p_words(p)}, {perms}" if np.isfinite(p) else f"{what}: no p-value")
     else:
         bits.append("not tested: tly.constraint_test(...)")
     return f"constrained share {100 * o.r_squared:.1f} % ({'; '.join(bits)})"

@@ -42,6 +42,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from .display import p_words
 from .constraint_engine import (ConstraintData, Rows, f_test, fitted_axes, indicator_columns,
                                 weighted_unit_rows)
 from .constraint_shares import adjusted_from_plan, share_plan
@@ -161,9 +162,9 @@ class ConstraintTest(ResultMixin):
             return text + " No permutation p-value was computed."
         label = "all terms together" if self.scope == "all" else repr(first)
         if p <= 0.05:
-            return text + (f" Permutation p = {p:.3g} for {label}: more than chance "
+            return text + (f" Permutation {p_words(p)} for {label}: more than chance "
                            "would fit, at the 5 % level.")
-        return text + (f" Permutation p = {p:.3g} for {label}: no evidence that the "
+        return text + (f" Permutation {p_words(p)} for {label}: no evidence that the "
                        "constraints fit more than random columns would.")
 
     def figure(self, *, row: str | None = None, **kwargs):
@@ -547,7 +548,7 @@ def _totals_notes(data: ConstraintData) -> list:
     if assoc is None or assoc[1] > 0.05:
         return []
     head = (f"Sample totals differ with the constraints (log totals against the terms: "
-            f"F = {assoc[0]:.3g}, p = {assoc[1]:.2g}). ")
+            f"F = {assoc[0]:.3g}, {p_words(assoc[1])}). ")
     profiles = ("To test composition with every sample weighing the same, use "
                 "rda(..., transform='profile') or db_rda on a measure of profiles (e.g. "
                 "bray_curtis with transform='profile'): measured 4.4-6.3 % false positives "

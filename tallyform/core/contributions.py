@@ -168,11 +168,18 @@ class TaxonContributions(ResultMixin):
             return taxon_size_figure(self, top=top, **kwargs)
         raise InputError(f"`kind` must be 'shape' or 'size'; got {kind!r}.")
 
+    def display_labels(self) -> dict:
+        return {"term": "part of D\u00b2", "share_pct": "share (%)",
+                "share_net_pct": "share net of noise (%)", "ci_low": "share, 95 % low",
+                "ci_high": "share, 95 % high", "cumulative_pct": "cumulative (%)",
+                "mean_a": f"mean in {self.a}", "mean_b": f"mean in {self.b}",
+                "feature_a": f"profile value in {self.a}",
+                "feature_b": f"profile value in {self.b}"}
+
     def _repr_html_(self) -> str:
-        fmt = "{:.4g}".format
         head = f"<p><b>{html.escape(self._title())}</b><br>{html.escape(self._summary())}</p>"
-        shape = self.shape.head(15).to_html(float_format=fmt)
-        size = self.size.head(15).to_html(float_format=fmt)
+        shape = self._frame_html(self.shape.head(15))
+        size = self._frame_html(self.size.head(15))
         return (f"<div>{head}<p>Shape (top 15 of {len(self.shape)})</p>{shape}"
                 f"<p>Size (top 15 of {len(self.size)})</p>{size}{self._notes_html()}</div>")
 

@@ -6,6 +6,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .display import p_words
 from .counting_stats import spread_distances
 from .errors import InputError
 from .inference import check_option
@@ -102,7 +103,7 @@ class CountingTestResult(ResultMixin):
     def _title(self) -> str:
         name = {"shape": "Shape (composition)", "spread": "Spread"}[self.aspect]
         return f"{name} test between levels of {self.group!r}: {self.method}; " \
-               f"statistic = {self.statistic:.4g}, p = {self.pvalue:.4g}"
+               f"statistic = {self.statistic:.4g}, {p_words(self.pvalue)}"
 
     def __str__(self) -> str:
         return super().__str__() + "\n" + self.reading

@@ -27,10 +27,11 @@ def _natural_key(s: str):
 
 
 def factor_levels(col: pd.Series) -> list:
-    """Level order of a factor column: categorical order, else natural sort."""
+    """Level order of a factor column: categorical order, else the order of the file
+    (first appearance), the order in which tables, figures and results list groups."""
     if isinstance(col.dtype, pd.CategoricalDtype):
         return [c for c in col.cat.categories if (col == c).any()]
-    return sorted(pd.unique(col.astype(str)), key=_natural_key)
+    return list(pd.unique(col.astype(str)))
 
 
 def _is_factor(col: pd.Series) -> bool:

@@ -11,6 +11,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from .display import p_words
 from .design import factor_levels
 from .dissimilarity import Dissimilarity
 from .errors import DesignError, InputError, Location
@@ -101,7 +102,7 @@ class DispersionResult(ResultMixin):
     def _title(self) -> str:
         return (f"Dispersion test on {self.measure}: distances to group {self.centre}s, "
                 f"F = {self.statistic:.4g} on {self.df[0]} and {self.df[1]} df, "
-                f"p = {self.pvalue:.4g} ({self.scheme})")
+                f"{p_words(self.pvalue)} ({self.scheme})")
 
 
 def _spatial_median(x: np.ndarray, *, tol: float = 1e-10, max_iter: int = 1000) -> np.ndarray:
@@ -546,7 +547,7 @@ def _finish(d, z2, gcodes, levels, index, glabels, perms, *, centre, correction,
     reading = (f"Mean distance to the group {centre} ({level}): "
                + ", ".join(f"{lv} {means.loc[lv, 'mean_distance']:.3g}" for lv in levels)
                + f"; F = {test.statistic:.3g} on {test.df[0]} and {test.df[1]} df, "
-                 f"p = {test.pvalue:.3g}.")
+                 f"{p_words(test.pvalue)}.")
     if test.min_pvalue is not None and test.min_pvalue > 0.05:
         reading += (f" The smallest possible p-value here is {test.min_pvalue:.2g}, so this "
                     "design cannot show a difference in spread at the 0.05 level.")

@@ -14,6 +14,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from .display import p_words
 from .design import as_samples, model_matrix
 from .dissimilarity import Dissimilarity
 from .random import as_rng
@@ -471,8 +472,8 @@ def _closing_notes(table, tested, mm, ss, terms, path, total) -> list:
     hit = [t for t in tested if mm.kinds.get(t) != "numeric" and table.loc[t, "pvalue"] <= 0.05]
     if hit:
         out.append("PERMANOVA also responds to differences in spread (dispersion) between "
-                   "groups, not only to shifts of their centroids; check dispersion_test "
-                   f"before reading {hit[0]!r} as a difference in location.")
+                   "groups, not only to shifts of their centroids; read the spread "
+                   f"(dispersion) test before reading {hit[0]!r} as a difference in location.")
     if path == "distances" and total <= 0:
         out.append("The total sum of squares is not positive; the dissimilarities are "
                    "degenerate.")
@@ -498,7 +499,7 @@ def _reading(tests: dict, tested: list, plan, alpha: float = 0.05) -> str:
                  .replace("within ", "within units of ", 1))
         out.append(f"{t!r}: pseudo-F = {r.pseudo_f:.3g} on {r.df} and {r.df_denominator} df"
                    f"{', tested' + where if where else ''} against {r.tested_against}, "
-                   f"p = {r.pvalue:.3g}.")
+                   f"{p_words(r.pvalue)}.")
         if r.min_pvalue is not None and r.min_pvalue > alpha:
             out.append(f"The smallest possible p-value for {t!r} is {r.min_pvalue:.2g}, "
                        f"above {alpha:g}: this design cannot show an effect of {t!r} at "

@@ -149,15 +149,24 @@ def _f_chi_square(x, ctx):
     masses = ctx.params.get("column_masses")
     if masses is None:
         col = x.sum(axis=0)
+        if np.any(col < 0):
+            raise InputError("the chi-square distance needs non-negative values; some taxa "
+                             "have a negative total.")
         empty = np.flatnonzero(col <= 0)
-        if empty.size:
-            names = [str(ctx.taxa[j]) for j in empty]
-            raise InputError(
-                f"the chi-square distance divides by each taxon's column mass; "
-                f"{len(names)} taxon/taxa have a total of 0: {_listing(names)}.",
-                hint="Remove empty taxa (CommunityTable(..., empty='drop')).")
         masses = col / col.sum()
         ctx.record["column_masses"] = "table"
+        if empty.size:
+            # a taxon absent from every sample adds 0 to every distance (its profile
+            # differences are all 0), so leaving it out is exact, not an approximation
+            names = [str(ctx.taxa[j]) for j in empty]
+            ctx.notes.append(f"{len(names)} taxon/taxa absent from every sample "
+                             f"({_listing(names)}) were left out of the chi-square distance: "
+                             "it divides by each taxon's total, and an absent taxon adds "
+                             "nothing to any distance.")
+            keep = col > 0
+            out = np.zeros_like(x, dtype=np.float64)
+            out[:, keep] = _profiles(x)[:, keep] / np.sqrt(masses[keep])
+            return out
     else:
         try:
             masses = np.asarray(masses, dtype=np.float64).ravel()
@@ -324,8 +333,21 @@ MEASURES: dict[str, Measure] = {m.name: m for m in _RECORDS}
 
 _ALIASES = {"braycurtis": "bray_curtis", "bray": "bray_curtis", "cityblock": "manhattan",
             "chisquare": "chi_square", "chi2": "chi_square", "ruzicka": "quantitative_jaccard",
-            "dice": "sorensen", "jensenshannon": "jensen_shannon", "morisita": "morisita_horn",
-            "horn": "morisita_horn"}
+            "dice": "sorensen", "jensenshannon": "jensen_shannon", "horn": "morisita_horn"}
+# names that mean another measure elsewhere: an error that names ours
+_MISLEADING = {
+    "morisita": "'morisita' usually names Morisita's original index (for counts), which "
+                "tallyform does not compute; write measure='morisita_horn' for the "
+                "Morisita-Horn index (Horn 1966).",
+}
+
+
+def setting_name(measure, transform=None) -> str:
+    """A measure with its transform, as notes name it: ``'sqrt + bray_curtis'``
+    (the measure alone without a transform)."""
+    name = getattr(measure, "name", measure)
+    tr = getattr(transform, "name", transform)
+    return str(name) if tr in (None, "", "none") else f"{tr} + {name}"
 
 
 def measure_names() -> list[str]:
@@ -345,6 +367,9 @@ def get_measure(measure) -> Measure:
     if not isinstance(measure, str):
         raise InputError(f"`measure` must be a name; got {type(measure).__name__}.")
     key = measure.strip().lower().replace("-", "_").replace(" ", "_")
+    if key in _MISLEADING:
+        raise InputError(f"measure {measure!r} is not one of ours: {_MISLEADING[key]}",
+                         hint=f"choose one of {measure_names()}.")
     key = _ALIASES.get(key, key)
     if key not in MEASURES:
         raise InputError(f"unknown measure {measure!r}; choose one of {measure_names()}.")

@@ -25,6 +25,7 @@ from .dissimilarity import Dissimilarity
 from .eigen import (CORRECTIONS, ZERO_RTOL, corrected_gower, eigh_desc, flip_signs,
                     gower_operator, leading_eigen, smallest_eigenvalue)
 from .errors import DesignError, InputError
+from .measures import setting_name
 from .memory import check_memory
 from .results import ResultMixin
 
@@ -171,6 +172,11 @@ class Ordination(ResultMixin):
     def axis_label(self, axis) -> str:
         """``'PCoA1 (31.2 %)'``: an axis name with its share of the total, for plot titles."""
         name = self.scores.columns[axis] if isinstance(axis, (int, np.integer)) else str(axis)
+        rot = self.provenance.get("rotation") or {}
+        if rot.get("mixed") and name in list(self.scores.columns[: rot.get("dims", 2)]):
+            plane = self.explained.reindex(self.scores.columns[: rot.get("dims", 2)]).sum()
+            return (f"{name}, rotated {abs(rot['angle']):.0f}\u00b0 (the plane holds "
+                    f"{100 * float(plane):.1f} %)")
         if name in self.explained.index:
             return f"{name} ({100 * float(self.explained[name]):.1f} %)"
         return name
@@ -428,6 +434,10 @@ def correlation_scores(values: np.ndarray, scores: np.ndarray) -> np.ndarray:
 
 
 # ---------------------------------------------------------------------------- eigen tools
+_SPECTRUM_FOR_NOTE = 300   # samples up to which the leading-axes path also takes all
+                           # eigenvalues (values only, milliseconds) for its note
+
+
 def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordination:
     """Principal coordinates analysis (PCoA, classical scaling) of a dissimilarity.
 
@@ -502,6 +512,7 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
                      alternatives="Ask for the leading axes only with dims=..., or use a "
                                   "measure with a feature matrix (no n x n matrix needed).")
     total = d.total_ss()
+    spectrum = None                     # every eigenvalue, when known (for the notes)
     if d.has_features:
         if correction is not None:
             notes.append(f"the {d.measure} measure is Euclidean (it has a feature matrix): "
@@ -532,16 +543,23 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
                 prov["path"] = "squared distances as an operator (leading axes, ARPACK)"
             complete = False
             if correction is None and not d.properties.get("euclidean", False):
-                known = d.spectrum(compute=False)    # full spectrum, if already computed
-                lmin = (float(known[-1]) if known is not None
-                        else smallest_eigenvalue(G, tol=1e-3))  # for a note: 3 digits
-                if lmin < -ZERO_RTOL * max(values[0], 1e-300):
-                    notes.append(f"the smallest eigenvalue is {lmin:.4g} ({100 * -lmin / values[0]:.2g} "
-                                 "% of the largest): the measure is not Euclidean; only the "
-                                 f"{dims} leading axes were computed, so the share held by "
-                                 "negative eigenvalues is not known.")
+                # the full spectrum when known or cheap (values only), so that the note
+                # says the same share as every other note on this measure
+                known = d.spectrum(compute=n <= _SPECTRUM_FOR_NOTE)
+                if known is not None:
+                    spectrum = np.asarray(known, float)
+                else:
+                    lmin = smallest_eigenvalue(G, tol=1e-3)     # for a note: 3 digits
+                    if lmin < -ZERO_RTOL * max(values[0], 1e-300):
+                        notes.append(
+                            f"{setting_name(d.measure, d.provenance.get('transform'))!r} is "
+                            f"not Euclidean (smallest eigenvalue {lmin:.4g}, "
+                            f"{100 * -lmin / values[0]:.2g} % of the largest); with only "
+                            f"the {dims} leading axes computed, the share of the variation "
+                            "held by negative eigenvalues was not measured.")
     return _pcoa_result(d, values, vectors, total, complete=complete, dims=dims,
-                        correction=correction, notes=notes, provenance=prov)
+                        correction=correction, notes=notes, provenance=prov,
+                        spectrum=spectrum)
 
 
 def _feature_path(F: np.ndarray, dims: int | None) -> tuple[np.ndarray, np.ndarray]:
@@ -558,7 +576,7 @@ def _feature_path(F: np.ndarray, dims: int | None) -> tuple[np.ndarray, np.ndarr
 
 
 def _pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes,
-                 provenance) -> Ordination:
+                 provenance, spectrum=None) -> Ordination:
     n = d.n
     labels = _labels_index(d.labels)
     scale = max(float(np.max(np.abs(values))) if values.size else 0.0, 1e-300)
@@ -571,14 +589,16 @@ def _pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes
     eig = pd.Series(values, index=names, name="eigenvalue")
     explained = pd.Series(values / total if total > 0 else np.full(len(values), np.nan),
                           index=names, name="explained")
-    neg = values[values < -tol]
+    every = values if spectrum is None else spectrum
+    neg = every[every < -tol]
     negative_share = float(-neg.sum() / total) if (neg.size and total > 0) else 0.0
     if negative_share > 0:
+        name = setting_name(d.measure, d.provenance.get("transform"))
         notes = list(notes) + [
-            f"negative eigenvalues hold {100 * negative_share:.1f} % of the total (the positive "
-            f"axes together hold {100 * (1 + negative_share):.1f} %): the {d.measure} measure "
-            "is not Euclidean here; consider correction='lingoes' or 'cailliez', or a "
-            "Euclidean measure."]
+            f"negative eigenvalues hold {100 * negative_share:.1f} % of the variation of "
+            f"{name!r} (it is not Euclidean; the positive axes together hold "
+            f"{100 * (1 + negative_share):.1f} %), so no ordination shows all of it; "
+            "correction='lingoes' or 'cailliez', or a Euclidean measure, avoids it."]
     if n > 1 and k == 0:
         notes = list(notes) + ["no axis has a positive eigenvalue: all samples coincide."]
     provenance = dict(provenance, n_axes=k)

@@ -381,7 +381,8 @@ def _size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
             raise InputError(f"`shape_dims` must be between 1 and {limit} for these data "
                              f"({ev.size} shape coordinate(s), {n} samples); got {shape_dims}.")
         reason = (f"{k} shape dimension(s), as requested; they hold "
-                  f"{100 * ev[:k].sum() / shape_total:.1f} % of the shape inertia")
+                  f"{100 * ev[:k].sum() / shape_total:.1f} % of the variation in composition "
+                  "(shape inertia)")
         if k > cap:
             notes.append(f"{k} shape dimensions exceed floor((n - 2) / 3) = {cap}: adjusted "
                          "R^2 values become unstable with so many predictors.")
@@ -396,9 +397,11 @@ def _size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
     eig = var.eigenvalues()
     neg = negative_share(eig)
     if neg > 0.001:
+        from .measures import setting_name
         notes.append(f"negative eigenvalues hold {100 * neg:.1f} % of the variation of "
-                     f"{measure!r} (it is not Euclidean): the fractions are computed from "
-                     "traces, which stay exact, but a PCoA of this measure cannot show all of it.")
+                     f"{setting_name(measure, transform)!r} (it is not Euclidean): the "
+                     "fractions are computed from traces, which stay exact, but a PCoA of "
+                     "this measure cannot show all of it.")
     if row["shared"] < -0.01:
         notes.append(f"the shared fraction is negative ({100 * row['shared']:.1f} %): size and "
                      "shape act as suppressors of each other here; it is shown, not clipped.")

@@ -168,9 +168,10 @@ def default_dims(eigenvalues: np.ndarray, n: int, *, total: float | None = None,
     if k > cap:
         return cap, (f"{cap} shape dimensions: capped at floor((n - 2) / 3) = {cap} so that "
                      f"adjusted R^2 stays estimable; they hold {100 * share[cap - 1]:.1f} % of "
-                     f"the shape inertia (reaching {100 * target:.0f} % would take {k})")
+                     f"the variation in composition, the shape inertia (reaching "
+                     f"{100 * target:.0f} % would take {k})")
     return k, (f"{k} shape dimension(s): the fewest holding at least {100 * target:.0f} % of "
-               f"the shape inertia ({100 * share[k - 1]:.1f} %)")
+               f"the variation in composition (shape inertia: {100 * share[k - 1]:.1f} %)")
 
 
 # ---------------------------------------------------------------------------- fractions

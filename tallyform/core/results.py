@@ -44,8 +44,19 @@ class ResultMixin:
         items = "".join(f"<li>{html.escape(str(n))}</li>" for n in self.notes)
         return f"<ul class='tallyform-notes'>{items}</ul>"
 
+    def display_labels(self) -> dict:
+        """Labels of this result's own columns for display (the shared ones are in
+        :data:`tallyform.core.display.LABELS`); ``to_frame()`` keeps the programmatic names."""
+        return {}
+
+    def _frame_html(self, frame, fmt: str = "{:.4g}") -> str:
+        """A table of this result as shown: columns in words, p < 0.001, yes/no."""
+        from .display import display_frame
+        return display_frame(frame, rename=self.display_labels()).to_html(
+            float_format=fmt.format, na_rep="")
+
     def _repr_html_(self) -> str:
-        frame = self.to_frame().to_html(float_format="{:.4g}".format)
+        frame = self._frame_html(self.to_frame())
         return (f"<div><p><b>{html.escape(self._title())}</b></p>{frame}"
                 f"{self._notes_html()}</div>")
 

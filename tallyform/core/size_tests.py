@@ -17,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .abundance import require_absolute
+from .display import p_words
 from .design import factor_levels
 from .errors import DesignError, InputError, Location
 from .inference import check_option
@@ -104,7 +105,7 @@ class SizeTestResult(ResultMixin):
         ref = f" ({self.reference})" if self.method == "negbin" and self.reference else ""
         unit = f"; units: {self.units}" if self.units else ""
         return (f"Size test ({name}) of {self.measure} between levels of {self.group!r}: "
-                f"{sym} = {self.statistic:.4g} (df {df}), p = {self.pvalue:.4g}{ref}; "
+                f"{sym} = {self.statistic:.4g} (df {df}), {p_words(self.pvalue)}{ref}; "
                 f"{self.effect}{unit}")
 
 

@@ -441,8 +441,16 @@ TRANSFORMS: dict[str, Transform] = {
 """Canonical transformations by name; ``"power(a)"`` and ``"clr(...)"`` are parsed too."""
 
 _CALL = re.compile(r"^\s*([a-z_0-9]+)\s*(?:\((.*)\))?\s*$")
-_ALIASES = {"identity": "none", "root": "sqrt", "square_root": "sqrt", "log": "log1p",
-            "pa": "presence", "relative": "profile", "total": "profile"}
+_ALIASES = {"identity": "none", "root": "sqrt", "square_root": "sqrt",
+            "relative": "profile"}
+# spellings that mean something else elsewhere: an error that names our option
+_MISLEADING = {
+    "log": "'log' is ambiguous (log(x) is undefined at zero counts; we compute log(1 + x)): "
+           "write transform='log1p' for log(1 + x), or 'clr' for log-ratios.",
+    "pa": "write transform='presence' for presence/absence (1 where a taxon was counted).",
+    "total": "write transform='profile' to divide every sample by its total (relative "
+             "abundances).",
+}
 
 
 def transform_names() -> list[str]:
@@ -482,6 +490,10 @@ def get_transform(spec=None) -> Transform:
     m = _CALL.match(spec.strip().lower().replace("-", "_"))
     if not m:
         raise _unknown(spec)
+    if m.group(1) in _MISLEADING and m.group(2) is None:
+        raise InputError(f"transform {spec!r} is not one of ours: "
+                         f"{_MISLEADING[m.group(1)]}",
+                         hint=f"choose one of {transform_names()}.")
     base, args = _ALIASES.get(m.group(1), m.group(1)), m.group(2)
     if args is None:
         if base in TRANSFORMS:

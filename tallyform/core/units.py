@@ -38,7 +38,7 @@ from .design import as_samples
 from .errors import DesignError, InputError, Location
 
 __all__ = ["UnitLevel", "UnitPlan", "resolve_units", "unit_centroid_gower",
-           "aggregate_by_unit", "unit_blocks"]
+           "aggregate_by_unit", "unit_blocks", "suggest_blocks"]
 
 
 # ---------------------------------------------------------------------------- objects
@@ -484,3 +484,46 @@ def unit_centroid_gower(gower: np.ndarray, level: UnitLevel) -> np.ndarray:
     A /= level.sizes[None, :]
     out = A.T @ G @ A
     return (out + out.T) / 2
+
+
+def suggest_blocks(samples, group: str, units=None) -> str | None:
+    """A column that looks like the blocks of a randomised complete block design, or None.
+
+    A column qualifies when it is not the group nor a unit column, has at least 2 levels,
+    every one of its levels holds every level of ``group`` (complete blocks), the group
+    varies within each of its levels, and every unit lies inside one block (without
+    units nothing is suggested).
+    The blocks restrict the permutations and enter the size test as a factor; they are a
+    suggestion, named as such by whoever shows it (the Tests panel's default). Among
+    several, the one with the fewest levels is taken (ties: the first in the table).
+    """
+    frame = as_samples(samples)
+    if not group or group not in frame.columns:
+        return None
+    g = frame[group].astype(str).to_numpy()
+    n_groups = len(pd.unique(g))
+    if n_groups < 2:
+        return None
+    unit_cols = [] if units in (None, False) else (
+        [units] if isinstance(units, str) else [str(u) for u in units])
+    if not unit_cols:
+        return None                      # blocks are suggested only as groups of units
+    best = None
+    for col in frame.columns:
+        col = str(col)
+        if col == group or col in unit_cols or not _is_unit_like(frame[col]):
+            continue
+        b = frame[col].astype(str).to_numpy()
+        levels = pd.unique(b)
+        if not 2 <= len(levels) < len(b) / 2:
+            continue
+        per_block = pd.Series(g).groupby(b).nunique()
+        if int(per_block.min()) != n_groups:
+            continue                     # not complete: some block lacks a group
+        if unit_cols:
+            u = frame[unit_cols[0]].astype(str).to_numpy()
+            if int(pd.Series(b).groupby(u).nunique().max()) != 1:
+                continue                 # a unit spans blocks: not blocks of these units
+        if best is None or len(levels) < best[0]:
+            best = (len(levels), col)
+    return None if best is None else best[1]

@@ -58,6 +58,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from .display import p_words
 from .design import factor_levels
 from .errors import DesignError, Location
 from .inference import (align_labels, align_samples, block_labels, check_dissimilarity,
@@ -162,7 +163,7 @@ class WelchResult(ResultMixin):
         on = f"{len(self.groups)} groups of {self.group!r}" + (
             f", centroids of {self.units!r} units" if self.units else "")
         return (f"Welch-type test of equal centroids on {self.measure} ({on}): {what} = "
-                f"{self.statistic:.4g}, p = {self.pvalue:.4g} ({self.scheme})")
+                f"{self.statistic:.4g}, {p_words(self.pvalue)} ({self.scheme})")
 
     def as_permutation_test(self):
         """The same test as the engine's :class:`PermutationTest` (for generic displays)."""

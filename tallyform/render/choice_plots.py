@@ -7,6 +7,7 @@ from __future__ import annotations
 import numpy as np
 import plotly.graph_objects as go
 
+from ..core.display import p_words
 from ..core.choice_adjusted import ChoiceAdjustedResult
 from ..core.errors import InputError
 from .style import NEUTRAL, OBSERVED, OKABE_ITO, base_layout, sizes, subtitle
@@ -53,12 +54,12 @@ def choice_adjusted_figure(result, *, alpha: float = 0.05,
         x=raw, y=names, mode="markers", name="own p-value",
         marker={"color": "white", "size": sz["marker"] + 3,
                 "line": {"color": RAW, "width": 2}, "symbol": "circle"},
-        hovertext=[f"<b>{n}</b><br>own p = {p:.3g}" for n, p in zip(names, raw)],
+        hovertext=[f"<b>{n}</b><br>own {p_words(p)}" for n, p in zip(names, raw)],
         hovertemplate="%{hovertext}<extra></extra>", meta={"role": "raw"}))
     fig.add_trace(go.Scatter(
         x=adj, y=names, mode="markers", name=f"adjusted for {k} choices",
         marker={"color": ADJUSTED, "size": sz["marker"] + 3, "symbol": "circle"},
-        hovertext=[f"<b>{n}</b><br>adjusted p = {p:.3g} ({k} choices)"
+        hovertext=[f"<b>{n}</b><br>adjusted {p_words(p)} ({k} choices)"
                    for n, p in zip(names, adj)],
         hovertemplate="%{hovertext}<extra></extra>", meta={"role": "adjusted"}))
     fig.add_vline(x=alpha, line={"color": OBSERVED, "width": 2, "dash": "dash"})

@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 import plotly.graph_objects as go
 
+from ..core.display import p_words
 from ..core.audit import AuditResult
 from ..core.dispersion import DispersionResult
 from ..core.errors import DesignError, InputError
@@ -84,7 +85,7 @@ def totals_figure(table, group, *, log: bool = True, per_effort: bool = False,
     >>> import tallyform as tly
     >>> fig = totals_figure(tly.demo("mesocosm"), "treatment")
     >>> [t.name for t in fig.data]
-    ['control', 'nutrient_high', 'nutrient_low']
+    ['control', 'nutrient_low', 'nutrient_high']
     """
     from ..core.size_tests import size_measure
     tab = table if isinstance(table, CommunityTable) else as_table(table)
@@ -241,15 +242,15 @@ def null_distribution_figure(result, *, term: str | None = None,
     fig.add_trace(go.Scatter(
         x=[stat], y=[0], mode="markers", name=f"observed {name} = {stat:.4g}",
         marker={"color": OBSERVED, "symbol": "triangle-up", "size": sz["marker"] + 7},
-        hovertext=[f"observed {name} = {stat:.4g}<br>p = {p:.3g} ({perms})"],
+        hovertext=[f"observed {name} = {stat:.4g}<br>{p_words(p)} ({perms})"],
         hovertemplate="%{hovertext}<extra></extra>", cliponaxis=False,
         meta={"role": "observed", "statistic": stat, "pvalue": p}))
     fig.add_vline(x=stat, line={"color": OBSERVED, "width": sz["line"], "dash": "dash"},
-                  annotation={"text": f"observed {stat:.4g}<br>p = {p:.3g}",
+                  annotation={"text": f"observed {stat:.4g}<br>{p_words(p)}",
                               "font": {"size": sz["font"]}, "xanchor": "left", "align": "left",
                               "bgcolor": "rgba(255,255,255,0.8)"},
                   annotation_position="top right")
-    notes = [f"p = {p:.3g} from {perms}"]
+    notes = [f"{p_words(p)} from {perms}"]
     notes += [part for ln in lines for part in textwrap.wrap(ln, 90)]
     base_layout(fig, title=subtitle(what, *notes), legend_title="permutation test",
                 present=present, height=500)
@@ -271,7 +272,7 @@ def dispersion_figure(result, *, present: bool = False) -> go.Figure:
     >>> q = tly.dispersion_test(tly.dissimilarity(tab, "bray_curtis"),
     ...                         tab.samples["treatment"], n_permutations=99, rng=1)
     >>> [t.name for t in dispersion_figure(q).data]
-    ['control', 'nutrient_high', 'nutrient_low', 'group mean']
+    ['control', 'nutrient_low', 'nutrient_high', 'group mean']
     """
     if not isinstance(result, DispersionResult):
         raise InputError("`result` must be a DispersionResult (from tly.dispersion_test); got "
@@ -296,7 +297,7 @@ def dispersion_figure(result, *, present: bool = False) -> go.Figure:
     title = subtitle(f"Spread of each group: distances to the group {result.centre} "
                      f"({result.measure})",
                      f"F = {result.statistic:.4g} on {result.df[0]} and {result.df[1]} df, "
-                     f"p = {result.pvalue:.3g} ({result.scheme})")
+                     f"{p_words(result.pvalue)} ({result.scheme})")
     base_layout(fig, title=title, legend_title=str(groups.name), present=present, height=540)
     fig.update_yaxes(title_text=f"{unit} ({result.measure} units)", rangemode="tozero")
     fig.update_xaxes(title_text=str(groups.name))

@@ -224,9 +224,9 @@ def _partition_words(spec, results, measure) -> list[str]:
     k = s.shape_dims if s is not None else None
     dims = (f"the {spec.shape_dims} leading principal coordinates" if spec.shape_dims
             else (f"the {k} leading principal coordinates (the fewest holding 75 % of the "
-                  "shape inertia, at most (n - 2) / 3)" if k else
-                  "the fewest leading principal coordinates holding 75 % of the shape "
-                  "inertia (at most (n - 2) / 3)"))
+                  "variation in composition, at most (n - 2) / 3)" if k else
+                  "the fewest leading principal coordinates holding 75 % of the "
+                  "variation in composition (at most (n - 2) / 3)"))
     out = [
         "To separate differences in total abundance (size) from differences in composition "
         "(shape), the variation of these dissimilarities was partitioned by distance-based "
@@ -370,8 +370,8 @@ def _tests_words(spec, results) -> list[str]:
         f"{skipped}Differences between {spec.group} groups were tested "
         f"{'separately ' if size else ''}{size}"
         f"in shape, by the Welch-type test of {measure_phrase(spec.shape_measure)}, which "
-        "allows each group its own spread (Alekseyenko 2016; Hamidi et al. 2019), "
-        f"{rare}{',' if rare else ''} ({perms}), and in spread, by the test of homogeneity "
+        "allows each group its own spread (Alekseyenko 2016; Hamidi et al. 2019)"
+        f"{rare} ({perms}), and in spread, by the test of homogeneity "
         f"of multivariate dispersions (distances to the group {centre}, scaled by "
         "sqrt(n_g / (n_g - 1)) so that groups of different sizes with equal spread have "
         f"equal expected distances{noise}; Anderson 2006). PERMANOVA (Anderson 2001) of the "

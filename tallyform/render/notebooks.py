@@ -29,6 +29,17 @@ def notebook_names() -> list[str]:
     return sorted(p.name for p in notebook_dir().glob("[0-9][0-9]_*.ipynb"))
 
 
+def _local_kernel_manager(folder):
+    """A kernel reached through local sockets (IPC files in ``folder``) where the system has
+    them: no network port, so nothing to encrypt and no warning about it. None elsewhere
+    (nbclient's default, TCP on 127.0.0.1)."""
+    if os.name != "posix":
+        return None
+    from jupyter_client.manager import KernelManager
+    return KernelManager(kernel_name="python3", transport="ipc",
+                         ip=str(Path(folder) / "kernel"))
+
+
 def execute_notebook(source, target, *, cwd=None, timeout: int = 900, progress=None):
     """Execute ``source`` top to bottom (nbclient) and write the executed copy to ``target``.
 
@@ -42,9 +53,10 @@ def execute_notebook(source, target, *, cwd=None, timeout: int = 900, progress=N
     total = sum(1 for c in nb.cells if c.cell_type == "code")
     with tempfile.TemporaryDirectory(prefix="tallyform-nb-") as tmp:
         work = Path(cwd) if cwd is not None else Path(tmp)
+        km = _local_kernel_manager(tmp)
         client = NotebookClient(nb, timeout=timeout, kernel_name="python3",
                                 resources={"metadata": {"path": str(work)}},
-                                record_timing=False)
+                                record_timing=False, km=km)
         done = 0
         if progress is not None:
             progress(0, total)
@@ -54,14 +66,18 @@ def execute_notebook(source, target, *, cwd=None, timeout: int = 900, progress=N
         env["PYTHONPATH"] = os.pathsep.join(p for p in (pkg_parent, env.get("PYTHONPATH"))
                                             if p)
         env["TALLYFORM_PROGRESS"] = "0"     # a shared notebook keeps results, not bars
-        with client.setup_kernel(env=env):
-            for index, cell in enumerate(nb.cells):
-                if cell.cell_type != "code":
-                    continue
-                client.execute_cell(cell, index)
-                done += 1
-                if progress is not None:
-                    progress(done, total)
+        try:
+            with client.setup_kernel(env=env):
+                for index, cell in enumerate(nb.cells):
+                    if cell.cell_type != "code":
+                        continue
+                    client.execute_cell(cell, index)
+                    done += 1
+                    if progress is not None:
+                        progress(done, total)
+        finally:                  # a manager given to nbclient is ours to stop
+            if km is not None and km.has_kernel:
+                km.shutdown_kernel(now=False)
     write_text_atomic(target, nbformat.writes(nb))
     return Path(target)
 

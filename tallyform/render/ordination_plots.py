@@ -170,7 +170,7 @@ def ordination_figure(ordination, *, group=None, symbol=None, ellipses=None, axe
     >>> o = tly.pcoa(tly.dissimilarity(tab, "bray_curtis"))
     >>> fig = ordination_figure(o, group=tab.samples["treatment"])
     >>> [t.name for t in fig.data]
-    ['control', 'nutrient_high', 'nutrient_low']
+    ['control', 'nutrient_low', 'nutrient_high']
     """
     o = _check_ordination(ordination)
     sz = sizes(present)

@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 import plotly.graph_objects as go
 
+from ..core.display import p_words
 from ..core.errors import InputError
 from ..core.partition import FRACTIONS, SizeShapeResult
 from ..core.scan import ScanResult
@@ -149,7 +150,7 @@ def _describe(results) -> tuple[str, list[str]]:
         return (f"Size and shape of {setting_label(first.measure, first.transform)} "
                 f"(n = {first.n})",
                 [f"size: {size_label}; shape: {first.shape_dims} {first.shape} dimension(s) "
-                 f"({100 * first.shape_inertia_share:.0f} % of the shape inertia)"])
+                 f"({100 * first.shape_inertia_share:.0f} % of the variation in composition)"])
     return (f"Size and shape over {len(items)} settings",
             [f"size: {size_label}; shape: {first.shape}"])
 
@@ -212,7 +213,7 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
                             f"{percent(nhi)})")
             t = r["tests"]
             if t is not None and f in t.index and np.isfinite(t.loc[f, "pvalue"]):
-                bits.append(f"Monte Carlo test: p = {t.loc[f, 'pvalue']:.3g} "
+                bits.append(f"Monte Carlo test: {p_words(t.loc[f, 'pvalue'])} "
                             f"({int(t.loc[f, 'n_simulations'])} simulated tables)")
             if r["error"]:
                 bits.append(r["error"])

@@ -14,7 +14,9 @@ from pathlib import Path
 
 import pandas as pd
 
+from ..core.display import display_frame, p_words
 from ..core.analysis import AnalysisResults, run
+from ..core.errors import InputError
 from ..core.fileio import write_text_atomic
 from ..core.spec import AnalysisSpec
 from .methods import methods_references, methods_text
@@ -43,10 +45,12 @@ def _esc(x) -> str:
     return html.escape(str(x), quote=True)
 
 
-def _table(frame: pd.DataFrame, *, floatfmt="{:.4g}", max_rows: int | None = None) -> str:
+def _table(frame: pd.DataFrame, *, floatfmt="{:.4g}", max_rows: int | None = None,
+           rename: dict | None = None) -> str:
     if frame is None:
         return ""
     f = frame if max_rows is None else frame.head(max_rows)
+    f = display_frame(f, rename=rename)          # columns in words, p < 0.001, yes/no
     text = f.to_html(escape=True, float_format=floatfmt.format, border=0, na_rep="")
     if max_rows is not None and len(frame) > max_rows:
         text += f"<p>First {max_rows} of {len(frame)} rows (all rows in the CSV/XLSX tables).</p>"
@@ -135,6 +139,7 @@ def _data_section(pg: _Page) -> str:
         if units.plan is not None and not units.plan.independent:
             from ..core.analysis import units_frame
             body += _table(units_frame(units))
+    body += _outliers_html(res.outliers)
     if res.totals is not None:
         body += f"<h3>{_esc(totals_heading(tab, group))}</h3>" + _table(res.totals)
         body += pg.fig(lambda: pg.plots.totals_figure(tab, group, log=True))
@@ -143,6 +148,17 @@ def _data_section(pg: _Page) -> str:
                  "</h3>" + _table(res.totals_per_effort))
         body += pg.fig(lambda: pg.plots.totals_figure(tab, group, log=True, per_effort=True))
     return body
+
+
+def _outliers_html(outliers) -> str:
+    """Samples that stand out: the sentence, and the flagged rows (none: the sentence)."""
+    if outliers is None:
+        return ""
+    cls = "reading flag" if outliers.flagged else "reading"
+    body = f"<h3>Samples that stand out</h3><p class='{cls}'>{_esc(outliers.summary)}</p>"
+    if outliers.flagged:
+        body += _table(outliers.table.loc[outliers.flagged])
+    return body + _notes(outliers)
 
 
 def _partition_reading(s) -> str:
@@ -169,7 +185,7 @@ def _partition_reading(s) -> str:
                    f"{_pct(null.loc['shape_only', 'null_high'])} %")
         sims = f" on {int(n_sim)} simulated tables" if n_sim is not None else ""
         text += (f" Monte Carlo test of the shape-only share against one composition for all "
-                 f"samples (shape axes re-derived on each of them){sims}: p = {p:.3g}{rng}.")
+                 f"samples (shape axes re-derived on each of them){sims}: {p_words(p)}{rng}.")
     return text
 
 
@@ -220,7 +236,7 @@ def _tests_section(pg: _Page) -> str:
     body = f"<p class='reading'>{_esc(c.reading)}</p>" + _table(c.to_frame())
     if c.size is not None:
         body += (f"<h3>Size: total abundance</h3><p>{_esc(size_test_words(c.size))}; "
-                 f"p = {c.size.pvalue:.4g}.</p>" + _table(c.size.to_frame()) + _notes(c.size))
+                 f"{p_words(c.size.pvalue)}.</p>" + _table(c.size.to_frame()) + _notes(c.size))
     else:
         body += f"<h3>Size</h3><p>Not tested: {_esc(c.size_skipped)}</p>"
     body += f"<h3>Shape: {_esc(test_label(c, 'shape'))}</h3>"
@@ -267,10 +283,10 @@ def _taxa_section(pg: _Page) -> str:
             f"{_esc(how)}.</p>" + _notes(k))
     body += "<h3>Shape: which taxa make the composition differ</h3>"
     body += pg.fig(lambda: k.figure("shape"))
-    body += _table(k.to_frame(), max_rows=25)
+    body += _table(k.to_frame(), max_rows=25, rename=k.display_labels())
     body += "<h3>Size: which taxa carry the change in abundance</h3>"
     body += pg.fig(lambda: k.figure("size"))
-    body += _table(k.size_frame(), max_rows=25)
+    body += _table(k.size_frame(), max_rows=25, rename=k.display_labels())
     return body
 
 
@@ -346,8 +362,22 @@ def report_html(results: AnalysisResults, *, title: str | None = None) -> str:
 
 
 def write_report(results: AnalysisResults, path, *, title: str | None = None) -> Path:
-    """Write the HTML report of ``results`` to ``path`` (atomic)."""
+    """Write the HTML report of ``results`` to ``path`` (atomic); a missing folder is
+    created, as ``tly.plots.save`` does."""
+    _make_folder(Path(path).parent)
     return write_text_atomic(path, report_html(results, title=title))
+
+
+def _make_folder(folder: Path) -> None:
+    """Create ``folder`` (and its parents); a path in the way is named, not a traceback."""
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except (FileExistsError, NotADirectoryError):
+        raise InputError(f"cannot create the folder {str(folder)!r}: a file of that name is "
+                         "in the way.", hint="Choose another path for the report.") from None
+    except OSError as err:
+        raise InputError(f"cannot create the folder {str(folder)!r}: {err.strerror}.",
+                         hint="Choose a folder you can write to.") from None
 
 
 @reports_progress("Report")
@@ -361,7 +391,7 @@ def report(table, spec: AnalysisSpec | None = None, path="report.html", *,
     spec : AnalysisSpec, dict or JSON text, optional
         Default: an AnalysisSpec with default choices (give at least ``group`` for the tests).
     path : str or path
-        The HTML file (written atomically).
+        The HTML file (written atomically; missing folders are created).
 
     Returns
     -------

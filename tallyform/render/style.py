@@ -11,9 +11,10 @@ __all__ = ["OKABE_ITO", "FRACTION_COLOURS", "FRACTION_LABELS", "FONT_SIZE", "TIT
            "PRESENT_FONT_SIZE", "SYMBOLS", "NEUTRAL", "MARKER_EDGE", "OBSERVED", "EIGEN_COLOURS",
            "group_colours", "group_levels", "sizes", "base_layout", "subtitle"]
 
-# Colour-blind-safe qualitative palette (Okabe & Ito 2008), for groups.
-OKABE_ITO = ["#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7",
-             "#000000"]
+# Colour-blind-safe qualitative palette (Okabe & Ito 2008), for groups. The yellow is hard
+# to see on white, so it comes last (a ninth group cycles back to orange).
+OKABE_ITO = ["#E69F00", "#56B4E9", "#009E73", "#0072B2", "#D55E00", "#CC79A7", "#000000",
+             "#F0E442"]
 
 # One accent per partition fraction, the same in every figure (legend always shown).
 FRACTION_COLOURS = {
@@ -50,17 +51,15 @@ def sizes(present: bool = False) -> dict:
 
 
 def group_levels(values) -> list[str]:
-    """Level order used for colours: categorical order, else natural sort (as the design).
-
-    The same rule as :func:`tallyform.core.design.factor_levels`, so a group has the same
-    colour in every figure, whichever result it comes from.
+    """Level order of figures: categorical order, else the order of the file (first
+    appearance), the order of the totals tables (``tab.totals_by``), so that a table and
+    the figure beside it list the groups alike; colours follow this order everywhere.
     """
-    from ..core.design import factor_levels
     s = values if isinstance(values, pd.Series) else pd.Series(list(values), dtype=object)
     s = s.dropna()
-    if not isinstance(s.dtype, pd.CategoricalDtype):
-        s = s.astype(str)
-    return [str(x) for x in factor_levels(s)]
+    if isinstance(s.dtype, pd.CategoricalDtype):
+        return [str(c) for c in s.cat.categories if (s == c).any()]
+    return [str(x) for x in pd.unique(s.astype(str))]
 
 
 def group_colours(levels) -> dict:

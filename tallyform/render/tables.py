@@ -49,7 +49,8 @@ def _safe_index(idx: pd.Index) -> pd.Index:
 
 def write_csv(frame: pd.DataFrame, path) -> Path:
     """One table as UTF-8 CSV (atomic)."""
-    text = safe_frame(frame).to_csv(lineterminator="\n")
+    plain = isinstance(frame.index, pd.RangeIndex) and frame.index.name is None
+    text = safe_frame(frame).to_csv(lineterminator="\n", index=not plain)  # no bare 0..n-1
     with atomic_write(path, "w") as fh:
         fh.write(text)
     return Path(path)

@@ -10,10 +10,11 @@ import importlib
 
 _WHERE = {"explore": "dashboard", "Dashboard": "dashboard", "TAB_TITLES": "dashboard",
           "DataPanel": "data_panel", "ReportPanel": "report_panel",
-          "ShapePanel": "shape_panel", "TestsPanel": "tests_panel"}
+          "ShapePanel": "shape_panel", "TestsPanel": "tests_panel",
+          "ComparePanel": "compare_panel"}
 
 __all__ = ["explore", "Dashboard", "DataPanel", "ShapePanel", "TestsPanel", "ReportPanel",
-           "TAB_TITLES"]
+           "ComparePanel", "TAB_TITLES"]
 
 
 def __getattr__(name):

@@ -15,7 +15,8 @@ import ipywidgets as widgets
 from ..core.errors import Cancelled, TallyformError
 
 __all__ = ["Ref", "Call", "literal", "given", "transform_code", "error_text", "MessageArea",
-           "NotesArea", "copy_figure", "new_figure_widget", "plots", "html_table",
+           "NotesArea", "copy_figure", "new_figure_widget", "figure_widths", "fit_width", "plots",
+           "html_table",
            "LABEL_STYLE", "TABLE"]
 
 TABLE = "tab"   # the variable name the reproduced code gives the table
@@ -188,6 +189,9 @@ def copy_figure(target, fig) -> None:
     written (keys of the previous figure that ``fig`` lacks are reset), which skips
     re-validating the whole template: about half the cost of a copy on the live path.
     """
+    fixed = getattr(target, "_tf_fixed", None)
+    if fixed:                        # the size given once the widget was shown
+        fig.update_layout(fixed)
     layout = fig.layout.to_plotly_json()
     template = layout.pop("template", None)
     same = template is not None and template == getattr(target, "_tf_template", None)
@@ -212,9 +216,41 @@ def new_figure_widget(css_class: str | None = None):
     return fw
 
 
+def fit_width(fw, width: int, *, legend_below: bool = False) -> None:
+    """Give a figure widget on screen a fixed width (px), in one relayout. Called when its
+    tab is shown: a figure first drawn in a hidden tab has plotly's default 700 px.
+    ``legend_below`` moves the legend under a narrow plot (styling only)."""
+    fixed = {"width": int(width)}
+    if legend_below:
+        fixed["legend"] = {"orientation": "h", "x": 0.0, "y": -0.25}
+    fw._tf_fixed = fixed                 # kept by every later copy_figure
+    with fw.batch_update():
+        fw.update_layout(fixed)
+
+
+def figure_widths(widths: dict) -> "widgets.HTML":
+    """A style giving figure widgets (by CSS class) a fixed width in px, so that two sit
+    side by side where the page is wide enough and wrap below otherwise; plotly sizes the
+    figure to it when the tab is shown (a width in the figure itself is not used: the
+    widget then skips that resize)."""
+    rules = "".join(f".{cls}{{width:{int(w)}px;flex:none;max-width:100%}}"
+                    for cls, w in widths.items())
+    return widgets.HTML(f"<style>{rules}</style>", layout=widgets.Layout(height="0px"))
+
+
 LABEL_STYLE = {"description_width": "110px"}   # room for "Permutations", "Shape measure"
 
 
 def html_table(frame, *, float_format="{:.4g}".format) -> str:
-    """A DataFrame as an HTML table for display (formatting only)."""
-    return frame.to_html(float_format=float_format, border=0, classes="tf-table")
+    """A DataFrame as an HTML table for display (formatting only: columns in words,
+    p < 0.001, yes/no)."""
+    from ..core.display import display_frame
+    return TABLE_STYLE + display_frame(frame).to_html(float_format=float_format, border=0,
+                                                      classes="tf-table", na_rep="")
+
+
+# widgets' HTML is not styled by the notebook's table rules: a small style of our own
+TABLE_STYLE = ("<style>.tf-table{border-collapse:collapse;font-size:13px;margin:4px 0}"
+               ".tf-table th,.tf-table td{border:1px solid #d6d6d6;padding:2px 8px;"
+               "text-align:right}.tf-table thead th{background:#f1f3f5}"
+               ".tf-table tbody tr:nth-child(even){background:#fafafa}</style>")

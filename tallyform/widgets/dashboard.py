@@ -6,6 +6,7 @@ import html
 import ipywidgets as widgets
 
 from ..core.table import as_table
+from .compare_panel import ComparePanel
 from .data_panel import DataPanel
 from .report_panel import ReportPanel
 from .shape_panel import ShapePanel
@@ -13,11 +14,12 @@ from .tests_panel import TestsPanel
 
 __all__ = ["Dashboard", "explore", "TAB_TITLES"]
 
-TAB_TITLES = ("Data", "Size & shape", "Tests", "Report")
+TAB_TITLES = ("Data", "Size & shape", "Compare", "Tests", "Report")
 
 
 class Dashboard(widgets.VBox):
-    """Data, Size & shape, Tests and Report panels over one table.
+    """Data, Size & shape, Compare (two choices side by side), Tests and Report panels over
+    one table.
 
     The group chosen in one panel is the group of every panel (linked controls), and so
     is the seed; the sampling units chosen in the Tests panel are those the Size & shape
@@ -26,7 +28,7 @@ class Dashboard(widgets.VBox):
     Attributes
     ----------
     table : CommunityTable
-    data, shape, tests, report : the panels
+    data, shape, compare, tests, report : the panels
     tabs : Tab
     present : bool
         Projector mode (see :meth:`set_present`).
@@ -39,18 +41,23 @@ class Dashboard(widgets.VBox):
         self.data = DataPanel(self.table, group=group, core=core)
         self.shape = ShapePanel(self.table, group=self.data.group.value, core=core)
         self.tests = TestsPanel(self.table, group=self.data.group.value, core=core)
+        self.compare = ComparePanel(self.table, group=self.data.group.value, core=core)
         self.report = ReportPanel(self)
         self._links = [widgets.link((self.data.group, "value"), (self.shape.group, "value")),
+                       widgets.link((self.data.group, "value"), (self.compare.group, "value")),
                        widgets.link((self.data.group, "value"), (self.tests.group, "value")),
                        widgets.link((self.tests.seed, "value"), (self.shape.seed, "value"))]
         self.tests.units.observe(self._units_to_shape, names="value")
         self._units_to_shape()
-        self.tabs = widgets.Tab(children=[self.data, self.shape, self.tests, self.report],
+        self.tabs = widgets.Tab(children=[self.data, self.shape, self.compare, self.tests,
+                                          self.report],
                                 titles=TAB_TITLES)
         self.tabs.add_class("tf-tabs")
+        self.tabs.observe(self._tab_shown, names="selected_index")
+        src = getattr(self.table.origin, "file", None)
         self.header = widgets.HTML(
             f"<b>tallyform</b>: {self.table.n_samples} samples &times; "
-            f"{self.table.n_taxa} taxa (table {html.escape(self.table.fingerprint)})")
+            f"{self.table.n_taxa} taxa" + (f" from {html.escape(str(src))}" if src else ""))
         super().__init__([self.header, self.tabs])
         self.add_class("tf-dashboard")
         for panel in (self.data, self.shape, self.tests):
@@ -60,6 +67,13 @@ class Dashboard(widgets.VBox):
         self.report.refresh()
         if present:
             self.set_present(True)
+
+    def _tab_shown(self, change=None) -> None:
+        """Figures first drawn in a hidden tab take their width once shown."""
+        panel = self.tabs.children[self.tabs.selected_index or 0]
+        fit = getattr(panel, "fit_figures", None)
+        if fit is not None:
+            fit()
 
     def _units_to_shape(self, change=None) -> None:
         """The intervals leave out the units of the tests (the coarsest level if nested)."""
@@ -90,12 +104,12 @@ class Dashboard(widgets.VBox):
 
     @property
     def panels(self) -> tuple:
-        return (self.data, self.shape, self.tests, self.report)
+        return (self.data, self.shape, self.compare, self.tests, self.report)
 
     def set_present(self, on: bool = True) -> None:
         """Projector mode: large fonts, every control hidden but the exponent slider."""
         self.present = bool(on)
-        for panel in (self.data, self.shape, self.tests):
+        for panel in (self.data, self.shape, self.compare, self.tests):
             panel.set_present(self.present)
         for w in self.report.controls:
             w.layout.display = "none" if self.present else None

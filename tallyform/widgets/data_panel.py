@@ -13,6 +13,7 @@ import traitlets
 
 from .common import (TABLE, Call, MessageArea, Ref, copy_figure, given, html_table,
                      new_figure_widget, plots)
+from .help import add_help
 from .shape_panel import default_group, group_options
 
 __all__ = ["DataPanel"]
@@ -56,6 +57,8 @@ class DataPanel(widgets.VBox):
         if table.effort is None:
             self.per_effort.layout.display = "none"
         self.controls = [self.group, self.per_effort]
+        for w in self.controls:
+            add_help(w)
 
         self.facts = widgets.HTML()
         self.facts.add_class("tf-data-summary")
@@ -66,13 +69,16 @@ class DataPanel(widgets.VBox):
         self.meaning.layout.max_width = "640px"
         self.totals = widgets.HTML()
         self.totals.add_class("tf-totals-table")
+        self.outliers = widgets.HTML()
+        self.outliers.add_class("tf-outliers")
+        self.outlier_result = None
         self.totals_plot = new_figure_widget("tf-totals-plot")
         self.messages = MessageArea()
         super().__init__([
             widgets.HBox([self.facts, widgets.VBox([self.meaning, widgets.HBox(self.controls),
                                                     self.totals])],
                          layout=widgets.Layout(flex_flow="row wrap")),
-            self.messages, self.totals_plot])
+            self.outliers, self.messages, self.totals_plot])
         self.add_class("tf-panel-data")
 
         try:
@@ -94,11 +100,27 @@ class DataPanel(widgets.VBox):
             out.update(AnalysisSpec.options_of(self._table))
         return out
 
+    def _flag_outliers(self, column) -> None:
+        """Samples that stand out (``tly.outlier_samples``), compared within the group."""
+        call = Call("outlier_samples", (Ref(TABLE, self._table),),
+                    given(group=column or None))
+        self.calls["outliers"] = call
+        try:
+            self.outlier_result = call.run(self._core)
+        except Exception as err:         # no flags rather than no panel; say why
+            self.outlier_result = None
+            self.outliers.value = (f"<p style='color:#A33'>Outlier flags not computed: "
+                                   f"{html.escape(str(err))}</p>")
+            return
+        self.outliers.value = _outliers_html(self.outlier_result)
+
     def refresh(self, change=None) -> None:
-        """Totals by the chosen group: table and figure."""
+        """Totals by the chosen group: table and figure; samples that stand out."""
         self.error = None
         self.messages.clear()
         column = self.group.value
+        if hasattr(self._core, "outlier_samples"):
+            self._flag_outliers(column)
         if not column:
             self.calls.pop("totals", None)
             self.result = None
@@ -136,6 +158,19 @@ class DataPanel(widgets.VBox):
             w.layout.display = "none" if on or (w is self.per_effort
                                                  and self._table.effort is None) else None
         self.refresh()
+
+
+def _outliers_html(result) -> str:
+    """The sentence, and the flagged samples' rows (formatting only)."""
+    if not result.flagged:
+        return (f"<p class='tf-no-outliers' style='color:#555'>"
+                f"{html.escape(result.summary)}</p>")
+    rows = result.table.loc[result.flagged, ["total", "times_median_total", "total_score",
+                                             "profile_score", "why"]]
+    return ("<div class='tf-outlier-flags' style='border-left:4px solid #D55E00;"
+            "padding:2px 10px;margin:6px 0;max-width:900px'>"
+            f"<p><b>Samples that stand out</b>: {html.escape(result.summary)}</p>"
+            f"{html_table(rows, float_format='{:.3g}'.format)}</div>")
 
 
 def _kind(table) -> str:

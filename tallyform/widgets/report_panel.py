@@ -8,12 +8,15 @@ all (and the steps the dashboard does not show: scan, PERMANOVA, audit).
 from __future__ import annotations
 
 import html
+import os
+import threading
 import warnings
 from pathlib import Path
 
 import ipywidgets as widgets
 
 from .common import TABLE, MessageArea, literal
+from .help import add_help
 from .tests_panel import strata_frame
 
 __all__ = ["ReportPanel", "reproduce_code", "dashboard_spec", "spec_code"]
@@ -21,7 +24,7 @@ __all__ = ["ReportPanel", "reproduce_code", "dashboard_spec", "spec_code"]
 # variable names in the reproduced code, by core function
 _NAMES = {"size_shape": "s", "pcoa": "o", "ellipses": "e", "group": "groups",
           "compare_groups": "c", "pairwise_permanova": "w", "taxon_contributions": "k",
-          "totals_by": "totals", "summary": "facts"}
+          "totals_by": "totals", "summary": "facts", "outlier_samples": "flags"}
 
 
 def dashboard_spec(dashboard):
@@ -45,17 +48,18 @@ def spec_code(spec) -> str:
 
 def reproduce_code(dashboard, spec=None) -> str:
     """Python that recomputes what the dashboard shows, one core call per line."""
+    from ..core.reproduce import _read_lines
     tab = dashboard.table
     spec = dashboard_spec(dashboard) if spec is None else spec
-    origin = f"read from {tab.origin.file}; " if getattr(tab.origin, "file", None) else ""
-    lines = ["import tallyform as tly", "",
-             f"{TABLE} = ...  # the CommunityTable given to tly.explore ({origin}"
-             f"fingerprint {tab.fingerprint})",
+    read, _ = _read_lines(spec, tab)          # reads the data first, as spec.code() does
+    lines = ["import tallyform as tly", "", *read,
+             f"# the table analysed: {tab.n_samples} samples x {tab.n_taxa} taxa "
+             f"(tab.fingerprint == {tab.fingerprint!r})",
              f"spec = {spec_code(spec)}",
              f"# results = tly.run(spec, {TABLE})  # every step at once, scan and audit too",
              "", "# What the dashboard shows, call by call", "# Data"]
     data = dashboard.data.calls
-    for key in ("summary", "totals"):
+    for key in ("summary", "totals", "outliers"):
         if key in data:
             lines.append(f"{_NAMES[data[key].func]} = {data[key].code()}")
     lines += ["", "# Size & shape"]
@@ -111,20 +115,102 @@ class ReportPanel(widgets.VBox):
         self.static = widgets.Checkbox(value=False, indent=False,
                                        description="also PNG and SVG (needs Chromium)")
         self.static.add_class("tf-export-static")
+        self.report_button = widgets.Button(description="Write report.html", icon="file",
+                                            button_style="primary",
+                                            layout=widgets.Layout(width="auto"))
+        self.report_button.add_class("tf-report-button")
+        self.report_progress = widgets.IntProgress(value=0, min=0, max=100,
+                                                   layout=widgets.Layout(width="160px"))
+        self.report_progress.add_class("tf-report-progress")
+        self.report_progress.layout.display = "none"
+        self.report_state = widgets.HTML()
+        self.report_state.add_class("tf-report-state")
+        self.report_path: Path | None = None
+        self.report_files: dict = {}
+        self._report_thread: threading.Thread | None = None
         self.export_button = widgets.Button(description="Export figures and tables",
-                                            icon="download")
+                                            icon="download",
+                                            layout=widgets.Layout(width="auto"))
         self.export_button.add_class("tf-export-button")
         self.export_state = widgets.HTML()
         self.export_state.add_class("tf-export-state")
         self.messages = MessageArea()
-        self.controls = [self.folder, self.static, self.export_button]
+        self.controls = [self.folder, self.static, self.report_button, self.export_button]
+        for w in self.controls:
+            add_help(w)
         super().__init__([
-            widgets.HTML("<b>Reproduce this</b>: the core calls behind what is shown"),
+            widgets.HTML("<b>Report</b>: the same self-contained report.html as "
+                         "<code>tly.report</code> for the current choices, with its tables, "
+                         "settings and methods"),
+            widgets.HBox([self.folder, self.report_button, self.report_progress]),
+            self.report_state,
+            widgets.HTML("<b>Reproduce this</b>: reads the data, then the core calls behind "
+                         "what is shown"),
             self.reproduce,
             widgets.HTML("<b>Settings</b> (an AnalysisSpec, JSON)"), self.spec_view,
-            widgets.HBox(self.controls), self.export_state, self.messages])
+            widgets.HBox([self.static, self.export_button]), self.export_state,
+            self.messages])
         self.add_class("tf-panel-report")
         self.export_button.on_click(lambda _: self.export())
+        self.report_button.on_click(lambda _: self.write_report())
+
+    # ------------------------------------------------------------------ the report
+    def write_report(self, folder=None, *, block: bool = False) -> None:
+        """Run the current spec (``tly.run``) and write what ``tly.write_outputs`` writes:
+        report.html (the very report of ``tly.report``), tables, spec.json, methods.txt.
+
+        Runs in a background thread with a progress bar; ``block=True`` waits. The path is
+        shown when done (``report_path``).
+        """
+        if self._report_thread is not None and self._report_thread.is_alive():
+            return
+        self.refresh()
+        out = Path(self.folder.value if folder is None else folder).expanduser()
+        spec, table = self.spec, self._dash.table
+        self.report_path, self.report_files = None, {}
+        if spec is None:
+            self.messages.show_error(self.error)
+            return
+        self.report_button.disabled = True
+        self.report_progress.value = 0
+        self.report_progress.layout.display = None
+        self.report_state.value = "running every step of the analysis..."
+
+        def progress(done, total):
+            if total > 0:
+                self.report_progress.value = min(100, int(100 * done / total))
+
+        def work():
+            from ..render.report import write_outputs
+            from ..core.analysis import run
+            try:
+                results = run(spec, table, progress=progress)
+                files = write_outputs(results, out)
+            except Exception as err:      # shown in the panel, never a traceback
+                self.messages.show_error(err)
+                self.report_state.value = ""
+            else:
+                self.report_files = files
+                self.report_path = Path(files["report"])
+                self.report_state.value = (
+                    "Wrote <a class='tf-report-link' href='" + html.escape(
+                        _link(self.report_path)) + "' target='_blank'><code>"
+                    + html.escape(str(self.report_path)) + "</code></a> with tables, "
+                    "spec.json and methods.txt beside it.")
+            finally:
+                self.report_button.disabled = False
+                self.report_progress.value = 100
+        self._report_thread = threading.Thread(target=work, name="tallyform-report",
+                                               daemon=True)
+        self._report_thread.start()
+        if block:
+            self._report_thread.join()
+
+    def wait_report(self, timeout: float | None = None) -> bool:
+        """Wait for the report being written; True when done."""
+        if self._report_thread is not None:
+            self._report_thread.join(timeout)
+        return self._report_thread is None or not self._report_thread.is_alive()
 
     def refresh(self, change=None) -> None:
         """Rebuild the spec and the code from the panels' current state."""
@@ -186,9 +272,14 @@ class ReportPanel(widgets.VBox):
     def _figures(self):
         import plotly.graph_objects as go
         d = self._dash
+        kind = type(d.tests.result).__name__
+        names = (("shape_test", "spread_test", "permanova_reference")
+                 if kind == "ComparisonResult" else
+                 ("taxa_shape", "taxa_size", "tests_other")
+                 if kind == "TaxonContributions" else ("tests", "tests_b", "tests_c"))
         figs = [("totals", d.data.totals_plot), ("partition", d.shape.partition_plot),
-                ("ordination", d.shape.ordination_plot), ("tests", d.tests.plot),
-                ("tests_2", d.tests.plot2), ("tests_3", d.tests.plot3)]
+                ("ordination", d.shape.ordination_plot)] + list(zip(
+                    names, (d.tests.plot, d.tests.plot2, d.tests.plot3)))
         return [(name, go.Figure(fw)) for name, fw in figs if len(fw.data)]
 
     def _tables(self) -> dict:
@@ -227,6 +318,15 @@ class ReportPanel(widgets.VBox):
             out["taxa_shape"] = r.to_frame()
             out["taxa_size"] = r.size_frame()
         return out
+
+
+def _link(path: Path) -> str:
+    """A link JupyterLab opens: ``files/<path relative to the server's folder>``."""
+    try:
+        rel = os.path.relpath(path.resolve(), Path.cwd())
+    except ValueError:
+        rel = str(path)
+    return "files/" + rel.replace(os.sep, "/") if not rel.startswith("..") else str(path)
 
 
 def _save_figure(fig, stem: Path, formats):

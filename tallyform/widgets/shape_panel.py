@@ -27,9 +27,12 @@ import traitlets
 from ..core.ellipses import describe as describe_ellipse
 from ..core.measures import MEASURES
 from ..core.partition import SHAPE_OPTIONS, SIZE_OPTIONS
+from ..core.procrustes import align_ordination
 from ..core.transforms import TRANSFORMS
 from .background import SettledRunner
+from .help import add_help, exponent_words, transform_words
 from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, error_text,
+                     figure_widths, fit_width,
                      given, new_figure_widget, plots, transform_code)
 
 __all__ = ["ShapePanel", "LIVE_BUDGET", "POWER", "group_options", "INTERVAL_CHOICES",
@@ -48,6 +51,9 @@ ELLIPSE_KINDS = ("confidence", "prediction", "data")      # quick enough for the
 ELLIPSE_LEVEL = 0.95
 INTERVAL_CHOICES = (0, 199, 999)   # resamples of the share intervals (0: none)
 SETTLE_DELAY = 0.5                 # seconds of quiet before the intervals start
+PARTITION_WIDTH = 370             # px: side by side on a 970 px screen (754 px of
+                                   # notebook with the side bar closed), wrapped below
+ORDINATION_WIDTH = 380
 
 
 def ellipse_options(extra: str | None = None) -> list[tuple[str, object]]:
@@ -62,7 +68,8 @@ def _quiet(done, total) -> None:
 
 def transform_options() -> list[tuple[str, str]]:
     """Dropdown options: the exponent slider, then the named transforms it cannot reach."""
-    named = [(t.label, name) for name, t in TRANSFORMS.items() if name not in _POWER_FAMILY]
+    named = [(transform_words(name), name) for name in TRANSFORMS
+             if name not in _POWER_FAMILY]
     return [("power (exponent slider)", POWER)] + named
 
 
@@ -115,6 +122,10 @@ class ShapePanel(widgets.VBox):
     interval_state : HTML
         "intervals: computing", what was drawn, or why there are none.
     ordination, ellipse_set : Ordination, EllipseSet or None
+    shown_ordination : Ordination or None
+        The ordination as drawn: its axes rotated/reflected onto the previous view
+        (``tallyform.core.procrustes.align_ordination``), so points move smoothly when a
+        control changes; the ellipses are computed on it.
     partition_plot, ordination_plot : plotly FigureWidget
     messages : MessageArea
         The error that stopped an update (empty when all is well).
@@ -137,6 +148,8 @@ class ShapePanel(widgets.VBox):
         self._hold = False
         self._done: dict = {}        # call code -> result, for the calls now on screen
         self.result = self.ordination = self.ellipse_set = None
+        self.shown_ordination = None     # the ordination as drawn (axes kept continuous)
+        self._shown_scores = None
         self.intervals_result = None
         self._intervals_done: tuple | None = None    # (call code, result, error), last
         self._intervals_code: str | None = None      # the call in the background now
@@ -161,12 +174,12 @@ class ShapePanel(widgets.VBox):
                                      value="log_total", description="Size")
         self.size.add_class("tf-size")
         self.shape = widgets.Dropdown(options=[(_SHAPE_LABELS[s], s) for s in SHAPE_OPTIONS],
-                                      value="chi_square", description="Shape basis")
+                                      value="chi_square", description="Shape as")
         self.shape.add_class("tf-shape-basis")
         top = max(1, min(table.n_samples - 3, _MAX_DIMS_LISTED))
         self.shape_dims = widgets.Dropdown(
-            options=[("auto", 0)] + [(str(k), k) for k in range(1, top + 1)], value=0,
-            description="Shape dims")
+            options=[("auto (75 % of composition)", 0)]
+            + [(str(k), k) for k in range(1, top + 1)], value=0, description="Shape axes")
         self.shape_dims.add_class("tf-shape-dims")
         self.group = widgets.Dropdown(options=group_options(table), description="Group",
                                       value=default_group(table) if group is None else group)
@@ -202,12 +215,22 @@ class ShapePanel(widgets.VBox):
         self.controls = [self.transform, self.measure, self.size, self.shape,
                          self.shape_dims, self.group, self.ellipses, self.intervals,
                          self.units, self.seed]
-        row1 = widgets.HBox([self.exponent, self.transform, self.measure])
+        for w in [self.exponent] + self.controls:
+            add_help(w)
+        self.exponent_words = widgets.HTML(_exponent_html(self.exponent.value),
+                                           layout=widgets.Layout(width="230px"))
+        self.exponent_words.add_class("tf-exponent-words")
+        row1 = widgets.HBox([self.exponent, self.exponent_words, self.transform,
+                             self.measure])
         row2 = widgets.HBox([self.size, self.shape, self.shape_dims])
         row3 = widgets.HBox([self.group, self.ellipses])
         row4 = widgets.HBox([self.intervals, self.units, self.seed, self.interval_state])
-        plots_row = widgets.HBox([self.partition_plot, self.ordination_plot],
-                                 layout=widgets.Layout(flex_flow="row wrap"))
+        # side by side when the width allows (about 880 px of notebook), else stacked
+        plots_row = widgets.HBox([figure_widths({"tf-partition-plot": PARTITION_WIDTH,
+                                                 "tf-ordination-plot": ORDINATION_WIDTH}),
+                                  self.partition_plot, self.ordination_plot],
+                                 layout=widgets.Layout(flex_flow="row wrap", width="100%"))
+        plots_row.add_class("tf-shape-plots")
         super().__init__([row1, row2, row3, row4, self.messages, self.fractions_text,
                           plots_row, self.notes])
         self.add_class("tf-panel-shape")
@@ -303,6 +326,7 @@ class ShapePanel(widgets.VBox):
         self.refresh()
 
     def _exponent_moved(self, change):
+        self.exponent_words.value = _exponent_html(self.exponent.value)
         if self._hold:
             return
         if self.transform.value != POWER:
@@ -332,16 +356,22 @@ class ShapePanel(widgets.VBox):
         self.error = None
         self.result = self._attempt("partition", calls, self.partition_plot)
         self.ordination = self._attempt("ordination", calls, self.ordination_plot)
+        # continuity: the new axes rotated/reflected onto those on screen (core function)
+        self.shown_ordination = (align_ordination(self.ordination, self._shown_scores)
+                                 if self.ordination is not None else None)
         groups = self.ellipse_set = None
         if self.ordination is not None and "group" in calls:
             groups = self._attempt("group", calls, self.ordination_plot)
             if groups is not None and "ellipses" in calls:
                 # the ellipses belong to the ordination on screen: key them by its call
+                # and its rotation (ellipses turn with the points)
                 calls["ellipses"] = Call("ellipses", calls["ellipses"].args,
                                          calls["ellipses"].kwargs,
-                                         obj=Ref("o", self.ordination))
-                self.ellipse_set = self._attempt("ellipses", calls, self.ordination_plot,
-                                                 key_extra=calls["ordination"].code())
+                                         obj=Ref("o", self.shown_ordination))
+                rot = self.shown_ordination.provenance.get("rotation")
+                self.ellipse_set = self._attempt(
+                    "ellipses", calls, self.ordination_plot,
+                    key_extra=calls["ordination"].code() + repr(rot))
         self.last_compute = time.perf_counter() - t0
         self.calls = calls
         ordination_ok = (self.ordination is not None
@@ -358,8 +388,9 @@ class ShapePanel(widgets.VBox):
                         ready if ready is not None else self.result, present=self._present))
                 if ordination_ok:
                     copy_figure(self.ordination_plot, p.ordination_figure(
-                        self.ordination, group=groups, ellipses=self.ellipse_set,
+                        self.shown_ordination, group=groups, ellipses=self.ellipse_set,
                         present=self._present))
+                    self._shown_scores = self.shown_ordination.scores
             except Exception as err:         # a figure failed: say so, in one line
                 if self.error is None:
                     self.error = err
@@ -378,7 +409,7 @@ class ShapePanel(widgets.VBox):
         if self.error is None:
             self.notes.show(list(self.result.notes)
                             + list(getattr(self.intervals_result, "notes", ()))
-                            + list(self.ordination.notes)
+                            + list(self.shown_ordination.notes)
                             + list(getattr(self.ellipse_set, "notes", ())))
 
     def _attempt(self, name: str, calls: dict, plot, *, key_extra: str = ""):
@@ -466,6 +497,11 @@ class ShapePanel(widgets.VBox):
         """True while the intervals of the current settings wait or run."""
         return self._runner.busy
 
+    def fit_figures(self) -> None:
+        """Size the figures for side by side (called when the panel's tab is shown)."""
+        fit_width(self.partition_plot, PARTITION_WIDTH)
+        fit_width(self.ordination_plot, ORDINATION_WIDTH, legend_below=True)
+
     # ------------------------------------------------------------------ presentation
     def set_present(self, on: bool = True) -> None:
         """Projector mode: only the exponent slider stays; figures use large fonts."""
@@ -492,6 +528,11 @@ def _live_extra(core, call) -> dict:
     except (AttributeError, TypeError, ValueError):
         return {}
     return {"progress": _quiet} if "progress" in params else {}
+
+
+def _exponent_html(a) -> str:
+    """The exponent in words beside the slider: ``0.50 = square root``."""
+    return f"<span style='color:#555'>{html.escape(exponent_words(a))}</span>"
 
 
 def _state_html(text: str, *, warn: bool = False) -> str:

@@ -32,8 +32,11 @@ from ..core.spec import AnalysisSpec
 from ..core.measures import MEASURES
 from ..core.spec import _CHOICES
 from ..core.taxon_terms import PAIR_MEASURES, SPLIT_MEASURES
-from .common import (LABEL_STYLE, TABLE, Call, MessageArea, Ref, copy_figure, given,
+from ..core.display import format_p
+from .common import (LABEL_STYLE, TABLE, TABLE_STYLE, Call, MessageArea, Ref, copy_figure,
+                     given,
                      new_figure_widget)
+from .help import add_help
 from .shape_panel import default_group, group_options
 from .units_choice import unit_choices
 
@@ -129,6 +132,7 @@ class TestsPanel(widgets.VBox):
         self.blocks.add_class("tf-blocks")
         self.blocks_help = widgets.HTML(f"<small>{html.escape(BLOCKS_HELP)}</small>")
         self.blocks_help.add_class("tf-blocks-help")
+        self.blocks_help.tooltip = BLOCKS_HELP
         self.units = widgets.Dropdown(options=[("none: samples independent", False)],
                                       value=False, description="Units", style=LABEL_STYLE,
                                       layout=widgets.Layout(width="460px"))
@@ -136,6 +140,9 @@ class TestsPanel(widgets.VBox):
         self._units_auto = True          # follow the detection until the user picks
         self._units_busy = False
         self._units_extra = None         # nested units given by a spec
+        self._blocks_auto = True         # follow the suggested blocks until the user picks
+        self._blocks_busy = False
+        self.suggested_blocks = None
         self._detected_units = False
         self.pair_a = widgets.Dropdown(options=[], description="Group A", style=LABEL_STYLE)
         self.pair_b = widgets.Dropdown(options=[], description="Group B", style=LABEL_STYLE)
@@ -174,6 +181,8 @@ class TestsPanel(widgets.VBox):
                          self.contribution_measure, self.size_method, self.adjust, self.blocks,
                          self.blocks_help, self.pair_a, self.pair_b, self.n_permutations,
                          self.seed, self.run_button, self.cancel_button]
+        for w in self.controls:
+            add_help(w)
         self._options = widgets.VBox([
             self.analysis,
             widgets.HBox([self.group, self.units]),
@@ -191,7 +200,7 @@ class TestsPanel(widgets.VBox):
         self.cancel_button.on_click(lambda _: self.cancel())
         self.analysis.observe(self._analysis_changed, names="value")
         self.group.observe(self._group_changed, names="value")
-        self.blocks.observe(self._refresh_units, names="value")
+        self.blocks.observe(self._blocks_picked, names="value")
         self.units.observe(self._units_picked, names="value")
         for w in (self.group, self.units, self.shape_measure, self.contribution_measure,
                   self.size_method, self.adjust, self.blocks, self.pair_a, self.pair_b,
@@ -232,6 +241,46 @@ class TestsPanel(widgets.VBox):
         if len(levels) >= 2:
             self.pair_a.value, self.pair_b.value = levels[0], levels[-1]
         self._refresh_units()
+        self._suggest_blocks()
+
+    # ------------------------------------------------------------------ blocks
+    def _suggest_blocks(self) -> None:
+        """Default blocks: the core's suggestion for the group and its units (as the quick
+        start uses them), followed until the user picks blocks of their own."""
+        from ..core.units import suggest_blocks
+        units = self.units_value()
+        try:
+            found = suggest_blocks(self._table.samples, self.group.value or None,
+                                   units if units else None)
+        except Exception:                 # an unusable column: no suggestion
+            found = None
+        self.suggested_blocks = found
+        if self._blocks_auto:
+            self._blocks_busy = True
+            try:
+                self.blocks.value = found or ""
+            finally:
+                self._blocks_busy = False
+            self._refresh_units()
+        self._say_blocks()
+
+    def _blocks_picked(self, change=None) -> None:
+        if not self._blocks_busy:
+            self._blocks_auto = (self.blocks.value or None) == self.suggested_blocks
+            self._refresh_units()
+        self._say_blocks()
+
+    def _say_blocks(self) -> None:
+        chosen = self.blocks.value or None
+        if chosen and chosen == self.suggested_blocks:
+            lead = (f"Blocks: {chosen!r} found by the design (every block holds every group "
+                    "and whole units), as the quick start uses it. ")
+        elif self.suggested_blocks and not chosen:
+            lead = (f"No blocks (the design suggests {self.suggested_blocks!r}; with blocks "
+                    "the p-values match the quick start's). ")
+        else:
+            lead = ""
+        self.blocks_help.value = f"<small>{html.escape(lead + BLOCKS_HELP)}</small>"
 
     # ------------------------------------------------------------------ units
     def _refresh_units(self, change=None) -> None:
@@ -256,6 +305,7 @@ class TestsPanel(widgets.VBox):
     def _units_picked(self, change) -> None:
         if not self._units_busy:      # the user's own choice (the detected one: follow it)
             self._units_auto = _same(change.new, self._detected_units)
+            self._suggest_blocks()
 
     def units_value(self):
         """The ``units=`` of the calls: a column name, a tuple of columns, or False."""
@@ -304,6 +354,7 @@ class TestsPanel(widgets.VBox):
 
     def apply_spec(self, spec) -> None:
         """Set the controls from a spec (the group is set by the dashboard)."""
+        self._blocks_auto = False            # the spec's blocks, even none
         self.blocks.value = spec.blocks or ""
         self.shape_measure.value = spec.shape_measure
         self.size_method.value = spec.size_method
@@ -514,12 +565,12 @@ def _strata_html(result) -> str:
         return ""
     perm = result.shape if type(result).__name__ == "ComparisonResult" else result
     shown = frame.copy()
-    shown["p"] = [f"{v:.4g}" for v in frame["p"]]
+    shown["p"] = [format_p(v) for v in frame["p"]]
     shown["smallest possible p"] = [f"{v:.3g}" if v == v else "\u2014"
                                     for v in frame["smallest possible p"]]
     note = ("&mdash;: many distinct relabellings, so only the number of permutations limits "
             "p" if (shown["smallest possible p"] == "\u2014").any() else "")
     return (f"<div class='tf-strata-box'><b>Error strata</b>: where each term was tested "
             f"({html.escape(perm.scheme)})<br>"
-            f"{shown.to_html(border=1, classes='tf-table tf-strata-table')}"
+            f"{TABLE_STYLE}{shown.to_html(border=0, classes='tf-table tf-strata-table')}"
             f"<small>{note}</small></div>")

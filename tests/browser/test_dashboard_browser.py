@@ -147,16 +147,19 @@ def as_pairs(result) -> list:
 
 
 def assert_same_points(shown: dict, measure: str, exponent: float) -> None:
-    """Page's ordination points == tly.pcoa(tly.dissimilarity(...), dims=2), up to sign."""
+    """Page's ordination points == tly.pcoa(tly.dissimilarity(...), dims=2), up to an
+    orthogonal turn (the panel keeps the previous view's orientation: Procrustes)."""
+    from scipy.linalg import orthogonal_procrustes
     o = tly.pcoa(tly.dissimilarity(MESOCOSM, measure, transform=tly.Power(exponent)), dims=2)
     scores = o.scores.iloc[:, :2]
     labels = [str(s) for s in scores.index]
     assert sorted(shown) == sorted(labels)
     got = np.array([shown[s] for s in labels])
-    for j in range(2):              # an axis is defined up to its sign
-        ref = scores.iloc[:, j].to_numpy()
-        sign = 1.0 if np.dot(got[:, j], ref) >= 0 else -1.0
-        np.testing.assert_allclose(sign * got[:, j], ref, rtol=1e-6, atol=1e-9)
+    ref = scores.to_numpy()
+    # identity: got = ref R for an orthogonal R (scipy finds the R that fits best)
+    r, _ = orthogonal_procrustes(ref, got)
+    np.testing.assert_allclose(r.T @ r, np.eye(2), atol=1e-9)
+    np.testing.assert_allclose(ref @ r, got, rtol=1e-6, atol=1e-8)
 
 
 MESOCOSM = tly.demo("mesocosm")          # synthetic demo, as the quick start loads it

@@ -256,7 +256,7 @@ def test_reading_counts_the_choices_and_names_the_smallest():
     assert "not size-free" in " ".join(res.notes)
     assert res.min_null.shape == (199,) and not res.min_null.flags.writeable
     html = res._repr_html_()
-    assert "pvalue_adjusted" in html
+    assert "p (adjusted)" in html          # displayed in words
 
 
 def test_spread_reading_and_statistic_name():

@@ -207,10 +207,13 @@ def test_empty_sample_allowed_with_note(m):
     assert np.all(np.isfinite(d.condensed)) and any("'p2'" in s for s in d.notes)
 
 
-def test_chi_square_empty_taxon_named():
+def test_chi_square_empty_taxon_left_out_and_named():
     x = pd.DataFrame([[1, 0, 2], [3, 0, 1]], index=["a", "b"], columns=["Ta", "Tb", "Tc"])
-    with pytest.raises(InputError, match="total of 0: 'Tb'"):
-        dissimilarity(x, "chi_square")
+    d = dissimilarity(x, "chi_square")
+    # identity: the absent taxon adds 0, so the distance is that of the other two columns
+    same = dissimilarity(x[["Ta", "Tc"]], "chi_square")
+    np.testing.assert_allclose(d.condensed, same.condensed, rtol=1e-12)
+    assert any("'Tb'" in n and "left out" in n for n in d.notes)
 
 
 def test_aitchison_zero_policy():

@@ -53,7 +53,7 @@ def test_anova_equals_statsmodels_ols(three_groups):
     assert res.summary.loc["ctl", "ratio"] == 1.0
     geo = np.exp(pd.Series(log_totals(tab)).groupby(tab.samples["treatment"].to_numpy()).mean())
     assert res.summary["geometric_mean"].to_numpy() == pytest.approx(
-        geo.loc[["ctl", "high", "low"]].to_numpy())
+        geo.loc[["ctl", "low", "high"]].to_numpy())        # the order of the file
 
 
 def test_welch_two_groups_equals_welch_t_test(three_groups):

@@ -23,7 +23,9 @@ def spread(meso, bray):
 
 def test_totals_box_per_group_with_points(meso):
     fig = plots.totals_figure(meso, "treatment")
-    assert [t.name for t in fig.data] == ["control", "nutrient_high", "nutrient_low"]
+    # the order of the file, as the totals table beside it lists the groups
+    assert [t.name for t in fig.data] == ["control", "nutrient_low", "nutrient_high"]
+    assert [t.name for t in fig.data] == [str(x) for x in meso.totals_by("treatment").index]
     assert [t.marker.color for t in fig.data] == OKABE_ITO[:3]
     assert all(t.type == "box" and t.boxpoints == "all" for t in fig.data)
     assert fig.layout.yaxis.type == "log"
@@ -85,7 +87,7 @@ def test_dispersion_distances_and_means(meso, spread):
     fig = spread.figure()
     boxes = [t for t in fig.data if t.type == "box"]
     means = [t for t in fig.data if (t.meta or {}).get("role") == "group mean"][0]
-    assert [t.name for t in boxes] == ["control", "nutrient_high", "nutrient_low"]
+    assert [t.name for t in boxes] == ["control", "nutrient_low", "nutrient_high"]
     for t in boxes:
         labels = [h.split("</b>")[0][3:] for h in t.hovertext]
         np.testing.assert_allclose(t.y, spread.distances[labels].to_numpy())

@@ -19,7 +19,7 @@ def test_groups_coloured_okabe_ito_with_hover_labels(meso, ordination):
     group = meso.samples["treatment"]
     fig = plots.ordination_figure(ordination, group=group)
     names = [t.name for t in fig.data]
-    assert names == ["control", "nutrient_high", "nutrient_low"]     # design level order
+    assert names == ["control", "nutrient_low", "nutrient_high"]     # the order of the file (as the tables)
     assert [t.marker.color for t in fig.data] == OKABE_ITO[:3]
     assert fig.layout.legend.title.text == "treatment"
     assert sum(len(t.x) for t in fig.data) == meso.n_samples
@@ -60,7 +60,7 @@ def test_symbol_for_second_factor(meso, ordination):
 def test_group_as_sequence_and_bad_group(meso, ordination):
     seq = list(meso.samples["treatment"].loc[ordination.scores.index])
     a = plots.ordination_figure(ordination, group=seq)
-    assert [t.name for t in a.data] == ["control", "nutrient_high", "nutrient_low"]
+    assert [t.name for t in a.data] == ["control", "nutrient_low", "nutrient_high"]
     with pytest.raises(InputError, match="not a column name"):
         plots.ordination_figure(ordination, group="treatment")
     with pytest.raises(DesignError, match="values for 60 samples"):

@@ -165,3 +165,19 @@ def test_relative_data_totals_are_never_called_sizes():
     assert "Size was not compared: the totals are sequencing depths" in text
     assert "Taxon contributions" not in text and "db-RDA" not in text
     assert "Not run on these data (the report says why): the size and shape partition" in text
+
+
+def test_write_report_creates_a_missing_folder(tmp_path, demo_results):
+    from tallyform.core.errors import InputError
+    from tallyform.render.report import write_report
+    path = write_report(demo_results, tmp_path / "new" / "deeper" / "report.html")
+    assert path.is_file() and path.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
+    (tmp_path / "afile").write_text("x")
+    with pytest.raises(InputError, match="in the way"):
+        write_report(demo_results, tmp_path / "afile" / "report.html")
+
+
+def test_methods_paragraph_has_no_empty_clause(demo_results):
+    from tallyform.render.methods import methods_text
+    text = methods_text(demo_results.spec, demo_results)
+    assert ",  (" not in text and "  " not in text and "distance distances" not in text

@@ -28,7 +28,8 @@ def test_tabs_and_classes(dash):
     assert isinstance(dash, Dashboard) and "tf-dashboard" in dash._dom_classes
     assert tuple(dash.tabs.titles) == TAB_TITLES
     classes = [p._dom_classes for p in dash.tabs.children]
-    assert [c[0] for c in classes] == ["tf-panel-data", "tf-panel-shape", "tf-panel-tests",
+    assert [c[0] for c in classes] == ["tf-panel-data", "tf-panel-shape",
+                                       "tf-panel-compare", "tf-panel-tests",
                                        "tf-panel-report"]
 
 
@@ -131,7 +132,7 @@ def test_export_writes_tables_and_figures(dash, tmp_path):
     names = {p.name for p in written}
     assert {"size_shape.csv", "partition.html", "ordination.html", "spec.json",
             "reproduce.py", "methods.txt", "totals_by_group.csv", "tables.xlsx"} <= names
-    assert {"strata.csv", "comparison.csv", "shape_permanova.csv", "tests_3.html"} <= names
+    assert {"strata.csv", "comparison.csv", "shape_permanova.csv", "permanova_reference.html"} <= names
     strata = pd.read_csv(tmp_path / "out" / "strata.csv", index_col=0)
     assert strata.loc["treatment", "stratum"] == "between 'tank'"
     assert tly.AnalysisSpec.from_json(tmp_path / "out" / "spec.json") == dash.spec

@@ -15,6 +15,8 @@ from tallyform.widgets import TestsPanel
 def test_compare_run_matches_direct_call(mesocosm):
     panel = TestsPanel(mesocosm, group="treatment")
     assert panel.units.value == "tank"              # the core's detection, made explicit
+    # the blocks the quick start uses (notebook 01: blocks="tank_block"), suggested
+    assert panel.blocks.value == "tank_block" and "quick start" in panel.blocks_help.value
     panel.n_permutations.value = 199
     panel.seed.value = 5
     panel.run()
@@ -22,14 +24,15 @@ def test_compare_run_matches_direct_call(mesocosm):
     assert panel.status == "done", panel.messages.text
     assert panel.call.code() == (
         'tly.compare_groups(tab, "treatment", units="tank", shape_measure="chi_square", '
-        'size_method="welch", n_permutations=199, rng=5)')
-    direct = tly.compare_groups(mesocosm, "treatment", units="tank",
+        'size_method="welch", blocks="tank_block", n_permutations=199, rng=5)')
+    direct = tly.compare_groups(mesocosm, "treatment", units="tank", blocks="tank_block",
                                 shape_measure="chi_square", n_permutations=199, rng=5)
     pd.testing.assert_series_equal(panel.result.pvalue, direct.pvalue)
     pd.testing.assert_series_equal(panel.result.statistic, direct.statistic)
     assert list(panel.result.pvalue.index) == ["size", "shape", "spread", "permanova"]
     # the same tests as the detection would run (only the words about detection differ)
-    detected = tly.compare_groups(mesocosm, "treatment", n_permutations=199, rng=5)
+    detected = tly.compare_groups(mesocosm, "treatment", blocks="tank_block",
+                                  n_permutations=199, rng=5)
     pd.testing.assert_series_equal(panel.result.pvalue, detected.pvalue)
     assert panel.progress.value == 100
     assert not panel.run_button.disabled and panel.cancel_button.disabled
@@ -57,10 +60,10 @@ def test_pairwise_run(mesocosm):
     assert panel.status == "done", panel.messages.text
     assert panel.call.code() == (
         'tly.pairwise_permanova(tly.dissimilarity(tab, "hellinger"), tab, "treatment", '
-        'adjust=None, units="tank", n_permutations=99, rng=1)')
+        'adjust=None, units="tank", blocks="tank_block", n_permutations=99, rng=1)')
     direct = tly.pairwise_permanova(tly.dissimilarity(mesocosm, "hellinger"), mesocosm,
                                     "treatment", adjust=None, units="tank",
-                                    n_permutations=99, rng=1)
+                                    blocks="tank_block", n_permutations=99, rng=1)
     pd.testing.assert_frame_equal(panel.result.table, direct.table)
     assert set(panel.result.table["stratum"]) == {"between 'tank'"}
 

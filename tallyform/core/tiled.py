@@ -33,8 +33,6 @@ from .errors import InputError
 
 __all__ = ["TiledDissimilarity", "tiled_dissimilarity", "TiledGower", "active_client"]
 
-#: Transformations that act on each row alone (safe to apply block by block).
-_ROW_TRANSFORMS = ("none", "log1p", "presence", "profile", "hellinger", "chord")
 _FAN_IN = 8
 
 
@@ -59,17 +57,21 @@ def _need_dask():
 
 
 def _put(blocks: list) -> list:
-    """Row blocks of vectors, sent once to the cluster (or wrapped for local threads)."""
+    """Row blocks as data of the task graph (not scattered futures): a worker that dies
+    takes nothing with it that the scheduler cannot send again, so lost tiles and lost
+    partial sums are recomputed and the result is the same."""
     import dask
-    client = active_client()
-    if client is not None:
-        return client.scatter(blocks, hash=False)
     return [dask.delayed(b, pure=False, traverse=False) for b in blocks]
 
 
 def _compute(items: list) -> list:
+    import warnings
+
     import dask
-    return list(dask.compute(*items))
+    with warnings.catch_warnings():     # the vectors travel in the graph on purpose
+        warnings.filterwarnings("ignore", message=".*[Ll]arge graph.*")
+        warnings.filterwarnings("ignore", message=".*[Ll]arge object.*")
+        return list(dask.compute(*items))
 
 
 def _tree_sum(parts: list):
@@ -155,7 +157,7 @@ def _prepare_block(x, transform, measure: str, params: dict, labels, r0: int):
     if bad.any():
         r, c = np.argwhere(bad)[0]
         raise InputError(f"sample {labels[r]!r} (row {r0 + r + 1}), column {c + 1}: "
-                         f"{x[r, c]!r} is not a count (counts must be finite and >= 0).")
+                         f"{float(x[r, c])!r} is not a count (counts must be finite and >= 0).")
     out = get_transform(transform).apply(x, labels=pd.Index(labels))
     rec = get_measure(measure)
     empty = np.flatnonzero(~(out != 0).any(axis=1))
@@ -543,11 +545,14 @@ def _from_dask(data, rec, tr, dt, chunks, params):
     import dask
     import dask.array as da
     from .measures import _Context
-    if tr.name not in _ROW_TRANSFORMS and not tr.name.startswith("power("):
+    from . import transforms as T
+    if not isinstance(tr, (T.Identity, T.Power, T.Log1p, T.Presence, T.Profile, T.Hellinger,
+                           T.Chord)):
         raise InputError(f"the transformation {tr.name!r} needs every sample at once; a Dask "
                          "table is transformed block by block.",
-                         hint=f"Use one of {list(_ROW_TRANSFORMS)} or a power, or apply it "
-                              "before.")
+                         hint="Use one that acts on each sample alone (a power such as "
+                              "'sqrt', 'log1p', 'presence', 'profile', 'hellinger', "
+                              "'chord'), or apply it before.")
     if hasattr(data, "to_dask_array"):                      # a Dask DataFrame
         labels = [str(x) for x in data.index.compute()]
         arr = data.to_dask_array(lengths=True)
@@ -585,7 +590,11 @@ def _assemble(blocks, edges, labels, rec, tr, dt, chunks, params, opts, props, n
             keys.append((i, j))
             lazy.append(make(blocks[i], blocks[j] if j != i else None, i == j, rec.name,
                              params, dt.name, int(edges[i]), int(edges[j]), lab[i], lab[j]))
-    persisted = dask.persist(*lazy)
+    import warnings
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=".*[Ll]arge graph.*")
+        warnings.filterwarnings("ignore", message=".*[Ll]arge object.*")
+        persisted = dask.persist(*lazy)
     tiles = _Tiles(int(edges[-1]), edges, dict(zip(keys, persisted)), dt)
     return TiledDissimilarity(tiles, labels, chunks=chunks, measure=rec.name,
                               transform=tr.name, params=opts, properties=props, notes=notes,

@@ -100,27 +100,40 @@ def _make_tile(xi, xj, same: bool, measure: str, params: dict, dtype: str, i0: i
     xi = np.asarray(xi, dtype=np.float64)
     ctx = _Context(None, None, dict(params), np.dtype(dtype))
     if same:
-        cond = np.asarray(rec.pairwise(xi, ctx), dtype=np.float64)
-        tile = squareform(cond, checks=False)
+        tile = squareform(np.asarray(rec.pairwise(xi, ctx), dtype=np.float64), checks=False)
     else:
         xj = np.asarray(xj, dtype=np.float64)
-        m, ti = xi.shape[0] + xj.shape[0], xi.shape[0]
-        cond = np.asarray(rec.pairwise(np.vstack([xi, xj]), ctx), dtype=np.float64)
-        a = np.arange(ti)[:, None]
-        b = np.arange(ti, m)[None, :]
-        tile = cond[m * a - a * (a + 1) // 2 + (b - a - 1)]
+        ti, tj = xi.shape[0], xj.shape[0]
+        m = ti + tj
+        cond = rec.pairwise(np.vstack([xi, xj]), ctx)
+        tile = np.empty((ti, tj), dtype=np.float64)
+        for a in range(ti):                  # row a's pairs with block J are contiguous
+            s = m * a - a * (a + 1) // 2 + (ti - a - 1)
+            tile[a] = cond[s:s + tj]
+        del cond
     bad = ~(np.isfinite(tile) & (tile >= 0))
     if bad.any():
         r, c = np.argwhere(bad)[0]
         raise InputError(f"the {rec.label} dissimilarity between {labels_i[r]!r} and "
                          f"{labels_j[c]!r} is undefined for these data.")
+    if np.dtype(dtype) == np.float64:       # kept squared: every product needs D^2
+        tile *= tile
+        return tile
     return tile.astype(dtype, copy=False)
+
+
+def _squares(tile) -> np.ndarray:
+    """D^2 of a tile: float64 tiles are kept squared, float32 ones are squared here."""
+    if tile.dtype == np.float64:
+        return tile
+    a = np.asarray(tile, dtype=np.float64)
+    a *= a
+    return a
 
 
 def _tile_quad(tile, wi, wj, same: bool):
     """Contribution of one tile to diag(W' A W), A = D^2 (both triangles)."""
-    a = np.asarray(tile, dtype=np.float64)
-    a = a * a
+    a = _squares(tile)
     if same:
         return np.einsum("ij,ij->j", wi, a @ wi)
     return 2.0 * np.einsum("ij,ij->j", wi, a @ wj)
@@ -128,8 +141,7 @@ def _tile_quad(tile, wi, wj, same: bool):
 
 def _tile_matmul(tile, wi, wj, same: bool):
     """Contribution of one tile to A W: (rows of I, rows of J) (None for a diagonal tile)."""
-    a = np.asarray(tile, dtype=np.float64)
-    a = a * a
+    a = _squares(tile)
     if same:
         return a @ wi, None
     return a @ wj, a.T @ wi
@@ -144,8 +156,7 @@ def _second(pair):
 
 
 def _tile_sum(tile):
-    a = np.asarray(tile, dtype=np.float64)
-    return float(np.einsum("ij,ij->", a, a))
+    return float(_squares(tile).sum())
 
 
 def _prepare_block(x, transform, measure: str, params: dict, labels, r0: int):
@@ -176,6 +187,7 @@ class _Tiles:
         self.n = n
         self.edges = edges
         self.tiles = tiles                      # (bi, bj), bi <= bj -> persisted delayed
+        # float64 tiles hold D^2 (what every product needs), float32 tiles hold D
         self.dtype = np.dtype(dtype)
         self.passes = 0                         # passes over the tiles (for benchmarks)
 
@@ -310,6 +322,8 @@ class TiledDissimilarity(Dissimilarity):
                 row.append(blk.T if i > j else blk)
             rows.append(row)
         arr = da.block(rows)
+        if t.dtype == np.float64:                # float64 tiles hold D^2
+            arr = da.sqrt(arr)
         if self._index is not None:
             arr = arr[self._index][:, self._index]
         return arr

@@ -480,7 +480,7 @@ def dissimilarity(data, measure, *, transform=None, dtype="float64", chunks=None
     0.0
     """
     if chunks is not None:
-        from .tiled import tiled_dissimilarity
+        from .tiled_build import tiled_dissimilarity
         return tiled_dissimilarity(data, measure, transform=transform, dtype=dtype,
                                    chunks=chunks, **params)
     dt = _resolve_dtype(dtype)

@@ -6,7 +6,9 @@ into blocks of N rows and computes every tile D[I, J] (I <= J) as one task from 
 blocks, with the measure's own compiled kernel (the kernel runs on the rows of both blocks
 and the cross part is kept). The tiles are persisted where they were computed: on the
 workers of the active ``dask.distributed`` client, or in this process's memory (local
-threads) when no client is active. The full matrix is never gathered.
+threads) when no client is active. The full matrix is never gathered. float64 tiles hold
+D^2 (what every product needs; squared once), float32 tiles hold D (squared in float64 at
+every use, as the in-memory path squares its float32 distances).
 
 Everything the tests and the partial eigensolver need is a product of the tiles with a
 few vectors. With A = D^2 (elementwise) and G = -1/2 C A C (Gower 1966), for a block of
@@ -28,10 +30,10 @@ import math
 import numpy as np
 import pandas as pd
 
-from .dissimilarity import Dissimilarity, _pair_of, _properties, _resolve_dtype
+from .dissimilarity import Dissimilarity
 from .errors import InputError
 
-__all__ = ["TiledDissimilarity", "tiled_dissimilarity", "TiledGower", "active_client"]
+__all__ = ["TiledDissimilarity", "TiledGower", "active_client"]
 
 _FAN_IN = 8
 
@@ -91,37 +93,6 @@ def _add(*parts):
 
 
 # ---------------------------------------------------------------------- tile tasks
-def _make_tile(xi, xj, same: bool, measure: str, params: dict, dtype: str, i0: int, j0: int,
-               labels_i, labels_j):
-    """One tile D[I, J] from the row blocks of I and J with the measure's kernel."""
-    from .measures import _Context, get_measure
-    from scipy.spatial.distance import squareform
-    rec = get_measure(measure)
-    xi = np.asarray(xi, dtype=np.float64)
-    ctx = _Context(None, None, dict(params), np.dtype(dtype))
-    if same:
-        tile = squareform(np.asarray(rec.pairwise(xi, ctx), dtype=np.float64), checks=False)
-    else:
-        xj = np.asarray(xj, dtype=np.float64)
-        ti, tj = xi.shape[0], xj.shape[0]
-        m = ti + tj
-        cond = rec.pairwise(np.vstack([xi, xj]), ctx)
-        tile = np.empty((ti, tj), dtype=np.float64)
-        for a in range(ti):                  # row a's pairs with block J are contiguous
-            s = m * a - a * (a + 1) // 2 + (ti - a - 1)
-            tile[a] = cond[s:s + tj]
-        del cond
-    bad = ~(np.isfinite(tile) & (tile >= 0))
-    if bad.any():
-        r, c = np.argwhere(bad)[0]
-        raise InputError(f"the {rec.label} dissimilarity between {labels_i[r]!r} and "
-                         f"{labels_j[c]!r} is undefined for these data.")
-    if np.dtype(dtype) == np.float64:       # kept squared: every product needs D^2
-        tile *= tile
-        return tile
-    return tile.astype(dtype, copy=False)
-
-
 def _squares(tile) -> np.ndarray:
     """D^2 of a tile: float64 tiles are kept squared, float32 ones are squared here."""
     if tile.dtype == np.float64:
@@ -157,26 +128,6 @@ def _second(pair):
 
 def _tile_sum(tile):
     return float(_squares(tile).sum())
-
-
-def _prepare_block(x, transform, measure: str, params: dict, labels, r0: int):
-    """Checks and transformation of one row block of a Dask table (on a worker)."""
-    from .measures import get_measure
-    from .transforms import get_transform
-    x = np.asarray(x, dtype=np.float64)
-    bad = ~(np.isfinite(x) & (x >= 0))
-    if bad.any():
-        r, c = np.argwhere(bad)[0]
-        raise InputError(f"sample {labels[r]!r} (row {r0 + r + 1}), column {c + 1}: "
-                         f"{float(x[r, c])!r} is not a count (counts must be finite and >= 0).")
-    out = get_transform(transform).apply(x, labels=pd.Index(labels))
-    rec = get_measure(measure)
-    empty = np.flatnonzero(~(out != 0).any(axis=1))
-    if empty.size and rec.empty_samples == "error":
-        raise InputError(f"the {rec.label} measure is undefined for samples with nothing in "
-                         f"them; sample {labels[empty[0]]!r} (row {r0 + empty[0] + 1}) is "
-                         "all 0.", hint="Remove empty samples first.")
-    return out
 
 
 # ---------------------------------------------------------------------- tiles
@@ -504,112 +455,3 @@ def _basis(step, n: int) -> np.ndarray:
     E = np.zeros((n, m))
     E[np.arange(n), codes] = 1.0 / np.sqrt(size[codes])
     return E
-
-
-# ---------------------------------------------------------------------- building
-def _check_chunks(chunks, n: int) -> int:
-    if isinstance(chunks, bool) or not isinstance(chunks, (int, np.integer)) or chunks < 2:
-        raise InputError(f"`chunks` must be a whole number of samples >= 2; got {chunks!r}.")
-    return int(min(chunks, n))
-
-
-def _is_dask(data) -> bool:
-    mod = type(data).__module__ or ""
-    return mod.startswith("dask.") or mod.startswith("dask_expr")
-
-
-def tiled_dissimilarity(data, measure, *, transform=None, dtype="float64", chunks: int,
-                        **params) -> TiledDissimilarity:
-    """The body of ``dissimilarity(..., chunks=N)`` (see :func:`tallyform.dissimilarity`)."""
-    import dask
-    from .measures import _Context, get_measure
-    from .transforms import get_transform
-    _need_dask()
-    dt = _resolve_dtype(dtype)
-    rec = get_measure(measure)
-    if rec.pairwise is None:
-        raise InputError(f"the {rec.label} measure has a feature matrix: its tests and "
-                         "ordinations already run in O(n p) memory without tiles.",
-                         hint=f"Call dissimilarity(table, {rec.name!r}) without chunks=.")
-    if rec.name == "gower":
-        raise InputError("Gower's measure scales every taxon by its range over all samples, "
-                         "which tiles computed block by block cannot share.",
-                         hint="Use another measure for tiles (bray_curtis, manhattan, "
-                              "canberra, ...), or compute it without chunks= on a subset.")
-    tr = get_transform(transform)
-    unknown = sorted(set(params) - set(rec.options))
-    if unknown:
-        raise InputError(f"measure {rec.name!r} has no option(s) {unknown}.")
-    if _is_dask(data):
-        return _from_dask(data, rec, tr, dt, chunks, params)
-    from .dissimilarity import _prepare
-    tab, rec, tr, x, ctx = _prepare(data, measure, transform, params, dt)
-    n = x.shape[0]
-    chunks = _check_chunks(chunks, n)
-    edges = np.unique(np.r_[np.arange(0, n, chunks), n])
-    labels = tab.sample_labels
-    blocks = _put([np.ascontiguousarray(x[edges[b]:edges[b + 1]])
-                   for b in range(len(edges) - 1)])
-    opts = {k: ctx.params.get(k, v) for k, v in rec.options.items()}
-    return _assemble(blocks, edges, labels, rec, tr, dt, chunks, dict(ctx.params), opts,
-                     _properties(rec, tr, ctx), tuple(ctx.notes))
-
-
-def _from_dask(data, rec, tr, dt, chunks, params):
-    import dask
-    import dask.array as da
-    from .measures import _Context
-    from . import transforms as T
-    if not isinstance(tr, (T.Identity, T.Power, T.Log1p, T.Presence, T.Profile, T.Hellinger,
-                           T.Chord)):
-        raise InputError(f"the transformation {tr.name!r} needs every sample at once; a Dask "
-                         "table is transformed block by block.",
-                         hint="Use one that acts on each sample alone (a power such as "
-                              "'sqrt', 'log1p', 'presence', 'profile', 'hellinger', "
-                              "'chord'), or apply it before.")
-    if hasattr(data, "to_dask_array"):                      # a Dask DataFrame
-        labels = [str(x) for x in data.index.compute()]
-        arr = data.to_dask_array(lengths=True)
-    else:
-        arr = data
-        labels = [f"s{i + 1}" for i in range(arr.shape[0])]
-    if arr.ndim != 2:
-        raise InputError("the Dask table must be 2-D (samples x taxa).")
-    n = int(arr.shape[0])
-    if n < 2:
-        raise InputError("a dissimilarity needs at least 2 samples.")
-    chunks = _check_chunks(chunks, n)
-    arr = arr.rechunk((chunks, arr.shape[1])).astype(np.float64)
-    edges = np.r_[0, np.cumsum(arr.chunks[0])]
-    prep = dask.delayed(_prepare_block, pure=True)
-    raw = arr.to_delayed()[:, 0]
-    blocks = [prep(raw[b], tr.name, rec.name, dict(params), labels[edges[b]:edges[b + 1]],
-                   int(edges[b])) for b in range(len(raw))]
-    ctx = _Context(pd.Index(labels), None, dict(params), dt)
-    opts = {k: params.get(k, v) for k, v in rec.options.items()}
-    notes = ("computed from a Dask table block by block; empty samples were checked per "
-             "block",)
-    return _assemble(blocks, edges, labels, rec, tr, dt, chunks, dict(params), opts,
-                     _properties(rec, tr, ctx), notes)
-
-
-def _assemble(blocks, edges, labels, rec, tr, dt, chunks, params, opts, props, notes):
-    import dask
-    make = dask.delayed(_make_tile, pure=True)
-    nb = len(edges) - 1
-    lab = [list(map(str, labels[edges[b]:edges[b + 1]])) for b in range(nb)]
-    keys, lazy = [], []
-    for i in range(nb):
-        for j in range(i, nb):
-            keys.append((i, j))
-            lazy.append(make(blocks[i], blocks[j] if j != i else None, i == j, rec.name,
-                             params, dt.name, int(edges[i]), int(edges[j]), lab[i], lab[j]))
-    import warnings
-    with warnings.catch_warnings():
-        warnings.filterwarnings("ignore", message=".*[Ll]arge graph.*")
-        warnings.filterwarnings("ignore", message=".*[Ll]arge object.*")
-        persisted = dask.persist(*lazy)
-    tiles = _Tiles(int(edges[-1]), edges, dict(zip(keys, persisted)), dt)
-    return TiledDissimilarity(tiles, labels, chunks=chunks, measure=rec.name,
-                              transform=tr.name, params=opts, properties=props, notes=notes,
-                              dtype=dt)

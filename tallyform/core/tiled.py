@@ -224,6 +224,10 @@ class TiledDissimilarity(Dissimilarity):
         self.notes = tuple(notes)
 
     # ---------------------------------------------------------------- refusals
+    def refuse(self, what: str):
+        """Raise the InputError of a call that needs the whole matrix."""
+        self._whole(what)
+
     def _whole(self, what: str):
         raise InputError(
             f"{what} needs the whole {self.n} x {self.n} matrix, which a tiled dissimilarity "

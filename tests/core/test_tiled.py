@@ -133,7 +133,9 @@ def test_whole_matrix_calls_refuse_with_alternatives():
     for call in (lambda: t.condensed, t.square, t.gower, t.to_frame,
                  lambda: tly.nmds(t, n_starts=1, rng=1), lambda: tly.pcoa(t),
                  lambda: tly.pcoa(t, dims=2, correction="lingoes"),
-                 lambda: tly.dispersion_test(t, info["trt"], centre="median")):
+                 lambda: tly.dispersion_test(t, info["trt"], centre="median"),
+                 lambda: tly.welch_permanova(t, info, "trt", n_permutations=9),
+                 lambda: tly.db_rda(t, info, terms=["trt"])):
         with pytest.raises(InputError, match="dims=|whole|centre='mean'"):
             call()
     with pytest.raises(InputError, match="without chunks="):

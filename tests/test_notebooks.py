@@ -4,7 +4,6 @@ static figures that show without a kernel."""
 from __future__ import annotations
 
 import json
-import os
 from pathlib import Path
 
 import nbformat

@@ -160,6 +160,12 @@ def centroid_distances_squared(d: Dissimilarity, codes: np.ndarray, centre: str 
     eigen-decomposition for medians.
     """
     n = d.n
+    if hasattr(d, "centroid_distances_squared"):    # tiles on Dask: one pass of products
+        if centre != "mean":
+            raise InputError("distances to spatial medians need the principal coordinates "
+                             "of the whole matrix, which a tiled dissimilarity never gathers.",
+                             hint="Use centre='mean'.")
+        return d.centroid_distances_squared(codes)
     z2 = np.empty(n)
     groups = [np.flatnonzero(codes == g) for g in np.unique(codes)]
     if use == "auto":
@@ -239,7 +245,7 @@ def _residual_null(space: tuple, codes: np.ndarray, perms, *, correction: bool,
         width = X.shape[1]
     else:
         K = space[1]
-        norms = np.diag(K).copy()
+        norms = K.diagonal().copy()
         width = n
     batch = max(1, int(48 * 2**20 // (8 * n * (G + 1) * 4 + 8 * G * width)))
 

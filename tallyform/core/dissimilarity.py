@@ -404,7 +404,8 @@ def _properties(rec, tr, ctx) -> dict:
             "size_free_exact": exact and size_free}
 
 
-def dissimilarity(data, measure, *, transform=None, dtype="float64", **params) -> Dissimilarity:
+def dissimilarity(data, measure, *, transform=None, dtype="float64", chunks=None,
+                  **params) -> Dissimilarity:
     """Dissimilarities between all pairs of samples, after an optional transformation.
 
     Parameters
@@ -422,6 +423,13 @@ def dissimilarity(data, measure, *, transform=None, dtype="float64", **params) -
         ``'sqrt'``, ``'fourth_root'``, ``tly.Power(0.3)``, ``'profile'``.
     dtype : {'float64', 'float32'}, default 'float64'
         Storage type of the condensed distances (float32 halves memory).
+    chunks : int, optional
+        Tile the n x n matrix into chunks x chunks tiles computed and kept on the workers of
+        the active ``dask.distributed`` client (local threads without one), never gathered:
+        returns a :class:`tallyform.core.tiled.TiledDissimilarity` for measures without a
+        feature matrix. ``data`` may then also be a Dask array or Dask DataFrame of counts
+        (transformed block by block: row-wise transformations only). Needs
+        ``pip install "tallyform[dask]"``.
     **params
         Options of the measure: ``aitchison``: ``zeros`` ('multiplicative', 'pseudocount',
         'error'), ``pseudocount``, ``delta``; ``chi_square``: ``column_masses`` (one positive
@@ -471,6 +479,10 @@ def dissimilarity(data, measure, *, transform=None, dtype="float64", **params) -
     >>> float(dissimilarity([[1, 2, 3, 4, 5], [2, 4, 6, 8, 10]], "hellinger").condensed[0])
     0.0
     """
+    if chunks is not None:
+        from .tiled_build import tiled_dissimilarity
+        return tiled_dissimilarity(data, measure, transform=transform, dtype=dtype,
+                                   chunks=chunks, **params)
     dt = _resolve_dtype(dtype)
     key = _cache_key(data, measure, transform, params, dt)
     if key is not None:

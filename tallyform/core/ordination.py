@@ -494,6 +494,10 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
     >>> round(float(o.eigenvalues.sum()), 6)  # total: (3^2 + 4^2 + 5^2) / 3
     16.666667
     """
+    from .tiled import TiledDissimilarity
+    if isinstance(d, TiledDissimilarity):                  # tiles on Dask: leading axes
+        from .tiled_tests import tiled_pcoa
+        return tiled_pcoa(d, correction=correction, dims=dims)
     d = as_dissimilarity(d)
     check_option("correction", correction, CORRECTIONS)
     n = d.n

@@ -276,8 +276,12 @@ def prepare_response(data, *, path: str = "auto") -> Response:
     'distances' forces the Gower matrix, 'features' the feature matrix.
     """
     from .dissimilarity import Dissimilarity
+    from .tiled import TiledDissimilarity
     if isinstance(data, Response):
         return data
+    if isinstance(data, TiledDissimilarity):            # tiles on Dask: tiled_tests.py
+        from .tiled_tests import tiled_response
+        return tiled_response(data, path)
     if path not in ("auto", "distances", "features"):
         raise InputError(f"`path` must be 'auto', 'distances' or 'features'; got {path!r}.")
     if isinstance(data, Dissimilarity):
@@ -483,9 +487,11 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
         if r.features is not None:
             v = u @ r.features
             tr = np.einsum("ij,ij->i", v, v)
-        else:
+        elif isinstance(r.gower, np.ndarray):
             v = u @ r.gower
             tr = np.einsum("ij,ij->i", u, v)
+        else:                                   # tiles: u' R u reduced on the workers
+            tr = r.gower.quad_rows(u)
         tr = tr.reshape(k, b)
         num = tr[nb:nb + nt].sum(axis=0)
         den = trace_r - tr[:nb].sum(axis=0) - num - tr[nb + nt:].sum(axis=0)
@@ -495,9 +501,12 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
                 vt = ut @ r.features
                 plain = np.einsum("ij,ij->i", vt, vt).reshape(nt, b)
                 xc = np.einsum("jbf,jf->b", vt.reshape(nt, b, -1), a)
-            else:
+            elif isinstance(r.gower, np.ndarray):
                 vt = ut @ r.gower
                 plain = np.einsum("ij,ij->i", ut, vt).reshape(nt, b)
+                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
+            else:
+                plain = r.gower.quad_rows(ut).reshape(nt, b)
                 xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
             num = c2 * plain.sum(axis=0) + const.sum() + 2.0 * np.sqrt(c2) * xc
             den = c2 * den

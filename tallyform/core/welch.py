@@ -433,6 +433,9 @@ def welch_permanova(d, samples, group, *, n_permutations: int = 999, rng=None, u
     0.0286
     """
     d = check_dissimilarity(d)
+    if getattr(d, "n_tiles", None) is not None:            # tiles on Dask
+        d.refuse("welch_permanova (its per-group spreads use the diagonal blocks of the "
+                 "matrix)")
     n_permutations = check_n_permutations(n_permutations)
     plan = _prepare(d, samples, group, units, blocks)
     k = len(plan.levels)

@@ -1,6 +1,5 @@
 """Continuity of ordinations: orthogonal Procrustes (Gower 1975)."""
 import numpy as np
-import pandas as pd
 import pytest
 from scipy.spatial import procrustes as scipy_procrustes
 

@@ -26,6 +26,19 @@ def condensed_index(n: int, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     return n * i - i * (i + 1) // 2 + (j - i - 1)
 
 
+def subset_positions(labels, which) -> np.ndarray:
+    """Positions of ``which`` (sample labels, or a boolean mask) among ``labels``; an
+    InputError names unknown labels."""
+    arr = np.asarray(which)
+    if arr.dtype == bool:
+        return np.flatnonzero(arr)
+    pos = {x: i for i, x in enumerate(labels)}
+    missing = [str(x) for x in arr if str(x) not in pos]
+    if missing:
+        raise InputError(f"unknown sample label(s): {missing[:8]}.")
+    return np.array([pos[str(x)] for x in arr], dtype=int)
+
+
 class Dissimilarity:
     """Dissimilarities between samples, with what produced them.
 
@@ -268,15 +281,7 @@ class Dissimilarity:
 
     def subset(self, which) -> "Dissimilarity":
         """Dissimilarities among some samples (labels or a boolean mask), same provenance."""
-        arr = np.asarray(which)
-        if arr.dtype == bool:
-            idx = np.flatnonzero(arr)
-        else:
-            pos = {x: i for i, x in enumerate(self.labels)}
-            missing = [str(x) for x in arr if str(x) not in pos]
-            if missing:
-                raise InputError(f"unknown sample label(s): {missing[:8]}.")
-            idx = np.array([pos[str(x)] for x in arr], dtype=int)
+        idx = subset_positions(self.labels, which)
         kw = dict(measure=self.measure, transform=self.transform, params=self.params,
                   properties=self.properties, notes=self.notes, dtype=self._dtype)
         if self._features is not None:

@@ -317,15 +317,8 @@ class TiledDissimilarity(Dissimilarity):
     def subset(self, which) -> "TiledDissimilarity":
         """The same tiles seen through a subset of the samples (no tile is recomputed; each
         product still passes over every tile)."""
-        arr = np.asarray(which)
-        if arr.dtype == bool:
-            idx = np.flatnonzero(arr)
-        else:
-            pos = {x: i for i, x in enumerate(self.labels)}
-            missing = [str(x) for x in arr if str(x) not in pos]
-            if missing:
-                raise InputError(f"unknown sample label(s): {missing[:8]}.")
-            idx = np.array([pos[str(x)] for x in arr], dtype=int)
+        from .dissimilarity import subset_positions
+        idx = subset_positions(self.labels, which)
         base = idx if self._index is None else self._index[idx]
         return TiledDissimilarity(self._tiles, self.labels[idx], chunks=self.chunks,
                                   measure=self.measure, transform=self.transform,

@@ -260,6 +260,20 @@ def _knob_of(knob, sig: inspect.Signature, arguments: dict):
     return used[0] if len(used) == 1 else None
 
 
+def _is_interrupt(err: BaseException) -> bool:
+    """True for a KeyboardInterrupt, also one that a compiled (numba) call wrapped in a
+    SystemError because the signal arrived while it was being set up."""
+    seen = 0
+    while err is not None and seen < 8:
+        if isinstance(err, KeyboardInterrupt):
+            return True
+        if not isinstance(err, SystemError):
+            return False
+        err = err.__cause__ or err.__context__
+        seen += 1
+    return False
+
+
 def reports_progress(label: str, *, knob=None):
     """Decorator for a public call with ``progress`` and ``cancel`` keyword arguments.
 
@@ -304,14 +318,15 @@ def reports_progress(label: str, *, knob=None):
             token = _active.set(rep)
             try:
                 out = fn(*args, **kwargs)
-            except KeyboardInterrupt:
+            except BaseException as err:
                 rep.fail()
-                if outer is not None:        # the outermost call says how far it all got
+                if not _is_interrupt(err):
                     raise
+                if outer is not None:        # the outermost call says how far it all got
+                    if isinstance(err, KeyboardInterrupt):
+                        raise
+                    raise KeyboardInterrupt from err
                 raise Cancelled(rep.stopped_text("interrupted")) from None
-            except BaseException:
-                rep.fail()
-                raise
             finally:
                 _active.reset(token)
             rep.finish()

@@ -77,7 +77,9 @@ def test_sigint_stops_within_a_second_and_writes_nothing(what, label, tmp_path):
     finally:
         if child.poll() is None:
             child.kill()
-    report = json.loads(stdout.strip().splitlines()[-1])
+    lines = stdout.strip().splitlines()
+    assert lines, stderr                                   # the child's traceback, if any
+    report = json.loads(lines[-1])
     assert "cancelled" in report, (stdout, stderr)
     assert report["cancelled"].startswith(f"{label} was interrupted")
     assert "no result was kept" in report["cancelled"]

@@ -149,3 +149,22 @@ def test_environment_variable_sets_the_starting_default():
         out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True,
                              text=True, check=True).stdout.strip()
         assert out == want, (value, out)
+
+
+@P.reports_progress("Compiled")
+def wrapped_interrupt(*, progress=None, cancel=None, other=False):
+    # a compiled (numba) call interrupted while it loads wraps the KeyboardInterrupt in a
+    # SystemError ("returned a result with an exception set"); seen on a loaded machine
+    try:
+        raise KeyboardInterrupt
+    except KeyboardInterrupt as err:
+        if other:
+            raise SystemError("unrelated") from ValueError("x")
+        raise SystemError("returned a result with an exception set") from err
+
+
+def test_interrupt_wrapped_by_a_compiled_call_is_still_an_interruption():
+    with pytest.raises(Cancelled, match="Compiled was interrupted"):
+        wrapped_interrupt(progress=False)
+    with pytest.raises(SystemError, match="unrelated"):
+        wrapped_interrupt(progress=False, other=True)

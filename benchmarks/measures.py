@@ -11,9 +11,6 @@ Gram kernel is shown too. The data are synthetic (gamma-Poisson counts, about 45
 A second table, {n} x 300 with 10 % non-zero cells (what real community and microbiome
 tables look like), times the sparse kernels of Bray-Curtis and kin against pdist and against
 the dense kernels on the same table (target: >= 15x pdist for Bray-Curtis).
-A second table, n x 300 with 10 % non-zero cells (what real community and microbiome tables
-look like), times the sparse kernels of Bray-Curtis and kin against pdist and against the
-dense kernels on the same table (target: >= 15x pdist for Bray-Curtis).
 The machine may be shared: run it a few times and read the spread.
 """
 from __future__ import annotations

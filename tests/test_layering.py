@@ -118,3 +118,13 @@ def test_no_pickle_or_dynamic_code_anywhere():
         calls = {n.func.id for n in ast.walk(tree)
                  if isinstance(n, ast.Call) and isinstance(n.func, ast.Name)}
         assert not calls & {"eval", "exec"}, f
+
+
+def test_core_reaches_render_in_one_place_only():
+    # the result protocol: figures are drawn by render.figures, reached from one spot
+    import re
+    core = Path(__file__).resolve().parents[1] / "tallyform" / "core"
+    hits = {p.name for p in core.glob("*.py")
+            if re.search(r"from \.\.render|import tallyform\.render|from tallyform\.render",
+                         p.read_text())}
+    assert hits == {"results.py"}, hits

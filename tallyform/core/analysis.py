@@ -89,37 +89,11 @@ class AnalysisResults:
             out["totals_per_effort"] = self.totals_per_effort
         if self.units is not None and self.units.plan is not None:
             out["sampling_units"] = units_frame(self.units)
-        if self.size_shape is not None:
-            out["size_shape"] = self.size_shape.to_frame()
-            out["size_shape_by_dims"] = self.size_shape.by_dims()
-        if self.choices is not None:
-            out["choice_comparison"] = self.choices.to_frame()
-        if self.scan is not None:
-            out["scan"] = self.scan.to_frame()
-        if self.ordination is not None:
-            out["ordination_axes"] = self.ordination.to_frame()
-            out["ordination_scores"] = self.ordination.scores
-        if self.ellipses is not None:
-            out["ellipses"] = self.ellipses.to_frame()
-        if self.comparison is not None:
-            out["comparison"] = self.comparison.to_frame()
-            if self.comparison.size is not None:
-                out["size_test"] = self.comparison.size.to_frame()
-            out["shape_test"] = self.comparison.shape.to_frame()
-            if self.comparison.permanova is not None:
-                out["shape_permanova"] = self.comparison.permanova.to_frame()
-            out["dispersion_test"] = self.comparison.dispersion.to_frame()
-        if self.permanova is not None:
-            out["permanova"] = self.permanova.to_frame()
-            if self.permanova.schemes is not None:
-                out["permanova_schemes"] = self.permanova.schemes
-        if self.pairwise is not None:
-            out["pairwise"] = self.pairwise.to_frame()
-        if self.contributions is not None:
-            out["taxa_shape"] = self.contributions.to_frame()
-            out["taxa_size"] = self.contributions.size_frame()
-        if self.audit is not None:
-            out["audit"] = self.audit.to_frame()
+        for name in ("size_shape", "choices", "scan", "ordination", "ellipses", "comparison",
+                     "permanova", "pairwise", "contributions", "audit"):
+            result = getattr(self, name)
+            if result is not None:
+                out.update(result.tables())
         return out
 
     def __repr__(self) -> str:

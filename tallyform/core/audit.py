@@ -173,12 +173,6 @@ class AuditResult(ResultMixin):
         hit = f[f["test"].str.startswith("one rarefaction")]
         return {a: float(r) for a, r in zip(hit["aspect"], hit["false_alarm_rate"])}
 
-    def figure(self, **kwargs):
-        """The two false-alarm rates with their intervals and a line at alpha
-        (:func:`tallyform.render.plots.audit_figure`)."""
-        from ..render.inference_plots import audit_figure  # lazy: plotly is outer ring
-        return audit_figure(self, **kwargs)
-
     def _title(self) -> str:
         return (f"Audit: false alarms for 'composition differs' when only size differs "
                 f"({self.group}, alpha = {self.alpha:g})")

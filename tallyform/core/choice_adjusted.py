@@ -212,13 +212,6 @@ class ChoiceAdjustedResult(ResultMixin):
         return (f"<div><p><b>{html.escape(self._title())}</b></p>{frame}"
                 f"<p>{html.escape(self.reading)}</p>{self._notes_html()}</div>")
 
-    def figure(self, **kwargs):
-        """Raw and adjusted p-value of every choice
-        (:func:`tallyform.render.choice_plots.choice_adjusted_figure`)."""
-        from ..render.choice_plots import choice_adjusted_figure  # lazy: plotly
-        return choice_adjusted_figure(self, **kwargs)
-
-
 def _p(p: float) -> str:
     return "p < 0.001" if p < 0.001 else f"p = {p:.2g}" if p < 0.01 else f"p = {p:.3g}"
 

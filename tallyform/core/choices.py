@@ -135,12 +135,6 @@ class ChoiceComparison(ResultMixin):
     def tables(self) -> dict:
         return {"choice_comparison": self.to_frame()}
 
-    def figure(self, **kwargs):
-        """The paired differences with their intervals (see
-        :func:`tallyform.render.partition_plots.choice_difference_figure`)."""
-        from ..render.partition_plots import choice_difference_figure  # lazy: outer ring
-        return choice_difference_figure(self, **kwargs)
-
     def _title(self) -> str:
         return (f"{_describe(self.b)} minus {_describe(self.a)} (n = {self.n}"
                 + (f", {self.n_boot} replicates)" if self.n_boot else ")"))

@@ -92,6 +92,16 @@ class ComparisonResult(ResultMixin):
         """The Welch-type location test (the shape test itself)."""
         return self.shape
 
+    def tables(self) -> dict:
+        out = {"comparison": self.to_frame()}
+        if self.size is not None:
+            out["size_test"] = self.size.to_frame()
+        out["shape_test"] = self.shape.to_frame()
+        if self.permanova is not None:
+            out["shape_permanova"] = self.permanova.to_frame()
+        out["dispersion_test"] = self.dispersion.to_frame()
+        return out
+
     def to_frame(self) -> pd.DataFrame:
         size_name = ("size: not tested" if self.size is None
                      else f"size: {self.size.method} on {self.size.measure}")

@@ -167,26 +167,19 @@ class ConstraintTest(ResultMixin):
         return text + (f" Permutation {p_words(p)} for {label}: no evidence that the "
                        "constraints fit more than random columns would.")
 
-    def figure(self, *, row: str | None = None, **kwargs):
-        """The permutation distribution of one tested row's pseudo-F, with the observed value
-        (:func:`tallyform.render.plots.null_distribution_figure`; default: the first row)."""
-        from ..render.inference_plots import null_distribution_figure  # lazy: plotly
+    def row_test(self, row: str | None = None) -> PermutationTest:
+        """One tested row (default: the first) as a PermutationTest: its pseudo-F, p-value
+        and permutation distribution (``path`` holds the row's name)."""
         rows = self.tested
         row = rows[0] if row is None else row
         if row not in rows:
             raise InputError(f"`row` must be one of {rows}; got {row!r}.")
         t = self.table.loc[row]
-        one = PermutationTest(statistic=float(t["pseudo_f"]), pvalue=float(t["pvalue"]),
-                              null_distribution=self.null_distribution[row],
-                              n_permutations=self.n_permutations, exact=self.exact,
-                              n_distinct=None, scheme=self.scheme, df=(int(t["df"]), 0),
-                              ss=(float(t["inertia"]), float("nan")), path="")
-        fig = null_distribution_figure(one, **kwargs)
-        text = fig.layout.title.text or ""
-        what = f"{self.method}: {row}" + (" (first eigenvalue given earlier axes)"
-                                          if self.scope == "each_axis" else "")
-        fig.update_layout(title_text=text.replace("Permutation test", what, 1))
-        return fig
+        return PermutationTest(statistic=float(t["pseudo_f"]), pvalue=float(t["pvalue"]),
+                               null_distribution=self.null_distribution[row],
+                               n_permutations=self.n_permutations, exact=self.exact,
+                               n_distinct=None, scheme=self.scheme, df=(int(t["df"]), 0),
+                               ss=(float(t["inertia"]), float("nan")), path=str(row))
 
 
 # ---------------------------------------------------------------------------- strata

@@ -146,6 +146,9 @@ class TaxonContributions(ResultMixin):
             return f"squared {self.measure} distance between group centroids"
         return f"mean {self.measure} dissimilarity between groups (average over pairs)"
 
+    def tables(self) -> dict:
+        return {"taxa_shape": self.to_frame(), "taxa_size": self.size_frame()}
+
     def to_frame(self) -> pd.DataFrame:
         """The shape table (largest contribution first)."""
         return self.shape.copy()
@@ -157,16 +160,6 @@ class TaxonContributions(ResultMixin):
     def _title(self) -> str:
         return (f"Taxon contributions, {self.a} vs {self.b} ({self.group}): shares of the "
                 f"{self.what}")
-
-    def figure(self, kind: str = "shape", *, top: int = 15, **kwargs):
-        """A plotly figure: ``kind='shape'`` (diverging bars of the largest shares) or
-        ``'size'`` (log2 ratios with intervals against the total's ratio)."""
-        from ..render.plots import taxon_shape_figure, taxon_size_figure
-        if kind == "shape":
-            return taxon_shape_figure(self, top=top, **kwargs)
-        if kind == "size":
-            return taxon_size_figure(self, top=top, **kwargs)
-        raise InputError(f"`kind` must be 'shape' or 'size'; got {kind!r}.")
 
     def display_labels(self) -> dict:
         return {"term": "part of D\u00b2", "share_pct": "share (%)",
@@ -182,6 +175,16 @@ class TaxonContributions(ResultMixin):
         size = self._frame_html(self.size.head(15))
         return (f"<div>{head}<p>Shape (top 15 of {len(self.shape)})</p>{shape}"
                 f"<p>Size (top 15 of {len(self.size)})</p>{size}{self._notes_html()}</div>")
+
+    @property
+    def reading(self) -> str:
+        """The taxa that carry most of the difference, and the total."""
+        top = self.shape.head(3)
+        col = "share_pct" if "share_pct" in top.columns else None
+        lead = ", ".join(f"{t} ({top.loc[t, col]:.0f} %)" if col else str(t)
+                         for t in top.index) if len(top) else "none"
+        return (f"Between {self.a} and {self.b} ({self.group}), the largest shares of the "
+                f"{self.what} come from {lead}; {self._summary()}.")
 
     def _summary(self) -> str:
         lo, hi = self.total_ci

@@ -8,8 +8,6 @@ import pandas as pd
 
 from .display import p_words
 from .counting_stats import spread_distances
-from .errors import InputError
-from .inference import check_option
 from .results import ResultMixin, readonly
 
 __all__ = ["CountingTestResult", "make_result", "RATIO_NOTE"]
@@ -113,19 +111,10 @@ class CountingTestResult(ResultMixin):
         return super()._repr_html_().replace(
             "</div>", f"<p>{html.escape(self.reading)}</p></div>", 1)
 
-    def figure(self, *, kind: str = "null", **kwargs):
-        """``kind='null'``: the permutation distribution with the observed statistic;
-        ``'distances'`` (spread only): distances to the group centroids by group."""
-        check_option("kind", kind, ("null", "distances"))
-        if kind == "distances":
-            if self.aspect != "spread":
-                raise InputError("kind='distances' is drawn for spread tests only.")
-            from ..render.inference_plots import dispersion_figure  # lazy: plotly
-            return dispersion_figure(self._as_dispersion(), **kwargs)
-        from ..render.inference_plots import null_distribution_figure  # lazy: plotly
-        fig = null_distribution_figure(self._as_dispersion() if self.aspect == "spread"
-                                       else self._as_permutation(), **kwargs)
-        return fig.update_layout(title_text=self._title())
+    def as_test(self):
+        """The test as the engine's result it matches: a DispersionResult for spread, a
+        PermutationTest for shape (what the figures draw)."""
+        return self._as_dispersion() if self.aspect == "spread" else self._as_permutation()
 
     def _as_permutation(self):
         from .permutation import PermutationTest

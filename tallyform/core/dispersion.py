@@ -86,16 +86,6 @@ class DispersionResult(ResultMixin):
     def to_frame(self) -> pd.DataFrame:
         return self.group_means.copy()
 
-    def figure(self, *, kind: str = "distances", **kwargs):
-        """A plotly figure: ``kind='distances'`` distances to the group centres by group,
-        ``'null'`` the permutation distribution of F with the observed value."""
-        check_option("kind", kind, ("distances", "null"))
-        if kind == "null":
-            from ..render.inference_plots import null_distribution_figure  # lazy: plotly
-            return null_distribution_figure(self, **kwargs)
-        from ..render.inference_plots import dispersion_figure
-        return dispersion_figure(self, **kwargs)
-
     def __str__(self) -> str:
         return super().__str__() + ("\n" + self.reading if self.reading else "")
 

@@ -206,6 +206,17 @@ class EllipseSet(ResultMixin):
         """What each ellipse covers, in words (used by legends and hover text)."""
         return describe(self.kind, self.level)
 
+    @property
+    def reading(self) -> str:
+        text = self.covers[:1].upper() + self.covers[1:] + "."
+        if self.no_ellipse:
+            text += (" No ellipse for " + ", ".join(map(str, self.no_ellipse))
+                     + " (fewer than 3 samples).")
+        return text
+
+    def tables(self) -> dict:
+        return {"ellipses": self.to_frame()}
+
     def to_frame(self) -> pd.DataFrame:
         return self.table.copy()
 

@@ -186,14 +186,14 @@ class PermanovaResult(ResultMixin):
         object.__setattr__(self, "null_distribution",
                            {k: readonly(v) for k, v in self.null_distribution.items()})
 
+    def tables(self) -> dict:
+        out = {"permanova": self.to_frame()}
+        if self.schemes is not None:
+            out["permanova_schemes"] = self.schemes
+        return out
+
     def to_frame(self) -> pd.DataFrame:
         return self.table.copy()
-
-    def figure(self, *, term: str | None = None, **kwargs):
-        """The permutation distribution of one term's pseudo-F with the observed value
-        (:func:`tallyform.render.plots.null_distribution_figure`; default: first term)."""
-        from ..render.inference_plots import null_distribution_figure  # lazy: plotly
-        return null_distribution_figure(self, term=term, **kwargs)
 
     def _title(self) -> str:
         perms = "exact" if self.exact else f"{self.n_permutations} permutations"

@@ -181,6 +181,9 @@ class Ordination(ResultMixin):
             return f"{name} ({100 * float(self.explained[name]):.1f} %)"
         return name
 
+    def tables(self) -> dict:
+        return {"ordination_axes": self.to_frame(), "ordination_scores": self.scores}
+
     def to_frame(self) -> pd.DataFrame:
         """One row per axis: eigenvalue, share of the total, cumulative share, part.
 
@@ -197,6 +200,25 @@ class Ordination(ResultMixin):
                              ["unconstrained"] * (len(frame) - self.n_constrained))
         frame.index.name = "axis"
         return frame
+
+    @property
+    def reading(self) -> str:
+        """What the first two axes show, and how to judge the picture."""
+        if self.stress is not None:
+            return (f"{self.method} of {self.n_samples} samples: stress {self.stress:.3f} "
+                    f"({self.stress_reading}); distances in the plot follow the ranks of the "
+                    "dissimilarities, not their values.")
+        ex = self.explained.head(2)
+        axes = " and ".join(f"{k} {100 * float(v):.1f} %" for k, v in ex.items()
+                            if np.isfinite(v))
+        text = f"{self.method} of {self.n_samples} samples: {axes or 'no axis'} of the variation."
+        summary = self.constrained_summary()
+        if summary:
+            text += f" {summary[0].upper()}{summary[1:]}."
+        if self.negative_share and self.negative_share > 0.01:
+            text += (f" Negative eigenvalues hold {100 * self.negative_share:.1f} % of the "
+                     "variation: shares of axes are of the positive part.")
+        return text
 
     def _title(self) -> str:
         bits = [f"{self.method}: {self.n_samples} samples", f"scaling: {self.scaling}"]
@@ -220,20 +242,6 @@ class Ordination(ResultMixin):
         import html as _html
         return (f"<div><p><b>{_html.escape(self._title())}</b></p>{body}"
                 f"{self._notes_html()}</div>")
-
-    def figure(self, *, kind: str = "samples", **kwargs):
-        """A plotly figure: ``kind='samples'`` the ordination plot, ``'scree'`` eigenvalues.
-
-        Keyword arguments go to :func:`tallyform.render.plots.ordination_figure` (``group``,
-        ``symbol``, ``ellipses``, ``axes``, ``taxa``, ``top_taxa``, ``arrows``, ``title``,
-        ``present``) or :func:`~tallyform.render.plots.scree_figure` (``present``).
-        """
-        check_option("kind", kind, ("samples", "scree"))
-        if kind == "scree":
-            from ..render.ordination_plots import scree_figure  # lazy: plotly is outer ring
-            return scree_figure(self, **kwargs)
-        from ..render.ordination_plots import ordination_figure
-        return ordination_figure(self, **kwargs)
 
     # ------------------------------------------------------------------ constrained share
     def constrained_summary(self) -> str | None:

@@ -87,6 +87,10 @@ class OutlierSamples(ResultMixin):
     def to_frame(self) -> pd.DataFrame:
         return self.table.copy()
 
+    @property
+    def reading(self) -> str:
+        return self.summary
+
     def _title(self) -> str:
         return "Samples that stand out"
 

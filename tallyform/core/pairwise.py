@@ -77,8 +77,21 @@ class PairwiseResult(ResultMixin):
     notes: tuple = ()
     statistic_name: str = "pseudo_f"
 
+    def tables(self) -> dict:
+        return {"pairwise": self.to_frame()}
+
     def to_frame(self) -> pd.DataFrame:
         return self.table.copy()
+
+    @property
+    def reading(self) -> str:
+        """Which pairs differ after the adjustment, at the 5 % level."""
+        adj = self.pvalue_adjusted
+        hit = [str(k) for k, p in adj.items() if p <= 0.05]
+        how = {"holm": "Holm", "bh": "Benjamini-Hochberg", None: "no"}[self.adjust]
+        head = (f"{len(hit)} of {len(adj)} pairs of {self.group!r} differ at adjusted "
+                f"p <= 0.05 ({how} adjustment)")
+        return head + (": " + "; ".join(hit) + "." if hit else ".")
 
     def _title(self) -> str:
         how = {"holm": "Holm", "bh": "Benjamini-Hochberg", None: "no"}[self.adjust]

@@ -115,18 +115,8 @@ class SizeShapeResult(ResultMixin):
         """Fractions for k = 1 .. kmax shape dimensions (adjusted, then unadjusted columns)."""
         return self._dims.copy()
 
-    def figure(self, *, kind: str = "bars", **kwargs):
-        """A plotly figure: ``kind='bars'`` the partition bar, ``'dims'`` fractions by k.
-
-        Keyword arguments go to :func:`tallyform.render.plots.partition_bars` or
-        :func:`~tallyform.render.plots.dims_figure` (e.g. ``present=True``).
-        """
-        _check_option("kind", kind, ("bars", "dims"))
-        if kind == "dims":
-            from ..render.partition_plots import dims_figure  # lazy: plotly is outer ring
-            return dims_figure(self, **kwargs)
-        from ..render.partition_plots import partition_bars
-        return partition_bars(self, **kwargs)
+    def tables(self) -> dict:
+        return {"size_shape": self.to_frame(), "size_shape_by_dims": self.by_dims()}
 
     def to_frame(self) -> pd.DataFrame:
         """One row per share: share, share_unadjusted, then (when computed) its 95 % interval
@@ -142,6 +132,20 @@ class SizeShapeResult(ResultMixin):
             out = out.join(self.tests[["pvalue"]], how="left")
         out.index.name = "fraction"
         return out
+
+    @property
+    def reading(self) -> str:
+        """The four shares in words, and the shape-only test when one was run."""
+        f = self.fractions
+        text = (f"Of the between-sample variation in {self.measure}: size alone "
+                f"{100 * f['size_only']:.1f} %, shared by size and shape "
+                f"{100 * f['shared']:.1f} %, shape alone {100 * f['shape_only']:.1f} %, "
+                f"unexplained {100 * f['residual']:.1f} % (adjusted shares).")
+        if self.tests is not None and "shape_only" in getattr(self.tests, "index", ()):
+            from .display import p_words
+            p = self.tests.loc["shape_only", "pvalue"]
+            text += f" Shape-only share tested: {p_words(p)}."
+        return text
 
     def _title(self) -> str:
         tr = f"{self.transform} + " if self.transform and self.transform != "none" else ""

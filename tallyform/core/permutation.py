@@ -351,15 +351,14 @@ class PermutationTest(ResultMixin):
                              "n_permutations": [self.n_permutations], "exact": [self.exact]},
                             index=["tested"])
 
+    @property
+    def reading(self) -> str:
+        from .display import p_words
+        return (f"Permutation F test ({self.scheme}): pseudo-F = {self.statistic:.3g}, "
+                f"{p_words(self.pvalue)}.")
+
     def _title(self) -> str:
         return f"Permutation F test ({self.scheme})"
-
-    def figure(self, **kwargs):
-        """The permutation distribution with the observed pseudo-F and p-value
-        (:func:`tallyform.render.plots.null_distribution_figure`)."""
-        from ..render.inference_plots import null_distribution_figure  # lazy: plotly
-        return null_distribution_figure(self, **kwargs)
-
 
 #: Sums of squares below this share of the total are rounding noise, and are set to 0.
 SS_RTOL = 1e-12

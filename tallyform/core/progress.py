@@ -37,6 +37,7 @@ import time
 from typing import Callable
 
 from .errors import Cancelled, InputError
+from .results import record_call
 
 __all__ = ["set_progress", "get_progress", "reports_progress", "Reporter", "format_seconds",
            "ESTIMATE_AFTER"]
@@ -330,6 +331,9 @@ def reports_progress(label: str, *, knob=None):
             finally:
                 _active.reset(token)
             rep.finish()
+            full = sig.bind_partial(*args, **kwargs)
+            full.apply_defaults()
+            record_call(out, fn.__name__, full.arguments)
             return out
 
         inner.__wrapped__ = fn

@@ -51,19 +51,21 @@ class ScanResult(ResultMixin):
         order_t = list(dict.fromkeys(self.frame["transform"]))
         return out.loc[order_m, order_t]
 
-    def figure(self, *, kind: str = "heatmap", value: str = "size_only", **kwargs):
-        """A plotly figure: ``kind='heatmap'`` one fraction over the grid (``value``),
-        ``'bars'`` one partition bar per (transform, measure).
+    @property
+    def reading(self) -> str:
+        """The range of the size-only share over the grid, and where it is smallest."""
+        ok = self.frame[self.frame["error"] == ""]
+        if ok.empty:
+            return "No combination of the grid is defined for these data."
+        lo, hi = ok["size_only"].idxmin(), ok["size_only"].idxmax()
 
-        Keyword arguments go to :func:`tallyform.render.plots.scan_heatmap` or
-        :func:`~tallyform.render.plots.partition_bars` (e.g. ``present=True``).
-        """
-        _check_option("kind", kind, ("heatmap", "bars"))
-        if kind == "bars":
-            from ..render.partition_plots import partition_bars  # lazy: plotly is outer ring
-            return partition_bars(self, **kwargs)
-        from ..render.partition_plots import scan_heatmap
-        return scan_heatmap(self, value=value, **kwargs)
+        def name(i):
+            tr = ok.loc[i, "transform"]
+            return (f"{tr} + " if tr not in ("none", "1", "1.0") else "") + ok.loc[i, "measure"]
+        return (f"Over {len(ok)} choices, the share of between-sample variation that is size "
+                f"alone runs from {100 * ok.loc[lo, 'size_only']:.1f} % ({name(lo)}) to "
+                f"{100 * ok.loc[hi, 'size_only']:.1f} % ({name(hi)}). Choosing here looks at no "
+                "group labels, so a test run afterwards keeps its level.")
 
     def _title(self) -> str:
         return f"Size and shape scan (n = {self.n}; size: {self.size}; shape: {self.shape})"

@@ -95,6 +95,28 @@ class SizeTestResult(ResultMixin):
     def to_frame(self) -> pd.DataFrame:
         return self.summary.copy()
 
+    @property
+    def method_name(self) -> str:
+        """The test's name in words ("Welch ANOVA")."""
+        return {"anova": "ANOVA", "welch": "Welch ANOVA", "kruskal": "Kruskal-Wallis",
+                "permutation": "permutation F test", "mixed": "linear mixed model",
+                "negbin": "negative-binomial regression"}.get(self.method, self.method)
+
+    @property
+    def reading(self) -> str:
+        """One plain sentence: whether the totals differ, and by how much at most."""
+        found = ("Evidence that the size (total abundance) differs" if self.pvalue <= 0.05
+                 else "No evidence at the 5 % level that the size (total abundance) differs")
+        name = self.method_name
+        text = f"{found} among the groups of {self.group!r} ({name}, {p_words(self.pvalue)})."
+        s = self.summary
+        if isinstance(s, pd.DataFrame) and "ratio" in s.columns and s["ratio"].notna().any():
+            r = s["ratio"].astype(float)
+            far = (np.log(r).abs()).idxmax()
+            text += (f" The ratio farthest from the reference is {far!r}: "
+                     f"{float(r[far]):.3g} times.")
+        return text
+
     def _title(self) -> str:
         name = {"anova": "ANOVA", "welch": "Welch ANOVA",
                 "kruskal": "Kruskal-Wallis, a test of distributions",

@@ -158,6 +158,17 @@ class WelchResult(ResultMixin):
                              "n_permutations": [self.n_permutations],
                              "exact": [self.exact]}, index=pd.Index([self.group], name="term"))
 
+    @property
+    def reading(self) -> str:
+        """One plain sentence: what the test found, at the 5 % level."""
+        what = "T_w^2" if len(self.groups) == 2 else "W_d"
+        found = ("Evidence that the group centroids differ" if self.pvalue <= 0.05 else
+                 "No evidence at the 5 % level that the group centroids differ")
+        return (f"{found} between the {len(self.groups)} groups of {self.group!r} on "
+                f"{self.measure} (Welch-type {what} = {self.statistic:.3g}, "
+                f"{p_words(self.pvalue)}); unequal spread alone does not make this test "
+                "reject, as it does PERMANOVA with unbalanced groups.")
+
     def _title(self) -> str:
         what = "T_w^2" if len(self.groups) == 2 else "W_d"
         on = f"{len(self.groups)} groups of {self.group!r}" + (
@@ -173,13 +184,6 @@ class WelchResult(ResultMixin):
                                n_permutations=self.n_permutations, exact=self.exact,
                                n_distinct=None, scheme=self.scheme, df=self.df,
                                ss=(math.nan, math.nan), path="distances", notes=self.notes)
-
-    def figure(self, **kwargs):
-        """The permutation distribution of the statistic with the observed value and p
-        (:func:`tallyform.render.inference_plots.null_distribution_figure`)."""
-        from ..render.inference_plots import null_distribution_figure  # lazy: plotly
-        return null_distribution_figure(self, **kwargs)
-
 
 # ---------------------------------------------------------------------------- the test
 def _symmetry(codes: np.ndarray, k: int, blocks: np.ndarray | None) -> int:

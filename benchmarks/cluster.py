@@ -125,8 +125,8 @@ def measure(client, n: int, p: int, perms: int, chunks: int, in_memory: bool) ->
 
 def project(n: int, workers: int, perms: int, m: dict, k: int = 1) -> dict:
     """Wall time of a PERMANOVA of n samples on ``workers`` workers from measured rates."""
-    from tallyform.core.permutation import _batch_size
-    batch = _batch_size(n, k, None)
+    from tallyform.core.permutation import default_batch_size
+    batch = default_batch_size(n, k, None)
     pairs = float(n) * n / 2.0
     build = 2 * pairs * m["s_pair"] / workers
     passes = int(np.ceil(perms / batch)) + 3

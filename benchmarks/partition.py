@@ -69,14 +69,14 @@ def main():
 
 def resampling(tab, n_boot=100, n_sim=50):
     """Time per leave-out replicate and per simulated null table, as ratios."""
-    from tallyform.core.partition import _size_shape_from, prepared_arrays
+    from tallyform.core.partition import size_shape_from, prepared_arrays
     from tallyform.core.partition_resample import leave_out_sets, replicate_shares
     for measure, transform in [("bray_curtis", None), ("hellinger", None),
                                ("bray_curtis", tly.Power(0.25))]:
         name = measure if transform is None else f"{measure} + {transform.name}"
         cold = timed(lambda: tly.size_shape(tab, measure, transform=transform), repeat=7)
         d = tly.dissimilarity(tab, measure, transform=transform)
-        part = timed(lambda: _size_shape_from(
+        part = timed(lambda: size_shape_from(
             tab, d, measure=measure, transform=transform, size="log_total",
             shape="chi_square", shape_dims=None, n_permutations=0, rng=None, progress=None,
             cancel=None), repeat=7, cold=False)

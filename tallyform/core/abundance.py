@@ -26,7 +26,7 @@ from __future__ import annotations
 import numpy as np
 
 from .errors import InputError, Location
-from .origin import _listing
+from .origin import listing
 from .table_checks import per_sample_values
 
 __all__ = ["ABUNDANCE", "require_absolute", "counting_basis", "totals_meaning",
@@ -88,7 +88,7 @@ def split_spike_in(values, taxon_labels, taxon_info, sample_info, sample_labels,
     where = np.flatnonzero(np.asarray(taxon_labels) == taxon)
     if where.size == 0:
         raise InputError(f"spike-in taxon {taxon!r} is not a taxon of the counts (taxa: "
-                         f"{_listing(taxon_labels)}).",
+                         f"{listing(taxon_labels)}).",
                          location=Location(file=origin.file),
                          hint="Name the spike-in exactly as its column (or row) is labelled; "
                               "case and spaces count.")
@@ -130,7 +130,7 @@ def absolute_from_reads(reads, load, sample_labels, origin, *, spike=None, added
             i = int(np.flatnonzero(zero)[0])
             raise InputError(
                 f"spike-in {spike_taxon!r} has no reads in sample {sample_labels[i]!r} "
-                f"({int(zero.sum())} such sample(s): {_listing(sample_labels[zero])}), so its "
+                f"({int(zero.sum())} such sample(s): {listing(sample_labels[zero])}), so its "
                 "load cannot be estimated (added x other reads / spike-in reads).",
                 location=origin.cell(sample_labels[i], spike_taxon),
                 hint="Remove those samples from the counts, or give measured loads with "
@@ -139,7 +139,7 @@ def absolute_from_reads(reads, load, sample_labels, origin, *, spike=None, added
         few = spike < FEW_SPIKE_READS
         if few.any():
             notes.append(f"spike-in {spike_taxon!r} has fewer than {FEW_SPIKE_READS} reads in "
-                         f"{int(few.sum())} sample(s) ({_listing(sample_labels[few])}): their "
+                         f"{int(few.sum())} sample(s) ({listing(sample_labels[few])}): their "
                          "loads are uncertain (relative error about 1/sqrt(spike-in reads)).")
     empty = depth <= 0
     if empty.any():

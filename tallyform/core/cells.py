@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError, Location
-from .table import _column_letter
+from .table import column_letter
 
 __all__ = ["Cells", "read_cells", "BadCell", "parse_number", "parse_numbers", "is_blank",
            "to_text", "NA_TOKENS"]
@@ -58,7 +58,7 @@ class Cells:
         line = None if i is None else int(self.lines[i])
         if self.spreadsheet and line is not None and j is not None:
             return Location(file=self.file, sheet=self.sheet,
-                            cell=f"{_column_letter(j)}{line}" +
+                            cell=f"{column_letter(j)}{line}" +
                             (f" ({header!r})" if header else ""))
         col = None if j is None else (f"column {j + 1}" + (f" ({header!r})" if header else ""))
         return Location(file=self.file, sheet=self.sheet,
@@ -66,7 +66,7 @@ class Cells:
 
     def column_name(self, j: int) -> str:
         """How a person names column j: a letter in a spreadsheet, a number in text."""
-        return _column_letter(j) if self.spreadsheet else str(j + 1)
+        return column_letter(j) if self.spreadsheet else str(j + 1)
 
     def from_line(self, first: int) -> "Cells":
         """The cells of line (or spreadsheet row) ``first`` onwards (1-based)."""

@@ -188,7 +188,7 @@ class SpreadTest(ChoiceTest):
     statistic_name = "F of distances to centroids"
 
     def prepare(self, table, choice, layout: Layout) -> Prepared:
-        from .dispersion import _residual_null, _sample_space
+        from .dispersion import residual_null, sample_space
         from .permutation import prepare_response
         d = choice.dissimilarity(table)
         free = bool(d.properties.get("size_free", False))
@@ -199,11 +199,11 @@ class SpreadTest(ChoiceTest):
             space = ("coords", y - cent[codes], signs)
         else:
             codes = layout.codes
-            space = _sample_space(d, codes)
+            space = sample_space(d, codes)
         size = space[1].nbytes
 
         def evaluate(idx):
-            return _residual_null(space, codes, FixedBatch(idx), correction=True)[:2]
+            return residual_null(space, codes, FixedBatch(idx), correction=True)[:2]
         return Prepared(evaluate, size, d.notes, free)
 
 

@@ -15,8 +15,8 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError
-from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, _check_option,
-                        _size_shape_from, interval_note, prepared_arrays, resampling_units)
+from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, check_option,
+                        size_shape_from, interval_note, prepared_arrays, resampling_units)
 from .random import as_rng
 from .results import ResultMixin
 from .table import as_table
@@ -40,12 +40,12 @@ def _normalise(choice, name: str) -> dict:
         raise InputError(f"`{name}` has unknown key(s) {unknown}; the keys are "
                          f"{list(CHOICE_KEYS)}.")
     out = dict(_DEFAULTS, **choice)
-    _check_option(f"{name}['size']", out["size"], SIZE_OPTIONS)
-    _check_option(f"{name}['shape']", out["shape"], SHAPE_OPTIONS)
+    check_option(f"{name}['size']", out["size"], SIZE_OPTIONS)
+    check_option(f"{name}['shape']", out["shape"], SHAPE_OPTIONS)
     return out
 
 
-def _describe(choice: dict) -> str:
+def describe_choice(choice: dict) -> str:
     """``'fourth_root + bray_curtis'`` (with size / shape settings when not default)."""
     from .transforms import get_transform
     tr = get_transform(choice["transform"]).name
@@ -66,7 +66,7 @@ def _change(a: dict, b: dict) -> str:
         return f"{b['measure']} instead of {a['measure']}"
     if not diff:
         return "the second choice (identical to the first)"
-    return f"{_describe(b)} instead of {_describe(a)}"
+    return f"{describe_choice(b)} instead of {describe_choice(a)}"
 
 
 def _capital(text: str) -> str:
@@ -136,7 +136,7 @@ class ChoiceComparison(ResultMixin):
         return {"choice_comparison": self.to_frame()}
 
     def _title(self) -> str:
-        return (f"{_describe(self.b)} minus {_describe(self.a)} (n = {self.n}"
+        return (f"{describe_choice(self.b)} minus {describe_choice(self.a)} (n = {self.n}"
                 + (f", {self.n_boot} replicates)" if self.n_boot else ")"))
 
     def __str__(self) -> str:
@@ -182,16 +182,16 @@ def compare_choices(table, a: dict, b: dict, *, n_boot: int = 999, rng=None,
     True
     """
     from .dissimilarity import dissimilarity
-    from .partition import _count
+    from .partition import check_count
     from .partition_resample import jackknife_interval, leave_out_sets, replicate_shares
     a, b = _normalise(a, "a"), _normalise(b, "b")
-    n_boot = _count("n_boot", n_boot)
+    n_boot = check_count("n_boot", n_boot)
     table = as_table(table)
     same = _key(a) == _key(b)
     results, arrays = [], []
     for ch in ((a,) if same else (a, b)):
         d = dissimilarity(table, ch["measure"], transform=ch["transform"])
-        results.append(_size_shape_from(
+        results.append(size_shape_from(
             table, d, measure=ch["measure"], transform=ch["transform"], size=ch["size"],
             shape=ch["shape"], shape_dims=ch["shape_dims"], n_permutations=0, rng=None,
             progress=None, cancel=None))

@@ -27,7 +27,7 @@ from .design import model_matrix
 from .eigen import (CORRECTIONS, EigenSplit, constraint_bases, corrected_gower, flip_signs,
                     residualized_gower, split_features, split_gower)
 from .errors import DesignError, InputError
-from .ordination import (Ordination, _labels_index, _require_design, as_dissimilarity,
+from .ordination import (Ordination, labels_index, require_design, as_dissimilarity,
                          axis_names, check_option)
 
 __all__ = ["ca", "cca", "rda", "db_rda", "SCALINGS",
@@ -61,14 +61,14 @@ class _Design:
 
     def data(self, method, labels, *, features=None, gower=None, weights=None,
              prefix="", totals=None, transform=None) -> ConstraintData:
-        return ConstraintData(method, _labels_index(labels), self.frame, tuple(self.terms),
+        return ConstraintData(method, labels_index(labels), self.frame, tuple(self.terms),
                               tuple(self.conditions), self.Xt, self.term_columns, Z=self.Xc,
                               features=features, gower=gower, weights=weights,
                               axis_prefix=prefix, totals=totals, transform=transform)
 
 
 def _design(samples, labels, terms, conditions) -> _Design:
-    frame = _require_design(samples, len(labels), labels)
+    frame = require_design(samples, len(labels), labels)
     if terms is None or (not isinstance(terms, str) and len(terms) == 0):
         raise DesignError("no terms were given; name at least one column of the sample table, "
                           "e.g. terms=['treatment'].")
@@ -125,7 +125,7 @@ def _assemble(method, split: EigenSplit, Yz, labels, taxa, *, row_scale, col_sca
     con_names = axis_names(con_prefix, len(fv)) if con_prefix else []
     res_names = axis_names(res_prefix, len(rv))
     names = con_names + res_names
-    idx = _labels_index(labels)
+    idx = labels_index(labels)
     fitted = corr = None
     if con_prefix:
         fitted = pd.DataFrame(lc * fs ** (alpha - 1.0), index=idx, columns=con_names)
@@ -530,7 +530,7 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
     res_scores = rz * np.sqrt(split.residual_values[rpos])
     con_names = axis_names("db-RDA", len(fv))
     res_names = axis_names("PCoA", int(rpos.sum()))
-    idx = _labels_index(labels)
+    idx = labels_index(labels)
     scores = pd.DataFrame(np.column_stack([wa, res_scores]), index=idx,
                           columns=con_names + res_names)
     fitted = pd.DataFrame(lc, index=idx, columns=con_names)

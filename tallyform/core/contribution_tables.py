@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .table import _listing
+from .table import listing
 from .taxon_terms import Groups, ShapeTerms, SizeRatios, jackknife_interval
 
 __all__ = ["Prepared", "ShapePart", "SizePart", "shape_part", "size_part", "shape_notes",
@@ -230,7 +230,7 @@ def size_notes(prep: Prepared, part: SizePart, *, pseudocount: float,
         inf = [str(t) for t, o in zip(taxa, only) if o]
         if inf:
             notes.append(f"size side: {len(inf)} taxon/taxa are seen in one group only and "
-                         f"have an infinite log2 ratio (and no interval): {_listing(inf)}.")
+                         f"have an infinite log2 ratio (and no interval): {listing(inf)}.")
     if prep.jackknife:
         differs = part.table["differs_from_total"]
         k = int(np.sum(differs.to_numpy(dtype=bool, na_value=False)))

@@ -35,7 +35,7 @@ import pandas as pd
 from .errors import DesignError, InputError
 from .results import ResultMixin
 from .abundance import require_absolute
-from .table import CommunityTable, _listing, as_table
+from .table import CommunityTable, listing, as_table
 from .contribution_tables import (Prepared, shape_notes, shape_part, size_notes,
                                   size_part)
 from .taxon_terms import (MIN_UNITS, PAIR_MEASURES, SPLIT_MEASURES, Groups, Ticker,
@@ -392,7 +392,7 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
     notes.extend(st.notes)
     if prep.excluded:
         notes.append(f"{len(prep.excluded)} taxon/taxa absent from every sample of both "
-                     f"groups were left out: {_listing(prep.excluded)}.")
+                     f"groups were left out: {listing(prep.excluded)}.")
     notes += size_notes(prep, size, pseudocount=float(pseudocount),
                         effort_name=tab.effort_name)
     na, nb = len(g.ia), len(g.ib)
@@ -425,7 +425,7 @@ def _prepare(table, group, a, b, *, measure, transform, intervals, level, pseudo
     missing = [lv for lv in (a, b) if lv not in levels]
     if missing:
         raise DesignError(f"group(s) {missing} are not levels of {gname!r}; its levels are "
-                          f"{_listing(levels, 20)}.")
+                          f"{listing(levels, 20)}.")
     if a == b:
         raise DesignError(f"`a` and `b` are both {a!r}; choose two different groups of "
                           f"{gname!r}.")

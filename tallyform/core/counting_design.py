@@ -36,7 +36,7 @@ def _features_or_distances(x: np.ndarray, labels, taxa, measure: str, transform,
     tests/core/test_counting.py checks that both give the same distances for every measure.
     """
     from .dissimilarity import Dissimilarity
-    from .measures import _Context, get_measure
+    from .measures import MeasureContext, get_measure
     from .transforms import get_transform
     rec = get_measure(measure)
     unknown = sorted(set(params) - set(rec.options))
@@ -53,7 +53,7 @@ def _features_or_distances(x: np.ndarray, labels, taxa, measure: str, transform,
         raise InputError(f"the {rec.label} measure is undefined for samples with nothing in "
                          f"them; sample {labels[int(empty[0])]!r} is all 0 after the "
                          f"transformation {tr.name!r}.")
-    ctx = _Context(pd.Index(labels, dtype=object), pd.Index(taxa, dtype=object), dict(params),
+    ctx = MeasureContext(pd.Index(labels, dtype=object), pd.Index(taxa, dtype=object), dict(params),
                    np.dtype(np.float64))
     if rec.features is not None:
         return np.asarray(rec.features(xt, ctx), dtype=np.float64), None, tuple(ctx.notes)

@@ -15,8 +15,8 @@ from .cells import display_name as _display_name
 from .cells import parse_numbers, read_cells
 from .cells import to_text as _to_text
 from .errors import InputError, Location
-from .io import _check_ids, _header, records_to_wide
-from .table import CommunityTable, Origin, _listing
+from .io import check_ids, header_names, records_to_wide
+from .table import CommunityTable, Origin, listing
 
 __all__ = ["read_darwin_core"]
 
@@ -45,7 +45,7 @@ def _dwc_sources(events, occurrences):
             oc = [n for n in names if Path(n).name.lower().startswith("occurrence")]
             if not ev or not oc:
                 raise InputError("the archive must hold event and occurrence tables; it has "
-                                 f"{_listing(names)}.", location=Location(file=str(p)),
+                                 f"{listing(names)}.", location=Location(file=str(p)),
                                  hint="A Darwin Core archive holds event.txt and "
                                       "occurrence.txt (or .csv).")
             return ((f"{p}!{ev[0]}", zf.read(ev[0])), (f"{p}!{oc[0]}", zf.read(oc[0])))
@@ -58,7 +58,7 @@ def _dwc_sources(events, occurrences):
 def _dwc_frame(name, data, encoding, sep):
     cells = read_cells(name.split("!")[0] if data is None else name, encoding=encoding,
                        sep=sep, data=data)
-    head = _header(cells, "record")
+    head = header_names(cells, "record")
     return cells, head, cells.frame.iloc[1:].reset_index(drop=True)
 
 
@@ -108,7 +108,7 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
                                   "column.")
     ev_j = lower_ev["eventid"]
     ev_ids = [_to_text(x) for x in ev_body.iloc[:, ev_j]]
-    _check_ids(ev_cells, ev_ids, ev_j, "eventID", "event")
+    check_ids(ev_cells, ev_ids, ev_j, "eventID", "event")
 
     # sample information: every other event column, numbers as numbers
     info = {}
@@ -193,7 +193,7 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
     if orphans:
         i = next(k for k, e in enumerate(oc_ev) if e not in known)
         raise InputError(f"{len(orphans)} eventID(s) in the occurrences are not in the event "
-                         f"table: {_listing(orphans)}.",
+                         f"table: {listing(orphans)}.",
                          location=oc_cells.where(i + 1, lower_oc["eventid"], "eventID"),
                          hint="Every occurrence must belong to a listed event.")
     frame = pd.DataFrame({"s": oc_ev, "t": oc_tx, "v": qty, "line": line})

@@ -213,7 +213,7 @@ class _Test:
     scheme: str
 
 
-def _residual_null(space: tuple, codes: np.ndarray, perms, *, correction: bool,
+def residual_null(space: tuple, codes: np.ndarray, perms, *, correction: bool,
                    progress=None, cancel=None) -> tuple:
     """Observed F of the distances to group centroids and its permutation distribution,
     the multivariate residuals permuted and every centroid and distance recomputed.
@@ -459,7 +459,7 @@ def dispersion_test(d, groups, *, samples=None, units=None, blocks=None,
         gcodes = ucodes
     else:
         z2 = centroid_distances_squared(d, codes, centre)
-        space = _sample_space(d, codes) if centre == "mean" else None
+        space = sample_space(d, codes) if centre == "mean" else None
         index = d.labels.copy()
         glabels = pd.Series(labels.to_numpy(), index=d.labels.copy(), name=name)
         what, where = "samples", None
@@ -477,7 +477,7 @@ def dispersion_test(d, groups, *, samples=None, units=None, blocks=None,
                    space=space, progress=progress, cancel=cancel)
 
 
-def _sample_space(d: Dissimilarity, codes: np.ndarray) -> tuple:
+def sample_space(d: Dissimilarity, codes: np.ndarray) -> tuple:
     """Residuals of the samples about their group centroid: coordinates on the feature
     path, their Gram matrix on the distance path."""
     resp = prepare_response(d)
@@ -502,7 +502,7 @@ def _finish(d, z2, gcodes, levels, index, glabels, perms, *, centre, correction,
     X = np.column_stack([np.ones(z.size)] + [(gcodes == k).astype(float)
                                              for k in range(1, len(levels))])
     if centre == "mean":
-        stat, null, df = _residual_null(space, gcodes, perms, correction=correction,
+        stat, null, df = residual_null(space, gcodes, perms, correction=correction,
                                         progress=progress, cancel=cancel)
         test = _Test(stat, pvalue_from_null(stat, null, exact=perms.exact), null,
                      int(perms.total), bool(perms.exact), df, perms.min_pvalue,

@@ -349,7 +349,7 @@ def _pair_of(n: int, k: int) -> tuple[int, int]:
 _DTYPES = {"float64": np.float64, "float32": np.float32}
 
 
-def _resolve_dtype(dtype) -> np.dtype:
+def resolve_dtype(dtype) -> np.dtype:
     try:
         dt = np.dtype(dtype)
     except TypeError:
@@ -359,11 +359,11 @@ def _resolve_dtype(dtype) -> np.dtype:
     return dt
 
 
-def _prepare(data, measure, transform, params: dict, dtype):
+def prepare_measure(data, measure, transform, params: dict, dtype):
     """Validate everything, then transform: (table, measure record, transform, x, context)."""
-    from .measures import _Context, get_measure
+    from .measures import MeasureContext, get_measure
     from .table import CommunityTable
-    from .transforms import _listing, get_transform
+    from .transforms import listing, get_transform
 
     rec = get_measure(measure)
     unknown = sorted(set(params) - set(rec.options))
@@ -388,20 +388,20 @@ def _prepare(data, measure, transform, params: dict, dtype):
             raise InputError(
                 f"the {rec.label} measure is undefined for samples with nothing in them; "
                 f"{len(names)} sample(s) are all 0 after the transformation {tr.name!r}: "
-                f"{_listing(names)}.",
+                f"{listing(names)}.",
                 hint="Remove them (CommunityTable(..., empty='drop')) or use a measure "
                      "defined for empty samples: euclidean, manhattan, canberra, gower.")
-        notes.append(f"{len(names)} sample(s) are all 0 ({_listing(names)}); {rec.label} is "
+        notes.append(f"{len(names)} sample(s) are all 0 ({listing(names)}); {rec.label} is "
                      "defined for them, but they have no composition to compare.")
     if tr.name.startswith("clr(pseudocount") and np.any(tab.values == 0):
         notes.append("clr with a fixed pseudocount: the pseudocount is a larger share of a "
                      "small sample than of a large one, so sample size leaks into the values.")
-    ctx = _Context(labels, tab.taxon_labels, dict(params), dtype)
+    ctx = MeasureContext(labels, tab.taxon_labels, dict(params), dtype)
     ctx.notes.extend(notes)
     return tab, rec, tr, x, ctx
 
 
-def _properties(rec, tr, ctx) -> dict:
+def measure_properties(rec, tr, ctx) -> dict:
     size_free = bool(rec.size_free or tr.removes_size)
     exact = ctx.properties.get("size_free_exact", rec.size_free_exact)
     exact = bool((rec.size_free and exact) or (tr.removes_size and tr.exact))
@@ -488,13 +488,13 @@ def dissimilarity(data, measure, *, transform=None, dtype="float64", chunks=None
         from .tiled_build import tiled_dissimilarity
         return tiled_dissimilarity(data, measure, transform=transform, dtype=dtype,
                                    chunks=chunks, **params)
-    dt = _resolve_dtype(dtype)
+    dt = resolve_dtype(dtype)
     key = _cache_key(data, measure, transform, params, dt)
     if key is not None:
         hit = shared_cache.get(key)
         if hit is not None:
             return hit
-    tab, rec, tr, x, ctx = _prepare(data, measure, transform, params, dt)
+    tab, rec, tr, x, ctx = prepare_measure(data, measure, transform, params, dt)
     n = x.shape[0]
     kw = dict(measure=rec.name, transform=tr.name, dtype=dt)
     if rec.features is not None:
@@ -516,7 +516,7 @@ def dissimilarity(data, measure, *, transform=None, dtype="float64", chunks=None
     opts = {k: ctx.params.get(k, v) for k, v in rec.options.items()}
     opts.update(ctx.record)
     out = Dissimilarity(cond, tab.sample_labels, features=feats, params=opts,
-                        properties=_properties(rec, tr, ctx), notes=tuple(ctx.notes),
+                        properties=measure_properties(rec, tr, ctx), notes=tuple(ctx.notes),
                         _owned=True, **kw)
     if key is not None:
         size = (n * (n - 1) / 2 * dt.itemsize + 8.0 * n * n      # distances + G when asked
@@ -542,7 +542,7 @@ def _cache_key(data, measure, transform, params, dt):
     try:
         tr = get_transform(transform).name
         frozen = tuple(sorted((k, freeze(v)) for k, v in params.items()))
-    except Exception:           # an invalid option: let _prepare raise the proper error
+    except Exception:           # an invalid option: let prepare_measure raise the proper error
         return None
     return ("dissimilarity", data.fingerprint, str(getattr(measure, "name", measure)), tr,
             dt.str, frozen)
@@ -563,7 +563,7 @@ def feature_matrix(data, measure, *, transform=None, **params) -> np.ndarray | N
     >>> feature_matrix([[1, 3], [4, 0]], "bray_curtis") is None
     True
     """
-    _, rec, _, x, ctx = _prepare(data, measure, transform, params, np.dtype(np.float64))
+    _, rec, _, x, ctx = prepare_measure(data, measure, transform, params, np.dtype(np.float64))
     if rec.features is None:
         return None
     f = np.array(rec.features(x, ctx), dtype=np.float64, copy=True)

@@ -237,7 +237,7 @@ class EllipseSet(ResultMixin):
                                (row["semi_major"], row["semi_minor"]), row["angle_rad"], k)
 
 
-def _aligned_groups(group, labels: pd.Index) -> np.ndarray:
+def aligned_groups(group, labels: pd.Index) -> np.ndarray:
     if isinstance(group, str):
         raise InputError("`group` must be the group labels (e.g. table.samples['treatment']), "
                          f"not a column name ({group!r}).")
@@ -403,7 +403,7 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
         if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 20:
             raise InputError(f"`n_boot` must be a whole number of at least 20; got {n_boot!r}.")
         rng = as_rng(rng)
-    g = _aligned_groups(group, labels)
+    g = aligned_groups(group, labels)
     levels = list(dict.fromkeys(g))  # order of first appearance
     rows, no_ellipse, notes = {}, {}, []
     withheld, warning, notes = _cautions(kind, level, chosen_by_groups, constrained)

@@ -136,7 +136,7 @@ def random_tests(resp, frame, mm, random, *, ss, block_codes, block_name, n_perm
     :func:`tallyform.core.strata.design_tests`.
     """
     from .permutation import Permutations, nested_bases
-    from .permutation import _clean
+    from .permutation import clean_ss
     from .schemes import UnitPermutations, combine_codes, label_symmetries
     from .strata import (DesignColumns, StratumRow, main_effects, run_jobs, sample_jobs,
                          unit_jobs, unit_residual)
@@ -150,7 +150,7 @@ def random_tests(resp, frame, mm, random, *, ss, block_codes, block_name, n_perm
     total = resp.total()
     q_model = nested_bases(None, mm.X)[1]
     df_res = n - 1 - q_model.shape[1]
-    ss_res = _clean(total - float(resp.quad(q_model).sum()), total)
+    ss_res = clean_ss(total - float(resp.quad(q_model).sum()), total)
     common = dict(progress=progress, cancel=cancel)
     jobs, schemes = [], []
     plain = [t for t in terms if den[t] is None]

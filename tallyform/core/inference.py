@@ -28,7 +28,7 @@ __all__ = ["permanova", "pairwise_permanova", "adjust_pvalues", "PermanovaResult
            "align_labels", "block_labels"]
 
 _SS_TYPES = ("sequential", "marginal")
-_ADJUST = ("holm", "bh", None)
+ADJUST_METHODS = ("holm", "bh", None)
 
 
 # ---------------------------------------------------------------------------- checks
@@ -204,7 +204,7 @@ class PermanovaResult(ResultMixin):
         return super().__str__() + ("\n" + self.reading if self.reading else "")
 
 
-def _resolve_plan(frame: pd.DataFrame, terms: list, units, block_name):
+def resolve_plan(frame: pd.DataFrame, terms: list, units, block_name):
     from .units import resolve_units
     if isinstance(units, pd.Series):
         units = align_labels(units, frame.index, "units")
@@ -369,7 +369,7 @@ def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
         plan = None
     else:
         from .strata import design_tests
-        plan = _resolve_plan(frame, terms, units, block_name)
+        plan = resolve_plan(frame, terms, units, block_name)
         notes += plan.notes
         tests, rows, more = design_tests(resp, frame, mm, plan, cyclic=cyclic, **common)
         provenance = plan.provenance()

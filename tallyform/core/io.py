@@ -14,7 +14,7 @@ from .cells import (NA_TOKENS, BadCell, Cells,
                     is_blank as _blank, parse_number, parse_numbers, read_cells,
                     to_text as _to_text)
 from .errors import InputError, Location
-from .table import CommunityTable, Origin, _listing
+from .table import CommunityTable, Origin, listing
 
 __all__ = ["read_counts", "read_samples", "read_long", "read_darwin_core", "read_cells"]
 
@@ -35,7 +35,7 @@ def _start(cells: Cells, header_row) -> Cells:
     return cells if header_row == 1 else cells.from_line(int(header_row))
 
 
-def _header(cells: Cells, what: str) -> list[str]:
+def header_names(cells: Cells, what: str) -> list[str]:
     head = [("" if _blank(x) else str(x).strip()) for x in cells.frame.iloc[0]]
     if cells.frame.shape[0] < 2:
         raise InputError(f"the file has a header line but no {what} rows "
@@ -72,11 +72,11 @@ def read_samples(path, *, id_column: str | None = None, sheet=None,
     """
     _check_number_options(decimal, thousands)
     cells = _start(read_cells(path, sheet=sheet, encoding=encoding, sep=sep), header_row)
-    head = _header(cells, "sample")
+    head = header_names(cells, "sample")
     id_j = _id_column(cells, head, id_column)
     body = cells.frame.iloc[1:]
     ids = [_to_text(x) for x in body.iloc[:, id_j]]
-    _check_ids(cells, ids, id_j, head[id_j], "sample")
+    check_ids(cells, ids, id_j, head[id_j], "sample")
     out = {}
     seen: dict[str, int] = {}
     for j, h in enumerate(head):
@@ -115,12 +115,12 @@ def _id_column(cells: Cells, head: list[str], id_column) -> int:
         return 0
     if id_column not in head:
         raise InputError(f"id column {id_column!r} is not in the header; columns are "
-                         f"{_listing([h for h in head if h], 20)}.", location=cells.where(0),
+                         f"{listing([h for h in head if h], 20)}.", location=cells.where(0),
                          hint="Pass the exact header of the label column (case counts).")
     return head.index(id_column)
 
 
-def _check_ids(cells: Cells, ids: list[str], j: int, header: str, what: str):
+def check_ids(cells: Cells, ids: list[str], j: int, header: str, what: str):
     seen: dict[str, int] = {}
     for i, x in enumerate(ids):
         if x == "":
@@ -212,7 +212,7 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
     info = _sample_frame(samples, samples_sheet, encoding, sep, samples_id_column, decimal,
                          thousands)
     cells = _start(read_cells(path, sheet=sheet, encoding=encoding, sep=sep), header_row)
-    head = _header(cells, "data")
+    head = header_names(cells, "data")
     id_j = _id_column(cells, head, id_column)
     body = cells.frame.iloc[1:]
     data_cols = [j for j in range(len(head)) if j != id_j]
@@ -247,7 +247,7 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
     rows, why = _orientation(rows, info, row_ids, col_ids, head[id_j], cells, data_cols, id_j)
     row_what = "sample" if rows == "samples" else "taxon"
     col_what = "taxon" if rows == "samples" else "sample"
-    _check_ids(cells, row_ids, id_j, head[id_j], row_what)
+    check_ids(cells, row_ids, id_j, head[id_j], row_what)
     seen: dict[str, int] = {}
     for j, c in zip(data_cols, col_ids):
         if c in seen:
@@ -367,8 +367,8 @@ def _orientation(rows, info, row_ids, col_ids, id_header, cells, data_cols, id_j
                 hint="Pass rows='samples' or rows='taxa', and check the labels.")
         raise InputError(
             "neither the row labels nor the column labels match the sample table's labels "
-            f"(rows start {_listing(row_ids, 3)}; columns start {_listing(col_ids, 3)}; "
-            f"the sample table lists {_listing(list(known), 3)}).",
+            f"(rows start {listing(row_ids, 3)}; columns start {listing(col_ids, 3)}; "
+            f"the sample table lists {listing(list(known), 3)}).",
             location=cells.where(0, id_j, id_header or None),
             hint="Check that both files use the same sample labels (case and spaces count).")
     key = id_header.strip().lower()
@@ -401,12 +401,12 @@ def read_long(path, samples=None, *, sample: str = "sample", taxon: str = "taxon
     _check_number_options(decimal, thousands)
     info = _sample_frame(samples, samples_sheet, encoding, sep, None, decimal, thousands)
     cells = _start(read_cells(path, sheet=sheet, encoding=encoding, sep=sep), header_row)
-    head = _header(cells, "data")
+    head = header_names(cells, "data")
     cols = {}
     for role, name in (("sample", sample), ("taxon", taxon), ("count", count)):
         if name not in head:
             raise InputError(f"the {role} column {name!r} is not in the header; columns are "
-                             f"{_listing([h for h in head if h], 20)}.",
+                             f"{listing([h for h in head if h], 20)}.",
                              location=cells.where(0),
                              hint=f"Name it with {role}='...'.")
         cols[role] = head.index(name)

@@ -42,7 +42,7 @@ def use_numba(flag: bool | None) -> None:
     _state["wanted"] = flag
 
 
-def _numba(work: float = np.inf):
+def numba_ready(work: float = np.inf):
     """The compiled-kernel module, or None (numpy path) for a problem of ``work`` operations."""
     wanted = _state["wanted"]
     if wanted is None:
@@ -63,7 +63,7 @@ def _numba(work: float = np.inf):
 
 def numba_enabled() -> bool:
     """True when the numba kernels are in use (for problems that are not tiny)."""
-    return _numba() is not None
+    return numba_ready() is not None
 
 
 def _prepare(x) -> np.ndarray:
@@ -128,7 +128,7 @@ def _sparse_parts(x):
     if n < 3:
         return None
     if sp.issparse(x):
-        if x.nnz > SPARSE_DENSITY * n * p or _numba(_work(x)) is None:
+        if x.nnz > SPARSE_DENSITY * n * p or numba_ready(_work(x)) is None:
             return None
         coo = sp.coo_matrix(x)
         coo.sum_duplicates()                    # row-major order, zeros kept out below
@@ -137,7 +137,7 @@ def _sparse_parts(x):
         data = np.ascontiguousarray(coo.data[keep], dtype=np.float64)
     else:
         x = np.asarray(x)
-        if np.count_nonzero(x) > SPARSE_DENSITY * n * p or _numba(_work(x)) is None:
+        if np.count_nonzero(x) > SPARSE_DENSITY * n * p or numba_ready(_work(x)) is None:
             return None
         rows, cols = np.nonzero(x)              # row-major: CSR order, columns sorted
         data = np.ascontiguousarray(x[rows, cols], dtype=np.float64)
@@ -188,7 +188,7 @@ def abs_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
     n = x.shape[0]
     t = _totals(t, n)
     out = _empty_out(n, dtype)
-    nbk = _numba(_work(x))
+    nbk = numba_ready(_work(x))
     if nbk is not None:
         with _LOCK:
             return nbk.abs_condensed(x, out, mode, t, float(scale))
@@ -209,7 +209,7 @@ def kulczynski_condensed(x, t, *, dtype=np.float64) -> np.ndarray:
     n = x.shape[0]
     t = _totals(t, n)
     out = _empty_out(n, dtype)
-    nbk = _numba(_work(x))
+    nbk = numba_ready(_work(x))
     if nbk is not None:
         with _LOCK:
             return nbk.kulczynski_condensed(x, out, t)
@@ -232,7 +232,7 @@ def sqeuclidean_condensed(x, *, mode: int = RAW, t=None, scale: float = 1.0,
     n = x.shape[0]
     t = _totals(t, n)
     out = _empty_out(n, dtype)
-    nbk = _numba(_work(x))
+    nbk = numba_ready(_work(x))
     if nbk is not None:
         with _LOCK:
             return nbk.sq_condensed(x, out, mode, t, float(scale))
@@ -252,7 +252,7 @@ def canberra_condensed(x, *, dtype=np.float64) -> np.ndarray:
     x = _dense(x)
     n = x.shape[0]
     out = _empty_out(n, dtype)
-    nbk = _numba(_work(x))
+    nbk = numba_ready(_work(x))
     if nbk is not None:
         with _LOCK:
             return nbk.canberra_condensed(x, out)
@@ -276,7 +276,7 @@ def jensen_shannon_condensed(profiles, *, dtype=np.float64) -> np.ndarray:
     p = _prepare(profiles)
     n = p.shape[0]
     out = _empty_out(n, dtype)
-    nbk = _numba(_work(p))
+    nbk = numba_ready(_work(p))
     if nbk is not None:
         with _LOCK:
             return nbk.js_condensed(p, out)
@@ -323,7 +323,7 @@ def euclidean_condensed(features, *, dtype=np.float64) -> np.ndarray:
     f = raw - raw.mean(axis=0)                 # translation leaves distances unchanged
     sq = np.einsum("ij,ij->i", f, f)
     block = int(max(16, min(256, _BLOCK_BYTES // (8 * n))))
-    nbk = _numba(_work(f))
+    nbk = numba_ready(_work(f))
     for i0 in range(0, n - 1, block):
         i1 = min(i0 + block, n - 1)
         g = f[i0:i1] @ f[i0:].T                # (b, n - i0): rows i0..i1-1 against j >= i0

@@ -25,12 +25,12 @@ import numpy as np
 from . import kernels as K
 from .errors import InputError
 from .transforms import Chord as _Chord
-from .transforms import Clr, _listing
+from .transforms import Clr, listing
 
 __all__ = ["Measure", "MEASURES", "get_measure", "measure_names"]
 
 
-class _Context:
+class MeasureContext:
     """What a measure's function may read (labels, options) and write (notes, flags)."""
 
     def __init__(self, labels, taxa, params: dict, dtype):
@@ -160,7 +160,7 @@ def _f_chi_square(x, ctx):
             # differences are all 0), so leaving it out is exact, not an approximation
             names = [str(ctx.taxa[j]) for j in empty]
             ctx.notes.append(f"{len(names)} taxon/taxa absent from every sample "
-                             f"({_listing(names)}) were left out of the chi-square distance: "
+                             f"({listing(names)}) were left out of the chi-square distance: "
                              "it divides by each taxon's total, and an absent taxon adds "
                              "nothing to any distance.")
             keep = col > 0
@@ -251,7 +251,7 @@ def _p_gower(x, ctx):
     if n_const:
         names = [str(ctx.taxa[j]) for j in np.flatnonzero(~keep)]
         ctx.notes.append(f"{n_const} taxon/taxa have the same value in every sample (range 0) "
-                         f"and were left out of the Gower mean: {_listing(names)}.")
+                         f"and were left out of the Gower mean: {listing(names)}.")
     if not keep.any():
         ctx.notes.append("every taxon is constant, so every Gower dissimilarity is 0.")
         return np.zeros(x.shape[0] * (x.shape[0] - 1) // 2, dtype=ctx.dtype)

@@ -15,7 +15,7 @@ from scipy.spatial.distance import pdist
 
 from .random import as_rng
 from .errors import Cancelled, InputError
-from .ordination import Ordination, _labels_index, as_dissimilarity, axis_names, flip_signs
+from .ordination import Ordination, labels_index, as_dissimilarity, axis_names, flip_signs
 from .progress import reports_progress
 
 __all__ = ["nmds", "stress_reading", "kruskal_stress"]
@@ -194,7 +194,7 @@ def nmds(d, *, n_axes: int = 2, n_starts: int = 20, rng=None, max_iter: int = 30
     if stress > _STRESS_SCALE[3][0]:
         notes.append(f"stress {stress:.3f} is high: try n_axes={n_axes + 1} or a PCoA.")
     ii, jj = np.triu_indices(n, 1)
-    labels = _labels_index(d.labels)
+    labels = labels_index(d.labels)
     shepard = pd.DataFrame({"sample_a": labels[ii], "sample_b": labels[jj],
                             "dissimilarity": dis, "distance": dist, "fitted": fitted})
     shepard = shepard.sort_values(["dissimilarity", "distance"], kind="stable") \

@@ -50,7 +50,7 @@ def axis_names(prefix: str, k: int, start: int = 1) -> list[str]:
     return [f"{prefix}{i}" for i in range(start, start + k)]
 
 
-def _labels_index(labels) -> pd.Index:
+def labels_index(labels) -> pd.Index:
     return pd.Index([str(x) for x in labels], dtype=object, name="sample")
 
 
@@ -317,7 +317,7 @@ class Ordination(ResultMixin):
         -------
         EllipseSet
         """
-        from .ellipses import _aligned_groups, group_ellipses, groups_choose_axes
+        from .ellipses import aligned_groups, group_ellipses, groups_choose_axes
         cols = [self._axis(a) for a in axes]
         if len(cols) != 2 or cols[0] == cols[1]:
             raise InputError(f"`axes` must name two different axes; got {axes!r}.")
@@ -325,7 +325,7 @@ class Ordination(ResultMixin):
         constrained_cols = [c for c in cols if c in self.constrained_axes]
         if self.fitted_scores is not None and len(self.fitted_scores.columns):
             labels = pd.Index([str(x) for x in self.scores.index])
-            g = _aligned_groups(group, labels)
+            g = aligned_groups(group, labels)
             if groups_choose_axes(self.fitted_scores.to_numpy(dtype=float), g):
                 name = getattr(group, "name", None)
                 what = f"{name!r}" if name is not None else "the groups"
@@ -569,7 +569,7 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
                             f"{100 * -lmin / values[0]:.2g} % of the largest); with only "
                             f"the {dims} leading axes computed, the share of the variation "
                             "held by negative eigenvalues was not measured.")
-    return _pcoa_result(d, values, vectors, total, complete=complete, dims=dims,
+    return pcoa_result(d, values, vectors, total, complete=complete, dims=dims,
                         correction=correction, notes=notes, provenance=prov,
                         spectrum=spectrum)
 
@@ -587,10 +587,10 @@ def _feature_path(F: np.ndarray, dims: int | None) -> tuple[np.ndarray, np.ndarr
     return values, u
 
 
-def _pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes,
+def pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes,
                  provenance, spectrum=None) -> Ordination:
     n = d.n
-    labels = _labels_index(d.labels)
+    labels = labels_index(d.labels)
     scale = max(float(np.max(np.abs(values))) if values.size else 0.0, 1e-300)
     tol = ZERO_RTOL * scale
     k = int(np.sum(values[: vectors.shape[1]] > tol))
@@ -623,7 +623,7 @@ def _pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes
         eigenvalues_complete=complete, provenance=provenance, notes=tuple(notes))
 
 
-def _require_design(samples, n_expected: int, labels: pd.Index) -> pd.DataFrame:
+def require_design(samples, n_expected: int, labels: pd.Index) -> pd.DataFrame:
     """The sample table aligned to ``labels`` (by label when they match, else by position)."""
     from .design import as_samples
     frame = as_samples(samples)

@@ -14,17 +14,17 @@ from .errors import Location
 
 __all__ = ["Origin"]
 
-_MAX_LISTED = 8
+MAX_LISTED = 8
 
 
-def _listing(items: Iterable, limit: int = _MAX_LISTED) -> str:
+def listing(items: Iterable, limit: int = MAX_LISTED) -> str:
     items = [str(x) for x in items]
     shown = ", ".join(repr(x) for x in items[:limit])
     more = len(items) - limit
     return shown + (f" and {more} more" if more > 0 else "")
 
 
-def _column_letter(j: int) -> str:
+def column_letter(j: int) -> str:
     """0-based column index -> spreadsheet letters (0 -> 'A', 26 -> 'AA')."""
     letters = ""
     j += 1
@@ -72,7 +72,7 @@ class Origin:
         what = f"(sample {sample!r}, taxon {taxon!r})"
         if self.spreadsheet and r is not None and c is not None:
             return Location(file=self.file, sheet=self.sheet,
-                            cell=f"{_column_letter(c)}{r} {what}")
+                            cell=f"{column_letter(c)}{r} {what}")
         row = f"line {r}" if r is not None else f"row {row_label!r}"
         col = (f"column {c + 1} ({col_label!r})" if c is not None else f"column {col_label!r}")
         return Location(file=self.file, sheet=self.sheet, row=f"{row} {what}", column=col)
@@ -86,12 +86,12 @@ class Origin:
             return Location(file=self.file, sheet=self.sheet,
                             row=f"line {r} ({label!r})" if r is not None else repr(label))
         c = self.column_numbers.get(label)
-        col = (_column_letter(c) if self.spreadsheet else c + 1) if c is not None else None
+        col = (column_letter(c) if self.spreadsheet else c + 1) if c is not None else None
         return Location(file=self.file, sheet=self.sheet,
                         column=f"column {col} ({label!r})" if col is not None else repr(label))
 
 
-def _shown(x) -> str:
+def shown_value(x) -> str:
     """A value as a person would write it (3, 0.5, 'abc'; never np.float64(3.0))."""
     if isinstance(x, (bool, np.bool_)):
         return repr(bool(x))

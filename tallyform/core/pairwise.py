@@ -10,7 +10,7 @@ import pandas as pd
 
 from .design import factor_levels, model_matrix
 from .errors import DesignError, Location
-from .inference import (_ADJUST, align_samples, block_labels, check_dissimilarity,
+from .inference import (ADJUST_METHODS, align_samples, block_labels, check_dissimilarity,
                         check_n_permutations, check_option, permanova)
 from .random import as_rng
 from .results import ResultMixin
@@ -32,7 +32,7 @@ def adjust_pvalues(pvalues, method: str | None = "holm") -> np.ndarray:
     >>> adjust_pvalues([0.01, 0.04, 0.03], "bh").round(3).tolist()
     [0.03, 0.04, 0.04]
     """
-    check_option("adjust", method, _ADJUST)
+    check_option("adjust", method, ADJUST_METHODS)
     p = np.array(pvalues, dtype=float)           # a copy: the caller's array is not touched
     if method is None or p.size == 0:
         return p
@@ -154,9 +154,9 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", u
     >>> res.pvalue.tolist(), res.pvalue_adjusted.round(2).tolist()
     ([0.1, 0.1, 0.1], [0.3, 0.3, 0.3])
     """
-    from .inference import _resolve_plan
+    from .inference import resolve_plan
     d = check_dissimilarity(d)
-    check_option("adjust", adjust, _ADJUST)
+    check_option("adjust", adjust, ADJUST_METHODS)
     check_option("statistic", statistic, ("pseudo_f", "welch"))
     n_permutations = check_n_permutations(n_permutations)
     frame, notes = align_samples(samples, d.labels)
@@ -171,7 +171,7 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", u
                           location=Location(column=repr(group)),
                           hint="Merge or drop those levels first.")
     block_codes, block_name = block_labels(frame, blocks)
-    plan = _resolve_plan(frame, [group], units, block_name)
+    plan = resolve_plan(frame, [group], units, block_name)
     notes += plan.notes
     unit_cols = _unit_columns(frame, plan)
     rng = as_rng(rng)

@@ -35,8 +35,8 @@ import pandas as pd
 
 from .errors import DesignError, InputError
 from .partition_math import (FRACTIONS, SHAPE_INERTIA_TARGET, SHAPE_OPTIONS,  # noqa: F401
-                             SIZE_OPTIONS, Variation, _centred_unit, _check_option,
-                             _partition_by_dims, _shape_dissimilarity, adjusted_r2,
+                             SIZE_OPTIONS, Variation, centred_unit, check_option,
+                             partition_by_dims, shape_dissimilarity, adjusted_r2,
                              default_dims, fractions_from_r2, negative_share,
                              shape_coordinates, size_predictor)
 from .random import as_rng
@@ -223,17 +223,17 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
     Shao J, Wu CFJ (1989) Annals of Statistics 17:1176-1197.
     """
     from .dissimilarity import dissimilarity
-    _check_option("size", size, SIZE_OPTIONS)
-    _check_option("shape", shape, SHAPE_OPTIONS)
-    n_permutations = _count("n_permutations", n_permutations)
-    n_boot = _count("n_boot", n_boot)
+    check_option("size", size, SIZE_OPTIONS)
+    check_option("shape", shape, SHAPE_OPTIONS)
+    n_permutations = check_count("n_permutations", n_permutations)
+    n_boot = check_count("n_boot", n_boot)
     table = as_table(table)
     n = table.n_samples
     if n < 5:
         raise DesignError(f"the partition needs at least 5 samples; the table has {n}.")
     codes, unit_name = resampling_units(table, units) if n_boot else (None, None)
     d = dissimilarity(table, measure, transform=transform)
-    res = _size_shape_from(table, d, measure=measure, transform=transform, size=size,
+    res = size_shape_from(table, d, measure=measure, transform=transform, size=size,
                            shape=shape, shape_dims=shape_dims, n_permutations=0, rng=None,
                            progress=None, cancel=None)
     if not (n_permutations or n_boot):
@@ -269,7 +269,7 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
     return replace(res, notes=tuple(dict.fromkeys(notes)), provenance=prov, **extra)
 
 
-def _count(name, value) -> int:
+def check_count(name, value) -> int:
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer)) \
             or value < 0:
         raise InputError(f"`{name}` must be a whole number >= 0; got {value!r}.")
@@ -292,7 +292,7 @@ def prepared_arrays(table, d, *, measure, transform, size, shape):
     """PartitionArrays of one choice on the whole table (for resampling)."""
     from .partition_engine import PartitionArrays
     z, _ = size_predictor(table, size)
-    sd = _shape_dissimilarity(table, shape, measure, transform)
+    sd = shape_dissimilarity(table, shape, measure, transform)
     return PartitionArrays.from_dissimilarities(d, z, sd)
 
 
@@ -352,7 +352,7 @@ def _cached_shape(table, shape, measure, transform, local=None):
         return local[key]
     hit = shared_cache.get(key)
     if hit is None:
-        sd = _shape_dissimilarity(table, shape, measure, transform)
+        sd = shape_dissimilarity(table, shape, measure, transform)
         u, ev, neg = shape_coordinates(sd)
         u.setflags(write=False)
         ev.setflags(write=False)
@@ -362,14 +362,14 @@ def _cached_shape(table, shape, measure, transform, local=None):
     return hit
 
 
-def _size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
+def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
                      n_permutations, rng, progress, cancel, shape_cache=None):
     """The partition of one choice (no inference: ``n_permutations`` must be 0)."""
     if n_permutations:
-        raise ValueError("_size_shape_from computes no tests; use size_shape.")
+        raise ValueError("size_shape_from computes no tests; use size_shape.")
     n = table.n_samples
     z_raw, size_label = size_predictor(table, size)
-    z = _centred_unit(z_raw)
+    z = centred_unit(z_raw)
     u, ev, shape_neg, shape_measure = _cached_shape(table, shape, measure, transform,
                                                     shape_cache)
     var = Variation(d)
@@ -391,7 +391,7 @@ def _size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
             notes.append(f"{k} shape dimensions exceed floor((n - 2) / 3) = {cap}: adjusted "
                          "R^2 values become unstable with so many predictors.")
     kmax = min(ev.size, max(cap, k))
-    dims = _partition_by_dims(var, z, u[:, :kmax], n)
+    dims = partition_by_dims(var, z, u[:, :kmax], n)
     row = dims.loc[k]
     if z is None:
         notes.append("every sample has the same size, so the size fraction is 0 by definition.")

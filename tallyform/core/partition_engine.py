@@ -192,7 +192,7 @@ def arrays_from_counts(x, *, measure, transform, shape, z, shape_dims=None, labe
     Taxa absent from the whole simulated table are dropped first (a taxon seen nowhere is
     not part of the data; the chi-square distance is undefined for it).
     """
-    from .measures import _Context, get_measure
+    from .measures import MeasureContext, get_measure
     from .transforms import get_transform
     x = np.asarray(x, float)
     present = x.sum(axis=0) > 0
@@ -206,7 +206,7 @@ def arrays_from_counts(x, *, measure, transform, shape, z, shape_dims=None, labe
         rec = get_measure(meas)
         t = get_transform(tr)
         xt = t.apply(values, labels=labels)
-        ctx = _Context(labels, taxa, dict(prm or {}), np.dtype(np.float64))
+        ctx = MeasureContext(labels, taxa, dict(prm or {}), np.dtype(np.float64))
         if rec.features is not None:
             return np.asarray(rec.features(xt, ctx), float), None
         from scipy.spatial.distance import squareform

@@ -29,7 +29,7 @@ FRACTIONS = ("size_only", "shared", "shape_only", "residual")
 SHAPE_INERTIA_TARGET = 0.75
 
 
-from .validation import check_option as _check_option  # noqa: E402
+from .validation import check_option as check_option  # noqa: E402
 
 
 # ---------------------------------------------------------------------------- variation of D
@@ -97,7 +97,7 @@ def negative_share(eigenvalues: np.ndarray) -> float:
 def size_predictor(table: CommunityTable, size: str = "log_total") -> tuple[np.ndarray, str]:
     """The size column and a description of it."""
     require_absolute(table, "the size fraction of a size and shape partition")
-    _check_option("size", size, SIZE_OPTIONS)
+    check_option("size", size, SIZE_OPTIONS)
     totals = table.totals.to_numpy()
     if (totals <= 0).any():
         bad = list(table.sample_labels[totals <= 0])[:8]
@@ -114,7 +114,7 @@ def size_predictor(table: CommunityTable, size: str = "log_total") -> tuple[np.n
     return np.log(totals / table.effort.to_numpy()), f"log total per {table.effort_name}"
 
 
-def _shape_dissimilarity(table, shape, measure, transform) -> Dissimilarity:
+def shape_dissimilarity(table, shape, measure, transform) -> Dissimilarity:
     from .dissimilarity import dissimilarity
     if shape != "same_measure":
         return dissimilarity(table, shape)
@@ -194,7 +194,7 @@ def fractions_from_r2(r2_s: float, r2_t: float, r2_st: float, *, n: int, m_s: in
             "shape_only": r2_st - r2_s, "residual": 1.0 - r2_st}
 
 
-def _centred_unit(z: np.ndarray) -> np.ndarray | None:
+def centred_unit(z: np.ndarray) -> np.ndarray | None:
     zc = z - z.mean()
     nrm = np.linalg.norm(zc)
     if nrm <= 1e-12 * max(1.0, np.abs(z).max()) * np.sqrt(z.size):
@@ -202,7 +202,7 @@ def _centred_unit(z: np.ndarray) -> np.ndarray | None:
     return zc / nrm
 
 
-def _partition_by_dims(var: Variation, z: np.ndarray | None, u: np.ndarray, n: int
+def partition_by_dims(var: Variation, z: np.ndarray | None, u: np.ndarray, n: int
                        ) -> pd.DataFrame:
     """Fractions for k = 1..K shape coordinates, in O(n K^2) after one pass over G.
 

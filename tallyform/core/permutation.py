@@ -364,7 +364,7 @@ class PermutationTest(ResultMixin):
 SS_RTOL = 1e-12
 
 
-def _clean(ss, total):
+def clean_ss(ss, total):
     """Sums of squares within rounding error of 0 (relative to ``total``) become 0."""
     tol = SS_RTOL * abs(float(total))
     if np.ndim(ss) == 0:
@@ -373,7 +373,7 @@ def _clean(ss, total):
     return np.where(np.abs(ss) <= tol, 0.0, ss)
 
 
-def _pseudo_f(ss_t, ss_res, df_t, df_res):
+def pseudo_f_ratio(ss_t, ss_res, df_t, df_res):
     """(ss_t / df_t) / (ss_res / df_res), with a perfect fit (no residual) giving +inf when
     the term explains something and NaN when it explains nothing either."""
     ss_t = np.asarray(ss_t, dtype=np.float64)
@@ -401,7 +401,7 @@ def pvalue_from_null(observed: float, null: np.ndarray, *, exact: bool) -> float
     return (1 + hits) / (1 + null.size)
 
 
-def _batch_size(n: int, k: int, q: int | None) -> int:
+def default_batch_size(n: int, k: int, q: int | None) -> int:
     width = n + (q if q is not None else n)
     by_memory = max(16, int(_BATCH_BYTES // (8 * max(k, 1) * width)))
     by_work = max(1, int(_BATCH_WORK // (max(k, 1) * n * (q if q is not None else n))))
@@ -442,9 +442,9 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
     k = qa.shape[1]
     total = resp.total()
     quad = resp.quad(qa)
-    ss_t = _clean(float(quad[nb:nb + nt].sum()), total)
-    ss_res = _clean(total - float(quad.sum()), total)
-    observed = _pseudo_f(ss_t, ss_res, nt, df_res)
+    ss_t = clean_ss(float(quad[nb:nb + nt].sum()), total)
+    ss_res = clean_ss(total - float(quad.sum()), total)
+    observed = pseudo_f_ratio(ss_t, ss_res, nt, df_res)
     r = resp.residual(qz)
     trace_r = r.total()
     # the reduced model's fitted part, seen by the tested columns: a constant and one fixed
@@ -473,7 +473,7 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
         scale = trace_r
     q_all = np.ascontiguousarray(qa.T)                          # k x n
     q = None if r.features is None else r.features.shape[1]
-    size = batch_size or _batch_size(n, k, q)
+    size = batch_size or default_batch_size(n, k, q)
     null = np.empty(perms.total)
     done = 0
     grand = grand_total if grand_total is not None else perms.total
@@ -509,7 +509,7 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
                 xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
             num = c2 * plain.sum(axis=0) + const.sum() + 2.0 * np.sqrt(c2) * xc
             den = c2 * den
-        null[done:done + b] = _pseudo_f(_clean(num, scale), _clean(den, scale), nt, df_res)
+        null[done:done + b] = pseudo_f_ratio(clean_ss(num, scale), clean_ss(den, scale), nt, df_res)
         done += b
         if progress is not None:
             progress(offset + done, grand)

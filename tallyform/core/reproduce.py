@@ -48,7 +48,7 @@ def units_comment(resolved) -> str:
     return f"sampling units ({how}): " + "; ".join(lv.describe() for lv in plan.levels)
 
 
-def _read_lines(spec, table) -> tuple[list[str], object]:
+def read_lines(spec, table) -> tuple[list[str], object]:
     """Lines that make ``tab`` in a fresh session, and the table (when known)."""
     rc = read_call(spec)
     if rc is not None:
@@ -70,7 +70,7 @@ def _read_lines(spec, table) -> tuple[list[str], object]:
 def spec_code(spec, table=None) -> str:
     """See :meth:`tallyform.AnalysisSpec.code`."""
     lines = ["import tallyform as tly", ""]
-    read, table = _read_lines(spec, table)
+    read, table = read_lines(spec, table)
     lines += read
     if table is not None:
         lines.append(f"# the table analysed: {table.n_samples} samples x {table.n_taxa} taxa "

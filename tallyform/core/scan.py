@@ -7,8 +7,8 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError
-from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, _check_option, _count,
-                        _size_shape_from, prepared_arrays, resampling_units, share_intervals)
+from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, check_option, check_count,
+                        size_shape_from, prepared_arrays, resampling_units, share_intervals)
 from .results import ResultMixin
 from .table import as_table
 from .progress import reports_progress
@@ -132,8 +132,8 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
     """
     from .dissimilarity import dissimilarity
     from .errors import Cancelled
-    _check_option("size", size, SIZE_OPTIONS)
-    _check_option("shape", shape, SHAPE_OPTIONS)
+    check_option("size", size, SIZE_OPTIONS)
+    check_option("shape", shape, SHAPE_OPTIONS)
     table = as_table(table)
     if isinstance(measures, str):
         measures = [measures]
@@ -144,7 +144,7 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
     unknown = [m for m in measures if m not in MEASURES]
     if unknown:
         raise InputError(f"unknown measure(s) {unknown}; choose from {sorted(MEASURES)}.")
-    n_boot = _count("n_boot", n_boot)
+    n_boot = check_count("n_boot", n_boot)
     kept, unit_name = None, None
     if n_boot:
         from .partition_resample import leave_out_sets
@@ -164,7 +164,7 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
             row = {"transform": tr.name, "measure": m}
             try:
                 d = dissimilarity(table, m, transform=tr)
-                r = _size_shape_from(table, d, measure=m, transform=tr, size=size, shape=shape,
+                r = size_shape_from(table, d, measure=m, transform=tr, size=size, shape=shape,
                                      shape_dims=shape_dims, n_permutations=0, rng=None,
                                      progress=None, cancel=None, shape_cache=cache)
                 row.update(r.fractions.to_dict())

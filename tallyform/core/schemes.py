@@ -40,7 +40,7 @@ from typing import Iterator
 import numpy as np
 
 from .errors import DesignError, InputError, Location
-from .symmetries import (FEW_PERMUTATIONS, _as_codes, _row_types, floor_note,  # noqa: F401
+from .symmetries import (FEW_PERMUTATIONS, as_codes, row_types, floor_note,  # noqa: F401
                          label_symmetries, span_symmetries)
 
 __all__ = ["Permutations", "UnitPermutations", "CyclicShifts", "within_units",
@@ -54,8 +54,8 @@ def combine_codes(*codes) -> np.ndarray | None:
     if not parts:
         return None
     if len(parts) == 1:
-        return _as_codes(parts[0])
-    keys = np.column_stack([_as_codes(p) for p in parts])
+        return as_codes(parts[0])
+    keys = np.column_stack([as_codes(p) for p in parts])
     _, out = np.unique(keys, axis=0, return_inverse=True)
     return out.ravel().astype(np.intp)
 
@@ -164,10 +164,10 @@ class Permutations:
         child = np.random.default_rng(np.random.default_rng(rng).integers(2**63, size=4))
         self._bit_generator = type(child.bit_generator)
         self._state = child.bit_generator.state
-        self.blocks = None if blocks is None else _as_codes(blocks)
+        self.blocks = None if blocks is None else as_codes(blocks)
         if self.blocks is not None and self.blocks.size != self.n:
             raise DesignError(f"{self.blocks.size} block labels for {self.n} samples.")
-        self.types = _row_types(design, self.n)
+        self.types = row_types(design, self.n)
         cap = max(self.requested, FEW_PERMUTATIONS)
         self.n_distinct = count_relabellings(self.types, self.blocks, cap=cap)
         if self.n_distinct == 1:

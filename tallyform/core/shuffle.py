@@ -84,8 +84,8 @@ def shuffled_rows(seeds: np.ndarray, order: np.ndarray, bounds: np.ndarray,
     seeds = np.ascontiguousarray(seeds, dtype=np.uint64)
     order = np.ascontiguousarray(order, dtype=np.intp)
     bounds = np.ascontiguousarray(bounds, dtype=np.intp)
-    from .kernels import _numba
-    nbk = _numba(float(seeds.size) * n * 8)
+    from .kernels import numba_ready
+    nbk = numba_ready(float(seeds.size) * n * 8)
     if nbk is not None:
         from ._numba_shuffle import shuffle_segments
         out = np.empty((seeds.size, n), dtype=np.intp)

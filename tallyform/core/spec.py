@@ -20,7 +20,7 @@ __all__ = ["AnalysisSpec", "SPEC_VERSION"]
 
 SPEC_VERSION = 1
 
-_CHOICES = {
+SPEC_CHOICES = {
     "size": ("log_total", "total", "log_total_per_effort"),
     "shape": ("chi_square", "hellinger", "aitchison", "same_measure"),
     "shape_measure": ("chi_square", "hellinger", "aitchison", "chord"),
@@ -172,7 +172,7 @@ class AnalysisSpec:
         """Check every value (and, given a table, that the named columns exist)."""
         from .measures import MEASURES
         from .transforms import get_transform
-        for key, allowed in _CHOICES.items():
+        for key, allowed in SPEC_CHOICES.items():
             if getattr(self, key) not in allowed:
                 raise InputError(f"spec key {key!r} must be one of {list(allowed)}; got "
                                  f"{getattr(self, key)!r}.")
@@ -294,9 +294,9 @@ class AnalysisSpec:
             except InputError as err:
                 raise InputError(f"spec key 'compare_with': {err}") from None
         for key in ("size", "shape"):
-            if key in cw and cw[key] not in _CHOICES[key]:
+            if key in cw and cw[key] not in SPEC_CHOICES[key]:
                 raise InputError(f"spec key 'compare_with' {key!r} must be one of "
-                                 f"{list(_CHOICES[key])}; got {cw[key]!r}.")
+                                 f"{list(SPEC_CHOICES[key])}; got {cw[key]!r}.")
         if cw.get("shape_dims") is not None:
             _int_key("compare_with shape_dims", cw["shape_dims"], low=1)
 

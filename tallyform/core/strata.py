@@ -53,7 +53,7 @@ from typing import Callable
 import numpy as np
 
 from .errors import DesignError
-from .permutation import Response, _clean
+from .permutation import Response, clean_ss
 from .unit_engine import full_rank_columns, precision_weights, unit_f, unit_residual
 
 __all__ = ["design_tests", "term_sets", "TermTest", "StratumRow", "unit_f",
@@ -338,7 +338,7 @@ def design_tests(resp: Response, frame, mm, plan, *, ss: str, block_codes, block
         q_model = nested_bases(None, mm.X)[1]
         df_res = n - 1 - q_model.shape[1]
         total = resp.total()
-        ss_res = _clean(total - float(resp.quad(q_model).sum()), total)
+        ss_res = clean_ss(total - float(resp.quad(q_model).sum()), total)
         jobs += sample_jobs(resp, cols, terms, ss, perms, df_res=df_res, stratum="samples",
                             against="Residual", base="intercept", blocks=block_codes,
                             block_name=block_name, **common)
@@ -382,7 +382,7 @@ def _between(resp, frame, cols, plan, k, stratum_terms, rows, schemes, *, ss, bl
     w, _ = precision_weights(resp, codes, y, signs, parent)
     if not stratum_terms:
         ss_tot, df_tot = unit_residual(y, signs, w, base)
-        rows.append(StratumRow(label, stratum, df_tot, _clean(ss_tot, resp.total())))
+        rows.append(StratumRow(label, stratum, df_tot, clean_ss(ss_tot, resp.total())))
         return []
     ub = unit_blocks(lv, block_codes, block_name) if block_codes is not None else None
     ublocks = combine_codes(parent, ub)
@@ -400,7 +400,7 @@ def _between(resp, frame, cols, plan, k, stratum_terms, rows, schemes, *, ss, bl
     sym = label_symmetries(main_effects(frame, stratum_terms, rows=first), ublocks)
     perms = UnitPermutations(codes, n_permutations, rng, unit_name=lv.name, blocks=ublocks,
                              block_name=ub_name, design=ucols(stratum_terms), symmetries=sym)
-    rows.append(StratumRow(label, stratum, df_res, _clean(ss_res, resp.total())))
+    rows.append(StratumRow(label, stratum, df_res, clean_ss(ss_res, resp.total())))
     rep = replication_text(frame, stratum_terms[0], lv, first) if len(stratum_terms) == 1 \
         else None
     schemes.append((perms, stratum_terms, rep))
@@ -419,7 +419,7 @@ def _within(resp, frame, mm, plan, within, rows, schemes, *, ss, block_codes, bl
     resp_w = resp.centred_within(codes)
     total = resp_w.total()
     if not within:
-        rows.append(StratumRow(label, stratum, n - m, _clean(total, resp.total())))
+        rows.append(StratumRow(label, stratum, n - m, clean_ss(total, resp.total())))
         return []
     sums = np.zeros((m, mm.X.shape[1]))
     np.add.at(sums, codes, mm.X)
@@ -432,7 +432,7 @@ def _within(resp, frame, mm, plan, within, rows, schemes, *, ss, block_codes, bl
                           f"({', '.join(map(repr, within))}) leave no within-unit "
                           "replication to test them against.",
                           hint="Use fewer within-unit terms or levels.")
-    ss_res = _clean(total - float(resp_w.quad(q_w).sum()), resp.total())
+    ss_res = clean_ss(total - float(resp_w.quad(q_w).sum()), resp.total())
     rows.append(StratumRow(label, stratum, df_res, ss_res))
     strata_codes = combine_codes(codes, block_codes)
     if cyclic is not None:

@@ -24,13 +24,13 @@ FEW_PERMUTATIONS = 100
 _FLOOR_NOTE = 0.01
 
 
-def _as_codes(values) -> np.ndarray:
+def as_codes(values) -> np.ndarray:
     """Integer codes 0..k-1 of arbitrary labels (order of first appearance irrelevant)."""
     _, codes = np.unique(np.asarray(values).astype(str), return_inverse=True)
     return codes.ravel().astype(np.intp)
 
 
-def _row_types(design: np.ndarray | None, n: int) -> np.ndarray:
+def row_types(design: np.ndarray | None, n: int) -> np.ndarray:
     """Codes of identical design rows: relabellings that swap equal rows change nothing."""
     if design is None or design.size == 0:
         return np.arange(n, dtype=np.intp)
@@ -82,7 +82,7 @@ def label_symmetries(columns, blocks=None, *, cap: int = 500) -> int:
     axes = []
     for kind, values in columns:
         if kind == "factor":
-            axes.append(("factor", _as_codes(values), None))
+            axes.append(("factor", as_codes(values), None))
         elif kind == "numeric":
             u, codes = np.unique(np.asarray(values, dtype=float), return_inverse=True)
             axes.append(("numeric", codes.ravel().astype(np.intp), u))
@@ -91,7 +91,7 @@ def label_symmetries(columns, blocks=None, *, cap: int = 500) -> int:
     if not axes:
         return 1
     n = axes[0][1].size
-    b = np.zeros(n, dtype=np.intp) if blocks is None else _as_codes(blocks)
+    b = np.zeros(n, dtype=np.intp) if blocks is None else as_codes(blocks)
     shape = [int(b.max()) + 1 if n else 1] + [int(c.max()) + 1 for _, c, _ in axes]
     if math.prod(shape) > 2_000_000:
         return 1
@@ -164,11 +164,11 @@ def span_symmetries(designs, blocks=None, *, max_types: int = 5) -> int:
         return 1
     n = mats[0].shape[0]
     full = np.hstack(mats)
-    types = _row_types(full, n)
+    types = row_types(full, n)
     t = int(types.max()) + 1
     if t > max_types or t < 2:
         return 1
-    b = np.zeros(n, dtype=np.intp) if blocks is None else _as_codes(blocks)
+    b = np.zeros(n, dtype=np.intp) if blocks is None else as_codes(blocks)
     rep = np.array([np.flatnonzero(types == k)[0] for k in range(t)])
     base = _block_signature(types, b)
     rows = [np.hstack([np.ones((t, 1)), X[rep]]) for X in mats]

@@ -13,10 +13,10 @@ import numpy as np
 import pandas as pd
 
 from .errors import DesignError, InputError, Location
-from .origin import Origin, _column_letter, _listing  # noqa: F401  (re-exported)
+from .origin import Origin, column_letter, listing  # noqa: F401  (re-exported)
 from .abundance import (absolute_from_reads, check_abundance, depth_note, load_values,
                         relative_summary, sequencing_hint, split_spike_in)
-from .table_checks import (_align, _check_values, _labels, _numeric_values, empty_policy,
+from .table_checks import (align_to_samples, check_values, checked_labels, numeric_values, empty_policy,
                            per_sample_values)
 
 __all__ = ["CommunityTable", "Origin", "as_table", "EMPTY_POLICIES"]
@@ -117,18 +117,18 @@ class CommunityTable:
         check_abundance(abundance, load, spike_in)
         origin = origin or Origin()
         df = self._as_frame(counts)
-        sample_labels = _labels(df.index, "sample", origin)
-        taxon_labels = _labels(df.columns, "taxon", origin)
+        sample_labels = checked_labels(df.index, "sample", origin)
+        taxon_labels = checked_labels(df.columns, "taxon", origin)
         df = df.set_axis(sample_labels, axis=0).set_axis(taxon_labels, axis=1)
         if origin.row_numbers == {} and origin.column_numbers == {}:
             origin = Origin(file=origin.file, sheet=origin.sheet, rows="samples",
                             row_numbers={s: i + 1 for i, s in enumerate(sample_labels)},
                             column_numbers={t: j for j, t in enumerate(taxon_labels)})
-        values = _numeric_values(df, origin)
-        _check_values(values, sample_labels, taxon_labels, origin)
+        values = numeric_values(df, origin)
+        check_values(values, sample_labels, taxon_labels, origin)
 
-        sample_info = _align(samples, sample_labels, "sample", origin, "samples")
-        taxon_info = _align(taxa, taxon_labels, "taxon", origin, "taxa")
+        sample_info = align_to_samples(samples, sample_labels, "sample", origin, "samples")
+        taxon_info = align_to_samples(taxa, taxon_labels, "taxon", origin, "taxa")
         effort_values, effort_name = self._effort(effort, sample_info, sample_labels, origin)
         per_sample = {"effort": effort_values}
         spike = None
@@ -418,7 +418,7 @@ class CommunityTable:
             if column not in self._samples.columns:
                 raise DesignError(
                     f"column {column!r} is not in the sample table; columns are: "
-                    f"{_listing(self._samples.columns, 20) or '(none)'}.",
+                    f"{listing(self._samples.columns, 20) or '(none)'}.",
                     location=Location(column=repr(column)),
                     hint="Load sample information with samples=... or pick one of those.")
             s, name = self._samples[column], column
@@ -426,7 +426,7 @@ class CommunityTable:
         if missing.any():
             bad = list(s.index[missing])
             raise DesignError(f"column {name!r} has missing values for sample(s) "
-                              f"{_listing(bad)}.", location=Location(column=repr(name)),
+                              f"{listing(bad)}.", location=Location(column=repr(name)),
                               hint="Fill them in, or take a subset without those samples.")
         out = s.astype(str)
         out.index = self._sample_labels
@@ -434,7 +434,7 @@ class CommunityTable:
         n_levels = out.nunique()
         if n_levels < min_levels:
             raise DesignError(f"column {name!r} has {n_levels} level(s) "
-                              f"({_listing(out.unique())}); this needs at least {min_levels}.",
+                              f"({listing(out.unique())}); this needs at least {min_levels}.",
                               location=Location(column=repr(name)),
                               hint="Pick a column that splits the samples into groups.")
         return out
@@ -552,7 +552,7 @@ class CommunityTable:
             wanted = [str(x) for x in arr.ravel()]
             unknown = [x for x in wanted if x not in pos]
             if unknown:
-                raise InputError(f"unknown {what} label(s): {_listing(unknown)}.")
+                raise InputError(f"unknown {what} label(s): {listing(unknown)}.")
             idx = np.array([pos[x] for x in wanted], dtype=int)
         if len(idx) == 0:
             raise InputError(f"the subset keeps no {what}s.")

@@ -9,10 +9,10 @@ import numpy as np
 import pandas as pd
 
 from .errors import DesignError, InputError, Location
-from .origin import _MAX_LISTED, Origin, _listing, _shown
+from .origin import MAX_LISTED, Origin, listing, shown_value
 
 
-def _labels(index: pd.Index, what: str, origin: Origin | None) -> pd.Index:
+def checked_labels(index: pd.Index, what: str, origin: Origin | None) -> pd.Index:
     """Labels as unique, non-blank strings, or an InputError that lists the offenders."""
     labels = pd.Index([str(x).strip() if not _is_missing(x) else "" for x in index],
                       dtype=object)
@@ -20,11 +20,11 @@ def _labels(index: pd.Index, what: str, origin: Origin | None) -> pd.Index:
     blank = [i for i, x in enumerate(labels) if x == ""]
     if blank:
         raise InputError(
-            f"{len(blank)} {what} label(s) are blank (position(s) {_listing([b + 1 for b in blank])}).",
+            f"{len(blank)} {what} label(s) are blank (position(s) {listing([b + 1 for b in blank])}).",
             location=Location(file=file), hint=f"Give every {what} a name.")
     dup = labels[labels.duplicated()].unique()
     if len(dup):
-        pos = {d: [i + 1 for i, x in enumerate(labels) if x == d] for d in dup[:_MAX_LISTED]}
+        pos = {d: [i + 1 for i, x in enumerate(labels) if x == d] for d in dup[:MAX_LISTED]}
         where = "; ".join(f"{d!r} at positions {p}" for d, p in pos.items())
         raise InputError(f"{what} labels must be unique; repeated: {where}.",
                          location=Location(file=file),
@@ -40,7 +40,7 @@ def _is_missing(x) -> bool:
         return False
 
 
-def _numeric_values(df: pd.DataFrame, origin: Origin) -> np.ndarray:
+def numeric_values(df: pd.DataFrame, origin: Origin) -> np.ndarray:
     """float64 copy of the cells; an InputError naming the first bad cell otherwise."""
     n, p = df.shape
     out = np.empty((n, p), dtype=np.float64)
@@ -81,7 +81,7 @@ def _is_blank(x) -> bool:
     return _is_missing(x) or (isinstance(x, str) and x.strip() == "")
 
 
-def _check_values(values: np.ndarray, samples: pd.Index, taxa: pd.Index, origin: Origin):
+def check_values(values: np.ndarray, samples: pd.Index, taxa: pd.Index, origin: Origin):
     finite = np.isfinite(values)
     if not finite.all():
         i, j = np.argwhere(~finite)[0]
@@ -100,7 +100,7 @@ def _check_values(values: np.ndarray, samples: pd.Index, taxa: pd.Index, origin:
                          hint="Counts and biomass must be >= 0.")
 
 
-def _align(info, labels: pd.Index, what: str, origin: Origin | None,
+def align_to_samples(info, labels: pd.Index, what: str, origin: Origin | None,
            info_name: str) -> pd.DataFrame:
     """Sample or taxon information aligned to ``labels`` (by label, never by position)."""
     if info is None:
@@ -111,7 +111,7 @@ def _align(info, labels: pd.Index, what: str, origin: Origin | None,
         raise InputError(f"`{info_name}` must be a DataFrame indexed by {what} label; "
                          f"got {type(info).__name__}.")
     info = info.copy()
-    info.index = _labels(info.index, f"{what} (in `{info_name}`)", None)
+    info.index = checked_labels(info.index, f"{what} (in `{info_name}`)", None)
     have, want = set(info.index), set(labels)
     missing = [x for x in labels if x not in have]
     extra = [x for x in info.index if x not in want]
@@ -119,10 +119,10 @@ def _align(info, labels: pd.Index, what: str, origin: Origin | None,
         msg = []
         if missing:
             msg.append(f"{len(missing)} {what}(s) in the counts are missing from `{info_name}`: "
-                       f"{_listing(missing)}")
+                       f"{listing(missing)}")
         if extra:
             msg.append(f"{len(extra)} {what}(s) in `{info_name}` are not in the counts: "
-                       f"{_listing(extra)}")
+                       f"{listing(extra)}")
         source = info.attrs.get("file")
         if source:
             msg[-1] += f" (sample information read from {source!r})"
@@ -147,7 +147,7 @@ def per_sample_values(value, info: pd.DataFrame, labels: pd.Index, origin: Origi
         if value not in info.columns:
             raise DesignError(
                 f"{role} column {value!r} is not in the sample table "
-                f"(columns: {_listing(info.columns)}).",
+                f"(columns: {listing(info.columns)}).",
                 location=Location(file=info.attrs.get("file", origin.file),
                                   column=repr(value)),
                 hint="Name one of the sample table's columns (case counts), or pass one "
@@ -175,7 +175,7 @@ def per_sample_values(value, info: pd.DataFrame, labels: pd.Index, origin: Origi
         col = attrs.get("columns", {}).get(name)
         raise InputError(
             f"{noun} must be a positive number; sample {labels[i]!r} has "
-            f"{_shown(raw.iloc[i])} ({int(bad.sum())} such sample(s)).",
+            f"{shown_value(raw.iloc[i])} ({int(bad.sum())} such sample(s)).",
             location=Location(file=attrs.get("file", origin.file),
                               row=(f"line {line} " if line else "") + f"(sample {labels[i]!r})",
                               column=(f"column {col} " if col else "") + f"({name!r})"),
@@ -196,14 +196,14 @@ def empty_policy(values: np.ndarray, sample_labels: pd.Index, taxon_labels: pd.I
     if empty == "error" and row_zero.any():
         bad = sample_labels[row_zero]
         raise InputError(
-            f"{len(bad)} sample(s) have a total of 0: {_listing(bad)}.",
+            f"{len(bad)} sample(s) have a total of 0: {listing(bad)}.",
             location=origin.label(bad[0], "samples"),
             hint="Remove them, or load with empty='drop' (they are then listed in "
                  "table.dropped).")
     if empty == "error" and col_zero.any():
         bad = taxon_labels[col_zero]
         raise InputError(
-            f"{len(bad)} taxon/taxa are never observed (all counts 0): {_listing(bad)}.",
+            f"{len(bad)} taxon/taxa are never observed (all counts 0): {listing(bad)}.",
             location=origin.label(bad[0], "taxa"),
             hint="Remove them, or load with empty='drop' (they are then listed in "
                  "table.dropped).")

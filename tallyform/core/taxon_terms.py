@@ -21,7 +21,7 @@ from scipy import stats
 
 from .errors import Cancelled, InputError
 from .memory import check_memory
-from .table import CommunityTable, _listing
+from .table import CommunityTable, listing
 
 __all__ = ["SPLIT_MEASURES", "PAIR_MEASURES", "Groups", "ShapeTerms", "SizeRatios",
            "centroid_noise", "jackknife_interval", "Ticker", "split_terms", "pair_terms",
@@ -241,7 +241,7 @@ def _pair_matrix(sub: CommunityTable, g: Groups, rec, transform):
         names = [str(sub.sample_labels[i]) for i in np.flatnonzero(empty)]
         raise InputError(f"the {rec.label} measure is undefined for samples with nothing in "
                          f"them; {len(names)} sample(s) of the two groups are all 0 after "
-                         f"the transformation {tr.name!r}: {_listing(names)}.",
+                         f"the transformation {tr.name!r}: {listing(names)}.",
                          hint="Remove them or choose another measure.")
     xa, xb = x[g.ia], x[g.ib]
     na, nb, p = len(g.ia), len(g.ib), x.shape[1]

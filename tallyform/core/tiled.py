@@ -50,7 +50,7 @@ def active_client():
         return None
 
 
-def _need_dask():
+def need_dask():
     try:
         import dask  # noqa: F401
     except ImportError:
@@ -58,7 +58,7 @@ def _need_dask():
                          hint='Install it with: pip install "tallyform[dask]"') from None
 
 
-def _put(blocks: list) -> list:
+def put_blocks(blocks: list) -> list:
     """Row blocks as data of the task graph (not scattered futures): a worker that dies
     takes nothing with it that the scheduler cannot send again, so lost tiles and lost
     partial sums are recomputed and the result is the same."""
@@ -131,7 +131,7 @@ def _tile_sum(tile):
 
 
 # ---------------------------------------------------------------------- tiles
-class _Tiles:
+class Tiles:
     """The persisted upper tiles of D and the products reduced over them."""
 
     def __init__(self, n: int, edges: np.ndarray, tiles: dict, dtype):
@@ -148,7 +148,7 @@ class _Tiles:
 
     def _blocks(self, W: np.ndarray) -> list:
         e = self.edges
-        return _put([np.ascontiguousarray(W[e[b]:e[b + 1]]) for b in range(self.n_blocks)])
+        return put_blocks([np.ascontiguousarray(W[e[b]:e[b + 1]]) for b in range(self.n_blocks)])
 
     def quad(self, W: np.ndarray) -> np.ndarray:
         """diag(W' A W) for W (n x c), A = D^2."""
@@ -202,7 +202,7 @@ class TiledDissimilarity(Dissimilarity):
         The n x n matrix as a lazy Dask array (the lower tiles are transposes).
     """
 
-    def __init__(self, tiles: _Tiles, labels, *, chunks: int, measure: str, transform=None,
+    def __init__(self, tiles: Tiles, labels, *, chunks: int, measure: str, transform=None,
                  params=None, properties=None, notes=(), dtype=np.float64, index=None,
                  parent=None):
         self._dtype = np.dtype(dtype)

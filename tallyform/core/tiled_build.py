@@ -11,9 +11,9 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .dissimilarity import _properties, _resolve_dtype
+from .dissimilarity import measure_properties, resolve_dtype
 from .errors import InputError
-from .tiled import TiledDissimilarity, _Tiles, _need_dask, _put
+from .tiled import TiledDissimilarity, Tiles, need_dask, put_blocks
 
 __all__ = ["tiled_dissimilarity"]
 
@@ -21,11 +21,11 @@ __all__ = ["tiled_dissimilarity"]
 def _make_tile(xi, xj, same: bool, measure: str, params: dict, dtype: str, i0: int, j0: int,
                labels_i, labels_j):
     """One tile D[I, J] from the row blocks of I and J with the measure's kernel."""
-    from .measures import _Context, get_measure
+    from .measures import MeasureContext, get_measure
     from scipy.spatial.distance import squareform
     rec = get_measure(measure)
     xi = np.asarray(xi, dtype=np.float64)
-    ctx = _Context(None, None, dict(params), np.dtype(dtype))
+    ctx = MeasureContext(None, None, dict(params), np.dtype(dtype))
     if same:
         tile = squareform(np.asarray(rec.pairwise(xi, ctx), dtype=np.float64), checks=False)
     else:
@@ -86,8 +86,8 @@ def tiled_dissimilarity(data, measure, *, transform=None, dtype="float64", chunk
     """The body of ``dissimilarity(..., chunks=N)`` (see :func:`tallyform.dissimilarity`)."""
     from .measures import get_measure
     from .transforms import get_transform
-    _need_dask()
-    dt = _resolve_dtype(dtype)
+    need_dask()
+    dt = resolve_dtype(dtype)
     rec = get_measure(measure)
     if rec.pairwise is None:
         raise InputError(f"the {rec.label} measure has a feature matrix: its tests and "
@@ -104,22 +104,22 @@ def tiled_dissimilarity(data, measure, *, transform=None, dtype="float64", chunk
         raise InputError(f"measure {rec.name!r} has no option(s) {unknown}.")
     if _is_dask(data):
         return _from_dask(data, rec, tr, dt, chunks, params)
-    from .dissimilarity import _prepare
-    tab, rec, tr, x, ctx = _prepare(data, measure, transform, params, dt)
+    from .dissimilarity import prepare_measure
+    tab, rec, tr, x, ctx = prepare_measure(data, measure, transform, params, dt)
     n = x.shape[0]
     chunks = _check_chunks(chunks, n)
     edges = np.unique(np.r_[np.arange(0, n, chunks), n])
     labels = tab.sample_labels
-    blocks = _put([np.ascontiguousarray(x[edges[b]:edges[b + 1]])
+    blocks = put_blocks([np.ascontiguousarray(x[edges[b]:edges[b + 1]])
                    for b in range(len(edges) - 1)])
     opts = {k: ctx.params.get(k, v) for k, v in rec.options.items()}
     return _assemble(blocks, edges, labels, rec, tr, dt, chunks, dict(ctx.params), opts,
-                     _properties(rec, tr, ctx), tuple(ctx.notes))
+                     measure_properties(rec, tr, ctx), tuple(ctx.notes))
 
 
 def _from_dask(data, rec, tr, dt, chunks, params):
     import dask
-    from .measures import _Context
+    from .measures import MeasureContext
     from . import transforms as T
     if not isinstance(tr, (T.Identity, T.Power, T.Log1p, T.Presence, T.Profile, T.Hellinger,
                            T.Chord)):
@@ -146,12 +146,12 @@ def _from_dask(data, rec, tr, dt, chunks, params):
     raw = arr.to_delayed()[:, 0]
     blocks = [prep(raw[b], tr.name, rec.name, dict(params), labels[edges[b]:edges[b + 1]],
                    int(edges[b])) for b in range(len(raw))]
-    ctx = _Context(pd.Index(labels), None, dict(params), dt)
+    ctx = MeasureContext(pd.Index(labels), None, dict(params), dt)
     opts = {k: params.get(k, v) for k, v in rec.options.items()}
     notes = ("computed from a Dask table block by block; empty samples were checked per "
              "block",)
     return _assemble(blocks, edges, labels, rec, tr, dt, chunks, dict(params), opts,
-                     _properties(rec, tr, ctx), notes)
+                     measure_properties(rec, tr, ctx), notes)
 
 
 def _assemble(blocks, edges, labels, rec, tr, dt, chunks, params, opts, props, notes):
@@ -170,7 +170,7 @@ def _assemble(blocks, edges, labels, rec, tr, dt, chunks, params, opts, props, n
         warnings.filterwarnings("ignore", message=".*[Ll]arge graph.*")
         warnings.filterwarnings("ignore", message=".*[Ll]arge object.*")
         persisted = dask.persist(*lazy)
-    tiles = _Tiles(int(edges[-1]), edges, dict(zip(keys, persisted)), dt)
+    tiles = Tiles(int(edges[-1]), edges, dict(zip(keys, persisted)), dt)
     return TiledDissimilarity(tiles, labels, chunks=chunks, measure=rec.name,
                               transform=tr.name, params=opts, properties=props, notes=notes,
                               dtype=dt)

@@ -70,7 +70,7 @@ def tiled_pcoa(d: TiledDissimilarity, *, correction=None, dims=None):
     the in-memory operator path, so the axes agree with it."""
     from scipy.sparse.linalg import LinearOperator
     from .eigen import leading_eigen
-    from .ordination import _pcoa_result
+    from .ordination import pcoa_result
     n = d.n
     if dims is None:
         raise InputError("a tiled dissimilarity gives the leading axes only.",
@@ -95,5 +95,5 @@ def tiled_pcoa(d: TiledDissimilarity, *, correction=None, dims=None):
                      "so the share held by negative eigenvalues is not known.")
     prov = {"method": "PCoA", **d.provenance, "correction": None, "correction_constant": 0.0,
             "dims": int(dims), "path": "tiles on Dask (leading axes, ARPACK)"}
-    return _pcoa_result(d, values, vectors, d.total_ss(), complete=False, dims=int(dims),
+    return pcoa_result(d, values, vectors, d.total_ss(), complete=False, dims=int(dims),
                         correction=None, notes=notes, provenance=prov)

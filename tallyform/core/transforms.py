@@ -31,7 +31,7 @@ __all__ = [
 _MAX_LISTED = 8
 
 
-def _listing(items, limit: int = _MAX_LISTED) -> str:
+def listing(items, limit: int = _MAX_LISTED) -> str:
     items = [str(x) for x in items]
     shown = ", ".join(repr(x) for x in items[:limit])
     return shown + (f" and {len(items) - limit} more" if len(items) > limit else "")
@@ -64,7 +64,7 @@ def _empty_rows(x: np.ndarray, labels, why: str) -> None:
     if empty.size:
         names = _row_names(empty, labels)
         raise InputError(
-            f"{len(names)} sample(s) have a total of 0, so {why}: {_listing(names)}.",
+            f"{len(names)} sample(s) have a total of 0, so {why}: {listing(names)}.",
             hint="Remove empty samples (CommunityTable(..., empty='drop')) or choose a "
                  "transformation and measure defined for them (none, power, log1p, with "
                  "Euclidean, Manhattan, Canberra or Gower).")
@@ -416,7 +416,7 @@ class Clr(Transform):
                 names = _row_names(np.flatnonzero(has_zero), labels)
                 raise InputError(
                     f"the centred log-ratio is undefined for zeros; {len(names)} sample(s) "
-                    f"contain zeros: {_listing(names)}.",
+                    f"contain zeros: {listing(names)}.",
                     hint="Use Clr(zeros='multiplicative') or Clr(zeros='pseudocount', "
                          "pseudocount=...), or remove the zeros.")
             return x / x.sum(axis=1, keepdims=True)
@@ -428,7 +428,7 @@ class Clr(Transform):
         if np.any(nz * delta >= 1):
             bad = _row_names(np.flatnonzero((nz * delta >= 1).ravel()), labels)
             raise InputError(f"delta = {delta!r} times the number of zeros reaches 1 in "
-                             f"sample(s) {_listing(bad)}; choose a smaller delta.")
+                             f"sample(s) {listing(bad)}; choose a smaller delta.")
         prof *= 1.0 - nz * delta
         prof[zero] = delta
         return prof

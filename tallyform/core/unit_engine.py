@@ -22,7 +22,7 @@ import numpy as np
 import scipy.linalg
 
 from .errors import Cancelled, DesignError
-from .permutation import Response, _clean, _pseudo_f
+from .permutation import Response, clean_ss, pseudo_f_ratio
 
 __all__ = ["unit_f", "full_rank_columns", "precision_weights", "unit_residual"]
 
@@ -125,9 +125,9 @@ def unit_f(y: np.ndarray, signs: np.ndarray, weights: np.ndarray, base, before, 
     c2 = (m - k0) / (m - Z.shape[1])            # residual variance correction (see notes)
     base_ss = obs[2][0, :k0].sum()
     scale = abs(float(obs[1][0]) - float(base_ss))
-    ss_t = _clean(float(obs[2][0, kb:kb + kt].sum()), scale)
-    ss_res = _clean(float(obs[1][0] - obs[2][0].sum()), scale)
-    observed = _pseudo_f(ss_t, ss_res, df_t, df_res)
+    ss_t = clean_ss(float(obs[2][0, kb:kb + kt].sum()), scale)
+    ss_res = clean_ss(float(obs[1][0] - obs[2][0].sum()), scale)
+    observed = pseudo_f_ratio(ss_t, ss_res, df_t, df_res)
     size = batch_size or max(16, int(_BATCH_BYTES // (8 * m * (2 * k + 2 * Z.shape[1] + 2))))
     null = np.empty(perms.total)
     done = 0
@@ -140,7 +140,7 @@ def unit_f(y: np.ndarray, signs: np.ndarray, weights: np.ndarray, base, before, 
         _, tot, sq = _unit_batch(idx, X, Z, w, fitted, e, f2, e2, signs, c2)
         num = sq[:, kb:kb + kt].sum(axis=1)
         den = tot - sq.sum(axis=1)
-        null[done:done + b] = _pseudo_f(_clean(num, scale), _clean(den, scale), df_t, df_res)
+        null[done:done + b] = pseudo_f_ratio(clean_ss(num, scale), clean_ss(den, scale), df_t, df_res)
         done += b
         if progress is not None:
             progress(offset + done, grand)

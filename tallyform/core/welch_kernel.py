@@ -14,7 +14,7 @@ import numpy as np
 from scipy import stats
 
 from .errors import Cancelled
-from .permutation import Permutations, Response, _batch_size, nested_bases, prepare_response
+from .permutation import Permutations, Response, default_batch_size, nested_bases, prepare_response
 from .units import unit_centroid_gower
 
 __all__ = ["welch_statistic", "statistic_batch", "gram_blocks", "run_permutations",
@@ -106,7 +106,7 @@ def run_permutations(resp: Response, codes: np.ndarray, perms: Permutations, pro
     B, t = gram_blocks(resp, onehot, np.arange(resp.n)[None, :], diag_g)
     stat, spread, weight, nu = (a[0] for a in statistic_batch(B, t, sizes, total))
     q = None if resp.features is None else resp.features.shape[1]
-    size = _batch_size(resp.n, k - 1, q)
+    size = default_batch_size(resp.n, k - 1, q)
     null = np.empty((2, perms.total))
     done = 0
     for idx in perms.batches(size):

@@ -138,7 +138,7 @@ def _tick(row: dict) -> str:
                                     for x in lines[1:]])
 
 
-def _describe(results) -> tuple[str, list[str]]:
+def describe_choice(results) -> tuple[str, list[str]]:
     """Default title and explanatory lines."""
     if isinstance(results, ScanResult):
         return (f"Size and shape over {len(results.frame)} settings (n = {results.n})",
@@ -250,7 +250,7 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
     left = min(0.0, low) - (0.12 if any(a.name == "negative fraction"
                                          for a in fig.layout.annotations) else 0.0)
     fig.add_vline(x=0, line={"color": "#222222", "width": 2})
-    default_title, lines = _describe(results)
+    default_title, lines = describe_choice(results)
     lines.append("shares of the dissimilarity's variation (adjusted R<sup>2</sup>); "
                  "they sum to 100 %"
                  + ("; right: each share with its 95 % interval" if with_ci else ""))
@@ -461,8 +461,8 @@ def choice_difference_figure(comparison, *, present: bool = False) -> go.Figure:
             textfont={"size": sz["small"]}, hovertext=["<br>".join(bits)],
             hovertemplate="%{hovertext}<extra></extra>", meta={"fraction": f}))
     fig.add_vline(x=0, line={"color": "#222222", "width": 2})
-    from ..core.choices import _describe
-    title = f"{_describe(comparison.b)} minus {_describe(comparison.a)} (n = {comparison.n})"
+    from ..core.choices import describe_choice
+    title = f"{describe_choice(comparison.b)} minus {describe_choice(comparison.a)} (n = {comparison.n})"
     lines = [comparison.reading.replace(". ", ".<br>")] if comparison.reading else []
     lines.append("difference in each share (b - a), percentage points"
                  + ("; whiskers: paired 95 % interval" if has_ci else ""))

@@ -48,10 +48,10 @@ def spec_code(spec) -> str:
 
 def reproduce_code(dashboard, spec=None) -> str:
     """Python that recomputes what the dashboard shows, one core call per line."""
-    from ..core.reproduce import _read_lines
+    from ..core.reproduce import read_lines
     tab = dashboard.table
     spec = dashboard_spec(dashboard) if spec is None else spec
-    read, _ = _read_lines(spec, tab)          # reads the data first, as spec.code() does
+    read, _ = read_lines(spec, tab)          # reads the data first, as spec.code() does
     lines = ["import tallyform as tly", "", *read,
              f"# the table analysed: {tab.n_samples} samples x {tab.n_taxa} taxa "
              f"(tab.fingerprint == {tab.fingerprint!r})",

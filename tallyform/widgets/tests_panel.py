@@ -30,7 +30,7 @@ import traitlets
 from ..core.errors import Cancelled, DesignError
 from ..core.spec import AnalysisSpec
 from ..core.measures import MEASURES
-from ..core.spec import _CHOICES
+from ..core.spec import SPEC_CHOICES
 from ..core.taxon_terms import PAIR_MEASURES, SPLIT_MEASURES
 from ..core.display import format_p
 from .common import (LABEL_STYLE, TABLE, TABLE_STYLE, Call, MessageArea, Ref, copy_figure,
@@ -112,7 +112,7 @@ class TestsPanel(widgets.VBox):
                                       style=LABEL_STYLE)
         self.group.add_class("tf-group")
         self.shape_measure = widgets.Dropdown(
-            options=[(MEASURES[m].label, m) for m in _CHOICES["shape_measure"]],
+            options=[(MEASURES[m].label, m) for m in SPEC_CHOICES["shape_measure"]],
             value="chi_square", description="Shape measure", style=LABEL_STYLE)
         self.shape_measure.add_class("tf-shape-measure")
         self.contribution_measure = widgets.Dropdown(
@@ -120,11 +120,11 @@ class TestsPanel(widgets.VBox):
             value="hellinger", description="Measure", style=LABEL_STYLE)
         self.contribution_measure.add_class("tf-contribution-measure")
         self.size_method = widgets.Dropdown(
-            options=[(_SIZE_METHOD_LABELS.get(m, m), m) for m in _CHOICES["size_method"]],
+            options=[(_SIZE_METHOD_LABELS.get(m, m), m) for m in SPEC_CHOICES["size_method"]],
             value="welch", description="Size test", style=LABEL_STYLE)
         self.size_method.add_class("tf-size-method")
         self.adjust = widgets.Dropdown(
-            options=[(_ADJUST_LABELS.get(a, str(a)), a) for a in _CHOICES["pairwise_adjust"]],
+            options=[(_ADJUST_LABELS.get(a, str(a)), a) for a in SPEC_CHOICES["pairwise_adjust"]],
             value="holm", description="Adjust p", style=LABEL_STYLE)
         self.adjust.add_class("tf-adjust")
         self.blocks = widgets.Dropdown(options=group_options(table), value="",

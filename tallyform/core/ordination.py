@@ -27,6 +27,7 @@ from .eigen import (CORRECTIONS, ZERO_RTOL, corrected_gower, eigh_desc, flip_sig
 from .errors import DesignError, InputError
 from .measures import setting_name
 from .memory import check_memory
+from .descriptor_scores import aligned_values, correlation_scores, weighted_average_scores
 from .results import ResultMixin
 
 __all__ = ["Ordination", "pcoa", "weighted_average_scores", "correlation_scores"]
@@ -386,59 +387,12 @@ class Ordination(ResultMixin):
                                  "table of abundances: taxon_scores(table).")
             return self.taxa.copy()
         check_option("method", method, ("weighted_average", "correlation"))
-        values, taxa = _aligned_values(table, self.scores.index)
+        values, taxa = aligned_values(table, self.scores.index)
         cols = self.axes if axes is None else [self._axis(a) for a in axes]
         s = self.scores[cols].to_numpy(dtype=float)
         out = (weighted_average_scores(values, s) if method == "weighted_average"
                else correlation_scores(values, s))
         return pd.DataFrame(out, index=pd.Index(taxa, name="taxon"), columns=cols)
-
-
-def _aligned_values(table, labels: pd.Index) -> tuple[np.ndarray, list]:
-    """Abundances (n x p) with rows in the order of ``labels``, and the taxon names."""
-    from .table import CommunityTable
-    if isinstance(table, CommunityTable):
-        frame = table.counts
-    elif isinstance(table, pd.DataFrame):
-        frame = table
-    else:
-        arr = np.asarray(table, dtype=float)
-        if arr.ndim != 2 or arr.shape[0] != len(labels):
-            raise InputError(f"the table must have one row per sample ({len(labels)} rows); "
-                             f"got shape {arr.shape}.")
-        frame = pd.DataFrame(arr, index=labels, columns=[f"taxon{j + 1}" for j in
-                                                         range(arr.shape[1])])
-    idx = pd.Index([str(x) for x in frame.index])
-    if set(idx) != set(labels):
-        missing = [x for x in labels if x not in set(idx)]
-        raise InputError(f"the table's samples do not match the ordination's; missing "
-                         f"from the table: {missing[:8]}.")
-    frame = frame.set_axis(idx).loc[list(labels)]
-    values = frame.apply(pd.to_numeric, errors="coerce").to_numpy(dtype=float)
-    if not np.isfinite(values).all():
-        raise InputError("the table holds non-numeric or non-finite values.")
-    return values, [str(c) for c in frame.columns]
-
-
-def weighted_average_scores(values: np.ndarray, scores: np.ndarray) -> np.ndarray:
-    """Abundance-weighted means of sample scores per taxon: (X' S) / column totals."""
-    tot = values.sum(axis=0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out = (values.T @ scores) / tot[:, None]
-    out[tot <= 0] = np.nan
-    return out
-
-
-def correlation_scores(values: np.ndarray, scores: np.ndarray) -> np.ndarray:
-    """Pearson correlation of each taxon (column of values) with each score column."""
-    xc = values - values.mean(axis=0)
-    sc = scores - scores.mean(axis=0)
-    num = xc.T @ sc
-    den = np.sqrt(np.sum(xc * xc, axis=0))[:, None] * np.sqrt(np.sum(sc * sc, axis=0))[None, :]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out = num / den
-    out[~np.isfinite(out)] = np.nan
-    return out
 
 
 # ---------------------------------------------------------------------------- eigen tools

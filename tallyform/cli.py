@@ -20,7 +20,10 @@ from pathlib import Path
 import pandas as pd
 
 from . import __version__
+from .core.abundance import ABUNDANCE
 from .core.errors import Cancelled, InputError, TallyformError
+from .core.scenarios import demo_names
+from .core.table import EMPTY_POLICIES
 
 
 class Progress:
@@ -289,7 +292,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--version", action="version", version=f"tallyform {__version__}")
     sub = p.add_subparsers(dest="command", required=True)
     d = sub.add_parser("demo", help="full analysis of a bundled synthetic demo scenario")
-    d.add_argument("name", nargs="?", default="mesocosm", choices=["mesocosm", "moths", "soil"])
+    d.add_argument("name", nargs="?", default="mesocosm", choices=demo_names())
     d.add_argument("--out", default="tallyform-demo",
                    help="folder for the report, tables and notebook (default: tallyform-demo)")
     d.add_argument("--group", help="sample column whose groups are compared")
@@ -310,7 +313,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--transform", help="transformation (none, sqrt, fourth_root, log1p...)")
     r.add_argument("--effort", help="sampling-effort column of the sample table")
     r.add_argument("--rows", choices=["samples", "taxa"], help="what the rows of the counts are")
-    r.add_argument("--abundance", choices=["absolute", "relative"],
+    r.add_argument("--abundance", choices=list(ABUNDANCE),
                    help="what the totals mean: absolute (counts of individuals, biomass; the "
                         "default) or relative (sequencing reads, percentages: size results "
                         "need --load or --spike-in)")
@@ -324,7 +327,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--decimal", help="decimal mark of the numbers (default '.')")
     r.add_argument("--thousands", help="thousands separator of the numbers (default none)")
     r.add_argument("--header-row", type=int, help="line of the header (default 1)")
-    r.add_argument("--empty", choices=["error", "drop", "keep"],
+    r.add_argument("--empty", choices=list(EMPTY_POLICIES),
                    help="samples or taxa with no counts: refuse (default), drop or keep them")
     r.add_argument("--out", required=True, help="output folder")
     r.set_defaults(func=_cmd_report)

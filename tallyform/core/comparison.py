@@ -24,9 +24,12 @@ from .units import resolve_units
 from .progress import reports_progress
 from .validation import check_fraction
 
-__all__ = ["compare_groups", "ComparisonResult", "reading_text"]
+__all__ = ["compare_groups", "ComparisonResult", "reading_text", "SHAPE_MEASURES"]
 
 _METHODS = SIZE_METHODS
+#: size-free measures offered for the shape and spread tests (any measure name or a
+#: Dissimilarity is accepted by compare_groups; these are the ones that ignore totals)
+SHAPE_MEASURES = ("chi_square", "hellinger", "aitchison", "chord")
 
 
 @dataclass(frozen=True, eq=False)

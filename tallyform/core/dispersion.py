@@ -26,7 +26,7 @@ from .interrupt import eigh as interruptible_eigh
 
 __all__ = ["dispersion_test", "DispersionResult", "centroid_distances_squared", "pcoa_axes"]
 
-_CENTRES = ("mean", "median")
+CENTRES = ("mean", "median")
 
 
 @dataclass(frozen=True, eq=False)
@@ -399,7 +399,7 @@ def dispersion_test(d, groups, *, samples=None, units=None, blocks=None,
     from .schemes import Permutations, combine_codes, label_symmetries
     from .units import resolve_units, unit_blocks
     d = check_dissimilarity(d)
-    check_option("centre", centre, _CENTRES)
+    check_option("centre", centre, CENTRES)
     n_permutations = check_n_permutations(n_permutations)
     frame, name, notes = _group_frame(d, groups, samples)
     g = frame[name]

@@ -27,7 +27,7 @@ __all__ = ["permanova", "pairwise_permanova", "adjust_pvalues", "PermanovaResult
            "PairwiseResult", "check_option", "check_n_permutations", "align_samples",
            "align_labels", "block_labels"]
 
-_SS_TYPES = ("sequential", "marginal")
+SS_TYPES = ("sequential", "marginal")
 ADJUST_METHODS = ("holm", "bh", None)
 
 
@@ -347,7 +347,7 @@ def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
     (0.1, 0.1)
     """
     d = check_dissimilarity(d)
-    check_option("ss", ss, _SS_TYPES)
+    check_option("ss", ss, SS_TYPES)
     n_permutations = check_n_permutations(n_permutations)
     frame, notes = align_samples(samples, d.labels)
     mm = model_matrix(frame, terms)

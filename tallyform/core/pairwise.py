@@ -16,7 +16,10 @@ from .random import as_rng
 from .results import ResultMixin
 from .progress import reports_progress
 
-__all__ = ["pairwise_permanova", "adjust_pvalues", "PairwiseResult"]
+__all__ = ["pairwise_permanova", "adjust_pvalues", "PairwiseResult", "PAIRWISE_STATISTICS"]
+
+#: the statistics a pairwise contrast can use: PERMANOVA's pseudo-F or the Welch-type T_w^2
+PAIRWISE_STATISTICS = ("pseudo_f", "welch")
 
 
 def adjust_pvalues(pvalues, method: str | None = "holm") -> np.ndarray:
@@ -157,7 +160,7 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", u
     from .inference import resolve_plan
     d = check_dissimilarity(d)
     check_option("adjust", adjust, ADJUST_METHODS)
-    check_option("statistic", statistic, ("pseudo_f", "welch"))
+    check_option("statistic", statistic, PAIRWISE_STATISTICS)
     n_permutations = check_n_permutations(n_permutations)
     frame, notes = align_samples(samples, d.labels)
     model_matrix(frame, [group])                      # the same checks as PERMANOVA

@@ -14,25 +14,36 @@ from pathlib import Path
 
 import numpy as np
 
+from .audit import MODELS
+from .comparison import SHAPE_MEASURES
+from .dispersion import CENTRES
+from .eigen import CORRECTIONS
+from .ellipses import ELLIPSE_KINDS
 from .errors import InputError
+from .inference import ADJUST_METHODS, SS_TYPES
+from .pairwise import PAIRWISE_STATISTICS
+from .partition_math import SHAPE_OPTIONS, SIZE_OPTIONS
+from .size_tests import SIZE_METHODS
 
 __all__ = ["AnalysisSpec", "SPEC_VERSION"]
 
 SPEC_VERSION = 1
 
+#: the options of every choice a spec records, read from the core modules that check them
+#: (one home for every list: the CLI and the widgets read them from here)
 SPEC_CHOICES = {
-    "size": ("log_total", "total", "log_total_per_effort"),
-    "shape": ("chi_square", "hellinger", "aitchison", "same_measure"),
-    "shape_measure": ("chi_square", "hellinger", "aitchison", "chord"),
-    "size_method": ("welch", "anova", "kruskal", "permutation", "negbin"),
-    "pairwise_adjust": ("holm", "bh", None),
-    "dispersion_centre": ("mean", "median"),
+    "size": SIZE_OPTIONS,
+    "shape": SHAPE_OPTIONS,
+    "shape_measure": SHAPE_MEASURES,
+    "size_method": SIZE_METHODS,
+    "pairwise_adjust": ADJUST_METHODS,
+    "dispersion_centre": CENTRES,
     "ordination": ("pcoa", "nmds"),
-    "correction": (None, "lingoes", "cailliez"),
-    "ellipse": ("confidence", "prediction", "data", "bootstrap", None),
-    "ss": ("sequential", "marginal"),
-    "audit_model": ("dirichlet_multinomial", "multinomial"),
-    "pairwise_statistic": ("pseudo_f", "welch"),
+    "correction": CORRECTIONS,
+    "ellipse": ELLIPSE_KINDS + (None,),
+    "ss": SS_TYPES,
+    "audit_model": MODELS,
+    "pairwise_statistic": PAIRWISE_STATISTICS,
 }
 #: reader options a spec may record under ``source`` (keywords of ``tly.read_counts``)
 SOURCE_KEYS = ("counts", "samples", "rows", "id_column", "taxa", "effort", "sheet",

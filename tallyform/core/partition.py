@@ -37,7 +37,7 @@ from .errors import DesignError, InputError
 from .partition_math import (FRACTIONS, SHAPE_INERTIA_TARGET, SHAPE_OPTIONS,  # noqa: F401
                              SIZE_OPTIONS, Variation, centred_unit, check_option,
                              partition_by_dims, shape_dissimilarity, adjusted_r2,
-                             default_dims, fractions_from_r2, negative_share,
+                             default_dims, shape_dims_limit, fractions_from_r2, negative_share,
                              shape_coordinates, size_predictor)
 from .random import as_rng
 from .results import ResultMixin
@@ -380,7 +380,7 @@ def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
         k, reason = default_dims(ev, n, total=shape_total)
     else:
         k = int(shape_dims)
-        limit = min(ev.size, n - 3)
+        limit = shape_dims_limit(n, ev.size)
         if not 1 <= k <= limit:
             raise InputError(f"`shape_dims` must be between 1 and {limit} for these data "
                              f"({ev.size} shape coordinate(s), {n} samples); got {shape_dims}.")

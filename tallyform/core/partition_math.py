@@ -156,6 +156,14 @@ def shape_coordinates(shape_d: Dissimilarity, *, max_dims: int | None = None
     return u, ev, neg
 
 
+def shape_dims_limit(n: int, n_axes: int | None = None) -> int:
+    """The most shape coordinates a partition of ``n`` samples may be given: n - 3 (one
+    degree of freedom left for size and two for the residual), and no more than the shape
+    dissimilarity has axes."""
+    limit = n - 3
+    return limit if n_axes is None else min(limit, n_axes)
+
+
 def default_dims(eigenvalues: np.ndarray, n: int, *, total: float | None = None,
                  target: float = SHAPE_INERTIA_TARGET) -> tuple[int, str]:
     """Smallest k whose coordinates hold ``target`` of the shape inertia, capped."""

@@ -142,6 +142,12 @@ class Identity(Transform):
         return x
 
 
+#: the named transforms that are powers x ** a, by exponent (presence: the limit a -> 0)
+_NAMED_POWERS = {1.0: "none", 0.5: "sqrt", 0.25: "fourth_root", 0.0: "presence"}
+#: their exponents by name (the slider of the dashboard reaches every one of them)
+POWER_EXPONENTS = {name: a for a, name in _NAMED_POWERS.items()}
+
+
 @dataclass(frozen=True, eq=False)
 class Power(Transform):
     """x ** a for 0 <= a <= 1: the continuous exponent of a slider.
@@ -178,8 +184,7 @@ class Power(Transform):
 
     @property
     def name(self) -> str:
-        return {1.0: "none", 0.5: "sqrt", 0.25: "fourth_root", 0.0: "presence"}.get(
-            self.a, f"power({self.a!r})")
+        return _NAMED_POWERS.get(self.a, f"power({self.a!r})")
 
     @property
     def removes_size(self) -> bool:

@@ -28,7 +28,8 @@ from ..core.ellipses import describe as describe_ellipse
 from ..core.measures import MEASURES
 from ..core.partition import SHAPE_OPTIONS, SIZE_OPTIONS
 from ..core.procrustes import align_ordination
-from ..core.transforms import TRANSFORMS
+from ..core.partition_math import shape_dims_limit
+from ..core.transforms import POWER_EXPONENTS, TRANSFORMS
 from .background import SettledRunner
 from .help import add_help, exponent_words, transform_words
 from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, error_text,
@@ -40,7 +41,6 @@ __all__ = ["ShapePanel", "LIVE_BUDGET", "POWER", "group_options", "INTERVAL_CHOI
 
 LIVE_BUDGET = 0.15        # seconds of compute under which the slider updates while dragged
 POWER = "power"           # the transform choice read from the exponent slider
-_POWER_FAMILY = {"none", "sqrt", "fourth_root", "presence"}   # exponents 1, 1/2, 1/4, 0
 _SIZE_LABELS = {"log_total": "log total", "total": "total",
                 "log_total_per_effort": "log total per effort"}
 _SHAPE_LABELS = {"chi_square": "chi-square profiles", "hellinger": "Hellinger profiles",
@@ -69,7 +69,7 @@ def _quiet(done, total) -> None:
 def transform_options() -> list[tuple[str, str]]:
     """Dropdown options: the exponent slider, then the named transforms it cannot reach."""
     named = [(transform_words(name), name) for name in TRANSFORMS
-             if name not in _POWER_FAMILY]
+             if name not in POWER_EXPONENTS]
     return [("power (exponent slider)", POWER)] + named
 
 
@@ -176,7 +176,7 @@ class ShapePanel(widgets.VBox):
         self.shape = widgets.Dropdown(options=[(_SHAPE_LABELS[s], s) for s in SHAPE_OPTIONS],
                                       value="chi_square", description="Shape as")
         self.shape.add_class("tf-shape-basis")
-        top = max(1, min(table.n_samples - 3, _MAX_DIMS_LISTED))
+        top = max(1, min(shape_dims_limit(table.n_samples), _MAX_DIMS_LISTED))
         self.shape_dims = widgets.Dropdown(
             options=[("auto (75 % of composition)", 0)]
             + [(str(k), k) for k in range(1, top + 1)], value=0, description="Shape axes")
@@ -290,10 +290,8 @@ class ShapePanel(widgets.VBox):
         from ..core.transforms import Power, get_transform
         tr = get_transform(spec.transform)
         with self.hold():
-            if isinstance(tr, Power) or tr.name in _POWER_FAMILY:
-                a = tr.a if isinstance(tr, Power) else {"none": 1.0, "sqrt": 0.5,
-                                                       "fourth_root": 0.25,
-                                                       "presence": 0.0}[tr.name]
+            if isinstance(tr, Power) or tr.name in POWER_EXPONENTS:
+                a = tr.a if isinstance(tr, Power) else POWER_EXPONENTS[tr.name]
                 self.transform.value = POWER
                 self.exponent.value = a
             else:

@@ -9,7 +9,7 @@ from scipy.spatial.distance import pdist
 import tallyform as tly
 from tallyform.core.design import orthonormal_basis
 from tallyform.core.dissimilarity import Dissimilarity
-from tallyform.core.partition import (Variation, _centred_unit, _partition_by_dims,
+from tallyform.core.partition import (Variation, centred_unit, partition_by_dims,
                                       adjusted_r2, fractions_from_r2)
 from tallyform.errors import DesignError, InputError
 
@@ -73,8 +73,8 @@ def test_incremental_by_dims_equals_direct_fits(rng):
     var = Variation(d)
     u = orthonormal_basis(rng.normal(size=(n, 8)) - 0)
     u = orthonormal_basis(u - u.mean(axis=0))
-    z = _centred_unit(rng.normal(size=n))
-    dims = _partition_by_dims(var, z, u, n)
+    z = centred_unit(rng.normal(size=n))
+    dims = partition_by_dims(var, z, u, n)
     for k in (1, 3, 8):
         r2_s = var.explained(z[:, None]) / var.total
         r2_t = var.explained(u[:, :k]) / var.total
@@ -124,8 +124,8 @@ def test_orthogonal_size_and_shape_share_nothing(rng):
     u = orthonormal_basis(u - u.mean(axis=0))
     z = rng.normal(size=n)
     z = z - u @ (u.T @ z)
-    z = _centred_unit(z - z.mean())
-    dims = _partition_by_dims(var, z, u, n)
+    z = centred_unit(z - z.mean())
+    dims = partition_by_dims(var, z, u, n)
     assert abs(dims.loc[4, "shared_unadjusted"]) < 1e-10
 
 

@@ -58,7 +58,7 @@ def test_every_module_uses_the_one_check():
     # the modules that once had their own copies now hold the shared function
     assert inference.check_option is check_option
     assert ordination.check_option is check_option
-    assert partition_math._check_option is check_option
+    assert partition_math.check_option is check_option
     assert inference.check_n_permutations is check_n_permutations
 
 

@@ -2,7 +2,9 @@
 
 Everything tallyform writes (spec, tables, figures, report) goes through
 :func:`atomic_write`: the content is written to a temporary file in the target folder and
-moved into place with ``os.replace`` only when complete.
+moved into place with ``os.replace`` only when complete, after its bytes reached the disk
+(``os.fsync``), so that a crash or a power cut right after leaves the old file or the new
+one, never a torn one. This is the project's one atomic writer.
 """
 from __future__ import annotations
 
@@ -17,12 +19,14 @@ __all__ = ["atomic_write", "write_text_atomic", "write_bytes_atomic"]
 
 
 @contextlib.contextmanager
-def atomic_write(path, mode: str = "w", *, encoding: str | None = "utf-8"):
+def atomic_write(path, mode: str = "w", *, encoding: str | None = "utf-8",
+                 suffix: str = ".part"):
     """Context manager yielding a file object; the target appears only on success.
 
     ``mode`` is ``'w'`` (text) or ``'wb'`` (bytes). For writers that need a path rather
     than a file object (e.g. spreadsheet writers), use ``mode='path'``: the temporary path
-    is yielded and moved into place afterwards.
+    is yielded and moved into place afterwards. ``suffix`` ends the temporary file's name
+    (some writers read the format from it).
     """
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
@@ -30,7 +34,7 @@ def atomic_write(path, mode: str = "w", *, encoding: str | None = "utf-8"):
         raise InputError(f"cannot write {str(path)!r}: the folder {str(folder)!r} does not "
                          "exist.")
     try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=folder)
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix, dir=folder)
     except OSError as err:
         raise InputError(f"cannot write in {str(folder)!r}: {err.strerror}.",
                          hint="Choose a folder you can write to.") from None
@@ -42,12 +46,15 @@ def atomic_write(path, mode: str = "w", *, encoding: str | None = "utf-8"):
             os.close(fd)
             owned = True
             yield tmp
+            _sync_path(tmp)
         else:
             kw = {"encoding": encoding, "newline": ""} if "b" not in mode else {}
             fh = os.fdopen(fd, mode, **kw)
             owned = True
             with fh:
                 yield fh
+                fh.flush()
+                os.fsync(fh.fileno())
         os.replace(tmp, path)
     except BaseException:
         if not owned:
@@ -56,6 +63,20 @@ def atomic_write(path, mode: str = "w", *, encoding: str | None = "utf-8"):
         with contextlib.suppress(OSError):
             tmp.unlink()
         raise
+
+
+def _sync_path(tmp: Path) -> None:
+    """fsync a file another writer filled (best effort: some file systems refuse)."""
+    try:
+        fd = os.open(tmp, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
 
 
 def _ordinary_mode(tmp: Path, path: Path) -> None:

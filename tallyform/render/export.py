@@ -12,16 +12,17 @@ partial file behind.
 """
 from __future__ import annotations
 
+import contextlib
 import os
 import shutil
 import signal
 import subprocess
 import sys
-import tempfile
 import warnings
 from pathlib import Path
 
 from ..core.errors import InputError
+from ..core.fileio import atomic_write
 
 __all__ = ["save", "static_export_available", "SavedFiles", "StaticExportWarning",
            "STATIC_FORMATS"]
@@ -177,52 +178,15 @@ def static_export_available(*, probe: bool = True, timeout: float = 60.0) -> tup
 
 
 # ---------------------------------------------------------------------------- writing
-def _fsync(fh) -> None:
-    fh.flush()
-    os.fsync(fh.fileno())
-
-
-def _final_mode(path: Path) -> int:
-    if path.exists():
-        return path.stat().st_mode & 0o777
-    umask = os.umask(0)
-    os.umask(umask)
-    return 0o666 & ~umask
-
-
-def _temp_name(path: Path, suffix: str) -> Path:
-    fd, name = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=suffix)
-    os.close(fd)
-    return Path(name)
-
-
-def _commit(tmp: Path, path: Path) -> None:
-    """Give the temporary file the target's permissions and rename it over the target."""
-    os.chmod(tmp, _final_mode(path))
-    os.replace(tmp, path)
-
-
-def _write_text_atomic(path: Path, write) -> None:
-    """Call ``write(file)`` on a temporary file next to ``path``, then rename it into place."""
-    tmp = _temp_name(path, ".tmp")
-    try:
-        with open(tmp, "w", encoding="utf-8") as fh:
-            write(fh)
-            _fsync(fh)
-        _commit(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-
-
 def _write_static(fig, targets: dict) -> None:
     """Write every static format in one browser session, each atomically."""
     import plotly.io as pio
     layout = fig.layout
     width = layout.width or _DEFAULT_SIZE[0]
     height = layout.height or _DEFAULT_SIZE[1]
-    temps = {fmt: _temp_name(path, f".tmp.{fmt}") for fmt, path in targets.items()}
-    try:
+    with contextlib.ExitStack() as stack:      # every file appears, or none does
+        temps = {fmt: stack.enter_context(atomic_write(path, "path", suffix=f".tmp.{fmt}"))
+                 for fmt, path in targets.items()}
         fmts = list(temps)
         scales = [_PNG_SCALE if f == "png" else 1 for f in fmts]
         for attempt in range(_ATTEMPTS):
@@ -241,11 +205,6 @@ def _write_static(fig, targets: dict) -> None:
         for f in fmts:
             if temps[f].stat().st_size == 0:
                 raise RuntimeError(f"the exporter wrote an empty {f.upper()} file")
-        for f in fmts:
-            _commit(temps[f], targets[f])
-    finally:
-        for tmp in temps.values():
-            tmp.unlink(missing_ok=True)
 
 
 def _targets(path, formats) -> tuple[Path, list[str]]:
@@ -309,8 +268,9 @@ def save(fig, path, *, formats=None) -> list[Path]:
     html_path = stem.with_name(stem.name + ".html")
     config = {"displaylogo": False, "responsive": True,
               "toImageButtonOptions": {"format": "png", "scale": _PNG_SCALE}}
-    _write_text_atomic(html_path, lambda fh: fig.write_html(
-        fh, include_plotlyjs=True, full_html=True, include_mathjax=False, config=config))
+    with atomic_write(html_path, "w") as fh:
+        fig.write_html(fh, include_plotlyjs=True, full_html=True, include_mathjax=False,
+                       config=config)
     written.append(html_path)
     static = [f for f in fmts if f in STATIC_FORMATS]
     if not static:

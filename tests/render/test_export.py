@@ -65,10 +65,11 @@ def test_failed_html_write_keeps_old_file(tmp_path, fig, monkeypatch):
     target = tmp_path / "fig.html"
     target.write_text("OLD", encoding="utf-8")
 
-    def broken_sync(fh):         # the data is in the temporary file when this fails
+    def broken_sync(fd):         # the data is in the temporary file when this fails
         raise OSError("disk full (simulated)")
 
-    monkeypatch.setattr(export, "_fsync", broken_sync)
+    from tallyform.core import fileio        # the one atomic writer syncs before renaming
+    monkeypatch.setattr(fileio.os, "fsync", broken_sync)
     with pytest.raises(OSError, match="simulated"):
         plots.save(fig, target, formats=["html"])
     assert target.read_text(encoding="utf-8") == "OLD"
@@ -144,3 +145,16 @@ def test_png_and_svg_export(tmp_path, fig):
     svg = (tmp_path / "fig.svg").read_text(encoding="utf-8")
     assert svg.lstrip().startswith("<svg") and "<text" in svg
     assert _only(tmp_path) == ["fig.html", "fig.png", "fig.svg"]     # no temporary files
+
+
+def test_one_atomic_writer_syncs_before_it_renames(tmp_path, monkeypatch):
+    # the order a crash-safe write needs: data synced to disk, then the rename (common practice)
+    from tallyform.core import fileio
+    calls = []
+    real_fsync, real_replace = fileio.os.fsync, fileio.os.replace
+    monkeypatch.setattr(fileio.os, "fsync", lambda fd: (calls.append("fsync"), real_fsync(fd)))
+    monkeypatch.setattr(fileio.os, "replace",
+                        lambda a, b: (calls.append("replace"), real_replace(a, b)))
+    fileio.write_text_atomic(tmp_path / "a.txt", "x")
+    assert calls == ["fsync", "replace"]
+    assert (tmp_path / "a.txt").read_text() == "x"

@@ -177,11 +177,7 @@ class AuditResult(ResultMixin):
         return (f"Audit: false alarms for 'composition differs' when only size differs "
                 f"({self.group}, alpha = {self.alpha:g})")
 
-    def _repr_html_(self) -> str:
-        import html
-        return (f"<div><p><b>{html.escape(self._title())}</b></p>"
-                f"{self._frame_html(self.to_frame(), '{:.3g}')}"
-                f"<p>{html.escape(self.reading)}</p>{self._notes_html()}</div>")
+    _html_format = "{:.3g}"
 
     def __str__(self) -> str:
         return super().__str__() + "\n" + self.reading

@@ -206,11 +206,6 @@ class ChoiceAdjustedResult(ResultMixin):
     def __str__(self) -> str:
         return super().__str__() + ("\n\n" + self.reading if self.reading else "")
 
-    def _repr_html_(self) -> str:
-        import html
-        frame = self._frame_html(self.to_frame())
-        return (f"<div><p><b>{html.escape(self._title())}</b></p>{frame}"
-                f"<p>{html.escape(self.reading)}</p>{self._notes_html()}</div>")
 
 def _p(p: float) -> str:
     return "p < 0.001" if p < 0.001 else f"p = {p:.2g}" if p < 0.01 else f"p = {p:.3g}"

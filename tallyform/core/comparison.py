@@ -127,11 +127,6 @@ class ComparisonResult(ResultMixin):
     def __str__(self) -> str:
         return super().__str__() + "\n\n" + self.reading
 
-    def _repr_html_(self) -> str:
-        import html
-        frame = self._frame_html(self.to_frame())
-        return (f"<div><p><b>{html.escape(self._title())}</b></p>{frame}"
-                f"<p>{html.escape(self.reading)}</p>{self._notes_html()}</div>")
 
 
 _MEASURE_NAMES = {"bray_curtis": "Bray-Curtis", "chi_square": "chi-square",

@@ -106,10 +106,6 @@ class CountingTestResult(ResultMixin):
     def __str__(self) -> str:
         return super().__str__() + "\n" + self.reading
 
-    def _repr_html_(self) -> str:
-        import html
-        return super()._repr_html_().replace(
-            "</div>", f"<p>{html.escape(self.reading)}</p></div>", 1)
 
     def as_test(self):
         """The test as the engine's result it matches: a DispersionResult for spread, a

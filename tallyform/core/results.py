@@ -135,10 +135,18 @@ class ResultMixin:
         return display_frame(frame, rename=self.display_labels()).to_html(
             float_format=fmt.format, na_rep="")
 
+    #: number format of the shown table
+    _html_format = "{:.4g}"
+
+    def _reading_html(self) -> str:
+        text = getattr(self, "reading", "")
+        return f"<p>{html.escape(text)}</p>" if isinstance(text, str) and text else ""
+
     def _repr_html_(self) -> str:
-        frame = self._frame_html(self.to_frame())
+        """Title, the table as shown, the reading, the notes (one layout for every result)."""
+        frame = self._frame_html(self.to_frame(), self._html_format)
         return (f"<div><p><b>{html.escape(self._title())}</b></p>{frame}"
-                f"{self._notes_html()}</div>")
+                f"{self._reading_html()}{self._notes_html()}</div>")
 
     def __str__(self) -> str:
         with pd.option_context("display.float_format", "{:.4g}".format,

@@ -113,7 +113,8 @@ def test_bootstrap_reference_is_reproducible_and_cancellable():
     a = size_test(tab, "g", method="negbin", nb_reference="bootstrap", n_boot=49, rng=7)
     b = size_test(tab, "g", method="negbin", nb_reference="bootstrap", n_boot=49, rng=7)
     assert a.pvalue == b.pvalue and a.n_boot == 49 and "bootstrap" in a.reference
-    assert 1 / 50 <= a.pvalue <= 1
+    k = a.pvalue * 50                     # (1 + #{LR* >= LR}) / (B + 1) with B = 49
+    assert 1 <= round(k) <= 50 and abs(k - round(k)) < 1e-9
     default = size_test(tab, "g", method="negbin", rng=7)
     assert default.n_boot == 999 and "bootstrap" in default.reference
     # the bootstrap p-value is the share of null draws at least as large: against the

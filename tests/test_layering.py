@@ -46,7 +46,7 @@ def layering_violations(pkg: Path) -> list:
 
     core -> nothing outside core (figure() methods may import tallyform.render lazily, and
     core/progress.py the notebook bar tallyform.widgets.progress);
-    render -> core; widgets -> core + render (DESIGN.md).
+    render -> core; widgets -> core + render (DEVELOPERS.md, "Layout").
     """
     bad = []
     for f in (pkg / "core").rglob("*.py"):

@@ -2,7 +2,7 @@
 
 The variation of the chosen dissimilarity (its Gower-centred matrix G, Gower 1966) is
 partitioned by distance-based redundancy analysis (db-RDA; Legendre & Anderson 1999, McArdle &
-Anderson 2001) between two predictor sets (METHODS.md sections 1 and 5):
+Anderson 2001) between two predictor sets (docs/methods.md, sections 1 and 5):
 
 * size S: one column, the log of each sample's total (or the total, or log total per effort);
 * shape T: the leading k principal coordinates of a size-free dissimilarity among the

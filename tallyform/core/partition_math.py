@@ -6,7 +6,7 @@ Shared by :func:`tallyform.size_shape` (one partition), its Monte Carlo tests
 
 R^2 of predictors Z is tr(H G) / tr(G), H the hat matrix of [1, Z] (McArdle & Anderson
 2001); adjusted R^2 after Ezekiel (1930); fractions after Borcard et al. (1992) and
-Peres-Neto et al. (2006); see METHODS.md section 5.
+Peres-Neto et al. (2006); see docs/methods.md, section 5.
 """
 from __future__ import annotations
 

@@ -191,7 +191,7 @@ def _effort(tab: CommunityTable, effort) -> tuple[np.ndarray | None, str | None]
 
 
 def size_measure(table, *, effort=None, log: bool = True) -> pd.Series:
-    """Each sample's size: log(total), or log(total / effort) (METHODS.md 1).
+    """Each sample's size: log(total), or log(total / effort) (docs/methods.md, section 1).
 
     ``effort=None`` uses the table's effort when it has one; ``False`` ignores it; a column
     name or one positive value per sample sets it.

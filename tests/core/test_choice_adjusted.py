@@ -2,7 +2,7 @@
 p-value adjusted for the family by single-step min-P (Westfall & Young 1993).
 
 Outside references: scipy.stats.f_oneway (PERMANOVA on the Euclidean distances of one
-variable is the one-way ANOVA F, METHODS 8) with every relabelling enumerated by itertools,
+variable is the one-way ANOVA F, docs/methods.md, section 11) with every relabelling enumerated by itertools,
 and the definition of single-step min-P computed by brute force; identities (one choice:
 adjusted = raw; raw <= adjusted <= K x raw, the Bonferroni bound); and the package's own
 permanova / dispersion_test, of which each choice's test must be an exact copy (same seed,

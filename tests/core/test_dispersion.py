@@ -66,7 +66,7 @@ def test_spatial_median_of_a_symmetric_cloud():
 
 
 def test_eigen_free_form_equals_principal_coordinates():
-    # identity (Anderson 2006; METHODS.md 6): distances to centroids in PCoA space with the
+    # identity (Anderson 2006; docs/methods.md, section 6): distances to centroids in PCoA space with the
     # imaginary axes subtracted equal z_i^2 = (1/n_g) sum_l d_il^2 - 1/(2 n_g^2) sum d_lm^2.
     # Bray-Curtis is not Euclidean, so negative eigenvalues take part.
     rng = np.random.default_rng(13)

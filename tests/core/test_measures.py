@@ -130,7 +130,7 @@ def test_sorensen_is_bray_curtis_on_presence(path, rng):
 
 
 def test_quantitative_formulas_against_direct_numpy(path, rng):
-    # direct transcriptions of the formulas (METHODS.md section 3) on each pair
+    # direct transcriptions of the formulas (docs/methods.md, section 3) on each pair
     x = _table(rng, n=12, p=9, zeros=0.5)
     n = len(x)
     ii, jj = np.triu_indices(n, 1)

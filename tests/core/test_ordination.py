@@ -93,7 +93,7 @@ def test_eigenvalues_sum_to_total_ss_and_negative_share(bray):
 def test_lingoes_correction(bray):
     o = pcoa(bray, correction="lingoes")
     ev = o.eigenvalues.to_numpy()
-    assert ev.min() >= -1e-10 * ev.max()   # METHODS.md 4: no eigenvalue below -1e-10 largest
+    assert ev.min() >= -1e-10 * ev.max()   # docs/methods.md, section 4: no eigenvalue below -1e-10 largest
     raw = np.linalg.eigvalsh(bray.gower())
     c = o.provenance["correction_constant"]
     assert c == pytest.approx(-raw.min())  # Lingoes (1971): c = |most negative eigenvalue|

@@ -64,7 +64,7 @@ def test_ca_chi_square_distance_equals_principal_coordinate_distance(community):
     o = ca(x, scaling="samples")
     a = x.to_numpy() / x.to_numpy().sum(axis=1, keepdims=True)
     c = x.to_numpy().sum(axis=0) / x.to_numpy().sum()
-    # identity (METHODS.md 3): chi-square distance sqrt(sum_j (a_xj - a_yj)^2 / c_j)
+    # identity (docs/methods.md, section 3): chi-square distance sqrt(sum_j (a_xj - a_yj)^2 / c_j)
     chi = pdist(a / np.sqrt(c))
     np.testing.assert_allclose(pdist(o.scores.to_numpy()), chi, rtol=1e-9)
 

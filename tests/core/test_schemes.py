@@ -37,7 +37,7 @@ def test_whole_units_keep_their_samples_together_and_stay_in_blocks():
 
 def test_unit_relabellings_enumerated_with_label_symmetry():
     # 6 units in two groups of 3: C(6, 3) = 20 relabellings, 10 distinct values of a
-    # statistic that does not care which group is called which (METHODS 6b), so p >= 0.1
+    # statistic that does not care which group is called which (docs/methods.md, section 12), so p >= 0.1
     codes = np.repeat(np.arange(6), 4)
     groups = np.repeat(["a", "b"], 3)
     sym = label_symmetries([("factor", groups)])

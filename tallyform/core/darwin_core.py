@@ -93,6 +93,45 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
     (ev_name, ev_data), (oc_name, oc_data) = _dwc_sources(events, occurrences)
     ev_cells, ev_head, ev_body = _dwc_frame(ev_name, ev_data, encoding, sep)
     oc_cells, oc_head, oc_body = _dwc_frame(oc_name, oc_data, encoding, sep)
+    lower_ev, lower_oc = _key_columns(ev_cells, ev_head, oc_cells, oc_head)
+    ev_j = lower_ev["eventid"]
+    ev_ids = [_to_text(x) for x in ev_body.iloc[:, ev_j]]
+    check_ids(ev_cells, ev_ids, ev_j, "eventID", "event")
+    info = _event_info(ev_cells, ev_head, ev_body, ev_j, ev_ids)
+
+    # quantities
+    n = len(oc_body)
+    line = oc_cells.lines[1:]
+    oc_ev = [_to_text(x) for x in oc_body.iloc[:, lower_oc["eventid"]]]
+    oc_tx = [_to_text(x) for x in oc_body.iloc[:, lower_oc["scientificname"]]]
+    qty, qtype = _quantities(oc_cells, oc_head, oc_body, lower_oc)
+    status = ([(_to_text(x)).lower() for x in oc_body.iloc[:, lower_oc["occurrencestatus"]]]
+              if "occurrencestatus" in lower_oc else [""] * n)
+    _check_records(oc_cells, oc_head, lower_oc, oc_ev, oc_tx, qty, status)
+    kinds = _quantity_kinds(oc_cells, lower_oc, qtype, status, line)
+    _check_orphans(oc_cells, lower_oc, oc_ev, ev_ids)
+    frame = pd.DataFrame({"s": oc_ev, "t": oc_tx, "v": qty, "line": line})
+    wide, notes = records_to_wide(
+        frame, ev_ids, list(dict.fromkeys(oc_tx)), what="event",
+        sum_duplicates=sum_duplicates,
+        where=lambda ln, s, t: Location(file=oc_cells.file, row=f"line {ln}"),
+        hint="Several records of one taxon in one event (sexes, life stages) are usually "
+             "meant to be added: pass sum_duplicates=True.")
+    notes.insert(0, f"quantity type: {kinds[0] if kinds else '(none)'}")
+    eff = _event_effort(effort, info, notes)
+    if abundance == "absolute" and any("read" in k for k in kinds):
+        notes.append(f"quantity type {kinds[0]!r}: sequencing reads are relative (their "
+                     "totals are sequencing depths); load with abundance='relative' (and "
+                     "load= or spike_in= to compare sizes). Nothing was changed.")
+    table = CommunityTable(wide.astype(float), info, effort=eff, empty=empty,
+                           origin=Origin(file=ev_cells.file), abundance=abundance, load=load,
+                           spike_in=spike_in)
+    table._notes = tuple(notes) + table.notes
+    return table
+
+
+def _key_columns(ev_cells, ev_head, oc_cells, oc_head) -> tuple[dict, dict]:
+    """Lower-cased header -> position in each table; eventID and scientificName required."""
     lower_ev = {h.lower(): j for j, h in enumerate(ev_head)}
     lower_oc = {h.lower(): j for j, h in enumerate(oc_head)}
     if "eventid" not in lower_ev:
@@ -106,11 +145,11 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
                              hint="Darwin Core occurrences name their event in eventID and "
                                   "their taxon in scientificName; add or rename the "
                                   "column.")
-    ev_j = lower_ev["eventid"]
-    ev_ids = [_to_text(x) for x in ev_body.iloc[:, ev_j]]
-    check_ids(ev_cells, ev_ids, ev_j, "eventID", "event")
+    return lower_ev, lower_oc
 
-    # sample information: every other event column, numbers as numbers
+
+def _event_info(ev_cells, ev_head, ev_body, ev_j, ev_ids) -> pd.DataFrame:
+    """Sample information: every other event column, numbers as numbers."""
     info = {}
     for j, h in enumerate(ev_head):
         if j == ev_j or h == "":
@@ -124,14 +163,15 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
     info.attrs.update(file=ev_cells.file,
                       lines={x: int(ev_cells.lines[i + 1]) for i, x in enumerate(ev_ids)},
                       columns={h: ev_cells.column_name(j) for j, h in enumerate(ev_head) if h})
+    return info
 
-    # quantities
+
+def _quantities(oc_cells, oc_head, oc_body, lower_oc) -> tuple[np.ndarray, list]:
+    """Quantity and its type per record: organismQuantity, else individualCount."""
     n = len(oc_body)
-    line = oc_cells.lines[1:]
-    oc_ev = [_to_text(x) for x in oc_body.iloc[:, lower_oc["eventid"]]]
-    oc_tx = [_to_text(x) for x in oc_body.iloc[:, lower_oc["scientificname"]]]
     qty = np.full(n, np.nan)
     qtype = [""] * n
+
     def quantities(key, label):
         j = lower_oc[key]
         vals, unreadable, found = parse_numbers(oc_body.iloc[:, [j]])
@@ -151,11 +191,14 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
         fill = np.isnan(qty) & ~np.isnan(icv)
         qty = np.where(fill, icv, qty).astype(float)
         qtype = ["individuals" if f else t for f, t in zip(fill, qtype)]
-    status = ([(_to_text(x)).lower() for x in oc_body.iloc[:, lower_oc["occurrencestatus"]]]
-              if "occurrencestatus" in lower_oc else [""] * n)
+    return qty, qtype
+
+
+def _check_records(oc_cells, oc_head, lower_oc, oc_ev, oc_tx, qty, status) -> None:
+    """Every record has an event, a taxon and a quantity >= 0; absent ones are set to 0."""
     q_j = lower_oc.get(_DWC_QTY, lower_oc.get("individualcount"))
     q_name = None if q_j is None else oc_head[q_j]
-    for i in range(n):
+    for i in range(len(qty)):
         if oc_ev[i] == "" or oc_tx[i] == "":
             field = "eventID" if oc_ev[i] == "" else "scientificName"
             raise InputError(f"{field} is blank.", location=oc_cells.where(i + 1, lower_oc[
@@ -177,6 +220,10 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
             raise InputError(f"the quantity {qty[i]:g} is not a finite number >= 0.",
                              location=oc_cells.where(i + 1, q_j, q_name),
                              hint="Quantities must be numbers >= 0.")
+
+
+def _quantity_kinds(oc_cells, lower_oc, qtype, status, line) -> list[str]:
+    """The quantity types of the present records; more than one is an error."""
     kinds = sorted({t if t else "(unstated)" for t, s in zip(qtype, status) if s != "absent"})
     if len(kinds) > 1:
         first = {k: int(line[[(t or "(unstated)") for t in qtype].index(k)]) for k in kinds}
@@ -188,6 +235,11 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
                                                    " ('organismQuantityType')")
                                            if t_j is not None else "'organismQuantityType'"),
                          hint="Keep one quantity type per analysis (e.g. only 'individuals').")
+    return kinds
+
+
+def _check_orphans(oc_cells, lower_oc, oc_ev, ev_ids) -> None:
+    """Refuse occurrences whose eventID is not in the event table."""
     known = set(ev_ids)
     orphans = sorted({e for e in oc_ev if e not in known})
     if orphans:
@@ -196,15 +248,10 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
                          f"table: {listing(orphans)}.",
                          location=oc_cells.where(i + 1, lower_oc["eventid"], "eventID"),
                          hint="Every occurrence must belong to a listed event.")
-    frame = pd.DataFrame({"s": oc_ev, "t": oc_tx, "v": qty, "line": line})
-    wide, notes = records_to_wide(
-        frame, ev_ids, list(dict.fromkeys(oc_tx)), what="event",
-        sum_duplicates=sum_duplicates,
-        where=lambda ln, s, t: Location(file=oc_cells.file, row=f"line {ln}"),
-        hint="Several records of one taxon in one event (sexes, life stages) are usually "
-             "meant to be added: pass sum_duplicates=True.")
-    notes.insert(0, f"quantity type: {kinds[0] if kinds else '(none)'}")
 
+
+def _event_effort(effort, info: pd.DataFrame, notes: list):
+    """The effort column: 'auto' takes a complete numeric sampleSizeValue (noted)."""
     eff = None
     if effort == "auto":
         if "sampleSizeValue" in info.columns and pd.api.types.is_numeric_dtype(
@@ -215,12 +262,4 @@ def read_darwin_core(events, occurrences=None, *, effort="auto", sum_duplicates:
             notes.append(f"effort: sampleSizeValue ({', '.join(map(str, unit)) or 'no unit'})")
     elif effort is not None:
         eff = effort
-    if abundance == "absolute" and any("read" in k for k in kinds):
-        notes.append(f"quantity type {kinds[0]!r}: sequencing reads are relative (their "
-                     "totals are sequencing depths); load with abundance='relative' (and "
-                     "load= or spike_in= to compare sizes). Nothing was changed.")
-    table = CommunityTable(wide.astype(float), info, effort=eff, empty=empty,
-                           origin=Origin(file=ev_cells.file), abundance=abundance, load=load,
-                           spike_in=spike_in)
-    table._notes = tuple(notes) + table.notes
-    return table
+    return eff

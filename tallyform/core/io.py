@@ -215,13 +215,42 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
     head = header_names(cells, "data")
     id_j = _id_column(cells, head, id_column)
     body = cells.frame.iloc[1:]
+    data_cols = _data_columns(cells, head, id_j, decimal, thousands, header_row)
+    row_ids = [_to_text(x) for x in body.iloc[:, id_j]]
+    col_ids = [head[j] for j in data_cols]
+    explicit = rows is not None
+    rows, why = _orientation(rows, info, row_ids, col_ids, head[id_j], cells, data_cols, id_j)
+    check_ids(cells, row_ids, id_j, head[id_j], "sample" if rows == "samples" else "taxon")
+    _check_column_labels(cells, data_cols, col_ids, "taxon" if rows == "samples" else "sample")
+    clash = _label_clash(cells, row_ids, col_ids, data_cols, rows, explicit)
+    origin = Origin(file=cells.file, sheet=cells.sheet, rows=rows,
+                    row_numbers={r: int(cells.lines[i + 1]) for i, r in enumerate(row_ids)},
+                    column_numbers=dict(zip(col_ids, data_cols)),
+                    spreadsheet=cells.spreadsheet)
+    values = _count_values(body.iloc[:, data_cols], row_ids, col_ids, rows, origin, decimal,
+                           thousands)
+    frame = pd.DataFrame(values, index=row_ids, columns=col_ids)
+    counts = frame if rows == "samples" else frame.T
+    table = CommunityTable(counts, info, taxa, effort=effort, empty=empty, origin=origin,
+                           abundance=abundance, load=load, spike_in=spike_in)
+    table._notes = _reading_notes(cells, rows, why, header_row, clash) + table.notes
+    return table
+
+
+def _no_data_columns(cells: Cells) -> InputError:
+    """The error for a file with a label column and nothing else."""
+    return InputError("the file has a label column but no data columns.",
+                      location=cells.where(0),
+                      hint="Check the separator (pass sep=...) or export the table again.")
+
+
+def _data_columns(cells: Cells, head, id_j, decimal, thousands, header_row) -> list[int]:
+    """Positions of the data columns: all but the label column, less unnamed empty ones."""
     data_cols = [j for j in range(len(head)) if j != id_j]
     if not data_cols:
-        raise InputError("the file has a label column but no data columns.",
-                         location=cells.where(0),
-                         hint="Check the separator (pass sep=...) or export the table again.")
+        raise _no_data_columns(cells)
     _second_header(cells, head, data_cols, decimal, thousands, header_row)
-    row_ids = [_to_text(x) for x in body.iloc[:, id_j]]
+    body = cells.frame.iloc[1:]
     # columns without a header: an error if they hold anything
     for j in list(data_cols):
         if head[j] == "":
@@ -238,16 +267,13 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
                 hint="Every column needs a label (a sample or taxon name)"
                      + ("; if that line simply has more cells than the header, fix the "
                         "line (an extra separator?)." if ragged else "."))
-    col_ids = [head[j] for j in data_cols]
-    if not col_ids:
-        raise InputError("the file has a label column but no data columns.",
-                         location=cells.where(0),
-                         hint="Check the separator (pass sep=...) or export the table again.")
-    explicit = rows is not None
-    rows, why = _orientation(rows, info, row_ids, col_ids, head[id_j], cells, data_cols, id_j)
-    row_what = "sample" if rows == "samples" else "taxon"
-    col_what = "taxon" if rows == "samples" else "sample"
-    check_ids(cells, row_ids, id_j, head[id_j], row_what)
+    if not data_cols:
+        raise _no_data_columns(cells)
+    return data_cols
+
+
+def _check_column_labels(cells: Cells, data_cols, col_ids, col_what: str) -> None:
+    """Refuse a column label that appears twice in the header."""
     seen: dict[str, int] = {}
     for j, c in zip(data_cols, col_ids):
         if c in seen:
@@ -255,13 +281,12 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
                              f"{cells.column_name(seen[c])} and {cells.column_name(j)}).",
                              location=cells.where(0, j, c), hint="Column labels must be unique.")
         seen[c] = j
-    clash = _label_clash(cells, row_ids, col_ids, data_cols, rows, explicit)
 
-    values, bad, found = parse_numbers(body.iloc[:, data_cols], decimal, thousands)
-    origin = Origin(file=cells.file, sheet=cells.sheet, rows=rows,
-                    row_numbers={r: int(cells.lines[i + 1]) for i, r in enumerate(row_ids)},
-                    column_numbers=dict(zip(col_ids, data_cols)),
-                    spreadsheet=cells.spreadsheet)
+
+def _count_values(block: pd.DataFrame, row_ids, col_ids, rows, origin: Origin, decimal,
+                  thousands) -> np.ndarray:
+    """The count cells as numbers; the first unreadable cell is an error located by origin."""
+    values, bad, found = parse_numbers(block, decimal, thousands)
     if bad.any():
         i, k = np.argwhere(bad)[0]
         sample, taxon = ((row_ids[i], col_ids[k]) if rows == "samples"
@@ -270,18 +295,18 @@ def read_counts(path, samples=None, *, rows: str | None = None, id_column: str |
         raise InputError(f"{cell.describe()}; {int(bad.sum())} cell(s) in all could not be "
                          "read as numbers.",
                          location=origin.cell(sample, taxon), hint=cell.hint)
-    frame = pd.DataFrame(values, index=row_ids, columns=col_ids)
-    counts = frame if rows == "samples" else frame.T
-    table = CommunityTable(counts, info, taxa, effort=effort, empty=empty, origin=origin,
-                           abundance=abundance, load=load, spike_in=spike_in)
+    return values
+
+
+def _reading_notes(cells: Cells, rows, why, header_row, clash) -> tuple:
+    """Notes on how the file was read: orientation, header line, repeated labels."""
     notes = [f"rows of {cells.file!r} read as {rows} ({why})"]
     if header_row != 1:
         notes.append(f"header read from line {header_row}; the lines above it were ignored")
     if clash:
         notes.append(f"{len(clash)} column label(s) are also row labels (e.g. {clash[0]!r}); "
                      f"read with rows={rows!r} as requested")
-    table._notes = tuple(notes) + table.notes
-    return table
+    return tuple(notes)
 
 
 def _looks_like_text(x) -> bool:

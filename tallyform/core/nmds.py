@@ -134,6 +134,42 @@ def nmds(d, *, n_axes: int = 2, n_starts: int = 20, rng=None, max_iter: int = 30
     """
     d = as_dissimilarity(d)
     n = d.n
+    _check_options(n, n_axes, n_starts, max_iter, tol)
+    seed_given = int(rng) if isinstance(rng, (int, np.integer)) else None
+    rng = as_rng(rng)
+    seeds = rng.integers(0, 2 ** 31 - 1, size=int(n_starts))
+    dis = np.asarray(d.condensed, dtype=np.float64)
+    start = _pcoa_start(d, n_axes, int(seeds[0]))
+    best, rows = _run_starts(d.square(dtype=np.float64), dis, start, seeds, n_axes=n_axes,
+                             max_iter=max_iter, tol=tol, progress=progress, cancel=cancel)
+    stress, X, kept = best
+    X = _principal_axes(X)
+    dist = pdist(X)
+    stress, fitted = kruskal_stress(dis, dist)
+    starts = pd.DataFrame(rows).set_index("start")
+    starts["kept"] = starts.index == kept + 1
+    near = int(np.sum(starts["stress"] <= stress * 1.01 + 1e-12))
+    notes = _fit_notes(dis, stress, near, n_starts, n_axes)
+    labels = labels_index(d.labels)
+    shepard = _shepard(labels, dis, dist, fitted)
+    names = axis_names("NMDS", int(n_axes))
+    reading = stress_reading(stress)
+    prov = {"method": "NMDS", **d.provenance, "n_axes": int(n_axes), "n_starts": int(n_starts),
+            "rng": seed_given, "max_iter": int(max_iter), "tol": float(tol),
+            "best_start": kept + 1, "starts_reaching_best": near,
+            "engine": "scikit-learn non-metric SMACOF"}
+    return Ordination(
+        method="NMDS", scores=pd.DataFrame(X, index=labels, columns=names),
+        eigenvalues=pd.Series(dtype=float, name="eigenvalue"),
+        explained=pd.Series(dtype=float, name="explained"),
+        scaling="non-metric (only the rank order of the dissimilarities is kept; axes rotated "
+                "to principal axes)",
+        stress=stress, stress_reading=reading, shepard=shepard, starts=starts,
+        provenance=prov, notes=tuple(notes))
+
+
+def _check_options(n: int, n_axes, n_starts, max_iter, tol) -> None:
+    """Refuse bad options and too few samples for the number of axes."""
     for name, val, lo in (("n_axes", n_axes, 1), ("n_starts", n_starts, 1),
                           ("max_iter", max_iter, 1)):
         if isinstance(val, bool) or not isinstance(val, (int, np.integer)) or val < lo:
@@ -143,19 +179,24 @@ def nmds(d, *, n_axes: int = 2, n_starts: int = 20, rng=None, max_iter: int = 30
                          f"got {n}.")
     if not (isinstance(tol, (int, float)) and tol > 0):
         raise InputError(f"`tol` must be a positive number; got {tol!r}.")
-    seed_given = int(rng) if isinstance(rng, (int, np.integer)) else None
-    rng = as_rng(rng)
-    seeds = rng.integers(0, 2 ** 31 - 1, size=int(n_starts))
-    from sklearn.manifold import MDS  # lazy: scikit-learn is heavy
 
-    D = d.square(dtype=np.float64)
-    dis = np.asarray(d.condensed, dtype=np.float64)
+
+def _pcoa_start(d, n_axes: int, seed: int) -> np.ndarray:
+    """The PCoA configuration of the first start, padded with small noise when short."""
     from .ordination import pcoa
+    n = d.n
     start = pcoa(d, dims=min(n_axes, n - 1)).scores.to_numpy()
     if start.shape[1] < n_axes:  # fewer positive axes than asked: pad with small noise
-        pad = np.random.default_rng(int(seeds[0])).normal(
+        pad = np.random.default_rng(seed).normal(
             scale=1e-3 * (np.std(start) if start.size else 1.0), size=(n, n_axes - start.shape[1]))
         start = np.column_stack([start, pad])
+    return start
+
+
+def _run_starts(D, dis, start, seeds, *, n_axes, max_iter, tol, progress, cancel):
+    """Fit every start; the best (stress, configuration, index) and one row per start."""
+    from sklearn.manifold import MDS  # lazy: scikit-learn is heavy
+    n_starts = len(seeds)
     best, rows = None, []
     for i, seed in enumerate(seeds):
         if cancel is not None and cancel():
@@ -173,16 +214,29 @@ def nmds(d, *, n_axes: int = 2, n_starts: int = 20, rng=None, max_iter: int = 30
             best = (stress, X, i)
         if progress is not None:
             progress(i + 1, int(n_starts))
-    stress, X, kept = best
+    return best, rows
+
+
+def _principal_axes(X: np.ndarray) -> np.ndarray:
+    """The configuration centred, rotated to its principal axes, signs fixed."""
     X = X - X.mean(axis=0)
     u, s, vt = np.linalg.svd(X, full_matrices=False)
     X = X @ vt.T
     (X,) = flip_signs(X)
-    dist = pdist(X)
-    stress, fitted = kruskal_stress(dis, dist)
-    starts = pd.DataFrame(rows).set_index("start")
-    starts["kept"] = starts.index == kept + 1
-    near = int(np.sum(starts["stress"] <= stress * 1.01 + 1e-12))
+    return X
+
+
+def _shepard(labels: pd.Index, dis, dist, fitted) -> pd.DataFrame:
+    """Shepard-plot data: one row per pair, sorted by dissimilarity then distance."""
+    ii, jj = np.triu_indices(len(labels), 1)
+    shepard = pd.DataFrame({"sample_a": labels[ii], "sample_b": labels[jj],
+                            "dissimilarity": dis, "distance": dist, "fitted": fitted})
+    return shepard.sort_values(["dissimilarity", "distance"], kind="stable") \
+        .reset_index(drop=True)
+
+
+def _fit_notes(dis, stress, near, n_starts, n_axes) -> list[str]:
+    """Notes on zero dissimilarities, a lone best start and high stress."""
     notes = []
     n_zero = int(np.sum(dis == 0))
     if n_zero:
@@ -193,23 +247,4 @@ def nmds(d, *, n_axes: int = 2, n_starts: int = 20, rng=None, max_iter: int = 30
                      "the solution may be a local minimum; try more starts.")
     if stress > _STRESS_SCALE[3][0]:
         notes.append(f"stress {stress:.3f} is high: try n_axes={n_axes + 1} or a PCoA.")
-    ii, jj = np.triu_indices(n, 1)
-    labels = labels_index(d.labels)
-    shepard = pd.DataFrame({"sample_a": labels[ii], "sample_b": labels[jj],
-                            "dissimilarity": dis, "distance": dist, "fitted": fitted})
-    shepard = shepard.sort_values(["dissimilarity", "distance"], kind="stable") \
-        .reset_index(drop=True)
-    names = axis_names("NMDS", int(n_axes))
-    reading = stress_reading(stress)
-    prov = {"method": "NMDS", **d.provenance, "n_axes": int(n_axes), "n_starts": int(n_starts),
-            "rng": seed_given, "max_iter": int(max_iter), "tol": float(tol),
-            "best_start": kept + 1, "starts_reaching_best": near,
-            "engine": "scikit-learn non-metric SMACOF"}
-    return Ordination(
-        method="NMDS", scores=pd.DataFrame(X, index=labels, columns=names),
-        eigenvalues=pd.Series(dtype=float, name="eigenvalue"),
-        explained=pd.Series(dtype=float, name="explained"),
-        scaling="non-metric (only the rank order of the dissimilarities is kept; axes rotated "
-                "to principal axes)",
-        stress=stress, stress_reading=reading, shepard=shepard, starts=starts,
-        provenance=prov, notes=tuple(notes))
+    return notes

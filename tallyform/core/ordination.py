@@ -487,45 +487,53 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
         prov["path"] = "features (SVD)"
         complete = True
     else:
-        if dims is not None and correction is None and 300 < n and dims < n - 1:
-            G, c = gower_operator(d), 0.0  # D^2 only: no centred n x n copy
-        else:
-            G, c = corrected_gower(d, correction)
-        if correction is not None:
-            prov["correction_constant"] = c
-            if c == 0.0:
-                notes.append(f"the dissimilarities are already Euclidean: no {correction} "
-                             "correction was needed.")
-            else:
-                total = float(np.trace(G))
-        if dims is None:
-            values, vectors = eigh_desc(G, "PCoA")
-            prov["path"] = "Gower matrix (full eigen-decomposition)"
-            complete = True
-        else:
-            values, vectors = leading_eigen(G, dims)
-            prov["path"] = "Gower matrix (leading axes, ARPACK)"
-            if not isinstance(G, np.ndarray):
-                prov["path"] = "squared distances as an operator (leading axes, ARPACK)"
-            complete = False
-            if correction is None and not d.properties.get("euclidean", False):
-                # the full spectrum when known or cheap (values only), so that the note
-                # says the same share as every other note on this measure
-                known = d.spectrum(compute=n <= _SPECTRUM_FOR_NOTE)
-                if known is not None:
-                    spectrum = np.asarray(known, float)
-                else:
-                    lmin = smallest_eigenvalue(G, tol=1e-3)     # for a note: 3 digits
-                    if lmin < -ZERO_RTOL * max(values[0], 1e-300):
-                        notes.append(
-                            f"{setting_name(d.measure, d.provenance.get('transform'))!r} is "
-                            f"not Euclidean (smallest eigenvalue {lmin:.4g}, "
-                            f"{100 * -lmin / values[0]:.2g} % of the largest); with only "
-                            f"the {dims} leading axes computed, the share of the variation "
-                            "held by negative eigenvalues was not measured.")
+        values, vectors, total, spectrum = _gower_path(d, correction, dims, total, notes,
+                                                       prov)
+        complete = dims is None
     return pcoa_result(d, values, vectors, total, complete=complete, dims=dims,
                         correction=correction, notes=notes, provenance=prov,
                         spectrum=spectrum)
+
+
+def _gower_path(d, correction, dims, total, notes: list, prov: dict):
+    """Eigenvalues, eigenvectors, total and known spectrum from the (corrected) Gower matrix."""
+    n = d.n
+    spectrum = None
+    if dims is not None and correction is None and 300 < n and dims < n - 1:
+        G, c = gower_operator(d), 0.0  # D^2 only: no centred n x n copy
+    else:
+        G, c = corrected_gower(d, correction)
+    if correction is not None:
+        prov["correction_constant"] = c
+        if c == 0.0:
+            notes.append(f"the dissimilarities are already Euclidean: no {correction} "
+                         "correction was needed.")
+        else:
+            total = float(np.trace(G))
+    if dims is None:
+        values, vectors = eigh_desc(G, "PCoA")
+        prov["path"] = "Gower matrix (full eigen-decomposition)"
+        return values, vectors, total, spectrum
+    values, vectors = leading_eigen(G, dims)
+    prov["path"] = "Gower matrix (leading axes, ARPACK)"
+    if not isinstance(G, np.ndarray):
+        prov["path"] = "squared distances as an operator (leading axes, ARPACK)"
+    if correction is None and not d.properties.get("euclidean", False):
+        # the full spectrum when known or cheap (values only), so that the note
+        # says the same share as every other note on this measure
+        known = d.spectrum(compute=n <= _SPECTRUM_FOR_NOTE)
+        if known is not None:
+            spectrum = np.asarray(known, float)
+        else:
+            lmin = smallest_eigenvalue(G, tol=1e-3)     # for a note: 3 digits
+            if lmin < -ZERO_RTOL * max(values[0], 1e-300):
+                notes.append(
+                    f"{setting_name(d.measure, d.provenance.get('transform'))!r} is "
+                    f"not Euclidean (smallest eigenvalue {lmin:.4g}, "
+                    f"{100 * -lmin / values[0]:.2g} % of the largest); with only "
+                    f"the {dims} leading axes computed, the share of the variation "
+                    "held by negative eigenvalues was not measured.")
+    return values, vectors, total, spectrum
 
 
 def _feature_path(F: np.ndarray, dims: int | None) -> tuple[np.ndarray, np.ndarray]:

@@ -163,6 +163,40 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", u
     check_option("statistic", statistic, PAIRWISE_STATISTICS)
     n_permutations = check_n_permutations(n_permutations)
     frame, notes = align_samples(samples, d.labels)
+    labels, levels, counts = _pair_levels(frame, group)
+    block_codes, block_name = block_labels(frame, blocks)
+    plan = resolve_plan(frame, [group], units, block_name)
+    notes += plan.notes
+    unit_cols = _unit_columns(frame, plan)
+    rng = as_rng(rng)
+    pairs = [(a, b) for i, a in enumerate(levels) for b in levels[i + 1:]]
+    streams = rng.spawn(len(pairs))
+    rows, pair_notes = [], []
+    for k, ((a, b), stream) in enumerate(zip(pairs, streams)):
+        res, n_units = _test_pair(
+            d, labels, unit_cols, block_codes, block_name, group, a, b, statistic=statistic,
+            n_permutations=n_permutations, rng=stream, cancel=cancel,
+            progress=None if progress is None else
+            (lambda done, total, k=k: progress(k * total + done, len(pairs) * total)))
+        rows.append(dict(_pair_row(res, statistic, group, a, b, counts), n_units=n_units))
+        pair_notes.append((f"{a} vs {b}", [x for x in res.notes
+                                            if not x.startswith("PERMANOVA also responds")]))
+    table = pd.DataFrame(rows).set_index("pair")
+    if not len(unit_cols.columns):
+        table = table.drop(columns=["n_units"])
+    table.insert(table.columns.get_loc("pvalue") + 1, "pvalue_adjusted",
+                 adjust_pvalues(table["pvalue"].to_numpy(), adjust))
+    notes += _pairwise_notes(table, adjust, statistic, pair_notes)
+    stat_col = "pseudo_f" if statistic == "pseudo_f" else "welch_t2"
+    return PairwiseResult(table=table, statistic=table[stat_col].copy(),
+                          pvalue=table["pvalue"].copy(),
+                          pvalue_adjusted=table["pvalue_adjusted"].copy(), adjust=adjust,
+                          group=str(group), measure=d.measure, notes=notes,
+                          statistic_name=stat_col)
+
+
+def _pair_levels(frame: pd.DataFrame, group: str):
+    """Labels, levels and level counts of the factor; every level needs 2 samples."""
     model_matrix(frame, [group])                      # the same checks as PERMANOVA
     labels = frame[group].astype(str)
     levels = [str(x) for x in factor_levels(frame[group])]
@@ -173,58 +207,53 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", u
                           "comparisons need at least 2 samples in each level.",
                           location=Location(column=repr(group)),
                           hint="Merge or drop those levels first.")
-    block_codes, block_name = block_labels(frame, blocks)
-    plan = resolve_plan(frame, [group], units, block_name)
-    notes += plan.notes
-    unit_cols = _unit_columns(frame, plan)
-    rng = as_rng(rng)
-    pairs = [(a, b) for i, a in enumerate(levels) for b in levels[i + 1:]]
-    streams = rng.spawn(len(pairs))
-    rows, pair_notes = [], []
-    for k, ((a, b), stream) in enumerate(zip(pairs, streams)):
-        mask = labels.isin([a, b]).to_numpy()
-        sub = d.subset(mask)
-        sub_frame = unit_cols.loc[mask].copy()
-        sub_frame[group] = pd.Categorical(labels[mask], categories=[a, b])
-        sub_blocks = None if block_codes is None else pd.Series(
-            block_codes[mask], index=sub.labels, name=block_name)
-        test = permanova if statistic == "pseudo_f" else _welch_pair
-        try:
-            res = test(sub, sub_frame, [group], blocks=sub_blocks,
-                       units=[c for c in unit_cols.columns] or False,
-                       n_permutations=n_permutations, rng=stream,
-                       progress=None if progress is None else
-                       (lambda done, total, k=k: progress(k * total + done,
-                                                          len(pairs) * total)),
-                       cancel=cancel)
-        except DesignError as err:
-            raise DesignError(f"comparing {a!r} with {b!r}: {err.detail}",
-                              location=err.location, hint=err.hint) from None
-        n_units = (len(np.unique(sub_frame[unit_cols.columns[0]].astype(str)))
-                   if len(unit_cols.columns) else None)
-        out = dict(pair=f"{a} vs {b}", group_a=a, group_b=b, n_a=int(counts[a]),
-                   n_b=int(counts[b]))
-        if statistic == "pseudo_f":
-            row = res.table.loc[group]
-            out.update(pseudo_f=row["pseudo_f"], r2=row["r2"], pvalue=row["pvalue"],
-                       n_permutations=res.n_permutations, exact=res.exact,
-                       min_pvalue=res.min_pvalue[group], stratum=row["stratum"])
-        else:
-            out.update(welch_t2=res.statistic, spread_a=res.groups.loc[a, "spread"],
-                       spread_b=res.groups.loc[b, "spread"], pvalue=res.pvalue,
-                       n_permutations=res.n_permutations, exact=res.exact,
-                       min_pvalue=(np.nan if res.min_pvalue is None else res.min_pvalue),
-                       stratum=("samples" if res.units is None
-                                else f"between {res.units!r}"))
-        rows.append(dict(out, n_units=n_units))
-        pair_notes.append((f"{a} vs {b}", [x for x in res.notes
-                                            if not x.startswith("PERMANOVA also responds")]))
-    table = pd.DataFrame(rows).set_index("pair")
-    if not len(unit_cols.columns):
-        table = table.drop(columns=["n_units"])
-    table.insert(table.columns.get_loc("pvalue") + 1, "pvalue_adjusted",
-                 adjust_pvalues(table["pvalue"].to_numpy(), adjust))
-    notes += _shared_notes(pair_notes)
+    return labels, levels, counts
+
+
+def _test_pair(d, labels, unit_cols, block_codes, block_name, group, a, b, *, statistic,
+               n_permutations, rng, progress, cancel):
+    """The test of one pair of levels on its samples, and its number of units (or None)."""
+    mask = labels.isin([a, b]).to_numpy()
+    sub = d.subset(mask)
+    sub_frame = unit_cols.loc[mask].copy()
+    sub_frame[group] = pd.Categorical(labels[mask], categories=[a, b])
+    sub_blocks = None if block_codes is None else pd.Series(
+        block_codes[mask], index=sub.labels, name=block_name)
+    test = permanova if statistic == "pseudo_f" else _welch_pair
+    try:
+        res = test(sub, sub_frame, [group], blocks=sub_blocks,
+                   units=[c for c in unit_cols.columns] or False,
+                   n_permutations=n_permutations, rng=rng, progress=progress, cancel=cancel)
+    except DesignError as err:
+        raise DesignError(f"comparing {a!r} with {b!r}: {err.detail}",
+                          location=err.location, hint=err.hint) from None
+    n_units = (len(np.unique(sub_frame[unit_cols.columns[0]].astype(str)))
+               if len(unit_cols.columns) else None)
+    return res, n_units
+
+
+def _pair_row(res, statistic: str, group: str, a: str, b: str, counts) -> dict:
+    """One pair's row of the table, from its PERMANOVA or Welch-type result."""
+    out = dict(pair=f"{a} vs {b}", group_a=a, group_b=b, n_a=int(counts[a]),
+               n_b=int(counts[b]))
+    if statistic == "pseudo_f":
+        row = res.table.loc[group]
+        out.update(pseudo_f=row["pseudo_f"], r2=row["r2"], pvalue=row["pvalue"],
+                   n_permutations=res.n_permutations, exact=res.exact,
+                   min_pvalue=res.min_pvalue[group], stratum=row["stratum"])
+    else:
+        out.update(welch_t2=res.statistic, spread_a=res.groups.loc[a, "spread"],
+                   spread_b=res.groups.loc[b, "spread"], pvalue=res.pvalue,
+                   n_permutations=res.n_permutations, exact=res.exact,
+                   min_pvalue=(np.nan if res.min_pvalue is None else res.min_pvalue),
+                   stratum=("samples" if res.units is None
+                            else f"between {res.units!r}"))
+    return out
+
+
+def _pairwise_notes(table: pd.DataFrame, adjust, statistic: str, pair_notes: list) -> tuple:
+    """The pairs' notes (shared ones once), the adjusted floor and the spread caveat."""
+    notes = _shared_notes(pair_notes)
     floor = _adjusted_floor(table, adjust)
     if floor:
         notes += (floor,)
@@ -232,12 +261,7 @@ def pairwise_permanova(d, samples, group: str, *, adjust: str | None = "holm", u
         notes += ("Pairwise tests share PERMANOVA's sensitivity to unequal spread: a small "
                   "p-value can reflect different dispersions as well as different "
                   "centroids.",)
-    stat_col = "pseudo_f" if statistic == "pseudo_f" else "welch_t2"
-    return PairwiseResult(table=table, statistic=table[stat_col].copy(),
-                          pvalue=table["pvalue"].copy(),
-                          pvalue_adjusted=table["pvalue_adjusted"].copy(), adjust=adjust,
-                          group=str(group), measure=d.measure, notes=notes,
-                          statistic_name=stat_col)
+    return notes
 
 
 def _welch_pair(d, frame, terms, **kw):

@@ -112,6 +112,37 @@ def simulate_community(design, *, n_taxa: int = 40, mean_total: float = 400.0,
         each taxon's ``base_share``. Samples whose draw is empty are kept (``empty='keep'``).
     """
     rng = as_rng(rng)
+    design = _as_design(design)
+    if not 0.0 <= profile_noise < 1.0:
+        raise InputError(f"`profile_noise` must be in [0, 1); got {profile_noise}.")
+    if mean_total <= 0:
+        raise InputError(f"`mean_total` must be positive; got {mean_total}.")
+    base, labels = _base_profile(base_profile, n_taxa, taxa, rng)
+    n = len(design)
+
+    size_effects = _factor_multipliers(design, size_effects, "size")
+    shape_effects = _factor_multipliers(design, shape_effects, "shape")
+    log_mu = np.full(n, np.log(mean_total))
+    log_share = np.tile(np.log(np.maximum(base, 1e-300)), (n, 1))
+    _add_size_effects(log_mu, design, size_effects)
+    _add_shape_effects(log_share, design, shape_effects, labels)
+    for col, (size_sd, shape_sd) in dict(random_effects or {}).items():
+        if col not in design.columns:
+            raise DesignError(f"random effect column {col!r} is not in the design.")
+        levels, codes = np.unique(design[col].astype(str).to_numpy(), return_inverse=True)
+        log_mu += rng.normal(0.0, size_sd, levels.size)[codes]
+        log_share += rng.normal(0.0, shape_sd, (levels.size, base.size))[codes]
+    if effort is not None:
+        log_mu += _log_effort(design, effort)
+    log_mu += rng.normal(0.0, total_spread, n) if total_spread > 0 else 0.0
+    counts = _draw_counts(log_mu, log_share, profile_noise, rng)
+    counts_df = pd.DataFrame(counts.astype(float), index=design.index, columns=labels)
+    taxa_df = pd.DataFrame({"base_share": base}, index=pd.Index(labels, name="taxon"))
+    return CommunityTable(counts_df, design, taxa_df, effort=effort, empty="keep")
+
+
+def _as_design(design) -> pd.DataFrame:
+    """A copy of the sample design with text labels (a number gives one group of samples)."""
     if isinstance(design, (int, np.integer)):
         design = pd.DataFrame(index=[f"s{i + 1:03d}" for i in range(int(design))])
     if not isinstance(design, pd.DataFrame):
@@ -119,10 +150,11 @@ def simulate_community(design, *, n_taxa: int = 40, mean_total: float = 400.0,
                          "samples.")
     design = design.copy()
     design.index = design.index.astype(str)
-    if not 0.0 <= profile_noise < 1.0:
-        raise InputError(f"`profile_noise` must be in [0, 1); got {profile_noise}.")
-    if mean_total <= 0:
-        raise InputError(f"`mean_total` must be positive; got {mean_total}.")
+    return design
+
+
+def _base_profile(base_profile, n_taxa, taxa, rng) -> tuple[np.ndarray, list]:
+    """Expected shares at the reference levels (summing to 1) and the taxon labels."""
     base = (lognormal_profile(n_taxa, rng=rng) if base_profile is None
             else np.asarray(base_profile, dtype=float))
     if base.ndim != 1 or (base < 0).any() or base.sum() <= 0:
@@ -132,13 +164,25 @@ def simulate_community(design, *, n_taxa: int = 40, mean_total: float = 400.0,
     labels = list(taxa) if taxa is not None else [f"t{j + 1:02d}" for j in range(p)]
     if len(labels) != p:
         raise InputError(f"{len(labels)} taxon labels for {p} taxa.")
-    pos = {t: j for j, t in enumerate(labels)}
-    n = len(design)
+    return base, labels
 
-    size_effects = _factor_multipliers(design, size_effects, "size")
-    shape_effects = _factor_multipliers(design, shape_effects, "shape")
-    log_mu = np.full(n, np.log(mean_total))
-    log_share = np.tile(np.log(np.maximum(base, 1e-300)), (n, 1))
+
+def _add_size_effects(log_mu: np.ndarray, design: pd.DataFrame, size_effects: dict) -> None:
+    """Add the log multipliers of the size effects to each sample's log expected total."""
+    for col, eff in size_effects.items():
+        if isinstance(eff, Mapping):
+            lv = design[col].astype(str).to_numpy()
+            for level, mult in eff.items():
+                log_mu[lv == str(level)] += np.log(float(mult))
+        else:
+            log_mu += np.log(float(eff)) * design[col].to_numpy(dtype=float)
+
+
+def _add_shape_effects(log_share: np.ndarray, design: pd.DataFrame, shape_effects: dict,
+                       labels: list) -> None:
+    """Add the log fold changes of the shape effects to each sample's log shares."""
+    p = len(labels)
+    pos = {t: j for j, t in enumerate(labels)}
 
     def taxon_index(t):
         if isinstance(t, (int, np.integer)):
@@ -149,13 +193,6 @@ def simulate_community(design, *, n_taxa: int = 40, mean_total: float = 400.0,
             raise DesignError(f"shape effect names unknown taxon {t!r}.")
         return pos[t]
 
-    for col, eff in size_effects.items():
-        if isinstance(eff, Mapping):
-            lv = design[col].astype(str).to_numpy()
-            for level, mult in eff.items():
-                log_mu[lv == str(level)] += np.log(float(mult))
-        else:
-            log_mu += np.log(float(eff)) * design[col].to_numpy(dtype=float)
     for col, eff in shape_effects.items():
         numeric = all(not isinstance(v, Mapping) for v in eff.values())
         if numeric and pd.api.types.is_numeric_dtype(design[col]):
@@ -168,21 +205,21 @@ def simulate_community(design, *, n_taxa: int = 40, mean_total: float = 400.0,
                 rows = lv == str(level)
                 for t, fold in folds.items():
                     log_share[rows, taxon_index(t)] += np.log(float(fold))
-    for col, (size_sd, shape_sd) in dict(random_effects or {}).items():
-        if col not in design.columns:
-            raise DesignError(f"random effect column {col!r} is not in the design.")
-        levels, codes = np.unique(design[col].astype(str).to_numpy(), return_inverse=True)
-        log_mu += rng.normal(0.0, size_sd, levels.size)[codes]
-        log_share += rng.normal(0.0, shape_sd, (levels.size, p))[codes]
-    if effort is not None:
-        if effort not in design.columns:
-            raise DesignError(f"effort column {effort!r} is not in the design.")
-        e = design[effort].to_numpy(dtype=float)
-        if (e <= 0).any() or not np.isfinite(e).all():
-            raise InputError(f"effort column {effort!r} must hold positive numbers.")
-        log_mu += np.log(e)
-    log_mu += rng.normal(0.0, total_spread, n) if total_spread > 0 else 0.0
 
+
+def _log_effort(design: pd.DataFrame, effort: str) -> np.ndarray:
+    """The log of the effort column (positive numbers only)."""
+    if effort not in design.columns:
+        raise DesignError(f"effort column {effort!r} is not in the design.")
+    e = design[effort].to_numpy(dtype=float)
+    if (e <= 0).any() or not np.isfinite(e).all():
+        raise InputError(f"effort column {effort!r} must hold positive numbers.")
+    return np.log(e)
+
+
+def _draw_counts(log_mu: np.ndarray, log_share: np.ndarray, profile_noise: float,
+                 rng) -> np.ndarray:
+    """Poisson totals split by Dirichlet-multinomial draws around the expected shares."""
     share = np.exp(log_share - log_share.max(axis=1, keepdims=True))
     share /= share.sum(axis=1, keepdims=True)
     if profile_noise > 0:
@@ -192,7 +229,4 @@ def simulate_community(design, *, n_taxa: int = 40, mean_total: float = 400.0,
         s = g.sum(axis=1, keepdims=True)
         share = np.where(s > 0, g / np.where(s > 0, s, 1.0), share)
     totals = rng.poisson(np.exp(log_mu))
-    counts = np.vstack([rng.multinomial(int(t), pr / pr.sum()) for t, pr in zip(totals, share)])
-    counts_df = pd.DataFrame(counts.astype(float), index=design.index, columns=labels)
-    taxa_df = pd.DataFrame({"base_share": base}, index=pd.Index(labels, name="taxon"))
-    return CommunityTable(counts_df, design, taxa_df, effort=effort, empty="keep")
+    return np.vstack([rng.multinomial(int(t), pr / pr.sum()) for t, pr in zip(totals, share)])

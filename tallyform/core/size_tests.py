@@ -246,6 +246,36 @@ def _summary(d, rows, levels, g) -> pd.DataFrame:
     return summary
 
 
+def _size_inputs(table, group, method: str, effort):
+    """The table, the group factor, the effort and the first notes (after the input checks)."""
+    tab = as_table(table)
+    load_notes = require_absolute(tab, "a size test", counts=(method == "negbin"))
+    g = group_factor(tab, group)
+    e, e_name = _effort(tab, effort)
+    notes: list[str] = list(load_notes)
+    if e_name and effort is None:
+        notes.append(f"The table's sampling effort {e_name!r} was used ("
+                     + ("log effort as an offset" if method == "negbin" else
+                        "totals divided by it") + "); pass effort=False to compare raw totals.")
+    if method == "negbin":
+        _check_whole_counts(tab)
+    return tab, g, e, e_name, notes
+
+
+def _spread_ratio(d, method: str, k: int, levels, notes: list) -> float:
+    """Largest over smallest group variance of log size; the one-variance ANOVA's note."""
+    size = d.size
+    positive = bool((size > 0).all())
+    ratio = np.nan
+    if positive:
+        ratio, n_g, v = variance_ratio(np.log(size), d.codes, k)
+        if method == "anova" and d.blocks is None:
+            note = anova_note(np.log(size), d.codes, k, levels, ratio, n_g, v)
+            if note:
+                notes.append(note)
+    return ratio
+
+
 def _size_knob(args: dict):
     """The repetitions that set the run time of :func:`size_test`: permutations or draws."""
     if args.get("method") == "permutation":
@@ -350,20 +380,10 @@ def size_test(table, group, *, method: str = "welch", effort=None, units=None, b
     check_option("nb_reference", nb_reference, ("F", "bootstrap"))
     n_boot = check_whole("n_boot", n_boot, 19)
     level = check_fraction("level", level)
-    tab = as_table(table)
-    load_notes = require_absolute(tab, "a size test", counts=(method == "negbin"))
-    g = group_factor(tab, group)
+    tab, g, e, e_name, notes = _size_inputs(table, group, method, effort)
     levels = list(g.cat.categories)
     k = len(levels)
     gname = str(g.name)
-    e, e_name = _effort(tab, effort)
-    notes: list[str] = list(load_notes)
-    if e_name and effort is None:
-        notes.append(f"The table's sampling effort {e_name!r} was used ("
-                     + ("log effort as an offset" if method == "negbin" else
-                        "totals divided by it") + "); pass effort=False to compare raw totals.")
-    if method == "negbin":
-        _check_whole_counts(tab)
     from .inference import block_labels
     block_codes, block_name = block_labels(tab.samples, blocks)
     d = collect_replicates(tab, g, e, e_name, block_codes, block_name, units, notes)
@@ -371,15 +391,7 @@ def size_test(table, group, *, method: str = "welch", effort=None, units=None, b
                      nb_reference=nb_reference, n_boot=n_boot, rng=rng,
                      block_name=block_name, progress=progress, cancel=cancel, notes=notes,
                      gname=gname)
-    size = d.size
-    positive = bool((size > 0).all())
-    ratio = np.nan
-    if positive:
-        ratio, n_g, v = variance_ratio(np.log(size), d.codes, k)
-        if out.method == "anova" and d.blocks is None:
-            note = anova_note(np.log(size), d.codes, k, levels, ratio, n_g, v)
-            if note:
-                notes.append(note)
+    ratio = _spread_ratio(d, out.method, k, levels, notes)
     summary = _summary(d, out.rows, levels, g)
     measure = "total" + (f" per {d.per}" if d.per else "")
     if out.method not in ("kruskal", "negbin"):

@@ -185,6 +185,50 @@ def ordination_figure(ordination, *, group=None, symbol=None, ellipses=None, axe
     y = scores[ya].to_numpy(dtype=float)
     g = _labels_for(group, labels, "group")
     s = _labels_for(symbol, labels, "symbol")
+    levels = _shown_levels(g, ellipses, xa, ya)
+    colours = group_colours([lv for lv in levels if lv != MISSING])
+    colours[MISSING] = NEUTRAL
+    sym_levels = _levels(s) if s is not None else []
+    sym_map = {lv: SYMBOLS[i % len(SYMBOLS)] for i, lv in enumerate(sym_levels)}
+    fig = go.Figure()
+    _add_samples(fig, x, y, labels, g, s, (xa, ya), levels, colours, sym_map, sz)
+    if s is not None:
+        _add_symbol_legend(fig, s, sym_levels, sym_map, sz)
+    if ellipses is not None:
+        _add_ellipses(fig, ellipses, colours, sz)
+    if taxa is not None or top_taxa:
+        _add_taxa(fig, o, taxa, top_taxa, arrows, xa, ya, x, y, sz)
+    legend_title = g.name if g is not None else "samples"
+    _frame(fig, o, ellipses, (xa, ya), title=title, legend_title=legend_title, present=present)
+    return fig
+
+
+def _add_symbol_legend(fig: go.Figure, s, sym_levels, sym_map: dict, sz: dict) -> None:
+    """Legend entries (no points) for the marker shapes of the second factor."""
+    for j, lv in enumerate(sym_levels):
+        fig.add_trace(_legend_only(
+            mode="markers", name=lv, legendgroup="symbol",
+            legendgrouptitle={"text": s.name} if j == 0 else None,
+            marker={"color": "#555555", "size": sz["marker"], "symbol": sym_map[lv]},
+            meta={"role": "symbol legend"}))
+
+
+def _frame(fig: go.Figure, o: Ordination, ellipses, plotted, *, title, legend_title,
+           present: bool) -> None:
+    """Title and lines under it, legend, and equal scales on the two plotted axes."""
+    xa, ya = plotted
+    default_title, lines = _title_lines(o, ellipses)
+    base_layout(fig, title=subtitle(title or default_title, *lines), legend_title=legend_title,
+                present=present, height=680 if present else 620)
+    fig.update_layout(legend={"groupclick": "togglegroup", "tracegroupgap": 4})
+    fig.update_xaxes(title_text=o.axis_label(xa), zeroline=True, zerolinecolor="#BBBBBB",
+                     zerolinewidth=1)
+    fig.update_yaxes(title_text=o.axis_label(ya), zeroline=True, zerolinecolor="#BBBBBB",
+                     zerolinewidth=1, scaleanchor="x", scaleratio=1)
+
+
+def _shown_levels(g, ellipses, xa: str, ya: str) -> list:
+    """The group levels to colour (from the ellipses when there is no group); checks them."""
     if ellipses is not None and not isinstance(ellipses, EllipseSet):
         raise InputError("`ellipses` must be an EllipseSet from ordination.ellipses(...); got "
                          f"{type(ellipses).__name__}.")
@@ -200,10 +244,13 @@ def ordination_figure(ordination, *, group=None, symbol=None, ellipses=None, axe
             raise InputError(f"ellipse group(s) {extra[:5]} are not levels of `group` "
                              f"({levels[:8]}); compute the ellipses with the same grouping.")
         levels = levels or [str(lv) for lv in extra]
-    colours = group_colours([lv for lv in levels if lv != MISSING])
-    colours[MISSING] = NEUTRAL
-    sym_levels = _levels(s) if s is not None else []
-    sym_map = {lv: SYMBOLS[i % len(SYMBOLS)] for i, lv in enumerate(sym_levels)}
+    return levels
+
+
+def _add_samples(fig: go.Figure, x, y, labels, g, s, plotted, levels, colours: dict,
+                 sym_map: dict, sz: dict) -> None:
+    """The samples as markers: one trace per group level (or one trace), hover per sample."""
+    xa, ya = plotted
 
     def hover(i: int) -> str:
         bits = [f"<b>{labels[i]}</b>"]
@@ -215,7 +262,6 @@ def ordination_figure(ordination, *, group=None, symbol=None, ellipses=None, axe
         return "<br>".join(bits)
 
     marker_line = {"color": MARKER_EDGE, "width": 0.7}
-    fig = go.Figure()
     if g is None:
         idx = np.arange(len(labels))
         fig.add_trace(go.Scatter(
@@ -224,40 +270,19 @@ def ordination_figure(ordination, *, group=None, symbol=None, ellipses=None, axe
             marker={"color": "#333333", "size": sz["marker"], "line": marker_line,
                     "symbol": [sym_map[s.iloc[i]] for i in idx] if s is not None
                     else "circle"}))
-    else:
-        gv = g.astype(str).to_numpy()
-        for lv in levels:
-            idx = np.flatnonzero(gv == lv)
-            if idx.size == 0:
-                continue
-            fig.add_trace(go.Scatter(
-                x=x[idx], y=y[idx], mode="markers", name=lv, legendgroup=f"group:{lv}",
-                hovertext=[hover(i) for i in idx], hovertemplate="%{hovertext}<extra></extra>",
-                marker={"color": colours[lv], "size": sz["marker"], "line": marker_line,
-                        "symbol": [sym_map[s.iloc[i]] for i in idx] if s is not None
-                        else "circle"},
-                meta={"role": "samples", "group": lv}))
-    if s is not None:
-        for j, lv in enumerate(sym_levels):
-            fig.add_trace(_legend_only(
-                mode="markers", name=lv, legendgroup="symbol",
-                legendgrouptitle={"text": s.name} if j == 0 else None,
-                marker={"color": "#555555", "size": sz["marker"], "symbol": sym_map[lv]},
-                meta={"role": "symbol legend"}))
-    if ellipses is not None:
-        _add_ellipses(fig, ellipses, colours, sz)
-    if taxa is not None or top_taxa:
-        _add_taxa(fig, o, taxa, top_taxa, arrows, xa, ya, x, y, sz)
-    default_title, lines = _title_lines(o, ellipses)
-    legend_title = g.name if g is not None else "samples"
-    base_layout(fig, title=subtitle(title or default_title, *lines), legend_title=legend_title,
-                present=present, height=680 if present else 620)
-    fig.update_layout(legend={"groupclick": "togglegroup", "tracegroupgap": 4})
-    fig.update_xaxes(title_text=o.axis_label(xa), zeroline=True, zerolinecolor="#BBBBBB",
-                     zerolinewidth=1)
-    fig.update_yaxes(title_text=o.axis_label(ya), zeroline=True, zerolinecolor="#BBBBBB",
-                     zerolinewidth=1, scaleanchor="x", scaleratio=1)
-    return fig
+        return
+    gv = g.astype(str).to_numpy()
+    for lv in levels:
+        idx = np.flatnonzero(gv == lv)
+        if idx.size == 0:
+            continue
+        fig.add_trace(go.Scatter(
+            x=x[idx], y=y[idx], mode="markers", name=lv, legendgroup=f"group:{lv}",
+            hovertext=[hover(i) for i in idx], hovertemplate="%{hovertext}<extra></extra>",
+            marker={"color": colours[lv], "size": sz["marker"], "line": marker_line,
+                    "symbol": [sym_map[s.iloc[i]] for i in idx] if s is not None
+                    else "circle"},
+            meta={"role": "samples", "group": lv}))
 
 
 def _wrap(text: str, width: int = 95) -> str:

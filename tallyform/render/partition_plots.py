@@ -199,51 +199,8 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
     else:
         fig = go.Figure()
     for f in FRACTIONS:
-        vals = np.array([float(r["fractions"][f]) for r in rows], dtype=float)
-        text = [percent(v) for v in vals]
-        hover = []
-        for r, lb, v in zip(rows, labels, vals):
-            bits = [f"<b>{lb}</b>", f"{FRACTION_LABELS[f]}: {percent(v)}"]
-            if r.get("ci") is not None:
-                lo, hi = r["ci"][f]
-                bits.append(f"95 % interval: {percent(lo)} to {percent(hi)}")
-            if r.get("null") is not None:
-                med, nlo, nhi = r["null"][f]
-                bits.append(f"counting noise alone: {percent(med)} ({percent(nlo)} to "
-                            f"{percent(nhi)})")
-            t = r["tests"]
-            if t is not None and f in t.index and np.isfinite(t.loc[f, "pvalue"]):
-                bits.append(f"Monte Carlo test: {p_words(t.loc[f, 'pvalue'])} "
-                            f"({int(t.loc[f, 'n_simulations'])} simulated tables)")
-            if r["error"]:
-                bits.append(r["error"])
-            hover.append("<br>".join(bits))
-        name = FRACTION_LABELS[f]
-        if len(rows) == 1:        # one bar: the legend doubles as a readout of all four
-            name = f"{name}: {text[0]}"
-        fig.add_trace(go.Bar(
-            name=name, x=vals, y=labels, orientation="h",
-            marker={"color": FRACTION_COLOURS[f], "line": {"color": "white", "width": 1}},
-            text=text, textposition="inside", insidetextanchor="middle", textangle=0,
-            textfont={"size": sz["font"]}, hovertext=hover, legendgroup=f,
-            hovertemplate="%{hovertext}<extra></extra>", meta={"fraction": f}),
-            **({"row": 1, "col": 1} if with_ci else {}))
-        if with_ci:
-            fig.add_trace(_interval_trace(rows, labels, f, vals, hover, sz), row=1, col=2)
-    # negative segments are thin: label them outside, left of the bar
-    lows = []
-    for r, lb in zip(rows, labels):
-        neg = [(f, float(r["fractions"][f])) for f in FRACTIONS
-               if np.isfinite(r["fractions"][f]) and r["fractions"][f] < 0]
-        low = sum(v for _, v in neg)
-        lows.append(low)
-        if neg and any(percent(v) != "0.0 %" for _, v in neg):
-            fig.add_annotation(   # short, in the fraction's colour (hover says more)
-                x=low, y=lb, xref="x", yref="y", xanchor="right", showarrow=False,
-                text=" ".join(f"<span style='color:{FRACTION_COLOURS[f]}'>{percent(v)}</span>"
-                              for f, v in neg) + " ",
-                font={"size": sz["small"]}, name="negative fraction")
-    low = min(lows) if lows else 0.0
+        _add_fraction(fig, rows, labels, f, with_ci, sz)
+    low = _label_negatives(fig, rows, labels, sz)
     highs = [sum(float(v) for v in r["fractions"].values() if np.isfinite(v) and v > 0)
              for r in rows]
     high = max([1.0] + highs)
@@ -269,15 +226,78 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
     fig.update_yaxes(autorange="reversed", tickmode="array", tickvals=labels,
                      ticktext=ticks, title_text=None)
     if with_ci:
-        ends = [v for r in rows if r.get("ci") is not None for pair in r["ci"].values()
-                for v in pair if np.isfinite(v)] + [0.0, 1.0]
-        fig.update_xaxes(title_text="share, 95 % interval", tickformat=".0%", zeroline=True,
-                         zerolinecolor="#222222", gridcolor="#E5E5E5", row=1, col=2,
-                         range=[min(ends) - 0.03, max(ends) + 0.03])
-        fig.update_yaxes(showticklabels=False, autorange=False, tickmode="auto",
-                         range=[len(rows) - 0.5, -0.5], showgrid=False, zeroline=False,
-                         row=1, col=2)
+        _interval_axes(fig, rows)
     return fig
+
+
+def _fraction_hover(rows, labels, f: str, vals) -> list[str]:
+    """Hover text of one fraction's segments: share, interval, noise level, test, error."""
+    hover = []
+    for r, lb, v in zip(rows, labels, vals):
+        bits = [f"<b>{lb}</b>", f"{FRACTION_LABELS[f]}: {percent(v)}"]
+        if r.get("ci") is not None:
+            lo, hi = r["ci"][f]
+            bits.append(f"95 % interval: {percent(lo)} to {percent(hi)}")
+        if r.get("null") is not None:
+            med, nlo, nhi = r["null"][f]
+            bits.append(f"counting noise alone: {percent(med)} ({percent(nlo)} to "
+                        f"{percent(nhi)})")
+        t = r["tests"]
+        if t is not None and f in t.index and np.isfinite(t.loc[f, "pvalue"]):
+            bits.append(f"Monte Carlo test: {p_words(t.loc[f, 'pvalue'])} "
+                        f"({int(t.loc[f, 'n_simulations'])} simulated tables)")
+        if r["error"]:
+            bits.append(r["error"])
+        hover.append("<br>".join(bits))
+    return hover
+
+
+def _add_fraction(fig: go.Figure, rows, labels, f: str, with_ci: bool, sz: dict) -> None:
+    """One fraction's bar trace (and its whiskers in the side panel when there are any)."""
+    vals = np.array([float(r["fractions"][f]) for r in rows], dtype=float)
+    text = [percent(v) for v in vals]
+    hover = _fraction_hover(rows, labels, f, vals)
+    name = FRACTION_LABELS[f]
+    if len(rows) == 1:        # one bar: the legend doubles as a readout of all four
+        name = f"{name}: {text[0]}"
+    fig.add_trace(go.Bar(
+        name=name, x=vals, y=labels, orientation="h",
+        marker={"color": FRACTION_COLOURS[f], "line": {"color": "white", "width": 1}},
+        text=text, textposition="inside", insidetextanchor="middle", textangle=0,
+        textfont={"size": sz["font"]}, hovertext=hover, legendgroup=f,
+        hovertemplate="%{hovertext}<extra></extra>", meta={"fraction": f}),
+        **({"row": 1, "col": 1} if with_ci else {}))
+    if with_ci:
+        fig.add_trace(_interval_trace(rows, labels, f, vals, hover, sz), row=1, col=2)
+
+
+def _label_negatives(fig: go.Figure, rows, labels, sz: dict) -> float:
+    """Label negative segments left of their bar (they are thin); the lowest left end."""
+    lows = []
+    for r, lb in zip(rows, labels):
+        neg = [(f, float(r["fractions"][f])) for f in FRACTIONS
+               if np.isfinite(r["fractions"][f]) and r["fractions"][f] < 0]
+        low = sum(v for _, v in neg)
+        lows.append(low)
+        if neg and any(percent(v) != "0.0 %" for _, v in neg):
+            fig.add_annotation(   # short, in the fraction's colour (hover says more)
+                x=low, y=lb, xref="x", yref="y", xanchor="right", showarrow=False,
+                text=" ".join(f"<span style='color:{FRACTION_COLOURS[f]}'>{percent(v)}</span>"
+                              for f, v in neg) + " ",
+                font={"size": sz["small"]}, name="negative fraction")
+    return min(lows) if lows else 0.0
+
+
+def _interval_axes(fig: go.Figure, rows) -> None:
+    """Axes of the side panel of intervals: every interval end in view, rows as the bars."""
+    ends = [v for r in rows if r.get("ci") is not None for pair in r["ci"].values()
+            for v in pair if np.isfinite(v)] + [0.0, 1.0]
+    fig.update_xaxes(title_text="share, 95 % interval", tickformat=".0%", zeroline=True,
+                     zerolinecolor="#222222", gridcolor="#E5E5E5", row=1, col=2,
+                     range=[min(ends) - 0.03, max(ends) + 0.03])
+    fig.update_yaxes(showticklabels=False, autorange=False, tickmode="auto",
+                     range=[len(rows) - 0.5, -0.5], showgrid=False, zeroline=False,
+                     row=1, col=2)
 
 
 def dims_figure(result: SizeShapeResult, *, present: bool = False) -> go.Figure:

@@ -334,7 +334,8 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
     ratio. Shares are clipped to [0, 100] and are [0, 100] whenever the interval of the total
     reaches 0. Coverage measured at 8-10 samples per group, 1000 simulated studies per
     cell (benchmarks/calibration_cells/contributions.py): 0.935-0.975 for the true D^2
-    where the groups differ, 0.92-0.97 for the largest share, 0.94-0.945 for log2 ratios,
+    where the groups differ, 0.91-0.97 for the largest share where its interval is bounded
+    (0.91 with gamma-Poisson counts), 0.94-0.945 for log2 ratios,
     and conservative (0.99) for D^2 where the groups do not differ: the jackknife
     variance of a quadratic statistic carries its second-order part about twice
     (Efron & Stein 1981), which matters most when D^2 is near its noise.

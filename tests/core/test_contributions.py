@@ -369,6 +369,40 @@ def test_corrected_total_is_the_two_sample_u_statistic():
     assert k.total - k.noise == pytest.approx(k.total_corrected, rel=1e-12)
 
 
+def test_jackknife_variance_of_corrected_total_is_conservative_at_no_difference():
+    # Synthetic Poisson counts, the same rates in both groups (D^2 = 0), Euclidean features.
+    # Outside reference (Chen & Qin 2010, variance of their statistic under H0):
+    #   Var(U) = 2 tr(S^2) [1/(n_a(n_a-1)) + 1/(n_b(n_b-1)) + 2/(n_a n_b)], S = diag(rates).
+    # The jackknife variance is biased upwards (Efron & Stein 1981); for this quadratic
+    # statistic its expectation is tr(S^2) [4/(n_a(n_a-2)) + 4/(n_b(n_b-2)) + 8/(n_a n_b)]
+    # (Hoeffding decomposition of U, derived by hand), 2.2 times Var(U) here: the reason the
+    # interval for D^2 = 0 covers about 99 % (benchmarks/calibration_cells/contributions.py).
+    from tallyform.core.taxon_terms import Groups, Ticker, split_terms
+    rng = np.random.default_rng(41)
+    na, nb, p, reps = 8, 10, 20, 400
+    lam = rng.uniform(2.0, 30.0, p)
+    tr2 = float(np.sum(lam ** 2))
+    g = Groups(ia=np.arange(na), ib=np.arange(na, na + nb), codes_a=np.arange(na),
+               codes_b=np.arange(nb))
+    idx = [f"s{i}" for i in range(na + nb)]
+    u, v = [], []
+    for _ in range(reps):
+        x = rng.poisson(lam, size=(na + nb, p)).astype(float)
+        sub = tly.CommunityTable(pd.DataFrame(x, index=idx), empty="keep")
+        st = split_terms(sub, g, "euclidean", None, {}, jackknife=True,
+                         ticker=Ticker(1, None, None))
+        _, _, se, _ = jackknife_interval(st.net.sum(), st.jack_a.sum(axis=1),
+                                         st.jack_b.sum(axis=1), 0.95)
+        u.append(st.net.sum())
+        v.append(float(se) ** 2)
+    var_u = 2 * tr2 * (1 / (na * (na - 1)) + 1 / (nb * (nb - 1)) + 2 / (na * nb))
+    e_vj = tr2 * (4 / (na * (na - 2)) + 4 / (nb * (nb - 2)) + 8 / (na * nb))
+    assert abs(np.mean(u)) < 4 * np.sqrt(var_u / reps)          # unbiased for D^2 = 0
+    assert np.var(u, ddof=1) == pytest.approx(var_u, rel=0.25)   # sd of a variance: ~7 %
+    assert np.mean(v) == pytest.approx(e_vj, rel=0.1)
+    assert np.mean(v) > 1.8 * var_u
+
+
 def test_intervals_use_no_random_numbers(mesocosm):
     k1 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low", rng=7)
     k2 = tly.taxon_contributions(mesocosm, "treatment", "control", "nutrient_low", rng=8)

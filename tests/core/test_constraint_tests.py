@@ -394,9 +394,32 @@ def test_result_says_when_totals_go_with_the_constraints(community):
     hel = constraint_test(rda(heavy, info, terms=["trt"], transform="hellinger"),
                           n_permutations=19, rng=1)
     assert any("hellinger transform is not linear" in n for n in hel.notes)
+    # profiles keep the counting noise, which shrinks with the total (binomial variance
+    # q(1 - q) / N: common practice), so the note stays, and says what to do instead
     prof = constraint_test(rda(heavy, info, terms=["trt"], transform="profile"),
                            n_permutations=19, rng=1)
-    assert not any("Sample totals differ" in n for n in prof.notes)
+    note = [n for n in prof.notes if "Sample totals differ" in n]
+    assert len(note) == 1 and "counting noise" in note[0] and "rarefied_table" in note[0]
+    # one rarefaction to a common depth: equal totals, nothing left to say
+    rare = tly.rarefied_table(tly.CommunityTable(heavy, info), rng=1)
+    assert set(rare.totals) == {heavy.sum(axis=1).min()}
+    for o in (rda(rare, terms=["trt"], transform="profile"), cca(rare, terms=["trt"])):
+        assert not any("Sample totals differ" in n
+                       for n in constraint_test(o, n_permutations=19, rng=1).notes)
+
+
+def test_db_rda_says_when_totals_go_with_the_constraints_if_it_has_the_table(community):
+    x, info = community
+    heavy = tly.CommunityTable(x.mul(np.where(info["trt"] == "a", 8.0, 1.0), axis=0), info)
+    d = tly.dissimilarity(heavy, "bray_curtis", transform="profile")
+    said = constraint_test(db_rda(d, heavy, ["trt"]), n_permutations=19, rng=1)
+    note = [n for n in said.notes if "Sample totals differ" in n]
+    assert len(note) == 1 and "rarefied_table" in note[0]
+    # a sample table without counts: the dissimilarity keeps no totals, nothing is said
+    quiet = constraint_test(db_rda(d, info, ["trt"]), n_permutations=19, rng=1)
+    assert not any("Sample totals differ" in n for n in quiet.notes)
+    # the same statistic either way: the note is the only difference
+    assert said.statistic == pytest.approx(quiet.statistic, rel=1e-12)
 
 
 def test_nested_units_test_a_plot_term_within_sites(rng):

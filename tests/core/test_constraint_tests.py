@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from scipy import stats
-from scipy.spatial.distance import pdist
+from scipy import special, stats
+from scipy.spatial.distance import pdist, squareform
 
 import tallyform as tly
 from tallyform.core.constrained import cca, db_rda, rda
@@ -237,6 +237,33 @@ def test_between_unit_term_is_the_anova_of_unit_means(rng):
     assert ct.exact and ct.n_permutations == 20
     assert ct.table.loc["residual", "df"] == 4
     assert "between 'tank'" in ct.table.loc["all terms", "stratum"]
+
+
+def test_ten_tanks_db_rda_enumerates_every_split_of_the_tanks(rng):
+    # 10 tanks x 3 visits, treatment on 5 + 5 tanks, db-RDA of Bray-Curtis (Gower path):
+    # C(10, 5) = 252 relabellings of whole tanks (scipy.special.comb); swapping the two
+    # labels gives the same F, so every value comes twice and the smallest p is 2 / 252
+    info, _ = _tanks(rng, [3] * 10)
+    x = pd.DataFrame(rng.poisson(rng.gamma(2.0, 5.0, size=(10, 8))[np.repeat(range(10), 3)]
+                                 ) + 1.0, index=info.index)
+    d = tly.dissimilarity(x, "bray_curtis")
+    assert not d.has_features
+    ct = constraint_test(db_rda(d, info, ["treatment"]), units="tank", n_permutations=999,
+                         rng=1)
+    assert ct.exact and ct.n_permutations == int(special.comb(10, 5, exact=True))
+    null = ct.null_distribution["all terms"]
+    assert len(np.unique(np.round(null, 10))) == 126
+    assert ct.pvalue >= 2 / 252 and ct.table.loc["residual", "df"] == 8
+    # the statistic is on tank means: pseudo-F of the Gower matrix of the tank means
+    # (McArdle & Anderson 2001 trace form), from scipy's Bray-Curtis, written out here
+    d2 = squareform(pdist(x.to_numpy(), "braycurtis")) ** 2
+    c = np.eye(30) - 1 / 30
+    A = np.kron(np.eye(10), np.ones((3, 1))) / 3              # samples -> tank means
+    gu = A.T @ (-0.5 * c @ d2 @ c) @ A
+    t = np.r_[np.zeros(5), np.ones(5)] - 0.5
+    h = np.outer(t, t) / (t @ t)
+    f = np.trace(h @ gu) / ((np.trace(gu) - np.trace(h @ gu)) / 8)
+    assert ct.statistic == pytest.approx(f, rel=1e-9)
 
 
 def test_unbalanced_units_are_weighted_by_their_samples(rng):

@@ -6,10 +6,16 @@ totals that vary between samples (log-normal, sd 0.5) and, where said, differ be
 groups of the tested factor. The tested constraints (a noise factor with unbalanced groups,
 or a noise covariate) have no effect on composition. RDA runs on Hellinger-transformed
 counts; db-RDA on Bray-Curtis dissimilarities of raw counts (the Gower path: a measure with
-negative eigenvalues), or of profiles where totals differ between groups (Bray-Curtis of raw
-counts would rightly see the size difference). Reference rows (``check=False``) show what
-the unadjusted alternative does. Where totals differ between groups, RDA runs on profiles
-(a Hellinger reference row shows that depth alone then moves its centroids).
+negative eigenvalues). Reference rows (``check=False``) show what the unadjusted alternative
+does.
+
+Totals that differ between groups: no transform makes such samples exchangeable (profiles
+keep the counting noise, whose variance falls with the total; non-linear transforms such as
+Hellinger also move the centroids), so the checked cells subsample every sample to the smallest
+total first, which makes them exchangeable whatever their totals (Sanders 1968; Hurlbert
+1971). Reference rows show profiles without rarefaction (RDA on profiles, db-RDA on
+Bray-Curtis of profiles; Bray-Curtis of raw counts would rightly see the size difference),
+with many and with few individuals per sample, and Hellinger RDA.
 """
 from __future__ import annotations
 
@@ -21,6 +27,7 @@ import pandas as pd
 from tallyform.core.constrained import cca, db_rda, rda
 from tallyform.core.constraint_tests import constraint_test
 from tallyform.core.dissimilarity import dissimilarity
+from tallyform.core.rarefaction import rarefied_table
 from tallyform.core.table import CommunityTable
 
 from .base import Cell
@@ -80,9 +87,12 @@ def _frame(rng, n, *, real=0.0, heavy=1.0, axis_effect=0.0, heavy_group="c", sca
     return info, shift, totals
 
 
-def _ordination(method, x, info, terms, conditions, *, profile=False, transform="hellinger"):
+def _ordination(method, x, info, terms, conditions, *, profile=False, transform="hellinger",
+                subsample=None):
     tab = CommunityTable(pd.DataFrame(x, index=info.index,
                                       columns=[f"t{j}" for j in range(x.shape[1])]), info)
+    if subsample is not None:                # the generator of the subsampling
+        tab = rarefied_table(tab, rng=subsample)
     if method == "CCA":
         return cca(tab, terms=terms, conditions=conditions)
     if method == "RDA":
@@ -93,12 +103,12 @@ def _ordination(method, x, info, terms, conditions, *, profile=False, transform=
 
 def _study(rng, *, method, n, gen, terms, row, scope="all", ss="sequential", conditions=None,
            real=0.0, heavy=1.0, axis_effect=0.0, heavy_group="c", scale=300.0,
-           transform="hellinger"):
+           transform="hellinger", subsample=False):
     info, shift, totals = _frame(rng, n, real=real, heavy=heavy, axis_effect=axis_effect,
                                  heavy_group=heavy_group, scale=scale)
     x = _counts(rng, gen, totals, shift if (real or axis_effect) else None)
     o = _ordination(method, x, info, terms, conditions, profile=heavy != 1.0,
-                    transform=transform)
+                    transform=transform, subsample=rng if subsample else None)
     ct = constraint_test(o, scope, n_permutations=PERMS, rng=rng, ss=ss, units=False)
     if row not in ct.table.index:
         # an axis with no positive eigenvalue (db-RDA) has no test, so it cannot be rejected
@@ -167,16 +177,36 @@ def _method_cells(method):
               "(effect 1), n = 30, log-normal", n=30, gen="lognormal", terms=["f"],
               scope="each_axis", axis_effect=1.0, row=f"{m}2", reps=400, check=False),
     ]
+    # Totals that differ between groups. Profiles remove the totals from the means but not
+    # from the counting noise (variance q(1 - q) / N per taxon), so samples of a group with
+    # higher totals are less spread out and the samples are not exchangeable: no true null of
+    # a permutation test. The checked cells subsample every sample to the smallest total first
+    # (then exchangeable whatever the totals; Sanders 1968, Hurlbert 1971); the reference rows
+    # show profiles without rarefaction (liberal when the largest group has the higher
+    # totals, conservative when the smallest has; Behrens-Fisher-like, more so with fewer
+    # individuals per sample).
     which = {"db-RDA": " (Bray-Curtis of profiles)", "RDA": " (profiles)", "CCA": ""}[m]
+    rarefied = {"db-RDA": "Bray-Curtis", "RDA": "profiles", "CCA": "CCA"}[m]
+    cells.append(_cell("totals-differ-rarefied-n30", m, "noise factor, totals 3x higher in "
+                       "the largest group (14 of 30), log-normal, counts rarefied to the "
+                       f"smallest total, then {rarefied}", n=30, gen="lognormal",
+                       terms=["g"], heavy=3.0, row="all terms", transform="profile",
+                       subsample=True))
     cells.append(_cell("totals-differ-n30", m, "noise factor, totals 3x higher in the "
-                       "largest group (14 of 30), log-normal" + which,
+                       "largest group (14 of 30), log-normal" + which + ", not rarefied",
                        n=30, gen="lognormal", terms=["g"], heavy=3.0, row="all terms",
-                       check=m != "CCA", transform="profile"))
+                       check=False, transform="profile"))
     cells.append(_cell("totals-differ-small-n30", m, "noise factor, totals 3x higher in the "
-                       "smallest group (6 of 30), log-normal" + which,
+                       "smallest group (6 of 30), log-normal" + which + ", not rarefied",
                        n=30, gen="lognormal", terms=["g"], heavy=3.0, heavy_group="a",
-                       row="all terms", check=m != "CCA", reps=400 if m == "CCA" else 1000,
+                       row="all terms", check=False, reps=400 if m == "CCA" else 1000,
                        transform="profile"))
+    if m != "CCA":
+        cells.append(_cell("totals-differ-few-n30", m, "noise factor, totals 3x higher in "
+                           "the largest group (14 of 30), about 30 individuals in the other "
+                           "samples, log-normal" + which + ", not rarefied", n=30,
+                           gen="lognormal", terms=["g"], heavy=3.0, scale=30.0,
+                           row="all terms", check=False, transform="profile"))
     if m == "RDA":
         cells.append(_cell("hellinger-totals-differ-n30", m, "noise factor, totals 3x higher "
                            "in the largest group (14 of 30), log-normal, Hellinger: depth "

@@ -431,7 +431,9 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
     ----------
     d : Dissimilarity
     samples : DataFrame or CommunityTable
-        Sample information, rows matched to ``d.labels`` by label.
+        Sample information, rows matched to ``d.labels`` by label. Pass the table the
+        dissimilarities were computed from to let :func:`constraint_test` say when sample
+        totals differ with the constraints.
     terms : list of str
         Constraining columns (factors expand to indicator columns).
     conditions : list of str, optional
@@ -492,6 +494,7 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
             "conditions": des.conditions, "correction": correction, "correction_constant": 0.0}
     notes: list[str] = []
     shares = (Qx.shape[1], Qz.shape[1] - 1, True)
+    totals = _table_totals(samples, labels)
     if d.has_features:
         if correction is not None:
             notes.append(f"the {d.measure} measure is Euclidean (it has a feature matrix): no "
@@ -508,7 +511,8 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
                         Xt=Xt, xnames=xnames, weights=np.ones(n), provenance=prov,
                         notes=notes,
                         shares=shares + (des.data("db-RDA", labels, features=Y,
-                                                  prefix="db-RDA"),))
+                                                  prefix="db-RDA", totals=totals,
+                                                  transform=d.transform),))
         return _restate_db(res, None)
     G, c = corrected_gower(d, correction)
     prov["correction_constant"] = c
@@ -541,9 +545,23 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
                   conditioned=(total - float(np.trace(Gz))) if Xc is not None else None,
                   scaling=SCALINGS["samples"][1], taxa=None, fitted=fitted, corr=corr,
                   has_constraints=True, provenance=dict(prov, scaling="samples"), notes=notes,
-                  shares=shares + (des.data("db-RDA", labels, gower=G, prefix="db-RDA"),),
+                  shares=shares + (des.data("db-RDA", labels, gower=G, prefix="db-RDA",
+                                            totals=totals, transform=d.transform),),
                   n=n, con_prefix="db-RDA", res_prefix="PCoA")
     return _restate_db(res, residual_dims)
+
+
+def _table_totals(samples, labels) -> np.ndarray | None:
+    """Sample totals (row sums of the counts) when ``samples`` is a CommunityTable holding
+    every sample of the dissimilarity; None otherwise (a dissimilarity keeps no totals)."""
+    from .table import CommunityTable
+    if not isinstance(samples, CommunityTable):
+        return None
+    sums = pd.Series(np.asarray(samples.values, dtype=float).sum(axis=1),
+                     index=[str(x) for x in samples.sample_labels])
+    if not set(labels) <= set(sums.index):
+        return None
+    return sums.loc[list(labels)].to_numpy()
 
 
 def _restate_db(res: Ordination, residual_dims) -> Ordination:

@@ -89,9 +89,11 @@ class ConstraintData:
     axis_prefix : str
         ``'CCA'``, ``'RDA'`` or ``'db-RDA'`` (names of the constrained axes).
     totals : ndarray (n,) or None
-        Sample totals of the table (CCA, RDA); None when only dissimilarities were given.
+        Sample totals of the table (CCA, RDA; db-RDA when its sample information was the
+        table itself); None when only dissimilarities were given.
     transform : str or None
-        RDA: the transformation of the abundances (None: raw abundances).
+        RDA: the transformation of the abundances (None: raw abundances); db-RDA: the
+        transformation before the measure.
     """
 
     method: str

@@ -32,7 +32,9 @@ Peres-Neto, P. R., Legendre, P., Dray, S. & Borcard, D. (2006). Variation partit
 species data matrices: estimation and comparison of fractions. Ecology 87, 2614-2625.
 ter Braak, C. J. F. (1986). Ecology 67, 1167-1179.
 Ezekiel, M. (1930). Methods of Correlation Analysis. Wiley.
+Hurlbert, S. H. (1971). Ecology 52, 577-586.
 Hurlbert, S. H. (1984). Ecological Monographs 54, 187-211.
+Sanders, H. L. (1968). American Naturalist 102, 243-282.
 """
 from __future__ import annotations
 
@@ -46,6 +48,7 @@ from .display import p_words
 from .constraint_engine import (ConstraintData, Rows, f_test, fitted_axes, indicator_columns,
                                 weighted_unit_rows)
 from .constraint_shares import adjusted_from_plan, share_plan
+from .constraint_totals import totals_notes
 from .errors import DesignError, InputError
 from .inference import block_labels, check_n_permutations
 from .ordination import Ordination, check_option
@@ -304,8 +307,15 @@ def constraint_test(ordination, scope: str = "all", *, n_permutations: int = 999
     tests use the first eigenvalue of the fitted part over 1 df. The reduced model's
     residuals are permuted (Freedman & Lane 1983): the design rows are relabelled against
     them. In CCA every sample keeps its weight (row mass) when its residual moves, and the
-    weighted regression is recomputed for every permutation (ter Braak 1986). When sample
-    totals differ with the constraints, CCA's test loses power (see the notes it prints).
+    weighted regression is recomputed for every permutation (ter Braak 1986).
+    The test holds its level exactly when the samples are exchangeable under the null. When
+    sample totals differ with the constraints they are not, whatever the transform: profiles
+    of samples with fewer individuals carry more counting noise, so RDA on profiles (or
+    db-RDA on a measure of profiles) is liberal when the larger groups have the higher
+    totals and conservative in the opposite case, and CCA loses power (the result says so
+    for CCA and RDA; a dissimilarity does not carry the totals, so db-RDA cannot). Rarefying
+    every sample to a common depth first (:func:`tallyform.rarefied_table`) makes the samples
+    exchangeable again whatever their totals (Sanders 1968; Hurlbert 1971).
     p = (1 + #{F* >= F}) / (1 + P), or the exact share under complete enumeration.
 
     References
@@ -499,62 +509,10 @@ def _notes(data, o, scope, ss, plan, used, inertia) -> list:
             _split_terms(list(data.terms), t, ss)[1] for t in data.terms):
         notes.append("Marginal tests: a term that is part of an interaction is tested "
                      "without adjusting for that interaction.")
-    notes.extend(_totals_notes(data))
+    notes.extend(totals_notes(data))
     if data.method == "db-RDA" and o.negative_share > 0:
         notes.append(f"Negative eigenvalues hold {100 * o.negative_share:.1f} % of the total "
                      "(the measure is not Euclidean): inertias are traces of the Gower "
                      "matrix and the per-axis tests only cover axes with positive "
                      "eigenvalues.")
     return notes
-
-
-def _totals_association(data: ConstraintData):
-    """(F, p) of the log sample totals against the terms (OLS), or None."""
-    tot = data.totals
-    if tot is None or np.any(tot <= 0):
-        return None
-    y = np.log(tot)
-    X = np.column_stack([np.ones(data.n), data.X])
-    beta, *_ = np.linalg.lstsq(X, y, rcond=None)
-    rss = float(np.sum((y - X @ beta) ** 2))
-    tss = float(np.sum((y - y.mean()) ** 2))
-    k = np.linalg.matrix_rank(X) - 1
-    df = data.n - 1 - k
-    if tss <= 0 or df <= 0 or k <= 0:
-        return None
-    from scipy import stats
-    f = ((tss - rss) / k) / (rss / df) if rss > 0 else np.inf
-    return f, float(stats.f.sf(f, k, df))
-
-
-def _totals_notes(data: ConstraintData) -> list:
-    """Say when sample totals go with the constraints, and what that does to the test.
-
-    Measured (benchmarks/calibration_cells/constrained.py, 3 groups of 6/10/14, totals 3x
-    higher in one group, no difference in composition): CCA rejects 0.2 % (largest group
-    heavier) to 2.8 % (smallest) at alpha 5 %; Hellinger RDA 7.4-8.9 % (largest heavier);
-    RDA on profiles 6.3 % and 4.4 %; db-RDA on Bray-Curtis of profiles 5.6 % and 5.1 %.
-    """
-    if data.method == "db-RDA" or data.transform == "profile":
-        return []
-    assoc = _totals_association(data)
-    if assoc is None or assoc[1] > 0.05:
-        return []
-    head = (f"Sample totals differ with the constraints (log totals against the terms: "
-            f"F = {assoc[0]:.3g}, {p_words(assoc[1])}). ")
-    profiles = ("To test composition with every sample weighing the same, use "
-                "rda(..., transform='profile') or db_rda on a measure of profiles (e.g. "
-                "bray_curtis with transform='profile'): measured 4.4-6.3 % false positives "
-                "at alpha 5 % in the same designs; see also tly.audit.")
-    if data.method == "CCA":
-        return [head + "CCA weights every sample by its total, and its permutation test "
-                "(each sample moving with its weight) is then conservative: it keeps its "
-                "false-positive rate below alpha but can lose most of its power (measured: "
-                "0.2-2.8 % rejections at alpha 5 % with totals 3x higher in one of three "
-                "groups). " + profiles]
-    what = ("raw abundances differ with the totals by construction" if data.transform is None
-            else f"the {data.transform} transform is not linear in the proportions, so "
-                 "counting depth alone moves centroids and spreads (measured for Hellinger: "
-                 "7.4-8.9 % false positives at alpha 5 % with totals 3x higher in the "
-                 "largest of three groups)")
-    return [head + f"RDA may then read depth as a difference: {what}. " + profiles]

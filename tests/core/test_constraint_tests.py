@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from scipy import stats
-from scipy.spatial.distance import pdist
+from scipy import special, stats
+from scipy.spatial.distance import pdist, squareform
 
 import tallyform as tly
 from tallyform.core.constrained import cca, db_rda, rda
@@ -239,6 +239,33 @@ def test_between_unit_term_is_the_anova_of_unit_means(rng):
     assert "between 'tank'" in ct.table.loc["all terms", "stratum"]
 
 
+def test_ten_tanks_db_rda_enumerates_every_split_of_the_tanks(rng):
+    # 10 tanks x 3 visits, treatment on 5 + 5 tanks, db-RDA of Bray-Curtis (Gower path):
+    # C(10, 5) = 252 relabellings of whole tanks (scipy.special.comb); swapping the two
+    # labels gives the same F, so every value comes twice and the smallest p is 2 / 252
+    info, _ = _tanks(rng, [3] * 10)
+    x = pd.DataFrame(rng.poisson(rng.gamma(2.0, 5.0, size=(10, 8))[np.repeat(range(10), 3)]
+                                 ) + 1.0, index=info.index)
+    d = tly.dissimilarity(x, "bray_curtis")
+    assert not d.has_features
+    ct = constraint_test(db_rda(d, info, ["treatment"]), units="tank", n_permutations=999,
+                         rng=1)
+    assert ct.exact and ct.n_permutations == int(special.comb(10, 5, exact=True))
+    null = ct.null_distribution["all terms"]
+    assert len(np.unique(np.round(null, 10))) == 126
+    assert ct.pvalue >= 2 / 252 and ct.table.loc["residual", "df"] == 8
+    # the statistic is on tank means: pseudo-F of the Gower matrix of the tank means
+    # (McArdle & Anderson 2001 trace form), from scipy's Bray-Curtis, written out here
+    d2 = squareform(pdist(x.to_numpy(), "braycurtis")) ** 2
+    c = np.eye(30) - 1 / 30
+    A = np.kron(np.eye(10), np.ones((3, 1))) / 3              # samples -> tank means
+    gu = A.T @ (-0.5 * c @ d2 @ c) @ A
+    t = np.r_[np.zeros(5), np.ones(5)] - 0.5
+    h = np.outer(t, t) / (t @ t)
+    f = np.trace(h @ gu) / ((np.trace(gu) - np.trace(h @ gu)) / 8)
+    assert ct.statistic == pytest.approx(f, rel=1e-9)
+
+
 def test_unbalanced_units_are_weighted_by_their_samples(rng):
     info, y = _tanks(rng, [2, 3, 4, 2, 5, 3])
     ct = constraint_test(rda(y, info, terms=["treatment"]), units="tank", n_permutations=99,
@@ -394,9 +421,32 @@ def test_result_says_when_totals_go_with_the_constraints(community):
     hel = constraint_test(rda(heavy, info, terms=["trt"], transform="hellinger"),
                           n_permutations=19, rng=1)
     assert any("hellinger transform is not linear" in n for n in hel.notes)
+    # profiles keep the counting noise, which shrinks with the total (binomial variance
+    # q(1 - q) / N: common practice), so the note stays, and says what to do instead
     prof = constraint_test(rda(heavy, info, terms=["trt"], transform="profile"),
                            n_permutations=19, rng=1)
-    assert not any("Sample totals differ" in n for n in prof.notes)
+    note = [n for n in prof.notes if "Sample totals differ" in n]
+    assert len(note) == 1 and "counting noise" in note[0] and "rarefied_table" in note[0]
+    # one rarefaction to a common depth: equal totals, nothing left to say
+    rare = tly.rarefied_table(tly.CommunityTable(heavy, info), rng=1)
+    assert set(rare.totals) == {heavy.sum(axis=1).min()}
+    for o in (rda(rare, terms=["trt"], transform="profile"), cca(rare, terms=["trt"])):
+        assert not any("Sample totals differ" in n
+                       for n in constraint_test(o, n_permutations=19, rng=1).notes)
+
+
+def test_db_rda_says_when_totals_go_with_the_constraints_if_it_has_the_table(community):
+    x, info = community
+    heavy = tly.CommunityTable(x.mul(np.where(info["trt"] == "a", 8.0, 1.0), axis=0), info)
+    d = tly.dissimilarity(heavy, "bray_curtis", transform="profile")
+    said = constraint_test(db_rda(d, heavy, ["trt"]), n_permutations=19, rng=1)
+    note = [n for n in said.notes if "Sample totals differ" in n]
+    assert len(note) == 1 and "rarefied_table" in note[0]
+    # a sample table without counts: the dissimilarity keeps no totals, nothing is said
+    quiet = constraint_test(db_rda(d, info, ["trt"]), n_permutations=19, rng=1)
+    assert not any("Sample totals differ" in n for n in quiet.notes)
+    # the same statistic either way: the note is the only difference
+    assert said.statistic == pytest.approx(quiet.statistic, rel=1e-12)
 
 
 def test_nested_units_test_a_plot_term_within_sites(rng):

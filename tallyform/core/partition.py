@@ -244,6 +244,9 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
     res = _size_shape_from(table, d, measure=measure, transform=transform, size=size,
                            shape=shape, shape_dims=shape_dims, n_permutations=0, rng=None,
                            progress=None, cancel=None)
+    if chunks is not None:
+        from dataclasses import replace
+        res = replace(res, provenance=dict(res.provenance, chunks=chunks))
     if not (n_permutations or n_boot):
         return res
     test_rng, boot_rng = as_rng(rng).spawn(2)
@@ -272,7 +275,7 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
         extra["fractions_ci"] = ci
         notes.extend(more)
     prov = dict(res.provenance, n_permutations=n_permutations, n_boot=n_boot,
-                units=unit_name, overdispersion=overdispersion, chunks=chunks)
+                units=unit_name, overdispersion=overdispersion)
     from dataclasses import replace
     return replace(res, notes=tuple(dict.fromkeys(notes)), provenance=prov, **extra)
 

@@ -92,8 +92,9 @@ def _on_cluster(client, fn, items, shared, progress, cancel, what) -> list:
         _stop(what, 0, total)
     name = getattr(fn, "__name__", "task").lstrip("_")
     tag = uuid.uuid4().hex[:8]
-    shared_f = client.scatter(shared, broadcast=True, hash=False) if shared is not None \
-        else None
+    # one object (a dict would be scattered value by value), sent to every worker once
+    shared_f = client.scatter([shared], broadcast=True, hash=False)[0] \
+        if shared is not None else None
     keys = [f"{name}-{tag}-{i}" for i in range(total)]
     futures = client.map(functools.partial(_task, fn), items, shared=shared_f, key=keys,
                          pure=False)

@@ -391,6 +391,9 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
 
     Notes
     -----
+    Every simulation draws its table and its tests from its own random stream, spawned from
+    ``rng`` before any runs; with an active Dask client the simulations are tasks on its
+    workers (:func:`tallyform.core.cluster_map.cluster_map`) and give the same p-values.
     Compositions are simulated independently for every sample (no unit-level composition
     effects: the null is "composition the same everywhere"), while the totals keep the
     design's unit structure; with units, the audited tests relabel whole units.

@@ -124,6 +124,10 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
     units : str or list of str, optional
         Sampling-unit column(s): replicates leave out whole units.
 
+    With an active Dask client (``dask.distributed``) every cell is one task on its
+    workers (:func:`tallyform.core.cluster_map.cluster_map`); the grid is the same as
+    without one.
+
     Returns
     -------
     ScanResult

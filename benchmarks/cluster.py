@@ -22,6 +22,11 @@ projection uses the slowest measured s_pair and s_mac per worker (the largest n 
 the latency of a pass measured here, and assumes that the workers scale linearly and each
 holds n^2 * 8 / (2 w) bytes of tiles.
 
+With ``--tasks``: the parallel tasks and the tiled partition, as ratios against the same
+call in this process (timed before the cluster starts): ``scan`` (its 40 cells as tasks),
+``audit`` (its simulations as tasks), both checked equal to the plain loop, and
+``size_shape(..., chunks=)`` with ``n_boot`` against the in-memory partition (same shares).
+
 Data are synthetic (Poisson counts around gamma-distributed taxon means). The machine may be
 shared: the figures are one run each, printed as measured.
 """
@@ -123,6 +128,70 @@ def measure(client, n: int, p: int, perms: int, chunks: int, in_memory: bool) ->
     return out
 
 
+def _task_calls(n: int, p: int, n_sim: int, n_boot: int):
+    """The timed calls of --tasks, by name: (seconds, result to compare)."""
+    x, info = _data(n, p, seed=3)
+    x = x * np.random.default_rng(4).lognormal(0.0, 0.5, size=(n, 1)).round(3)
+    tab = tly.CommunityTable(pd.DataFrame(np.round(x) + 1, index=info.index,
+                                          columns=[f"t{j}" for j in range(p)]), info)
+    small = tly.CommunityTable(tab.counts.iloc[:60], info.iloc[:60])
+    calls = {
+        f"scan (40 cells, n_boot = {n_boot})": lambda: tly.scan(
+            small, n_boot=n_boot, rng=1, progress=False).frame,
+        f"audit ({n_sim} simulations)": lambda: tly.audit(
+            small, "g", n_sim=n_sim, n_permutations=199, rng=1, progress=False).pvalues,
+    }
+    return tab, calls
+
+
+def _timed(fn):
+    t0 = time.perf_counter()
+    out = fn()
+    return time.perf_counter() - t0, out
+
+
+def tasks_before(args) -> dict:
+    """Plain-loop times (no client yet) of the --tasks calls."""
+    tab, calls = _task_calls(args.tasks_n, args.p, args.n_sim, args.n_boot)
+    out = {k: _timed(f) for k, f in calls.items()}
+    out["size_shape"] = _timed(lambda: tly.size_shape(tab, "bray_curtis", n_boot=args.n_boot,
+                                                      rng=1, progress=False))
+    return out
+
+
+def tasks_on(client, args, before: dict) -> None:
+    tab, calls = _task_calls(args.tasks_n, args.p, args.n_sim, args.n_boot)
+    workers = len(client.scheduler_info()["workers"])
+    warm = tly.CommunityTable(tab.counts.iloc[:20], tab.samples.iloc[:20])
+    tly.scan(warm, n_boot=5, rng=1, progress=False)     # workers import and compile first
+    tly.audit(warm, "g", n_sim=workers, n_permutations=19, rng=1, progress=False)
+    print(f"\nParallel tasks on {workers} workers (ratio = with the client / plain loop; "
+          "below 1 is faster):")
+    for k, f in calls.items():
+        t, res = _timed(f)
+        ref = before[k][1]
+        if hasattr(res, "select_dtypes"):               # the scan's frame: numbers to rounding
+            num = res.select_dtypes("number").columns
+            same = bool(np.allclose(res[num], ref[num], rtol=1e-12, atol=1e-12,
+                                    equal_nan=True) and res.drop(columns=num).equals(
+                                        ref.drop(columns=num)))
+        else:
+            same = bool(np.array_equal(res, ref, equal_nan=True))
+        tol = " (to 1e-12)" if hasattr(res, "select_dtypes") else ""
+        print(f"  {k}: {before[k][0]:.3g} s in a loop, {t:.3g} s as tasks, ratio "
+              f"{t / before[k][0]:.2f}; same result{tol}: {same}",
+              flush=True)
+    chunks = int(np.ceil(tab.n_samples / 4))
+    t, res = _timed(lambda: tly.size_shape(tab, "bray_curtis", n_boot=args.n_boot, rng=1,
+                                           chunks=chunks, progress=False))
+    ref = before["size_shape"][1]
+    diff = float(np.max(np.abs(res.fractions_ci.to_numpy() - ref.fractions_ci.to_numpy())))
+    print(f"  size_shape, n = {tab.n_samples}, n_boot = {args.n_boot}: in memory "
+          f"{before['size_shape'][0]:.3g} s, on tiles of {chunks} {t:.3g} s, ratio "
+          f"{t / before['size_shape'][0]:.2f}; largest difference of the intervals {diff:.1e}",
+          flush=True)
+
+
 def project(n: int, workers: int, perms: int, m: dict, k: int = 1) -> dict:
     """Wall time of a PERMANOVA of n samples on ``workers`` workers from measured rates."""
     from tallyform.core.permutation import default_batch_size
@@ -148,7 +217,15 @@ def main(argv=None):
     ap.add_argument("--memory", default="1GB", help="memory limit per worker")
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--quick", action="store_true", help="small sizes, for a smoke test")
+    ap.add_argument("--tasks", action="store_true",
+                    help="also time scan, audit and the tiled size_shape (ratios)")
+    ap.add_argument("--tasks-n", type=int, default=2000, help="samples of the tiled partition")
+    ap.add_argument("--n-sim", type=int, default=40, help="audit simulations (--tasks)")
+    ap.add_argument("--n-boot", type=int, default=100, help="partition replicates (--tasks)")
+    ap.add_argument("--only-tasks", action="store_true", help="skip the PERMANOVA sizes")
     args = ap.parse_args(argv)
+    if args.only_tasks:
+        args.tasks = True
     from distributed import Client, LocalCluster
     sizes = [int(s) for s in args.sizes.split(",") if s]
     if args.quick:
@@ -156,10 +233,15 @@ def main(argv=None):
     if args.n:
         sizes.append(args.n)
     os.environ.setdefault("OMP_NUM_THREADS", "1")
+    before = tasks_before(args) if args.tasks else None
     rows = []
     with LocalCluster(host="127.0.0.1", n_workers=args.workers, threads_per_worker=1,
                       memory_limit=args.memory, dashboard_address=None) as cluster, \
             Client(cluster) as client:
+        if args.tasks:
+            tasks_on(client, args, before)
+        if args.only_tasks:
+            return
         for n in sizes:
             chunks = args.chunks or int(np.ceil(n / 4))
             fits = 8.0 * n * n * 3 < 8e9                  # in-memory reference if it fits

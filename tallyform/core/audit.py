@@ -19,7 +19,8 @@ import numpy as np
 import pandas as pd
 
 from .abundance import counting_basis, require_absolute
-from .errors import Cancelled, DesignError, InputError
+from .cluster_map import cluster_map
+from .errors import DesignError, InputError
 from .random import as_rng
 from .results import ResultMixin, readonly
 from .table import CommunityTable, as_table
@@ -70,23 +71,35 @@ def null_shape_tables(table: CommunityTable, n_sim: int, *, model: str = "dirich
     """Yield ``n_sim`` count arrays with the observed totals and one shared profile (for a
     relative table with loads: reads drawn at the observed depths, scaled to the loads)."""
     rng = as_rng(rng)
+    basis = _null_basis(table)
+    for _ in range(n_sim):
+        yield _null_table(basis, model, rho, rng)
+
+
+def _null_basis(table: CommunityTable) -> tuple:
+    """(shape, scale, totals, pooled profile, present taxa) the null tables are drawn from."""
     x, scale = counting_basis(table)        # reads of relative tables, drawn then scaled
     totals = np.rint(x.sum(axis=1)).astype(np.int64)
     pooled = x.sum(axis=0)
     present = pooled > 0
     pi = pooled[present] / pooled[present].sum()
-    for _ in range(n_sim):
-        if model == "dirichlet_multinomial" and rho > 0:
-            alpha = pi * (1.0 - rho) / rho
-            g = rng.gamma(np.broadcast_to(alpha, (x.shape[0], pi.size)))
-            s = g.sum(axis=1, keepdims=True)
-            p = np.where(s > 0, g / np.where(s > 0, s, 1.0), pi)
-        else:
-            p = np.broadcast_to(pi, (x.shape[0], pi.size))
-        draw = rng.multinomial(totals, p)
-        out = np.zeros(x.shape)
-        out[:, present] = draw
-        yield out * scale[:, None]
+    return x.shape, scale, totals, pi, present
+
+
+def _null_table(basis: tuple, model: str, rho: float, rng) -> np.ndarray:
+    """One simulated table: the observed totals around the pooled profile."""
+    shape, scale, totals, pi, present = basis
+    if model == "dirichlet_multinomial" and rho > 0:
+        alpha = pi * (1.0 - rho) / rho
+        g = rng.gamma(np.broadcast_to(alpha, (shape[0], pi.size)))
+        s = g.sum(axis=1, keepdims=True)
+        p = np.where(s > 0, g / np.where(s > 0, s, 1.0), pi)
+    else:
+        p = np.broadcast_to(pi, (shape[0], pi.size))
+    draw = rng.multinomial(totals, p)
+    out = np.zeros(shape)
+    out[:, present] = draw
+    return out * scale[:, None]
 
 
 @dataclass(frozen=True, eq=False)
@@ -275,6 +288,31 @@ def _checked(table, group, *, model, alpha, n_sim, n_permutations, spread, raref
     return table, g
 
 
+def _one_simulation(item, shared: dict, cancel=None) -> dict:
+    """The p-values of one simulated table (a task of
+    :func:`tallyform.core.cluster_map.cluster_map`, here or on a worker)."""
+    rng, extra_rng = item
+    sh = shared
+    values = _null_table(sh["basis"], sh["model"], sh["rho"], rng)
+    by = sh["groups"] if sh["spread"] else None
+    common = (sh["labels"], sh["taxa"], sh["X"])
+    out = {}
+    out["main"], out["spread_main"] = _group_test_pvalue(
+        values, *common, sh["measure"], sh["transform"], sh["n_permutations"], rng, groups=by,
+        spread_rng=extra_rng, design=sh["design"])
+    out["ref"], out["spread_ref"] = _group_test_pvalue(
+        values, *common, sh["reference"], None, sh["n_permutations"], rng, groups=by,
+        spread_rng=extra_rng, design=sh["design"])
+    out["rare_shape"] = out["rare_spread"] = float("nan")
+    if sh["rarefied"]:
+        # rarefaction draws individuals: the simulated reads (loads scaled back out)
+        reads = np.rint(values / sh["read_scale"][:, None])
+        out["rare_shape"], out["rare_spread"] = _rarefied_pvalues(
+            reads, sh["groups"], sh["measure"], sh["transform"], sh["n_permutations"],
+            extra_rng, labels=sh["labels"], taxa=sh["taxa"], design=sh["design"])
+    return out
+
+
 def _extra_rows(p: dict, name: str, reference: str, alpha: float, *, spread: bool,
                 rarefied: bool) -> tuple:
     """(DataFrame of the spread and rarefied rows or None, row label -> p-values)."""
@@ -343,6 +381,9 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
 
     Notes
     -----
+    Every simulation draws its table and its tests from its own random stream, spawned from
+    ``rng`` before any runs; with an active Dask client the simulations are tasks on its
+    workers (:func:`tallyform.core.cluster_map.cluster_map`) and give the same p-values.
     Compositions are simulated independently for every sample (no unit-level composition
     effects: the null is "composition the same everywhere"), while the totals keep the
     design's unit structure; with units, the audited tests relabel whole units.
@@ -365,27 +406,16 @@ def audit(table, group: str, measure: str = "bray_curtis", *, transform=None,
     rho = (estimate_overdispersion(reads_basis, groups) if model != "multinomial" else 0.0)
     labels = np.asarray(table.sample_labels, dtype=object)
     taxa = np.asarray(table.taxon_labels, dtype=object)
-    p = {k: np.full(n_sim, np.nan) for k in ("main", "ref", "spread_main", "spread_ref",
-                                             "rare_shape", "rare_spread")}
-    sims = null_shape_tables(table, n_sim, model=model, rho=rho, rng=rng)
-    for s, values in enumerate(sims):
-        if cancel is not None and cancel():
-            raise Cancelled("the audit was cancelled; no result was kept.")
-        by = groups if spread else None
-        p["main"][s], p["spread_main"][s] = _group_test_pvalue(
-            values, labels, taxa, X, measure, transform, n_permutations, rng, groups=by,
-            spread_rng=extra_rng, design=design)
-        p["ref"][s], p["spread_ref"][s] = _group_test_pvalue(
-            values, labels, taxa, X, reference, None, n_permutations, rng, groups=by,
-            spread_rng=extra_rng, design=design)
-        if rarefied:
-            # rarefaction draws individuals: the simulated reads (loads scaled back out)
-            reads = np.rint(values / read_scale[:, None])
-            p["rare_shape"][s], p["rare_spread"][s] = _rarefied_pvalues(
-                reads, groups, measure, transform, n_permutations, extra_rng,
-                labels=labels, taxa=taxa, design=design)
-        if progress is not None:
-            progress(s + 1, n_sim)
+    shared = dict(basis=_null_basis(table), model=model, rho=rho, labels=labels, taxa=taxa,
+                  X=X, measure=measure, transform=transform, reference=reference,
+                  n_permutations=n_permutations, groups=groups, spread=spread,
+                  rarefied=rarefied, design=design, read_scale=read_scale)
+    # every simulation draws its table and its tests from its own streams, fixed here, so
+    # the result is the same in a loop and as tasks on a Dask cluster
+    items = list(zip(rng.spawn(n_sim), extra_rng.spawn(n_sim)))
+    out = cluster_map(_one_simulation, items, shared=shared, progress=progress,
+                      cancel=cancel, what="the audit")
+    p = {k: np.array([o[k] for o in out], dtype=float) for k in out[0]}
     p_main, p_ref = p["main"], p["ref"]
     # a p-value exactly at alpha is a rejection (p <= alpha), the usual convention
     k_main, k_ref = int(np.sum(p_main <= alpha)), int(np.sum(p_ref <= alpha))

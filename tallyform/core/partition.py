@@ -158,7 +158,8 @@ class SizeShapeResult(ResultMixin):
 def size_shape(table, measure: str = "bray_curtis", *, transform=None,
                size: str = "log_total", shape: str = "chi_square", shape_dims: int | None = None,
                n_permutations: int = 0, n_boot: int = 0, units=None, overdispersion=None,
-               rng=None, progress=None, cancel=None) -> SizeShapeResult:
+               chunks: int | None = None, rng=None, progress=None,
+               cancel=None) -> SizeShapeResult:
     """Partition the variation of a dissimilarity into size, shared, shape and residual.
 
     Parameters
@@ -193,6 +194,14 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
     overdispersion : float, optional
         Dirichlet-multinomial intra-class correlation rho in [0, 1) for the Monte Carlo null
         (default: multinomial counting only).
+    chunks : int, optional
+        Compute ``measure`` as a tiled dissimilarity (``dissimilarity(..., chunks=N)``: tiles
+        on the workers of the active Dask client, or local threads) and the fractions from
+        tile products; the n x n matrix is never gathered. The same fractions as without
+        ``chunks`` (to rounding); ``n_boot`` intervals run on the tiles too. Needs a measure
+        without a feature matrix (those run in O(n p) memory anyway) and a shape measure
+        with one (not ``'same_measure'``); ``n_permutations`` must be 0. The share of
+        negative eigenvalues is not computed (NaN) unless the measure is Euclidean.
     rng : None, int or numpy.random.Generator
         One seed gives the same test and intervals; the two use independent streams.
     progress, cancel : callables, optional
@@ -232,10 +241,16 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
     if n < 5:
         raise DesignError(f"the partition needs at least 5 samples; the table has {n}.")
     codes, unit_name = resampling_units(table, units) if n_boot else (None, None)
-    d = dissimilarity(table, measure, transform=transform)
+    if chunks is not None:
+        from .partition_tiled import refuse_tiled_partition
+        refuse_tiled_partition(n_permutations=n_permutations, shape=shape, measure=measure)
+    d = dissimilarity(table, measure, transform=transform, chunks=chunks)
     res = size_shape_from(table, d, measure=measure, transform=transform, size=size,
                            shape=shape, shape_dims=shape_dims, n_permutations=0, rng=None,
                            progress=None, cancel=None)
+    if chunks is not None:
+        from dataclasses import replace
+        res = replace(res, provenance=dict(res.provenance, chunks=chunks))
     if not (n_permutations or n_boot):
         return res
     test_rng, boot_rng = as_rng(rng).spawn(2)
@@ -291,8 +306,12 @@ def resampling_units(table, units):
 def prepared_arrays(table, d, *, measure, transform, size, shape):
     """PartitionArrays of one choice on the whole table (for resampling)."""
     from .partition_engine import PartitionArrays
+    from .tiled import TiledDissimilarity
     z, _ = size_predictor(table, size)
     sd = shape_dissimilarity(table, shape, measure, transform)
+    if isinstance(d, TiledDissimilarity):          # replicates from tile products
+        from .partition_tiled import TiledPartitionArrays
+        return TiledPartitionArrays(d, z, sd)
     return PartitionArrays.from_dissimilarities(d, z, sd)
 
 
@@ -362,6 +381,15 @@ def _cached_shape(table, shape, measure, transform, local=None):
     return hit
 
 
+def _variation(d):
+    """Variation of an in-memory dissimilarity, or its tile-product twin for tiled ones."""
+    from .tiled import TiledDissimilarity
+    if isinstance(d, TiledDissimilarity):
+        from .partition_tiled import TiledVariation
+        return TiledVariation(d)
+    return Variation(d)
+
+
 def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
                      n_permutations, rng, progress, cancel, shape_cache=None):
     """The partition of one choice (no inference: ``n_permutations`` must be 0)."""
@@ -372,7 +400,7 @@ def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
     z = centred_unit(z_raw)
     u, ev, shape_neg, shape_measure = _cached_shape(table, shape, measure, transform,
                                                     shape_cache)
-    var = Variation(d)
+    var = _variation(d)
     notes = list(d.notes)
     shape_total = float(ev.sum())
     cap = max(1, (n - 2) // 3)
@@ -399,7 +427,12 @@ def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
         notes.append("the size predictor lies in the span of the shape coordinates: size only "
                      "is 0 and all size-related variation is counted as shared.")
     eig = var.eigenvalues()
-    neg = negative_share(eig)
+    if eig is None:                                # tiled: no whole spectrum
+        from .partition_tiled import negative_share_note
+        neg, note = negative_share_note(d)
+        notes.extend([note] if note else [])
+    else:
+        neg = negative_share(eig)
     if neg > 0.001:
         from .measures import setting_name
         notes.append(f"negative eigenvalues hold {100 * neg:.1f} % of the variation of "

@@ -93,6 +93,9 @@ def replicate_shares(arrays, kept_sets, shape_dims, *, progress=None, cancel=Non
                      done_before: int = 0, total: int | None = None) -> np.ndarray:
     """(B, 4) shares of one PartitionArrays on every kept set, shape_dims held fixed."""
     from .partition_engine import small_blas
+    if hasattr(arrays, "replicate_shares"):        # tiled: many replicates per tile pass
+        return arrays.replicate_shares(kept_sets, shape_dims, progress=progress,
+                                       cancel=cancel, done_before=done_before, total=total)
     out = np.empty((len(kept_sets), 4))
     total = total or len(kept_sets)
     with small_blas(arrays.n):

@@ -7,8 +7,10 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError
-from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, check_option, check_count,
-                        size_shape_from, prepared_arrays, resampling_units, share_intervals)
+from .cluster_map import cluster_map
+from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, _cached_shape, check_option,
+                        check_count, size_shape_from, prepared_arrays, resampling_units,
+                        share_intervals)
 from .results import ResultMixin
 from .table import as_table
 from .progress import reports_progress
@@ -124,14 +126,16 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
     units : str or list of str, optional
         Sampling-unit column(s): replicates leave out whole units.
 
+    With an active Dask client (``dask.distributed``) every cell is one task on its
+    workers (:func:`tallyform.core.cluster_map.cluster_map`); the grid is the same as
+    without one.
+
     Returns
     -------
     ScanResult
         A combination that is undefined for the data (e.g. Aitchison with zeros) gets NaN
         fractions and its reason in the ``error`` column; the rest of the grid is computed.
     """
-    from .dissimilarity import dissimilarity
-    from .errors import Cancelled
     check_option("size", size, SIZE_OPTIONS)
     check_option("shape", shape, SHAPE_OPTIONS)
     table = as_table(table)
@@ -145,7 +149,7 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
     if unknown:
         raise InputError(f"unknown measure(s) {unknown}; choose from {sorted(MEASURES)}.")
     n_boot = check_count("n_boot", n_boot)
-    kept, unit_name = None, None
+    kept, unit_name, dd, items = None, None, None, None
     if n_boot:
         from .partition_resample import leave_out_sets
         from .random import as_rng
@@ -153,45 +157,22 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
         boot_rng = as_rng(rng).spawn(2)[1]      # the stream size_shape uses for intervals
         kept, dd, items = leave_out_sets(table.n_samples, n_boot, boot_rng, unit_codes=codes)
     cache: dict = {}
-    rows, results = [], {}
-    total = len(specs) * len(measures)
-    done = 0
-    interval_notes: list = []
-    for tr in specs:
-        for m in measures:
-            if cancel is not None and cancel():
-                raise Cancelled("the scan was cancelled; no result was kept.")
-            row = {"transform": tr.name, "measure": m}
-            try:
-                d = dissimilarity(table, m, transform=tr)
-                r = size_shape_from(table, d, measure=m, transform=tr, size=size, shape=shape,
-                                     shape_dims=shape_dims, n_permutations=0, rng=None,
-                                     progress=None, cancel=None, shape_cache=cache)
-                row.update(r.fractions.to_dict())
-                row.update(negative_share=r.negative_share, shape_dims=r.shape_dims,
-                           size_free=bool(d.properties.get("size_free", False)), error="")
-                if kept is not None:
-                    arrays = prepared_arrays(table, d, measure=m, transform=tr, size=size,
-                                             shape=shape)
-                    ci, more = share_intervals(
-                        arrays, r, kept, dd, items, unit_name=unit_name,
-                        fixed=shape_dims is not None, cancel=cancel,
-                        size_free=bool(d.properties.get("size_free")))
-                    from dataclasses import replace
-                    r = replace(r, fractions_ci=ci, notes=r.notes + tuple(more))
-                    interval_notes.extend(more)
-                    for f in FRACTIONS:
-                        row[f"{f}_low"], row[f"{f}_high"] = ci.loc[f, "low"], ci.loc[f, "high"]
-                results[(tr.name, m)] = r
-            except InputError as err:      # undefined for these data: keep the rest of the grid
-                row.update({f: np.nan for f in FRACTIONS}, negative_share=np.nan,
-                           shape_dims=np.nan, size_free=np.nan, error=str(err))
-                if kept is not None:
-                    row.update({f"{f}_{e}": np.nan for f in FRACTIONS for e in ("low", "high")})
-            rows.append(row)
-            done += 1
-            if progress is not None:
-                progress(done, total)
+    if shape != "same_measure":        # the grid's one set of shape coordinates, made here
+        try:
+            _cached_shape(table, shape, None, None, cache)
+        except InputError:
+            pass                       # every cell reports the error
+    shared = dict(table=table, size=size, shape=shape, shape_dims=shape_dims, cache=cache,
+                  kept=kept, dd=dd, items=items, unit_name=unit_name)
+    cells = [(tr, m) for tr in specs for m in measures]
+    out = cluster_map(_scan_cell, cells, shared=shared, progress=progress, cancel=cancel,
+                      what="the scan")
+    rows, results, interval_notes = [], {}, []
+    for (tr, m), (row, r, more) in zip(cells, out):
+        rows.append(row)
+        if r is not None:
+            results[(tr.name, m)] = r
+        interval_notes.extend(more)
     frame = pd.DataFrame(rows)
     failed = frame["error"].astype(bool)
     notes = []
@@ -209,3 +190,42 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
             notes.append("for the size-free measures of the grid: " + SIZE_FREE_NOTE)
     return ScanResult(frame=frame, size=size, shape=shape, n=table.n_samples,
                       results=results, notes=tuple(notes), n_boot=n_boot)
+
+
+def _scan_cell(item, shared: dict, cancel=None):
+    """(row, SizeShapeResult or None, interval notes) of one (transform, measure) cell: a
+    task of :func:`tallyform.core.cluster_map.cluster_map` (here or on a worker)."""
+    from dataclasses import replace
+
+    from .dissimilarity import dissimilarity
+    tr, m = item
+    table, size, shape, shape_dims = (shared[k] for k in ("table", "size", "shape",
+                                                          "shape_dims"))
+    kept = shared["kept"]
+    row = {"transform": tr.name, "measure": m}
+    try:
+        d = dissimilarity(table, m, transform=tr)
+        r = size_shape_from(table, d, measure=m, transform=tr, size=size, shape=shape,
+                             shape_dims=shape_dims, n_permutations=0, rng=None,
+                             progress=None, cancel=None, shape_cache=shared["cache"])
+        row.update(r.fractions.to_dict())
+        row.update(negative_share=r.negative_share, shape_dims=r.shape_dims,
+                   size_free=bool(d.properties.get("size_free", False)), error="")
+        more = []
+        if kept is not None:
+            arrays = prepared_arrays(table, d, measure=m, transform=tr, size=size,
+                                     shape=shape)
+            ci, more = share_intervals(
+                arrays, r, kept, shared["dd"], shared["items"], unit_name=shared["unit_name"],
+                fixed=shape_dims is not None, cancel=cancel,
+                size_free=bool(d.properties.get("size_free")))
+            r = replace(r, fractions_ci=ci, notes=r.notes + tuple(more))
+            for f in FRACTIONS:
+                row[f"{f}_low"], row[f"{f}_high"] = ci.loc[f, "low"], ci.loc[f, "high"]
+        return row, r, list(more)
+    except InputError as err:      # undefined for these data: keep the rest of the grid
+        row.update({f: np.nan for f in FRACTIONS}, negative_share=np.nan,
+                   shape_dims=np.nan, size_free=np.nan, error=str(err))
+        if kept is not None:
+            row.update({f"{f}_{e}": np.nan for f in FRACTIONS for e in ("low", "high")})
+        return row, None, []

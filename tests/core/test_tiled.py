@@ -144,3 +144,87 @@ def test_whole_matrix_calls_refuse_with_alternatives():
         tly.dissimilarity(x, "gower", chunks=8)
     with pytest.raises(InputError, match="chunks"):
         tly.dissimilarity(x, "bray_curtis", chunks=1)
+
+
+# ------------------------------------------------------------------ size_shape(chunks=)
+def _sized(n=60, p=12, seed=5):
+    """The synthetic table of _data with totals that vary (log-normal factor per sample)."""
+    x, info = _data(n, p, seed)
+    f = np.random.default_rng(seed + 1).lognormal(0.0, 0.6, size=(n, 1))
+    return tly.CommunityTable(np.round(x * f) + np.eye(n, p), info)
+
+
+def test_tiled_partition_equals_hat_matrix_traces():
+    # R^2(Z) = tr(H G) / tr(G), H the hat matrix of [1, Z] (McArdle & Anderson 2001), with
+    # D from scipy's Bray-Curtis and G = -1/2 C D^2 C (Gower 1966) formed here with numpy;
+    # adjusted R^2 after Ezekiel (1930), fractions after Borcard et al. (1992)
+    tab = _sized()
+    r = tly.size_shape(tab, "bray_curtis", chunks=17, shape_dims=3, progress=False)
+    n = tab.n_samples
+    d2 = pdist(tab.values, "braycurtis")
+    from scipy.spatial.distance import squareform
+    a = squareform(d2) ** 2
+    c = np.eye(n) - 1.0 / n
+    g = -0.5 * c @ a @ c
+    z = np.log(tab.values.sum(axis=1))
+    f = tly.dissimilarity(tab, "chi_square").features
+    u = np.linalg.svd(f - f.mean(axis=0), full_matrices=False)[0][:, :3]
+
+    def r2(*cols):
+        m = np.column_stack([np.ones(n), *cols])
+        h = m @ np.linalg.pinv(m)
+        return np.trace(h @ g) / np.trace(g), m.shape[1] - 1
+
+    def adj(v):
+        return 1 - (1 - v[0]) * (n - 1) / (n - v[1] - 1)
+    s, t, st = adj(r2(z)), adj(r2(u)), adj(r2(z, u))
+    want = {"size_only": st - t, "shared": s + t - st, "shape_only": st - s,
+            "residual": 1 - st}
+    for k, v in want.items():
+        assert r.fractions[k] == pytest.approx(v, abs=1e-9), k
+    assert r.provenance["chunks"] == 17
+    assert np.isnan(r.negative_share) and any("not computed on tiles" in x for x in r.notes)
+
+
+@pytest.mark.parametrize("measure,kw", [
+    ("bray_curtis", {}),
+    ("manhattan", {"transform": "sqrt", "size": "total"}),
+    ("canberra", {"shape": "hellinger", "shape_dims": 2}),
+])
+def test_tiled_partition_equals_in_memory(measure, kw):
+    tab = _sized(n=41, seed=9)
+    a = tly.size_shape(tab, measure, progress=False, **kw)
+    b = tly.size_shape(tab, measure, chunks=12, progress=False, **kw)
+    assert b.shape_dims == a.shape_dims
+    np.testing.assert_allclose(b.fractions, a.fractions, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(b.by_dims().to_numpy(), a.by_dims().to_numpy(), rtol=0,
+                               atol=1e-9)
+    np.testing.assert_allclose(b.r2.to_numpy(), a.r2.to_numpy(), rtol=0, atol=1e-9)
+
+
+def test_tiled_partition_intervals_equal_in_memory():
+    # the leave-out replicates from zero-padded quadratic forms of D^2, many per tile pass
+    tab = _sized(n=48, seed=3)
+    for kw in ({"n_boot": 40, "rng": 4}, {"n_boot": 30, "rng": 7, "units": "unit"}):
+        a = tly.size_shape(tab, "bray_curtis", progress=False, **kw)
+        from tallyform.core import partition_tiled
+        old = partition_tiled.PASS_BYTES
+        partition_tiled.PASS_BYTES = 8 * 48 * 25          # several passes of ~25 columns
+        try:
+            b = tly.size_shape(tab, "bray_curtis", chunks=13, progress=False, **kw)
+        finally:
+            partition_tiled.PASS_BYTES = old
+        np.testing.assert_allclose(b.fractions_ci.to_numpy(), a.fractions_ci.to_numpy(),
+                                   rtol=0, atol=1e-9)
+
+
+def test_tiled_partition_refuses_what_needs_the_whole_matrix():
+    tab = _sized(n=30)
+    with pytest.raises(InputError, match="n_permutations=0") as e:
+        tly.size_shape(tab, "bray_curtis", chunks=10, n_permutations=19, progress=False)
+    assert "permanova" in e.value.hint
+    with pytest.raises(InputError, match="same_measure") as e:
+        tly.size_shape(tab, "bray_curtis", chunks=10, shape="same_measure", progress=False)
+    assert "chi_square" in e.value.hint
+    with pytest.raises(InputError, match="feature matrix"):     # in O(n p) without tiles
+        tly.size_shape(tab, "hellinger", chunks=10, progress=False)

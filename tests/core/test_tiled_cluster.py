@@ -2,7 +2,10 @@
 thread each), each worker limited to less memory than the n x n float64 matrix needs:
 PERMANOVA, the dispersion test and PCoA (3 axes) equal the in-memory path, the tile tasks
 run on both workers, and killing a worker in the middle of a PERMANOVA changes nothing
-(Dask recomputes the lost tiles from the task graph). Data are synthetic."""
+(Dask recomputes the lost tiles from the task graph). On the same cluster: the size and
+shape partition from tile products, and the independent tasks of scan and audit
+(cluster_map) equal the runs without a client, ran on the workers, and stop on cancel.
+Data are synthetic."""
 from __future__ import annotations
 
 import os
@@ -100,3 +103,79 @@ def test_killing_a_worker_mid_permanova_gives_the_same_result(client):
     assert b.statistic["g"] == pytest.approx(a.statistic["g"], rel=1e-9)
     assert b.pvalue["g"] == a.pvalue["g"]
     np.testing.assert_allclose(b.null_distribution["g"], a.null_distribution["g"], rtol=1e-9)
+
+
+def _small_table(n=24, p=12, seed=3):
+    rng = np.random.default_rng(seed)
+    info = pd.DataFrame({"g": np.repeat(["a", "b"], n // 2)},
+                        index=[f"s{i}" for i in range(n)])
+    lam = rng.gamma(1.0, 5.0, size=(1, p)) * rng.lognormal(0.0, 0.7, size=(n, 1))
+    x = rng.poisson(lam) + np.eye(n, p, dtype=int)                  # no empty sample
+    return tly.CommunityTable(pd.DataFrame(x, index=info.index,
+                                           columns=[f"t{j}" for j in range(p)]), info)
+
+
+def _ran_on(ts, name):
+    return {r["worker"] for r in ts.data if str(r["key"]).startswith(name)}
+
+
+def test_tiled_partition_on_the_workers_equals_in_memory(client):
+    from distributed import get_task_stream
+    tab = _small_table(n=40)
+    a = tly.size_shape(tab, "bray_curtis", n_boot=20, rng=1, progress=False)
+    with get_task_stream(client) as ts:
+        b = tly.size_shape(tab, "bray_curtis", n_boot=20, rng=1, chunks=10, progress=False)
+    assert any("tile_quad" in str(r["key"]) for r in ts.data)     # tile products on workers
+    np.testing.assert_allclose(b.fractions, a.fractions, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(b.fractions_ci.to_numpy(), a.fractions_ci.to_numpy(), rtol=0,
+                               atol=1e-9)
+
+
+def test_scan_and_audit_as_tasks_equal_the_plain_loop(client):
+    from distributed import get_task_stream
+    from tallyform.core import tiled
+    tab = _small_table()
+    grid = dict(measures=["bray_curtis", "hellinger", "aitchison"], transforms=[1.0, 0.5],
+                n_boot=10, rng=2)
+    kw = dict(n_sim=4, n_permutations=19, rng=5)
+    seen = []
+    with get_task_stream(client) as ts:
+        s1 = tly.scan(tab, progress=lambda d, t: seen.append((d, t)), **grid)
+        a1 = tly.audit(tab, "g", progress=False, **kw)
+    assert seen == [(i, 6) for i in range(1, 7)]                   # one report per cell
+    # the tasks ran on the workers (a worker the nanny replaced in between is still one)
+    for name, count in (("scan_cell", 6), ("one_simulation", 4)):
+        hosts = _ran_on(ts, name)
+        assert hosts and all(h.startswith("tcp://127.0.0.1:") for h in hosts)
+        assert len({r["key"] for r in ts.data if str(r["key"]).startswith(name)}) == count
+    real = tiled.active_client
+    try:                                    # the same calls without a client: a plain loop
+        tiled.active_client = lambda: None
+        s0 = tly.scan(tab, progress=False, **grid)
+        a0 = tly.audit(tab, "g", progress=False, **kw)
+    finally:
+        tiled.active_client = real
+    # to rounding: numpy's sums may pair terms differently in another process (alignment)
+    pd.testing.assert_frame_equal(s1.frame, s0.frame, check_exact=False, rtol=1e-12,
+                                  atol=1e-12)
+    np.testing.assert_array_equal(a1.pvalues, a0.pvalues)
+    np.testing.assert_array_equal(a1.reference_pvalues, a0.reference_pvalues)
+    for k, v in a0.extra_pvalues.items():
+        np.testing.assert_array_equal(a1.extra_pvalues[k], v)
+    assert a1.reading == a0.reading
+
+
+def test_cancel_on_the_cluster_stops_and_cancels_the_tasks(client):
+    import time
+    tab = _small_table()
+    polls = {"n": 0}
+
+    def cancel():
+        polls["n"] += 1
+        return polls["n"] > 2
+    with pytest.raises(tly.errors.Cancelled, match="audit was cancelled"):
+        tly.audit(tab, "g", n_sim=60, n_permutations=19, rng=5, progress=False, cancel=cancel)
+    deadline = time.monotonic() + 10
+    while any(client.processing().values()) and time.monotonic() < deadline:
+        time.sleep(0.1)
+    assert not any(client.processing().values())          # nothing left running

@@ -260,8 +260,8 @@ def _tests_section(pg: _Page) -> str:
 
 
 def _tried_section(pg: _Page) -> str:
-    from ..core.choice_record import (ORIGINS, adjusted_sentence, origin_sentence,
-                                      spec_choices)
+    from ..core.choice_record import (ORIGINS, SEARCH_NOTE, adjusted_sentence,
+                                      origin_sentence, spec_choices)
     j, spec = pg.results.choice_adjusted, pg.spec
     entries, current = spec_choices(spec)
     lead = (origin_sentence(current, group=spec.group, n_choices=j.n_choices,
@@ -277,6 +277,7 @@ def _tried_section(pg: _Page) -> str:
              "the test every choice is repeated with on shared relabellings; the Welch-type "
              "shape test and the spread test above are not adjusted for the choices "
              "tried.</p>")
+    body += f"<p class='notes'>{_esc(SEARCH_NOTE)}</p>"
     body += pg.fig(lambda: j.figure()) + _table(j.to_frame()) + _notes(j)
     return body
 

@@ -15,7 +15,8 @@ from typing import Callable
 
 import ipywidgets as widgets
 
-from ..core.choice_record import ChoiceRecord, adjusted_sentence, origin_sentence
+from ..core.choice_record import (SEARCH_NOTE, ChoiceRecord, adjusted_sentence,
+                                  origin_sentence, search_sentence, with_menu)
 from .background import SettledRunner
 from .common import LABEL_STYLE, TABLE, Call, Ref, error_text, given
 from .help import add_help
@@ -54,22 +55,28 @@ class ChoicesTried(widgets.VBox):
         clear).
     call : Call or None
         Its core call (shown as code by the Report panel).
+    result_menu, call_menu : ChoiceAdjustedResult, Call or None
+        The same adjusted for every measure the panel offers (``menu``) as well as those
+        tried: the p-value to quote after trying choices until one was small (None when
+        every measure of the menu was tried).
     current : TriedChoice or None
         The record's entry of the choice last shown.
     status : str
         'idle', 'running', 'done', 'error' or 'cancelled' (of the adjusted run).
     """
 
-    def __init__(self, table, *, core, group: Callable[[], str | None],
+    def __init__(self, table, *, core, group: Callable[[], str | None], menu=(),
                  changed: Callable[[], None] = lambda: None):
         self._table = table
+        self._menu = tuple(menu)
         self._core = core
         self._group = group             # the current group of the panel
         self._changed = changed         # tells the panel (and the Report) of a change
         self.record = ChoiceRecord()
         self.runner = SettledRunner(delay=0.0)
-        self.result = None
+        self.result = self.result_menu = None
         self.call: Call | None = None
+        self.call_menu: Call | None = None
         self.current = None
         self.shown_group: str | None = None
         self.error: BaseException | None = None
@@ -116,28 +123,35 @@ class ChoicesTried(widgets.VBox):
         blocks, permutations and seed as the run)."""
         self.current = self.record.add(group, {"measure": measure}, origin=self.origin.value)
         self.shown_group = group
-        self.result, self.error = None, None
+        self.result = self.result_menu = self.error = None
         family = self.record.family(group)
         if len(family) < 2:
             self.runner.cancel()
-            self.call, self.status = None, "idle"
+            self.call, self.call_menu, self.status = None, None, "idle"
             self._render()
             return
-        call = Call("choice_adjusted", (Ref(TABLE, self._table), group, family), given(
-            aspect="shape", units=units, blocks=blocks, n_permutations=int(n_permutations),
-            rng=int(seed)))
-        self.call, self.status = call, "running"
+        opts = given(aspect="shape", units=units, blocks=blocks,
+                     n_permutations=int(n_permutations), rng=int(seed))
+        tab = Ref(TABLE, self._table)
+        call = Call("choice_adjusted", (tab, group, family), opts)
+        every = with_menu(family, self._menu)
+        menu = Call("choice_adjusted", (tab, group, every), opts) \
+            if len(every) > len(family) else None
+        self.call, self.call_menu, self.status = call, menu, "running"
         self._render()
         core = self._core
 
         def work(progress, cancel):
-            return call.run(core, progress=progress, cancel=cancel)
+            first = call.run(core, progress=progress, cancel=cancel)
+            return first, (menu.run(core, progress=progress, cancel=cancel)
+                           if menu is not None else None)
         self.runner.request(work, lambda result, err: self._done(call, result, err))
 
     def _done(self, call, result, err) -> None:
         if call is not self.call:           # a newer request, or a clear, came first
             return
-        self.result, self.error = result, err
+        self.result, self.result_menu = result if result is not None else (None, None)
+        self.error = err
         self.status = "done" if err is None else "error"
         self._render()
         self._changed()
@@ -149,6 +163,7 @@ class ChoicesTried(widgets.VBox):
         if group:
             self.record.clear(group)
         self.result = self.call = self.current = self.error = None
+        self.result_menu = self.call_menu = None
         self.status = "idle"
         self.view.value = (f"<small>Choices tried for {html.escape(repr(group))} forgotten: "
                            "the next p-value shown starts a new question.</small>"
@@ -185,9 +200,13 @@ class ChoicesTried(widgets.VBox):
             body = html.escape("The adjusted p-value could not be computed: "
                                + error_text(self.error))
         elif self.result is not None:
-            body = (f"<b>{html.escape(adjusted_sentence(self.result, entry.name))}</b> "
-                    "The Welch-type shape test and the spread test above are not adjusted; "
-                    "the adjustment is PERMANOVA's, repeated with every choice.")
+            body = f"<b>{html.escape(adjusted_sentence(self.result, entry.name))}</b> "
+            if self.result_menu is not None:
+                body += html.escape(search_sentence(self.result_menu, entry.name,
+                                                    len(self._menu))) + " "
+            body += html.escape(
+                "The Welch-type shape test and the spread test above are not adjusted; the "
+                "adjustment is PERMANOVA's, repeated with every choice. " + SEARCH_NOTE)
             notes = "".join(f"<li>{html.escape(x)}</li>" for x in self.result.notes)
             if notes:
                 body += f"<details><summary>notes</summary><ul>{notes}</ul></details>"

@@ -84,6 +84,9 @@ def reproduce_code(dashboard, spec=None) -> str:
         lines += [f"# the p-value adjusted for the {n} choices tried for "
                   f"{adjusted.args[1]!r} (start over: a new question clears them)",
                   f"{_NAMES[adjusted.func]} = {adjusted.code()}"]
+    if tests.choices.call_menu is not None:
+        lines += ["# ... and for every measure the panel offers (after a search until one "
+                  "was small)", f"j_all = {tests.choices.call_menu.code()}"]
     return "\n".join(lines) + "\n"
 
 

@@ -64,6 +64,18 @@ def test_two_choices_shown_give_the_adjusted_p_of_the_api(null_table):
             f"{p_words(direct.pvalue_adjusted['hellinger'])} (own "
             f"{p_words(direct.pvalue['hellinger'])}") in text
     assert "after looking at p-values" in text and "adjusted for both" in text
+    # beside it, the p-value adjusted for every measure the panel offers (what covers a
+    # search until one is small), the same call with the other two measures added
+    every = tly.choice_adjusted(null_table, "site", [{"measure": m} for m in (
+        "chi_square", "hellinger", "aitchison", "chord")], units=False, n_permutations=199,
+        rng=4)
+    pd.testing.assert_series_equal(panel.choices.result_menu.pvalue_adjusted,
+                                   every.pvalue_adjusted)
+    assert (f"Adjusted for all 4 measures this panel offers, "
+            f"{p_words(every.pvalue_adjusted['hellinger'])}") in text
+    # a larger family on the same relabellings never lowers an adjusted p (min-P identity)
+    assert every.pvalue_adjusted["hellinger"] >= direct.pvalue_adjusted["hellinger"]
+    assert "does not cover going on to try further choices" in text
     # the same core call, shown as code by the Report panel
     assert panel.choices.call.code() == (
         'tly.choice_adjusted(tab, "site", [{\'measure\': \'chi_square\', \'transform\': '

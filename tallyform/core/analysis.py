@@ -26,8 +26,8 @@ __all__ = ["run", "AnalysisResults", "software_versions"]
 # relative cost of each step, for a progress bar that moves evenly
 _STEPS = [("summary", 1), ("size_shape", 3), ("scan", 3), ("choices", 2),
           ("dissimilarity", 1), ("ordination", 2), ("ellipses", 1), ("comparison", 6),
-          ("permanova", 4), ("pairwise", 4), ("contributions", 4), ("audit", 12)]
-_NEEDS_GROUP = ("comparison", "pairwise", "contributions", "audit")
+          ("choice_adjusted", 3), ("permanova", 4), ("pairwise", 4), ("contributions", 4), ("audit", 12)]
+_NEEDS_GROUP = ("comparison", "choice_adjusted", "pairwise", "contributions", "audit")
 # caution added to centre regions drawn from the samples of a design with units
 _ELLIPSE_UNITS_NOTE = (
     "The ellipses are drawn from the samples, as if each were an independent replicate; "
@@ -73,6 +73,7 @@ class AnalysisResults:
     choices: object = None
     units: object = None
     outliers: object = None
+    choice_adjusted: object = None
 
     def code(self) -> str:
         """Python that reproduces these results in a fresh session (``spec.code(table)``)."""
@@ -90,9 +91,13 @@ class AnalysisResults:
         if self.units is not None and self.units.plan is not None:
             out["sampling_units"] = units_frame(self.units)
         for name in ("size_shape", "choices", "scan", "ordination", "ellipses", "comparison",
-                     "permanova", "pairwise", "contributions", "audit"):
+                     "choice_adjusted", "permanova", "pairwise", "contributions", "audit"):
             result = getattr(self, name)
-            if result is not None:
+            if result is None:
+                continue
+            if name == "choice_adjusted":       # named for what it holds in a run
+                out["choices_tried"] = result.to_frame()
+            else:
                 out.update(result.tables())
         return out
 
@@ -179,6 +184,8 @@ def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisRes
             res["totals"] = table.totals_by(group) if group else None
             res["totals_per_effort"] = (table.totals_by(group, per_effort=True)
                                         if group and table.effort is not None else None)
+        elif name == "choice_adjusted" and name not in calls:
+            pass                 # fewer than two choices tried: nothing to adjust for
         elif name in _NEEDS_GROUP and not group:
             skipped[name] = "no group column in the spec"
         elif name == "permanova" and not spec.model_terms:
@@ -197,7 +204,7 @@ def run(spec: AnalysisSpec, table, *, progress=None, cancel=None) -> AnalysisRes
         res["ellipses"] = e
     keys = ["summary", "totals", "totals_per_effort", "size_shape", "scan", "dissimilarity",
             "ordination", "ellipses", "comparison", "permanova", "pairwise", "contributions",
-            "audit", "choices", "outliers"]
+            "audit", "choices", "outliers", "choice_adjusted"]
     return AnalysisResults(spec=spec, table=table, skipped=skipped, units=units,
                            software=software_versions(), **{k: res.get(k) for k in keys})
 
@@ -209,11 +216,13 @@ class _Missing(Exception):
 # where each step's result is kept (the variable of the reproduce-this code -> result name)
 _KEEP = {"s": "size_shape", "g": "scan", "x": "choices", "d": "dissimilarity",
          "o": "ordination", "e": "ellipses", "c": "comparison", "p": "permanova",
-         "w": "pairwise", "k": "contributions", "a": "audit"}
+         "w": "pairwise", "k": "contributions", "a": "audit",
+         "j": "choice_adjusted"}
 # calls that take progress / cancel callbacks
 _CALLBACKS = {"size_shape": ("progress", "cancel"), "scan": ("progress", "cancel"),
               "compare_choices": ("progress", "cancel"), "nmds": ("cancel",),
-              "compare_groups": ("progress", "cancel"), "permanova": ("progress", "cancel"),
+              "compare_groups": ("progress", "cancel"),
+              "choice_adjusted": ("progress", "cancel"), "permanova": ("progress", "cancel"),
               "pairwise_permanova": ("progress", "cancel"),
               "taxon_contributions": ("progress", "cancel"), "audit": ("progress", "cancel")}
 

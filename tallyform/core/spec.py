@@ -124,6 +124,14 @@ class AnalysisSpec:
         "mesocosm"}``, or ``tly.read_counts`` keywords with the file as ``counts``
         (``{"counts": "counts.csv", "samples": "samples.csv", "effort": "trap_nights"}``).
         ``abundance``, ``load`` and ``spike_in`` stay keys of their own.
+    choices_tried : tuple of dict, optional
+        Every choice of measure (and transformation, and measure options) whose shape test
+        p-value was shown for ``group`` before this one was kept, as the dashboard records
+        them: ``{"measure": "hellinger", "transform": "none"}``, with ``"origin": "scan"``
+        or ``"audit"`` when the choice was made there (no key: made after seeing
+        p-values). With two or more distinct choices (``shape_measure`` counted among
+        them), ``run`` adds ``tly.choice_adjusted`` over them, and the report and the
+        methods give the p-value adjusted for all of them.
     """
 
     group: str | None = None
@@ -163,6 +171,7 @@ class AnalysisSpec:
     pairwise_statistic: str = "pseudo_f"
     compare_with: dict | None = None
     source: dict | None = None
+    choices_tried: tuple | None = None
     version: int = field(default=SPEC_VERSION)
 
     def __post_init__(self):
@@ -170,6 +179,9 @@ class AnalysisSpec:
             v = getattr(self, name)
             if isinstance(v, list):
                 object.__setattr__(self, name, tuple(v))
+        if isinstance(self.choices_tried, (list, tuple)):             # private copies
+            object.__setattr__(self, "choices_tried", tuple(
+                dict(c) if isinstance(c, dict) else c for c in self.choices_tried))
         for name in ("spike_in", "compare_with", "source"):      # private copies
             v = getattr(self, name)
             if isinstance(v, dict):
@@ -228,6 +240,7 @@ class AnalysisSpec:
         self._validate_units()
         self._validate_compare_with()
         self._validate_source()
+        self._validate_choices_tried()
         if table is not None:
             cols = set(table.samples.columns)
             named = [self.group, self.blocks] + [p for t in self.model_terms
@@ -338,6 +351,20 @@ class AnalysisSpec:
                                  f"{'a whole number' if k == 'header_row' else 'text'}; "
                                  f"got {v!r}.")
 
+    def _validate_choices_tried(self) -> None:
+        tried = self.choices_tried
+        if tried is None:
+            return
+        if not isinstance(tried, tuple) or not all(isinstance(c, dict) for c in tried):
+            raise InputError("spec key 'choices_tried' must be a list of objects such as "
+                             f"{{\"measure\": \"hellinger\", \"transform\": \"none\"}}; got "
+                             f"{tried!r}.")
+        from .choice_record import canonical_entries
+        try:
+            canonical_entries(tried)
+        except InputError as err:
+            raise InputError(f"spec key 'choices_tried': {err}") from None
+
     def table_options(self) -> dict:
         """Keywords for the readers and CommunityTable that read the table as the spec says
         (``abundance``, ``load``, ``spike_in``; empty when the spec does not record them)."""
@@ -363,7 +390,8 @@ class AnalysisSpec:
         out = {}
         for f in fields(self):
             v = getattr(self, f.name)
-            out[f.name] = list(v) if isinstance(v, tuple) else v
+            out[f.name] = [dict(x) if isinstance(x, dict) else x for x in v] \
+                if isinstance(v, tuple) else dict(v) if isinstance(v, dict) else v
         return out
 
     def to_json(self, path=None, *, indent: int = 2) -> str:

@@ -13,7 +13,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 __all__ = ["Ref", "Expr", "Call", "literal", "resolve_spec_units", "SpecUnits",
-           "contribution_units", "build_calls", "read_call", "first_two_levels", "spec_terms"]
+           "contribution_units", "build_calls", "read_call", "first_two_levels", "spec_terms",
+           "tried_family"]
 
 
 # ---------------------------------------------------------------------------- values
@@ -280,6 +281,11 @@ def build_calls(spec, *, contribution=None, contrast=None, n_boot=None,
             units=u, shape_measure=spec.shape_measure, size_method=spec.size_method,
             centre=spec.dispersion_centre, blocks=spec.blocks,
             n_permutations=spec.n_permutations, rng=seed, alpha=spec.alpha)))
+    family = tried_family(spec)
+    if group and family:
+        calls.append(Call("choice_adjusted", "j", "choice_adjusted", (tab, group, family), dict(
+            aspect="shape", units=u, blocks=spec.blocks, n_permutations=spec.n_permutations,
+            rng=seed), comment=f"PERMANOVA of the group adjusted for the {len(family)} choices tried"))
     if spec.model_terms:
         calls.append(Call("permanova", "p", "permanova", (Ref("d"), tab,
                                                           list(spec.model_terms)), dict(
@@ -299,6 +305,16 @@ def build_calls(spec, *, contribution=None, contrast=None, n_boot=None,
             n_permutations=spec.audit_n_permutations, model=spec.audit_model,
             alpha=spec.alpha, units=u, rng=seed)))
     return calls
+
+
+def tried_family(spec) -> list:
+    """The distinct choices of ``spec.choices_tried`` and its ``shape_measure`` (the choice
+    reported), as ``choice_adjusted`` takes them; empty when fewer than two."""
+    if not spec.choices_tried:
+        return []
+    from .choice_record import spec_choices
+    entries, _ = spec_choices(spec)
+    return [t.choice.as_dict() for t in entries] if len(entries) >= 2 else []
 
 
 def first_two_levels(table, group):

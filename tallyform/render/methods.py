@@ -83,6 +83,8 @@ REFERENCES = {
                 "Annals of Statistics 17:1176-1197.",
     "efron1993": "Efron B, Tibshirani RJ (1993) An Introduction to the Bootstrap. Chapman & "
                  "Hall, New York.",
+    "westfall1993": "Westfall PH, Young SS (1993) Resampling-Based Multiple Testing: Examples "
+                    "and Methods for p-Value Adjustment. Wiley, New York.",
 }
 # how each work is cited in the text: (authors as written, year)
 _CITED_AS = {
@@ -105,6 +107,7 @@ _CITED_AS = {
     "hamidi2019": ("Hamidi et al.", "2019"), "johansen1980": ("Johansen", "1980"),
     "dunn1996": ("Dunn & Smyth", "1996"), "davison1997": ("Davison & Hinkley", "1997"),
     "shao1989": ("Shao & Wu", "1989"), "efron1993": ("Efron & Tibshirani", "1993"),
+    "westfall1993": ("Westfall & Young", "1993"),
 }
 
 
@@ -268,7 +271,8 @@ _STEP_WORDS = {"size_shape": "the size and shape partition", "scan": "the scan",
                "ellipses": "the ellipses", "comparison": "the size, shape and spread tests",
                "permanova": "the PERMANOVA of the chosen measure",
                "pairwise": "the pairwise contrasts", "contributions": "the taxon contributions",
-               "audit": "the audit"}
+               "audit": "the audit",
+               "choice_adjusted": "the adjustment for the choices tried"}
 
 
 def _scan_words(spec, results) -> str:
@@ -387,6 +391,40 @@ def _tests_words(spec, results) -> list[str]:
     return out
 
 
+def _tried_words(spec, results) -> str:
+    """How many choices of the shape measure were looked at, and the adjusted p-value."""
+    from ..core.display import p_words
+    from ..core.choice_record import spec_choices
+    entries, current = spec_choices(spec)
+    if len(entries) < 2:
+        return ""
+    j = results.choice_adjusted if results is not None else None
+    k = j.n_choices if j is not None else len(entries)
+    names = ", ".join(_measure_label(t.choice.measure) if t.choice.transform == "none"
+                      and not t.choice.options else t.name for t in entries)
+    reported = _measure_label(spec.shape_measure)
+    if current is not None and current.origin in ("scan", "audit"):
+        why = ("the scan, which never looks at the groups" if current.origin == "scan" else
+               "the audit, which only looks at tables simulated without group differences")
+        head = (f"The {reported} measure was chosen in {why}, so its own p-value needs no "
+                f"adjustment; still, the p-values of {k} choices of measure ({names}) were "
+                "looked at, so")
+    else:
+        head = (f"The {reported} measure was kept after the p-values of {k} choices of "
+                f"measure ({names}) had been looked at, so")
+    perms = (f"the same {j.n_permutations} relabellings" if j is not None and not j.exact
+             else "every distinct relabelling" if j is not None else
+             f"the same {spec.n_permutations} relabellings")
+    every = "both" if k == 2 else f"all {k}"
+    text = (f"{head} PERMANOVA of {spec.group} was repeated with each of them on {perms} and "
+            f"the p-value of {reported} adjusted for {every} by single-step min-P (Westfall "
+            "& Young 1993)")
+    if j is not None and current is not None and current.name in j.pvalue_adjusted.index:
+        text += (f": {p_words(j.pvalue_adjusted[current.name])} (own "
+                 f"{p_words(j.pvalue[current.name])})")
+    return text + "."
+
+
 def _permanova_words(spec, results, measure) -> str:
     from .wording import measure_phrase, plural
     terms = " + ".join(spec.model_terms)
@@ -479,6 +517,8 @@ def methods_text(spec, results=None, *, software: dict | None = None) -> str:
     if spec.group:
         if ran("comparison"):
             parts.extend(_tests_words(spec, results))
+        if ran("choice_adjusted") and _tried_words(spec, results):
+            parts.append(_tried_words(spec, results))
         if spec.model_terms and ran("permanova"):
             parts.append(_permanova_words(spec, results, measure))
         if ran("contributions"):

@@ -259,6 +259,29 @@ def _tests_section(pg: _Page) -> str:
     return body
 
 
+def _tried_section(pg: _Page) -> str:
+    from ..core.choice_record import (ORIGINS, SEARCH_NOTE, adjusted_sentence,
+                                      origin_sentence, spec_choices)
+    j, spec = pg.results.choice_adjusted, pg.spec
+    entries, current = spec_choices(spec)
+    lead = (origin_sentence(current, group=spec.group, n_choices=j.n_choices,
+                            session=False) + " "
+            + adjusted_sentence(j, current.name))
+    body = f"<p class='reading'>{_esc(lead)}</p>"
+    items = "".join(f"<li>{_esc(t.name)}: chosen {_esc(ORIGINS[t.origin])}</li>"
+                    for t in entries)
+    body += (f"<p>The {len(entries)} choices whose shape test p-value was looked at for "
+             f"{_esc(spec.group)} (the spec's <code>choices_tried</code> and the measure "
+             f"reported):</p><ul>{items}</ul>")
+    body += (f"<p>{_esc(j.reading)}</p><p>The adjustment is that of PERMANOVA of the group, "
+             "the test every choice is repeated with on shared relabellings; the Welch-type "
+             "shape test and the spread test above are not adjusted for the choices "
+             "tried.</p>")
+    body += f"<p class='notes'>{_esc(SEARCH_NOTE)}</p>"
+    body += pg.fig(lambda: j.figure()) + _table(j.to_frame()) + _notes(j)
+    return body
+
+
 def _permanova_section(pg: _Page) -> str:
     spec, p = pg.spec, pg.results.permanova
     body = (f"<p>PERMANOVA of the chosen measure ({_esc(spec.measure)}"
@@ -312,6 +335,8 @@ _SECTIONS = [  # (anchor, title, result that must exist, builder)
     ("scan", "Which measure? The partition over a grid", "scan", _scan_section),
     ("ordination", "Ordination", "ordination", _ordination_section),
     ("tests", "Size test, shape test and dispersion", "comparison", _tests_section),
+    ("choices-tried", "Choices tried: p-values adjusted for them", "choice_adjusted",
+     _tried_section),
     ("permanova", "PERMANOVA of the chosen measure", "permanova", _permanova_section),
     ("pairwise", "Pairwise contrasts (shape)", "pairwise",
      lambda pg: _table(pg.results.pairwise.to_frame()) + _notes(pg.results.pairwise)),

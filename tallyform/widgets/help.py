@@ -76,6 +76,11 @@ HELP = {
     "tf-run-button": "Start the tests (they run in the background; the notebook stays "
                      "usable).",
     "tf-cancel-button": "Stop the running tests; nothing is changed.",
+    "tf-choice-origin": "Where the shape measure of the next run was chosen: in the scan or "
+                        "the audit (its p-value needs no adjustment), or here after seeing "
+                        "other p-values (the adjusted p-value is the one to quote).",
+    "tf-clear-choices": "Forget the measures tried for this group, for a new question asked "
+                        "before seeing its p-values; the count starts again at the next run.",
     # Report
     "tf-export-folder": "Where the report and the files are written (created if missing).",
     "tf-export-static": "Also write PNG and SVG pictures of the figures (needs Chromium).",

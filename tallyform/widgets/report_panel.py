@@ -24,7 +24,8 @@ __all__ = ["ReportPanel", "reproduce_code", "dashboard_spec", "spec_code"]
 # variable names in the reproduced code, by core function
 _NAMES = {"size_shape": "s", "pcoa": "o", "ellipses": "e", "group": "groups",
           "compare_groups": "c", "pairwise_permanova": "w", "taxon_contributions": "k",
-          "totals_by": "totals", "summary": "facts", "outlier_samples": "flags"}
+          "totals_by": "totals", "summary": "facts", "outlier_samples": "flags",
+          "choice_adjusted": "j"}
 
 
 def dashboard_spec(dashboard):
@@ -77,6 +78,15 @@ def reproduce_code(dashboard, spec=None) -> str:
     ran = tests.call is not None and tests.call.code() == call.code()
     lines += ["", "# Tests" + (" (as last run)" if ran else " (current settings, not run yet)"),
               f"{_NAMES.get(call.func, 'r')} = {call.code()}"]
+    adjusted = tests.choices.call
+    if adjusted is not None:
+        n = len(adjusted.args[2])
+        lines += [f"# the p-value adjusted for the {n} choices tried for "
+                  f"{adjusted.args[1]!r} (start over: a new question clears them)",
+                  f"{_NAMES[adjusted.func]} = {adjusted.code()}"]
+    if tests.choices.call_menu is not None:
+        lines += ["# ... and for every measure the panel offers (after a search until one "
+                  "was small)", f"j_all = {tests.choices.call_menu.code()}"]
     return "\n".join(lines) + "\n"
 
 

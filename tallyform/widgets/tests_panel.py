@@ -36,6 +36,7 @@ from ..core.display import format_p
 from .common import (LABEL_STYLE, TABLE, TABLE_STYLE, Call, MessageArea, Ref, copy_figure,
                      given,
                      new_figure_widget)
+from .choices_tried import ChoicesTried
 from .help import add_help
 from .shape_panel import default_group, group_options
 from .units_choice import unit_choices
@@ -79,6 +80,10 @@ class TestsPanel(widgets.VBox):
     plot, plot2, plot3 : plotly FigureWidget
     result : ComparisonResult, PairwiseResult, TaxonContributions or None
         The last completed run (None while running, after an error or a cancel).
+    choices : ChoicesTried
+        Every shape measure whose p-value a run showed, per group, and (from two on) the
+        p-value adjusted for them all (``choices.result``, a ChoiceAdjustedResult);
+        ``choices.clear_button`` starts over.
     call : Call or None
         The core call of the last run (shown as code by the Report panel).
     status : str
@@ -96,6 +101,7 @@ class TestsPanel(widgets.VBox):
         self._thread: threading.Thread | None = None
         self._stop = threading.Event()
         self._last_percent = -1
+        self._shows_measure = None
         self.result = None
         self.call: Call | None = None
         self.error: BaseException | None = None
@@ -176,6 +182,9 @@ class TestsPanel(widgets.VBox):
         self._plots = (self.plot, self.plot2, self.plot3)
         self._plot_boxes = tuple(widgets.Box([p]) for p in self._plots)
         self.messages = MessageArea()
+        self.choices = ChoicesTried(table, core=self._core,
+                                    group=lambda: self.group.value or None,
+                                    menu=_CHOICES["shape_measure"], changed=self._bump)
 
         self.controls = [self.analysis, self.group, self.units, self.shape_measure,
                          self.contribution_measure, self.size_method, self.adjust, self.blocks,
@@ -183,6 +192,7 @@ class TestsPanel(widgets.VBox):
                          self.seed, self.run_button, self.cancel_button]
         for w in self.controls:
             add_help(w)
+        self.controls += self.choices.controls
         self._options = widgets.VBox([
             self.analysis,
             widgets.HBox([self.group, self.units]),
@@ -191,7 +201,8 @@ class TestsPanel(widgets.VBox):
             widgets.HBox([self.size_method, self.adjust, self.pair_a, self.pair_b]),
             widgets.HBox([self.n_permutations, self.seed]),
             widgets.HBox([self.run_button, self.cancel_button, self.progress, self.state])])
-        super().__init__([self._options, self.messages, self.results, self.strata,
+        super().__init__([self._options, self.messages, self.results, self.choices,
+                          self.strata,
                           widgets.HBox(list(self._plot_boxes),
                                        layout=widgets.Layout(flex_flow="row wrap"))])
         self.add_class("tf-panel-tests")
@@ -350,7 +361,9 @@ class TestsPanel(widgets.VBox):
                 "seed": int(self.seed.value), "pairwise_adjust": self.adjust.value,
                 "contrast": (a, b) if a and b and a != b else None,
                 "contribution_measure": self.contribution_measure.value,
-                **({"units": self.units_value()} if spec_has("units") else {})}
+                **({"units": self.units_value()} if spec_has("units") else {}),
+                **({"choices_tried": self.choices.entries() or None}
+                   if spec_has("choices_tried") else {})}
 
     def apply_spec(self, spec) -> None:
         """Set the controls from a spec (the group is set by the dashboard)."""
@@ -367,6 +380,8 @@ class TestsPanel(widgets.VBox):
             self.pair_a.value, self.pair_b.value = spec.contrast
         if spec_has("units"):
             self.set_units(getattr(spec, "units"))
+        if getattr(spec, "choices_tried", None) and spec.group:
+            self.choices.load(spec.group, spec.choices_tried)
 
     def set_units(self, units) -> None:
         """Choose the units: None follows the detection; False, a column or a list of
@@ -401,6 +416,10 @@ class TestsPanel(widgets.VBox):
             return
         call = self.build_call()
         self.call, self.result, self.error = call, None, None
+        self._shows_measure = None if self.analysis.value == "contributions" else dict(
+            group=self.group.value, measure=self.shape_measure.value,
+            units=self.units_value(), blocks=self.blocks.value or None,
+            n_permutations=int(self.n_permutations.value), seed=int(self.seed.value))
         self._stop = threading.Event()
         self._last_percent = -1
         self.status = "running"
@@ -426,10 +445,11 @@ class TestsPanel(widgets.VBox):
             self.state.value = "stopping..."
 
     def wait(self, timeout: float | None = None) -> bool:
-        """Wait for the run to end; True when it has."""
+        """Wait for the run to end, and the adjusted p-value it asked for; True when
+        both have."""
         if self._thread is not None:
             self._thread.join(timeout)
-        return not self.running
+        return not self.running and self.choices.wait(timeout)
 
     def _work(self, call: Call, stop: threading.Event) -> None:
         t0 = time.perf_counter()
@@ -489,6 +509,8 @@ class TestsPanel(widgets.VBox):
         else:
             self.results.value = _result_html(result)
             self.strata.value = _strata_html(result)
+            if self._shows_measure is not None:      # a p-value of this shape measure
+                self.choices.shown(**self._shows_measure)
             for fig, target, box in zip(figs, self._plots, self._plot_boxes):
                 copy_figure(target, fig)
                 box.layout.display = None

@@ -442,6 +442,54 @@ def test_units_chosen_in_the_tests_panel_reach_the_tests(quickstart):
     p.shot("8b_units_tank")
 
 
+def test_tests_panel_adjusts_for_the_two_choices_tried(quickstart):
+    """Start over, run the Tests panel with two shape measures, and read the p-value
+    adjusted for the 2 choices tried: it is the one tly.choice_adjusted gives for the same
+    choices, units, permutations and seed."""
+    from playwright.sync_api import expect
+    from tallyform.core.display import p_words
+    p = quickstart
+    show_tab(p, DASH, "Tests")
+    panel = f"{DASH} .tf-panel-tests"
+    view = p.page.locator(f"{panel} .tf-choice-adjusted")
+    select = f"{panel} .tf-units select"
+    p.page.locator(select).wait_for(state="visible")
+    choose(p, select, "tank: 15 units, 4 samples each (detected)")
+    choose(p, f"{panel} .tf-blocks select", "(none)")     # compared with a call without blocks
+    perms = p.page.locator(f"{panel} .tf-permutations input")
+    perms.fill("199")
+    perms.press("Enter")
+    seed = p.page.locator(f"{panel} .tf-seed input")
+    seed.fill("3")
+    seed.press("Enter")
+    _kernel_has(p, "whole units of 'tank'", "3")
+    # a new question: the choices shown by the tests before are forgotten
+    p.page.locator(f"{panel} .tf-clear-choices").click()
+    expect(view).to_contain_text("forgotten")
+
+    choose(p, f"{panel} .tf-shape-measure select", MEASURES["chi_square"].label)
+    _run_and_wait(p, panel, "between 'tank'")
+    expect(view).not_to_contain_text("forgotten")
+    assert view.inner_text().strip() == ""                 # one choice: nothing extra
+    choose(p, f"{panel} .tf-shape-measure select", MEASURES["hellinger"].label)
+    _run_and_wait(p, panel, "between 'tank'")
+    expect(view).to_contain_text("2 choices", timeout=120_000)
+    expect(view).to_contain_text("adjusted for the 2 choices tried", timeout=120_000)
+    text = " ".join(view.inner_text().split())
+    direct = tly.choice_adjusted(MESOCOSM, "treatment", [{"measure": "chi_square"},
+                                                         {"measure": "hellinger"}],
+                                 units="tank", n_permutations=199, rng=3, progress=False)
+    assert direct.n_choices == 2
+    want = (f"hellinger: adjusted for the 2 choices tried, "
+            f"{p_words(direct.pvalue_adjusted['hellinger'])} "
+            f"(own {p_words(direct.pvalue['hellinger'])};")
+    assert want in text, text
+    assert "after looking at p-values" in text
+    assert p.page.locator(f"{panel} .tf-error").inner_text().strip() == ""
+    p.page.locator(f"{panel} .tf-choices-tried").scroll_into_view_if_needed()
+    p.shot("9_two_choices_adjusted")
+
+
 # ------------------------------------------------------------------ the template notebook
 def test_template_bad_file_shows_readable_error(open_page, lab):
     from playwright.sync_api import expect

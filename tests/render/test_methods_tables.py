@@ -25,6 +25,7 @@ OTHER = {  # a different valid value for every choice of the spec
     "load": "qpcr_copies", "spike_in": {"taxon": "spike", "added": "spike_copies"},
     "units": "tank", "n_boot": 0, "scan_n_boot": 199, "pairwise_statistic": "welch",
     "compare_with": {"transform": "fourth_root"},
+    "choices_tried": ({"measure": "hellinger"}, {"measure": "chord", "origin": "scan"}),
 }
 # where the data are read from is not a method: the paragraph never names files
 NOT_METHODS = {"source", "version"}

@@ -72,12 +72,9 @@ def _loop(fn, items, shared, progress, cancel, what) -> list:
 
 def _task(fn, item, shared):
     """Runs on a worker: ``fn`` with no cancel callable and nested progress silenced."""
-    from .progress import Reporter, _active
-    token = _active.set(Reporter("task"))       # nested public calls: no bar of their own
-    try:
+    from .progress import silenced
+    with silenced():                            # nested public calls: no bar of their own
         return fn(item, shared, None)
-    finally:
-        _active.reset(token)
 
 
 def _on_cluster(client, fn, items, shared, progress, cancel, what) -> list:

@@ -393,7 +393,7 @@ def _orientation(rows, info, row_ids, col_ids, id_header, cells, data_cols, id_j
         raise InputError(
             "neither the row labels nor the column labels match the sample table's labels "
             f"(rows start {listing(row_ids, 3)}; columns start {listing(col_ids, 3)}; "
-            f"the sample table lists {listing(list(known), 3)}).",
+            f"the sample table lists {listing([str(x) for x in info.index], 3)}).",
             location=cells.where(0, id_j, id_header or None),
             hint="Check that both files use the same sample labels (case and spaces count).")
     key = id_header.strip().lower()

@@ -360,7 +360,7 @@ def interval_note(n_boot, unit_name, fixed, k) -> str:
             "others in 93-99 %); fixing shape_dims at the number of clear axes avoids it.")
 
 
-def _cached_shape(table, shape, measure, transform, local=None):
+def cached_shape(table, shape, measure, transform, local=None):
     """Shape coordinates, from a per-call dict, the shared cache, or computed."""
     from .cache import shared_cache
     from .transforms import get_transform
@@ -398,7 +398,7 @@ def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
     n = table.n_samples
     z_raw, size_label = size_predictor(table, size)
     z = centred_unit(z_raw)
-    u, ev, shape_neg, shape_measure = _cached_shape(table, shape, measure, transform,
+    u, ev, shape_neg, shape_measure = cached_shape(table, shape, measure, transform,
                                                     shape_cache)
     var = _variation(d)
     notes = list(d.notes)

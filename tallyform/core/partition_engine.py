@@ -80,7 +80,7 @@ def _leading_axes(features: np.ndarray | None, g: np.ndarray | None):
     return vec[:, keep], ev[keep]
 
 
-def _rule_dims(ev: np.ndarray, n: int, target: float) -> int:
+def rule_dims(ev: np.ndarray, n: int, target: float) -> int:
     """The default number of shape dimensions (see partition_math.default_dims)."""
     share = np.cumsum(ev) / ev.sum()
     k = int(np.searchsorted(share, target - 1e-12) + 1)
@@ -151,7 +151,7 @@ class PartitionArrays:
         if ev.size == 0:
             return np.full(4, np.nan), 0
         k = shape_dims if shape_dims is not None else self.shape_dims
-        k = _rule_dims(ev, m, self.target) if k is None else min(int(k), ev.size)
+        k = rule_dims(ev, m, self.target) if k is None else min(int(k), ev.size)
         u = u[:, :k]
         if self.d_features is not None:
             fc = self.d_features[idx]

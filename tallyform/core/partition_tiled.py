@@ -111,12 +111,12 @@ class TiledPartitionArrays:
 
     def _vectors(self, idx, shape_dims):
         """(columns on K, how to read their forms) of one replicate, or None if it fails."""
-        from .partition_engine import _rule_dims
+        from .partition_engine import rule_dims
         m = idx.size
         u, ev = self.shape._shape(idx)
         if ev.size == 0:
             return None, 0
-        k = _rule_dims(ev, m, self.shape.target) if shape_dims is None \
+        k = rule_dims(ev, m, self.shape.target) if shape_dims is None \
             else min(int(shape_dims), ev.size)
         cols = [np.ones(m), *u[:, :k].T]
         zp = nzp = None

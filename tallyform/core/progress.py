@@ -63,6 +63,21 @@ _default: dict = {"progress": _from_environment()}
 _active: contextvars.ContextVar = contextvars.ContextVar("tallyform_progress", default=None)
 
 
+def silenced():
+    """Context in which nested public calls show no progress of their own (as inside an
+    outer call): used by tasks that run on Dask workers."""
+    import contextlib
+
+    @contextlib.contextmanager
+    def quiet():
+        token = _active.set(Reporter("task"))
+        try:
+            yield
+        finally:
+            _active.reset(token)
+    return quiet()
+
+
 def set_progress(value) -> None:
     """Set the session default for ``progress=None``: True (bars where someone is watching),
     False (never), or a callable ``progress(done, total)``.

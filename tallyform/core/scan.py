@@ -8,7 +8,7 @@ import pandas as pd
 
 from .errors import InputError
 from .cluster_map import cluster_map
-from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, _cached_shape, check_option,
+from .partition import (FRACTIONS, SHAPE_OPTIONS, SIZE_OPTIONS, cached_shape, check_option,
                         check_count, size_shape_from, prepared_arrays, resampling_units,
                         share_intervals)
 from .results import ResultMixin
@@ -159,7 +159,7 @@ def scan(table, measures=DEFAULT_SCAN_MEASURES, transforms=DEFAULT_SCAN_TRANSFOR
     cache: dict = {}
     if shape != "same_measure":        # the grid's one set of shape coordinates, made here
         try:
-            _cached_shape(table, shape, None, None, cache)
+            cached_shape(table, shape, None, None, cache)
         except InputError:
             pass                       # every cell reports the error
     shared = dict(table=table, size=size, shape=shape, shape_dims=shape_dims, cache=cache,

@@ -184,7 +184,7 @@ class TestsPanel(widgets.VBox):
         self.messages = MessageArea()
         self.choices = ChoicesTried(table, core=self._core,
                                     group=lambda: self.group.value or None,
-                                    menu=_CHOICES["shape_measure"], changed=self._bump)
+                                    menu=SPEC_CHOICES["shape_measure"], changed=self._bump)
 
         self.controls = [self.analysis, self.group, self.units, self.shape_measure,
                          self.contribution_measure, self.size_method, self.adjust, self.blocks,

@@ -21,6 +21,9 @@ __all__ = ["welch_statistic", "statistic_batch", "gram_blocks", "run_permutation
            "effective_dims", "residual_blocks", "noise_moments", "calibrate", "equivalent",
            "unit_response", "remove_blocks"]
 
+#: Largest k x q x q stack of group covariances built at once (floats); beyond it the
+#: residual Gram matrix is used a block of rows at a time.
+_COV_FLOATS = 2 ** 22
 #: Within-group sums of squares below this share of the total count as no spread at all.
 _SPREAD_RTOL = 1e-12
 
@@ -134,13 +137,14 @@ def residual_blocks(resp: Response, codes: np.ndarray, sizes: np.ndarray):
     k = sizes.size
     member = (codes[:, None] == np.arange(k)[None, :]).astype(float)   # n x k
     scaled = member / sizes                                             # columns average
-    if resp.features is not None and resp.features.shape[1] <= resp.n:
+    q_dim = None if resp.features is None else resp.features.shape[1]
+    if q_dim is not None and q_dim <= resp.n and k * q_dim * q_dim <= _COV_FLOATS:
         r = resp.features - (scaled.T @ resp.features)[codes]
         norms = np.einsum("ij,ij->i", r, r)
         c = np.stack([r[codes == j].T @ r[codes == j] for j in range(k)])  # k x q x q
         flat = c.reshape(k, -1)
         return member.T @ norms, flat @ flat.T, member.T @ norms ** 2
-    if resp.features is not None:                              # more features than samples
+    if resp.features is not None:                  # many features: residual Gram rows
         f = resp.features - (scaled.T @ resp.features)[codes]
 
         def rows_of(sl):

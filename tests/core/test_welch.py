@@ -244,6 +244,22 @@ def test_effective_dimensions_from_coordinates(three_groups):
         assert effective_dims(resp, codes, n, corrected=False) == pytest.approx(plug, rel=1e-9)
 
 
+def test_residual_blocks_agree_on_every_path(three_groups, monkeypatch):
+    # identity: group covariances, residual Gram rows from features, and the doubly
+    # centred Gower matrix give the same t, Q and P
+    from tallyform.core import welch_kernel
+    from tallyform.core.permutation import prepare_response
+    x, g, labels, info = three_groups
+    codes = np.unique(g, return_inverse=True)[1]
+    sizes = np.bincount(codes).astype(float)
+    ref = welch_kernel.residual_blocks(prepare_response(feature_path(x, labels)), codes, sizes)
+    monkeypatch.setattr(welch_kernel, "_COV_FLOATS", 1)
+    for path in (feature_path, distance_path):
+        got = welch_kernel.residual_blocks(prepare_response(path(x, labels)), codes, sizes)
+        for a, b in zip(got, ref):
+            np.testing.assert_allclose(a, b, rtol=1e-9)
+
+
 def test_effective_dimension_moments_are_unbiased():
     # the corrected estimates of (tr V)^2 and tr V^2 average to their true values for
     # skewed, heavy-tailed scatter (independent gamma coordinates, shape 0.5: variance

@@ -94,11 +94,11 @@ def counts(sizes, generator, per_group, *, test="welch", total=3000, masses="fix
 
 
 def _pair(id_, design, make, *, reps=1000, short=60, reference=True, check=True,
-          raw=False, method="welch_permanova"):
+          raw=False, method="welch_permanova", band=None):
     """A Welch cell, optionally with reference rows on the same data: PERMANOVA, and the
     raw permutation test (small_sample=False, the published form)."""
     out = [Cell(f"welch/{id_}", "Welch-type", method, design, make("welch"),
-                reps=reps, short_reps=short, check=check)]
+                reps=reps, short_reps=short, check=check, band=band)]
     if raw:
         out.append(Cell(f"welch/{id_}-raw", "Welch-type",
                         "welch_permanova(small_sample=False) (reference)", design,
@@ -147,6 +147,11 @@ def blocks_design(rng):
 # Dirichlet-multinomial: Var(x_j / N) = pi_j (1 - pi_j) (1 + (N - 1) icc) / N, so at
 # N = 3000 an icc of 0.02 against 0.081 (0.325) gives 4 (16) times the variance: 2x (4x) sd.
 DM_BASE, DM_2X, DM_4X = 0.02, 0.081, 0.325
+# Sparse, heavy-tailed profiles in the spread group: the Welch-type test is conservative
+# there (its raw permutation form too), with f estimated without bias (welch_kernel); the
+# result's notes say so (welch.SPREAD_NOTE), so only rejecting too often fails these rows.
+_CONSERVATIVE = ("welch_permanova (conservative here, as the result's notes say: "
+                 "band [0, 0.07])")
 _E5 = "Euclidean, 5 normal variables"
 
 CELLS = [
@@ -184,11 +189,11 @@ CELLS = [
     *_pair("dm-2g-10v30-sd4", "2 groups 10 / 30 at 3000 counts, Dirichlet-multinomial, small "
            "group sd 4x (icc 0.325 vs 0.02), chi-square (fixed masses)",
            lambda t: counts((10, 30), "dirichlet", ({"icc": DM_4X}, {"icc": DM_BASE}), test=t),
-           raw=True),
+           raw=True, band=(0.0, 0.07), method=_CONSERVATIVE),
     *_pair("dm-2g-6v18-sd4", "2 groups 6 / 18 at 3000 counts, Dirichlet-multinomial, small "
            "group sd 4x (icc 0.325 vs 0.02), chi-square (fixed masses)",
            lambda t: counts((6, 18), "dirichlet", ({"icc": DM_4X}, {"icc": DM_BASE}), test=t),
-           raw=True, reference=False),
+           raw=True, reference=False, band=(0.0, 0.07), method=_CONSERVATIVE),
     *_pair("dm-3g-8v16v24-sd4", "3 groups 8 / 16 / 24 at 3000 counts, Dirichlet-multinomial, "
            "icc 0.325 / 0.081 / 0.02, chi-square (fixed masses)",
            lambda t: counts((8, 16, 24), "dirichlet", ({"icc": DM_4X}, {"icc": DM_2X},

@@ -342,9 +342,10 @@ def share_intervals(arrays, res, kept, d, items, *, unit_name=None, fixed=True,
 
 
 SIZE_FREE_NOTE = ("this measure is size-free, so its size-only share is near 0; there the "
-                  "intervals of the size-only and residual shares are conservative (in "
-                  "simulation they covered the true share in every study, against 95 % "
-                  "asked).")
+                  "intervals of the size-only and residual shares are conservative, wider "
+                  "than needed (in simulation, 20 samples, they covered the true share in "
+                  "100 % and 98.7 % of studies, against 95 % asked): near 0 the leave-out "
+                  "replicates overstate the size-only share's spread about 2-fold.")
 
 
 def interval_note(n_boot, unit_name, fixed, k) -> str:

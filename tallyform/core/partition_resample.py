@@ -31,8 +31,21 @@ measure (100 %: conservative, the share is near 0 where the jackknife overstates
 spread). With the number of dimensions chosen from the data: residual 87-90 %, other shares
 93-99 %. At n = 10: 93-99 %.
 
+The conservative rows (1000 studies, 'states' population, Hellinger, n = 20: size-only
+share 100 %, residual 98.7 %) are not a scaling error: with every subset the variance
+above is Shao & Wu's (n - d) / (d C(n, d)) sum_s (theta_s - mean)^2, and for the mean it
+gives s^2 / n exactly (tests/core/test_partition_inference.py). The true size-only share
+there is 0.0005, a point where the share has no first-order term, and a jackknife
+variance is biased upward by the higher-order terms of a statistic (Efron & Stein 1981):
+measured over 60-80 studies, the jackknife standard error was 0.019-0.023 against a true
+0.008-0.009 (the residual share: 0.048-0.052 against 0.036-0.043), and the noisy bias
+estimate widens the interval further. Adjusted shares may be negative, so the interval is not bounded by 0 and no
+logit-scale interval applies; the result says the intervals are conservative there.
+
 References
 ----------
+Efron, B. & Stein, C. (1981). The jackknife estimate of variance. Annals of Statistics 9,
+586-596.
 Efron, B. & Tibshirani, R. J. (1993). An Introduction to the Bootstrap, ch. 10-11 and 14.
 Quenouille, M. H. (1956). Notes on bias in estimation. Biometrika 43, 353-360.
 Shao, J. & Wu, C. F. J. (1989). A general theory for jackknife variance estimation.

@@ -18,8 +18,12 @@ from .permutation import Permutations, Response, default_batch_size, nested_base
 from .units import unit_centroid_gower
 
 __all__ = ["welch_statistic", "statistic_batch", "gram_blocks", "run_permutations",
-           "effective_dims", "calibrate", "equivalent", "unit_response", "remove_blocks"]
+           "effective_dims", "residual_blocks", "noise_moments", "calibrate", "equivalent",
+           "unit_response", "remove_blocks"]
 
+#: Largest k x q x q stack of group covariances built at once (floats); beyond it the
+#: residual Gram matrix is used a block of rows at a time.
+_COV_FLOATS = 2 ** 22
 #: Within-group sums of squares below this share of the total count as no spread at all.
 _SPREAD_RTOL = 1e-12
 
@@ -122,50 +126,111 @@ def run_permutations(resp: Response, codes: np.ndarray, perms: Permutations, pro
     return float(stat), spread, weight, sizes, float(nu), null[0], null[1]
 
 
-def effective_dims(resp: Response, codes: np.ndarray, sizes: np.ndarray) -> float:
-    """f = tr(V)^2 / tr(V^2), V = sum_j S_j / n_j the covariance of the centroid
-    differences (S_j the covariance of group j, from the within-group residuals):
-    the degrees of freedom of a chi-square that matches the first two moments of a
-    quadratic form in normal variables (Box 1954). 1 for one variable; at least 1.
+def residual_blocks(resp: Response, codes: np.ndarray, sizes: np.ndarray):
+    """(t, Q, P): t_j = sum_{i in j} ||r_i||^2, Q_jl = sum_{i in j, l in l} (r_i . r_l)^2
+    and P_j = sum_{i in j} ||r_i||^4, r_i a sample minus its group centroid, from features
+    or the Gower matrix.
 
-    With residuals r_i (sample minus its group centroid) and a_i = 1 / (n_j (n_j - 1)):
-    tr V = sum_i a_i ||r_i||^2 and tr V^2 = sum_il a_i a_l (r_i . r_l)^2. On the distance
-    path the residual Gower matrix is built a block of rows at a time (O(n^2) time,
-    O(n * rows) memory).
+    On the distance path the residual Gower matrix is built a block of rows at a time
+    (O(n^2) time, O(n * rows) memory).
     """
     k = sizes.size
-    a = 1.0 / (sizes * (sizes - 1))[codes]                    # weight of each sample
-    scaled = (codes[:, None] == np.arange(k)[None, :]) / sizes  # n x k, columns average
-    if resp.features is not None and resp.features.shape[1] <= resp.n:
+    member = (codes[:, None] == np.arange(k)[None, :]).astype(float)   # n x k
+    scaled = member / sizes                                             # columns average
+    q_dim = None if resp.features is None else resp.features.shape[1]
+    if q_dim is not None and q_dim <= resp.n and k * q_dim * q_dim <= _COV_FLOATS:
         r = resp.features - (scaled.T @ resp.features)[codes]
-        tr_v = float(np.einsum("i,ij,ij->", a, r, r))
-        v = r.T @ (a[:, None] * r)
-        tr_v2 = float(np.einsum("ij,ij->", v, v))
+        norms = np.einsum("ij,ij->i", r, r)
+        c = np.stack([r[codes == j].T @ r[codes == j] for j in range(k)])  # k x q x q
+        flat = c.reshape(k, -1)
+        return member.T @ norms, flat @ flat.T, member.T @ norms ** 2
+    if resp.features is not None:                  # many features: residual Gram rows
+        f = resp.features - (scaled.T @ resp.features)[codes]
+
+        def rows_of(sl):
+            return f[sl] @ f.T
     else:
-        if resp.features is not None:                          # more features than samples
-            f = resp.features - (scaled.T @ resp.features)[codes]
+        g = resp.gower
+        m = g @ scaled                                         # n x k: row means by group
+        means = scaled.T @ m                                   # k x k: block means
 
-            def rows_of(sl):
-                return f[sl] @ f.T
-        else:
-            g = resp.gower
-            m = g @ scaled                                     # n x k: row means by group
-            means = scaled.T @ m                               # k x k: block means
+        def rows_of(sl):                                       # rows of (I - H) G (I - H)
+            return (g[sl] - m[sl][:, codes] - m[:, codes[sl]].T
+                    + means[codes[sl]][:, codes])
+    t, q, p4 = np.zeros(k), np.zeros((k, k)), np.zeros(k)
+    step = max(1, int(2**22 // max(resp.n, 1)))
+    for start in range(0, resp.n, step):
+        sl = slice(start, min(resp.n, start + step))
+        r = rows_of(sl)
+        norms = r[np.arange(r.shape[0]), np.arange(sl.start, sl.stop)]
+        t += member[sl].T @ norms
+        p4 += member[sl].T @ norms ** 2
+        r *= r
+        q += member[sl].T @ (r @ member)
+    return t, q, p4
 
-            def rows_of(sl):                                   # rows of (I - H) G (I - H)
-                return (g[sl] - m[sl][:, codes] - m[:, codes[sl]].T
-                        + means[codes[sl]][:, codes])
-        tr_v = tr_v2 = 0.0
-        step = max(1, int(2**22 // max(resp.n, 1)))
-        for start in range(0, resp.n, step):
-            sl = slice(start, min(resp.n, start + step))
-            r = rows_of(sl)
-            tr_v += float(a[sl] @ r[np.arange(r.shape[0]), np.arange(sl.start, sl.stop)])
-            r *= r
-            tr_v2 += float(a[sl] @ (r @ a))
-    if not (tr_v > 0 and tr_v2 > 0):
+
+def effective_dims(resp: Response, codes: np.ndarray, sizes: np.ndarray, *,
+                   corrected: bool = True) -> float:
+    """f = tr(V)^2 / tr(V^2), V = sum_j Sigma_j / n_j the covariance of the centroid
+    differences: the degrees of freedom of a chi-square that matches the first two moments
+    of a quadratic form in normal variables (Box 1954). 1 for one variable; at least 1.
+
+    ``corrected=False`` plugs the groups' sample covariances S_j in for the Sigma_j. That
+    estimate is biased low when a group has few samples or heavy-tailed scatter: S_j has
+    rank at most n_j - 1 (4 samples make V look 3-dimensional whatever the data), and
+    tr S_j^2 carries the fourth moments. The F reference of :func:`calibrate` then has too
+    heavy a tail and the test turns conservative (measured: 2.7 % of null data sets
+    rejected at 5 % with 4 vs 12 samples in 5 dimensions, 2.2-2.5 % with
+    Dirichlet-multinomial counts, where the plug-in f was 3.6 for a true 29). By default
+    the squares of group j's own terms are estimated by U-statistics, unbiased for any
+    distribution with four moments (:func:`noise_moments`); cross terms between groups
+    are unbiased as they are.
+    """
+    t, q, p4 = residual_blocks(resp, codes, sizes)
+    num, den = noise_moments(t, q, p4, sizes, corrected=corrected)
+    if corrected and not (num > 0 and den > 0):
+        num, den = noise_moments(t, q, p4, sizes, corrected=False)
+    if not (num > 0 and den > 0):
         return 1.0
-    return max(1.0, tr_v * tr_v / tr_v2)
+    return max(1.0, num / den)
+
+
+def noise_moments(t, q, p4, sizes, *, corrected: bool = True) -> tuple[float, float]:
+    """Estimates of (tr V)^2 and tr V^2 from :func:`residual_blocks`.
+
+    With n = n_j, T = t_j, F = Q_jj, P = P_j (a group's residual Gram matrix g: T = tr g,
+    F = ||g||_F^2, P = sum_i g_ii^2), the U-statistics over distinct samples
+    (1/4) E[||x_1 - x_2||^2 ||x_3 - x_4||^2] = (tr Sigma)^2 and
+    (1/4) E[((x_1 - x_2)'(x_3 - x_4))^2] = tr Sigma^2 are (groups of 4 or more):
+
+        (tr Sigma)^2 ~ ((n^2 - 3n + 1) T^2 - n (n - 1) P + 2 F) / (n (n - 1) (n - 2) (n - 3))
+        tr Sigma^2   ~ ((n - 2) F + T^2 / (n - 1) - n P) / (n (n - 2) (n - 3))
+
+    (the second is Himeno & Yamada's 2014 estimator; both are checked against the sums
+    over all 4-tuples in tests/core/test_welch.py). Groups of 2 or 3 keep the plug-in
+    terms (T / (n - 1))^2 and F / (n - 1)^2. Then (tr V)^2 = (sum_j tr S_j / n_j)^2 with
+    each own square replaced, tr V^2 = sum_{j, l} tr(S_j S_l) / (n_j n_l) with each
+    tr S_j^2 replaced.
+    """
+    t, q, p4, n = (np.asarray(v, dtype=float) for v in (t, q, p4, sizes))
+    m = n - 1.0
+    a = 1.0 / n
+    tr_s = t / m                                               # tr S_j
+    prod = q / (m[:, None] * m[None, :])                       # tr S_j S_l
+    own = np.diag(prod).copy()                                 # tr S_j^2
+    if not corrected:
+        return float(tr_s @ a) ** 2, float(a @ prod @ a)
+    big = n >= 4
+    with np.errstate(divide="ignore", invalid="ignore"):
+        four = n * (n - 1) * (n - 2) * (n - 3)
+        sq_tr = np.where(big, ((n * n - 3 * n + 1) * t ** 2 - n * m * p4 + 2 * np.diag(q))
+                         / four, tr_s ** 2)
+        tr_sq = np.where(big, ((n - 2) * np.diag(q) + t ** 2 / m - n * p4) * m / four,
+                         own)
+    num = float(tr_s @ a) ** 2 - float(np.sum((tr_s ** 2 - sq_tr) * a ** 2))
+    den = float(a @ prod @ a - np.sum((own - tr_sq) * a ** 2))
+    return num, den
 
 
 def calibrate(stat, nu, dims: float, k: int):

@@ -206,15 +206,85 @@ def test_k_groups_prepivoting_uses_welch_anova_reference():
     assert res.pvalue == pytest.approx((1 + np.sum(ref_p <= obs_p * (1 + 1e-9))) / 41)
 
 
+def _u_moments(x):
+    """(tr Sigma)^2 and tr Sigma^2 as U-statistics over all ordered 4-tuples of distinct
+    samples: (1/4) ||x1 - x2||^2 ||x3 - x4||^2 and (1/4) ((x1 - x2)'(x3 - x4))^2 have these
+    expectations for any distribution with four moments (identity)."""
+    idx = np.array(list(itertools.permutations(range(x.shape[0]), 4)))
+    u = x[idx[:, 0]] - x[idx[:, 1]]
+    v = x[idx[:, 2]] - x[idx[:, 3]]
+    return (np.mean(np.sum(u * u, axis=1) * np.sum(v * v, axis=1)) / 4,
+            np.mean(np.sum(u * v, axis=1) ** 2) / 4)
+
+
 def test_effective_dimensions_from_coordinates(three_groups):
-    # identity: f = tr(V)^2 / tr(V^2), V = sum_j S_j / n_j with S_j = numpy's covariance
-    # of group j (Box 1954 moment match), from distances alone and from features
+    # identity: f = tr(V)^2 / tr(V^2), V = sum_j Sigma_j / n_j (Box 1954 moment match);
+    # the plug-in uses numpy's covariances S_j, the default replaces each group's own
+    # (tr S_j)^2 and tr S_j^2 by the U-statistics over all 4-tuples of its samples
+    # (brute force here); distances alone and features give the same
+    from tallyform.core.permutation import prepare_response
+    from tallyform.core.welch_kernel import effective_dims
     x, g, labels, info = three_groups
-    V = sum(np.cov(x[g == lv], rowvar=False) / np.sum(g == lv) for lv in "abc")
-    ref = np.trace(V) ** 2 / np.trace(V @ V)
+    groups = [x[g == lv] for lv in "abc"]
+    covs = [np.cov(xg, rowvar=False) for xg in groups]
+    n = np.array([len(xg) for xg in groups], float)
+    V = sum(c / k for c, k in zip(covs, n))
+    plug = np.trace(V) ** 2 / np.trace(V @ V)
+    u = np.array([_u_moments(xg) for xg in groups])
+    num = sum(np.trace(covs[j]) * np.trace(covs[l]) / (n[j] * n[l])
+              for j in range(3) for l in range(3) if j != l) + np.sum(u[:, 0] / n ** 2)
+    den = sum(np.trace(covs[j] @ covs[l]) / (n[j] * n[l])
+              for j in range(3) for l in range(3) if j != l) + np.sum(u[:, 1] / n ** 2)
+    assert num / den > plug                  # the plug-in is biased low with few samples
+    codes = np.unique(g, return_inverse=True)[1]
     for path in (distance_path, feature_path):
         res = welch_permanova(path(x, labels), info, "g", n_permutations=9, rng=1)
-        assert res.dimensions == pytest.approx(ref, rel=1e-9)
+        assert res.dimensions == pytest.approx(num / den, rel=1e-9)
+        resp = prepare_response(path(x, labels))
+        assert effective_dims(resp, codes, n, corrected=False) == pytest.approx(plug, rel=1e-9)
+
+
+def test_residual_blocks_agree_on_every_path(three_groups, monkeypatch):
+    # identity: group covariances, residual Gram rows from features, and the doubly
+    # centred Gower matrix give the same t, Q and P
+    from tallyform.core import welch_kernel
+    from tallyform.core.permutation import prepare_response
+    x, g, labels, info = three_groups
+    codes = np.unique(g, return_inverse=True)[1]
+    sizes = np.bincount(codes).astype(float)
+    ref = welch_kernel.residual_blocks(prepare_response(feature_path(x, labels)), codes, sizes)
+    monkeypatch.setattr(welch_kernel, "_COV_FLOATS", 1)
+    for path in (feature_path, distance_path):
+        got = welch_kernel.residual_blocks(prepare_response(path(x, labels)), codes, sizes)
+        for a, b in zip(got, ref):
+            np.testing.assert_allclose(a, b, rtol=1e-9)
+
+
+def test_effective_dimension_moments_are_unbiased():
+    # the corrected estimates of (tr V)^2 and tr V^2 average to their true values for
+    # skewed, heavy-tailed scatter (independent gamma coordinates, shape 0.5: variance
+    # shape * scale^2), the plug-in ones do not (Monte Carlo, 4000 draws of groups of 4
+    # and 12 in 6 dimensions; the bound is 4 Monte Carlo standard errors)
+    from tallyform.core.permutation import Response
+    from tallyform.core.welch_kernel import noise_moments, residual_blocks
+    rng = np.random.default_rng(5)
+    sizes = np.array([4.0, 12.0])
+    codes = np.repeat([0, 1], [4, 12])
+    scales = [np.array([3.0, 2.0, 2.0, 1.0, 0.5, 0.5]),
+              np.array([1.0, 1.0, 0.5, 0.5, 0.2, 0.2])]
+    V = sum(np.diag(0.5 * s ** 2) / k for s, k in zip(scales, sizes))
+    truth = np.array([np.trace(V) ** 2, np.trace(V @ V)])
+    est = {True: [], False: []}
+    for _ in range(4000):
+        x = np.vstack([rng.gamma(0.5, s, (int(k), 6)) for s, k in zip(scales, sizes)])
+        blocks = residual_blocks(Response(16, features=x - x.mean(axis=0)), codes, sizes)
+        for corrected, values in est.items():
+            values.append(noise_moments(*blocks, sizes, corrected=corrected))
+    good, plug = np.mean(est[True], axis=0), np.mean(est[False], axis=0)
+    se = np.std(est[True], axis=0) / np.sqrt(4000)
+    assert np.all(np.abs(good - truth) < 4 * se)
+    assert plug[1] > truth[1] + 10 * se[1]       # tr V^2 overstated: f biased low
+    assert good[0] / good[1] > plug[0] / plug[1]
 
 
 def test_label_symmetry_in_smallest_p_note():
@@ -405,12 +475,32 @@ def test_small_group_note(three_groups):
     x, g, labels, info = three_groups
     tiny = info.assign(g=np.where(np.arange(len(g)) < 4, "a", "b"))
     res = welch_permanova(feature_path(x, labels), tiny, "g", n_permutations=99, rng=1)
-    assert any("fewer than 6 samples" in n and "conservative" in n for n in res.notes)
+    assert any("fewer than 6 samples" in n and "of data sets" in n for n in res.notes)
     raw = welch_permanova(feature_path(x, labels), tiny, "g", n_permutations=99, rng=1,
                           small_sample=False)
     assert any("fewer than 10 samples" in n and "small_sample=False" in n for n in raw.notes)
     big = welch_permanova(feature_path(x, labels), info, "g", n_permutations=99, rng=1)
     assert not any("fewer than" in n for n in big.notes)
+
+
+def test_spread_note_names_the_spread_small_group(three_groups):
+    # group 'a' (7 samples, sd 3) against 'c' (9 samples, sd 0.5): a spread ratio far above
+    # 9 with the spread group the smaller one; the ratio printed is s_a^2 / s_c^2, the
+    # total variances (numpy, ddof=1) of the two groups
+    x, g, labels, info = three_groups
+    res = welch_permanova(feature_path(x, labels), info, "g", n_permutations=19, rng=1)
+    ratio = np.var(x[g == "a"], axis=0, ddof=1).sum() / np.var(x[g == "c"], axis=0,
+                                                                ddof=1).sum()
+    note = [n for n in res.notes if "times as spread" in n]
+    assert len(note) == 1 and f"{ratio:.0f} times" in note[0]
+    assert "Group 'a'" in note[0] and "group 'c'" in note[0] and "conservative" in note[0]
+    # equal spreads: no note
+    rng = np.random.default_rng(2)
+    y = rng.standard_normal((20, 3))
+    lab = labels_for(20)
+    even = pd.DataFrame({"g": np.repeat(["a", "b"], [6, 14])}, index=lab)
+    res = welch_permanova(feature_path(y, lab), even, "g", n_permutations=19, rng=1)
+    assert not any("times as spread" in n for n in res.notes)
 
 
 def test_frames_and_title(three_groups):

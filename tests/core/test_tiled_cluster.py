@@ -58,10 +58,12 @@ def test_large_matrix_on_workers_equals_in_memory(client):
     with get_task_stream(client) as ts:
         b = tly.permanova(t, info, ["g"], units=False, n_permutations=19, rng=2)
     hosts = {r["worker"] for r in ts.data if "tile_quad" in str(r["key"])}
-    assert hosts == before                               # tile tasks ran on both workers
+    # tile tasks ran on the cluster's workers, not in this process (on a loaded machine the
+    # scheduler may give every task to one of them: both is the usual case, not a promise)
+    assert hosts and hosts <= before
     held = {w for w, keys in client.has_what().items()
             if any("make_tile" in str(k) for k in keys)}
-    assert held == before                                # the tiles are spread over both
+    assert held and held <= before                       # the tiles stay on the workers
     q2 = tly.dispersion_test(t, info["g"], n_permutations=19, rng=3)
     o2 = tly.pcoa(t, dims=3)
     assert set(client.scheduler_info()["workers"]) == before    # no worker ran out of memory

@@ -49,3 +49,17 @@ def unchanged():
 @pytest.fixture
 def rng():
     return np.random.default_rng(12345)
+
+
+@pytest.fixture
+def null_table():
+    """Synthetic: 24 samples x 10 taxa, one gamma-Poisson composition for all three groups
+    of 'site' (no difference), so the p-values are not at their floor."""
+    import tallyform as tly
+    rng = np.random.default_rng(11)
+    mean = rng.gamma(2.0, 8.0, size=10)
+    counts = rng.poisson(mean * rng.gamma(3.0, 1 / 3.0, size=(24, 10))) + 1
+    labels = [f"s{i:02d}" for i in range(24)]
+    info = pd.DataFrame({"site": np.repeat(["north", "south", "east"], 8)}, index=labels)
+    return tly.CommunityTable(pd.DataFrame(counts, index=labels,
+                                           columns=[f"t{j}" for j in range(10)]), info)

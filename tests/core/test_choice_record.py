@@ -5,7 +5,6 @@ from __future__ import annotations
 import html
 import re
 
-import numpy as np
 import pandas as pd
 import pytest
 
@@ -19,17 +18,6 @@ FAST = dict(n_permutations=99, audit_n_sim=10, audit_n_permutations=49, n_boot=0
             scan_measures=("bray_curtis", "hellinger"), scan_transforms=("none", "sqrt"))
 
 
-@pytest.fixture(scope="module")
-def null_table():
-    """Synthetic: 24 samples x 10 taxa, one gamma-Poisson composition for all three groups
-    (no difference), so the p-values are not at their floor."""
-    rng = np.random.default_rng(11)
-    mean = rng.gamma(2.0, 8.0, size=10)
-    counts = rng.poisson(mean * rng.gamma(3.0, 1 / 3.0, size=(24, 10))) + 1
-    labels = [f"s{i:02d}" for i in range(24)]
-    info = pd.DataFrame({"site": np.repeat(["north", "south", "east"], 8)}, index=labels)
-    return tly.CommunityTable(pd.DataFrame(counts, index=labels,
-                                           columns=[f"t{j}" for j in range(10)]), info)
 
 
 # ---------------------------------------------------------------------------- the record

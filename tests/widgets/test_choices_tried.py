@@ -4,9 +4,7 @@ from __future__ import annotations
 
 import html
 
-import numpy as np
 import pandas as pd
-import pytest
 
 import tallyform as tly
 from tallyform.core.display import p_words
@@ -15,17 +13,6 @@ from tallyform.widgets.choices_tried import CHOICES_HELP
 from tallyform.widgets.help import controls_without_help
 
 
-@pytest.fixture
-def null_table():
-    """Synthetic: 24 samples x 10 taxa, one gamma-Poisson composition for all three groups
-    (no difference), so the p-values are not at their floor."""
-    rng = np.random.default_rng(11)
-    mean = rng.gamma(2.0, 8.0, size=10)
-    counts = rng.poisson(mean * rng.gamma(3.0, 1 / 3.0, size=(24, 10))) + 1
-    labels = [f"s{i:02d}" for i in range(24)]
-    info = pd.DataFrame({"site": np.repeat(["north", "south", "east"], 8)}, index=labels)
-    return tly.CommunityTable(pd.DataFrame(counts, index=labels,
-                                           columns=[f"t{j}" for j in range(10)]), info)
 
 
 def _panel(table, seed=4):

@@ -127,16 +127,24 @@ class Response:
         r = (r + r.T) / 2
         return Response(n, gower=r)
 
-    def centred_within(self, codes: np.ndarray) -> "Response":
-        """The response with every unit's mean removed: (I - H_U) G (I - H_U), where H_U
-        averages the samples of each unit (``codes``: unit of every sample, 0..m-1)."""
+    def _unit_feature_means(self, codes):
+        """(codes as ints, number of units m, unit sizes, unit means of the features or
+        None on the distance path)."""
         codes = np.asarray(codes, dtype=np.intp)
         m = int(codes.max()) + 1
         size = np.bincount(codes, minlength=m).astype(float)
-        if self.features is not None:
-            sums = np.zeros((m, self.features.shape[1]))
-            np.add.at(sums, codes, self.features)
-            return Response(self.n, features=self.features - (sums / size[:, None])[codes])
+        if self.features is None:
+            return codes, m, size, None
+        sums = np.zeros((m, self.features.shape[1]))
+        np.add.at(sums, codes, self.features)
+        return codes, m, size, sums / size[:, None]
+
+    def centred_within(self, codes: np.ndarray) -> "Response":
+        """The response with every unit's mean removed: (I - H_U) G (I - H_U), where H_U
+        averages the samples of each unit (``codes``: unit of every sample, 0..m-1)."""
+        codes, m, size, means = self._unit_feature_means(codes)
+        if means is not None:
+            return Response(self.n, features=self.features - means[codes])
         n = self.n
         check_memory(2 * n * n * 8, f"the {n} x {n} matrix of within-unit deviations",
                      alternatives="Use a measure with a feature matrix (the feature path "
@@ -155,13 +163,8 @@ class Response:
 
         On the distance path the Gower matrix of the unit centroids is eigen-decomposed and
         axes with negative eigenvalues get the sign -1 (Gower 1966)."""
-        codes = np.asarray(codes, dtype=np.intp)
-        m = int(codes.max()) + 1
-        size = np.bincount(codes, minlength=m).astype(float)
-        if self.features is not None:
-            sums = np.zeros((m, self.features.shape[1]))
-            np.add.at(sums, codes, self.features)
-            y = sums / size[:, None]
+        codes, m, size, y = self._unit_feature_means(codes)
+        if y is not None:
             if y.shape[1] <= m:
                 return y, np.ones(y.shape[1])
             gram = y @ y.T

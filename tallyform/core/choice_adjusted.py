@@ -397,6 +397,28 @@ def _run_family(test, tab, family, layout, progress, cancel):
     return observed, null, errors, free, notes
 
 
+def _check_options(aspect: str, n_permutations) -> int:
+    """Check ``aspect`` and ``n_permutations`` (at least 1); the checked count."""
+    from .inference import check_n_permutations, check_option
+    check_option("aspect", aspect, tuple(CHOICE_TESTS))
+    n_permutations = check_n_permutations(n_permutations)
+    if n_permutations < 1:
+        raise InputError("`n_permutations` must be at least 1 (999 is usual).")
+    return n_permutations
+
+
+def _testable(family, observed, errors: list) -> np.ndarray:
+    """Which choices gave a statistic (filling ``errors`` for the others); none is refused."""
+    ok = np.array([e == "" and not np.isnan(o) for e, o in zip(errors, observed)])
+    for k in np.flatnonzero(~ok):
+        if not errors[k]:
+            errors[k] = "the statistic is undefined for these data (no variation)."
+    if not ok.any():
+        raise InputError("no choice could be tested on these data: "
+                         + "; ".join(f"{c.name}: {e}" for c, e in zip(family, errors)))
+    return ok
+
+
 @reports_progress("Choice-adjusted test", knob="n_permutations")
 def choice_adjusted(table, group, choices=None, *, aspect: str = "shape",
                     n_permutations: int = 999, rng=None, units=None, blocks=None,
@@ -494,12 +516,8 @@ def choice_adjusted(table, group, choices=None, *, aspect: str = "shape",
     >>> j.n_choices, bool((j.pvalue_adjusted >= j.pvalue).all())
     (2, True)
     """
-    from .inference import check_n_permutations, check_option
     from .table import as_table
-    check_option("aspect", aspect, tuple(CHOICE_TESTS))
-    n_permutations = check_n_permutations(n_permutations)
-    if n_permutations < 1:
-        raise InputError("`n_permutations` must be at least 1 (999 is usual).")
+    n_permutations = _check_options(aspect, n_permutations)
     tab = as_table(table)
     family, dups = as_choices(choices)
     test = CHOICE_TESTS[aspect]
@@ -507,13 +525,7 @@ def choice_adjusted(table, group, choices=None, *, aspect: str = "shape",
                           n_permutations=n_permutations, rng=as_rng(rng))
     observed, null, errors, free, dnotes = _run_family(test, tab, family, layout, progress,
                                                       cancel)
-    ok = np.array([e == "" and not np.isnan(o) for e, o in zip(errors, observed)])
-    for k in np.flatnonzero(~ok):
-        if not errors[k]:
-            errors[k] = "the statistic is undefined for these data (no variation)."
-    if not ok.any():
-        raise InputError("no choice could be tested on these data: "
-                         + "; ".join(f"{c.name}: {e}" for c, e in zip(family, errors)))
+    ok = _testable(family, observed, errors)
     perms = layout.perms
     raw, adj, min_null = single_step_min_p(observed[ok], null[:, ok], exact=perms.exact)
     frame = _frame(family, ok, observed, raw, adj, free, errors)

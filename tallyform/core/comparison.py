@@ -325,11 +325,6 @@ def compare_groups(table, group, *, units=None, shape_measure="chi_square", tran
     187-211. Sanders, H. L. (1968). Am. Nat. 102, 243-282. Warton, D. I., Wright, S. T. &
     Wang, Y. (2012). Methods Ecol. Evol. 3, 89-101.
     """
-    from .counting import shape_test, spread_test
-    from .dispersion import dispersion_test
-    from .dissimilarity import Dissimilarity, dissimilarity
-    from .inference import permanova
-    from .welch import welch_permanova
     alpha = check_fraction("alpha", alpha)
     check_option("size_method", size_method, _METHODS)
     n_permutations = check_n_permutations(n_permutations)
@@ -341,62 +336,90 @@ def compare_groups(table, group, *, units=None, shape_measure="chi_square", tran
     plan = resolve_units(frame, [name], units,
                          blocks=blocks if isinstance(blocks, str) else None)
     unit_arg = [lv.name for lv in plan.levels] or False
-    if isinstance(shape_measure, Dissimilarity):
-        d = shape_measure
-        if list(d.labels) != list(tab.sample_labels):
-            raise InputError("the dissimilarity given as `shape_measure` is not over the "
-                             "table's samples (labels differ).")
-    else:
-        d = dissimilarity(tab, shape_measure, transform=transform)
-    size_free = bool(d.properties.get("size_free", False))
+    d = _shape_dissimilarity(tab, shape_measure, transform)
     counts = _rarefiable(tab, shape_measure)
     if not counts and (depth is not None):
         raise InputError("`depth` is a rarefaction depth; these data are not whole counts "
                          "(or the measure is a ready Dissimilarity), so nothing is rarefied.")
     streams = as_rng(rng).spawn(3)
+    stage, staged = _stager(progress, 4)
+    common = dict(units=unit_arg, blocks=blocks, n_permutations=n_permutations, cancel=cancel)
+    size, skipped = _size_part(tab, name if isinstance(group, str) else g, size_method,
+                               effort, streams[0], staged, common)
+    stage[0] = 1
+    shape, spread, extra = _shape_spread(tab, d, frame, name, counts, streams[1], stage,
+                                         staged, common, shape_measure=shape_measure,
+                                         transform=transform, depth=depth, alpha=alpha,
+                                         centre=centre)
+    stage[0] = 3
+    from .inference import permanova
+    ref = permanova(d, frame, [name], rng=streams[2], progress=staged, **common)
+    return _comparison_result(tab, d, plan, name, size, skipped, shape, spread, extra, ref,
+                              counts=counts, alpha=alpha)
+
+
+def _shape_dissimilarity(tab, shape_measure, transform):
+    """The dissimilarity of the shape tests: the one given, or one computed from the table."""
+    from .dissimilarity import Dissimilarity, dissimilarity
+    if isinstance(shape_measure, Dissimilarity):
+        if list(shape_measure.labels) != list(tab.sample_labels):
+            raise InputError("the dissimilarity given as `shape_measure` is not over the "
+                             "table's samples (labels differ).")
+        return shape_measure
+    return dissimilarity(tab, shape_measure, transform=transform)
+
+
+def _stager(progress, n_stages: int):
+    """A mutable stage counter and a progress callback that reports across the stages."""
     stage = [0]
-    n_stages = 4
 
     def staged(done, total):
         if progress is not None:
             progress(stage[0] * total + done, n_stages * total)
+    return stage, staged
 
-    size, skipped = None, None
+
+def _size_part(tab, group, size_method, effort, rng, staged, common):
+    """The size test, or None with the reason when totals are sequencing depths."""
     if tab.abundance == "relative" and tab.load is None:
-        skipped = ("the totals are sequencing depths (abundance='relative'), which the "
-                   "laboratory sets; give loads (load= or spike_in=) to test size.")
-    else:
-        size = size_test(tab, name if isinstance(group, str) else g, method=size_method,
-                         effort=effort, units=unit_arg, blocks=blocks, rng=streams[0],
-                         n_permutations=n_permutations, cancel=cancel,
-                         progress=staged if size_method in ("permutation", "negbin") else None)
-    stage[0] = 1
-    extra = ()
+        return None, ("the totals are sequencing depths (abundance='relative'), which the "
+                      "laboratory sets; give loads (load= or spike_in=) to test size.")
+    size = size_test(tab, group, method=size_method, effort=effort, rng=rng,
+                     progress=staged if size_method in ("permutation", "negbin") else None,
+                     **common)
+    return size, None
+
+
+def _shape_spread(tab, d, frame, name, counts, rng, stage, staged, common, *, shape_measure,
+                  transform, depth, alpha, centre):
+    """The shape and spread tests: on counts when they are counts, else on the data as is."""
     if counts:
-        kw = dict(measure=shape_measure, transform=transform, depth=depth, units=unit_arg,
-                  blocks=blocks, n_permutations=n_permutations, alpha=alpha, cancel=cancel)
+        from .counting import shape_test, spread_test
+        kw = dict(measure=shape_measure, transform=transform, depth=depth, alpha=alpha,
+                  **common)
         # one seed for both: the same rarefied draw and the same relabellings
-        seed = int(streams[1].integers(2**63))
+        seed = int(rng.integers(2**63))
         shape = shape_test(tab, name, rng=seed, progress=staged, **kw)
         stage[0] = 2
         spread = spread_test(tab, name, rng=seed, progress=staged, **kw)
-    else:
-        shape = welch_permanova(d, frame, name, units=unit_arg, blocks=blocks,
-                                n_permutations=n_permutations, rng=streams[1],
-                                progress=staged, cancel=cancel)
-        stage[0] = 2
-        spread = dispersion_test(d, name, samples=frame, units=unit_arg, blocks=blocks,
-                                 n_permutations=n_permutations, rng=streams[1], centre=centre,
-                                 progress=staged, cancel=cancel)
-        extra = ("The data are not whole counts (or the measure was given as a ready "
-                 "dissimilarity), so the shape and spread tests ran on the data as they are: "
-                 "when totals differ between groups, part of a difference in spread (and, "
-                 "for measures not linear in the proportions, in composition) can be "
-                 "counting noise.",)
-    stage[0] = 3
-    ref = permanova(d, frame, [name], units=unit_arg, blocks=blocks,
-                    n_permutations=n_permutations, rng=streams[2], progress=staged,
-                    cancel=cancel)
+        return shape, spread, ()
+    from .dispersion import dispersion_test
+    from .welch import welch_permanova
+    shape = welch_permanova(d, frame, name, rng=rng, progress=staged, **common)
+    stage[0] = 2
+    spread = dispersion_test(d, name, samples=frame, rng=rng, centre=centre, progress=staged,
+                             **common)
+    extra = ("The data are not whole counts (or the measure was given as a ready "
+             "dissimilarity), so the shape and spread tests ran on the data as they are: "
+             "when totals differ between groups, part of a difference in spread (and, "
+             "for measures not linear in the proportions, in composition) can be "
+             "counting noise.",)
+    return shape, spread, extra
+
+
+def _comparison_result(tab, d, plan, name, size, skipped, shape, spread, extra, ref, *,
+                       counts, alpha) -> ComparisonResult:
+    """Assemble the reading, the notes and the side-by-side result."""
     lv = plan.level_of(name)
     n_rep = lv.m if lv is not None else tab.n_samples
     replicates = "samples" if lv is None else "units"
@@ -408,7 +431,8 @@ def compare_groups(table, group, *, units=None, shape_measure="chi_square", tran
     reading = reading_text(size, float(shape.pvalue), float(spread.pvalue), group=name,
                            measure=d.measure, welch=True,
                            permanova_p=float(ref.pvalue[name]), alpha=alpha,
-                           size_free=size_free, n_samples=n_rep, coarse=coarse,
+                           size_free=bool(d.properties.get("size_free", False)),
+                           n_samples=n_rep, coarse=coarse,
                            units_sentence=_units_sentence(plan, name), replicates=replicates,
                            min_pvalue=min(floors) if floors else None, size_skipped=skipped,
                            depth=rare_depth, size_ratio=getattr(shape, "size_ratio", None))

@@ -485,35 +485,47 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
                                       not 0 <= residual_dims <= d.n - 1):
         raise InputError(f"`residual_dims` must be None or a whole number from 0 to {d.n - 1}; "
                          f"got {residual_dims!r}.")
-    labels = d.labels
-    n = d.n
-    des = _design(samples, labels, terms, conditions)
-    Xt, xnames, Xc = des.Xt, des.xnames, des.Xc
-    Qz, Qx = constraint_bases(Xt, Xc)
+    des = _design(samples, d.labels, terms, conditions)
+    Qz, Qx = constraint_bases(des.Xt, des.Xc)
     prov = {"method": "db-RDA", **d.provenance, "terms": des.terms,
             "conditions": des.conditions, "correction": correction, "correction_constant": 0.0}
-    notes: list[str] = []
     shares = (Qx.shape[1], Qz.shape[1] - 1, True)
-    totals = _table_totals(samples, labels)
+    totals = _table_totals(samples, d.labels)
     if d.has_features:
-        if correction is not None:
-            notes.append(f"the {d.measure} measure is Euclidean (it has a feature matrix): no "
-                         f"{correction} correction was needed.")
-        Y = d.features - d.features.mean(axis=0)
-        Yz = Y - Qz @ (Qz.T @ Y)
-        split = split_features(Yz, Qx)
-        total = float(np.sum(Y * Y))
-        prov["path"] = "features (SVD)"
-        res = _assemble("db-RDA", split, Yz, labels, None, row_scale=np.ones(n),
-                        col_scale=np.ones(Y.shape[1]), scaling="samples", con_prefix="db-RDA",
-                        res_prefix="PCoA", total=total,
-                        conditioned=(total - split.total) if Xc is not None else None,
-                        Xt=Xt, xnames=xnames, weights=np.ones(n), provenance=prov,
-                        notes=notes,
-                        shares=shares + (des.data("db-RDA", labels, features=Y,
-                                                  prefix="db-RDA", totals=totals,
-                                                  transform=d.transform),))
-        return _restate_db(res, None)
+        return _restate_db(_db_rda_features(d, des, Qz, Qx, prov, shares, totals, correction),
+                           None)
+    res = _db_rda_gower(d, des, Qz, Qx, prov, shares, totals, correction, residual_dims)
+    return _restate_db(res, residual_dims)
+
+
+def _db_rda_features(d, des, Qz, Qx, prov, shares, totals, correction) -> Ordination:
+    """db-RDA of a Euclidean measure through its feature matrix (an SVD)."""
+    labels, n = d.labels, d.n
+    notes: list[str] = []
+    if correction is not None:
+        notes.append(f"the {d.measure} measure is Euclidean (it has a feature matrix): no "
+                     f"{correction} correction was needed.")
+    Y = d.features - d.features.mean(axis=0)
+    Yz = Y - Qz @ (Qz.T @ Y)
+    split = split_features(Yz, Qx)
+    total = float(np.sum(Y * Y))
+    prov["path"] = "features (SVD)"
+    return _assemble("db-RDA", split, Yz, labels, None, row_scale=np.ones(n),
+                     col_scale=np.ones(Y.shape[1]), scaling="samples", con_prefix="db-RDA",
+                     res_prefix="PCoA", total=total,
+                     conditioned=(total - split.total) if des.Xc is not None else None,
+                     Xt=des.Xt, xnames=des.xnames, weights=np.ones(n), provenance=prov,
+                     notes=notes,
+                     shares=shares + (des.data("db-RDA", labels, features=Y,
+                                               prefix="db-RDA", totals=totals,
+                                               transform=d.transform),))
+
+
+def _db_rda_gower(d, des, Qz, Qx, prov, shares, totals, correction,
+                  residual_dims) -> Ordination:
+    """db-RDA through the (corrected) Gower matrix: fitted and residual eigenvectors."""
+    labels, n, Xt, Xc = d.labels, d.n, des.Xt, des.Xc
+    notes: list[str] = []
     G, c = corrected_gower(d, correction)
     prov["correction_constant"] = c
     if correction is not None and c == 0.0:
@@ -538,17 +550,16 @@ def db_rda(d, samples, terms=None, *, conditions=None, correction: str | None = 
     scores = pd.DataFrame(np.column_stack([wa, res_scores]), index=idx,
                           columns=con_names + res_names)
     fitted = pd.DataFrame(lc, index=idx, columns=con_names)
-    corr = pd.DataFrame(_weighted_corr(Xt, lc, np.ones(n)), index=pd.Index(xnames, name="constraint"),
-                        columns=con_names)
+    corr = pd.DataFrame(_weighted_corr(Xt, lc, np.ones(n)),
+                        index=pd.Index(des.xnames, name="constraint"), columns=con_names)
     values = np.concatenate([split.fitted_values, split.residual_values])
-    res = _result("db-RDA", scores, values, con_names, res_names, split, total=total,
-                  conditioned=(total - float(np.trace(Gz))) if Xc is not None else None,
-                  scaling=SCALINGS["samples"][1], taxa=None, fitted=fitted, corr=corr,
-                  has_constraints=True, provenance=dict(prov, scaling="samples"), notes=notes,
-                  shares=shares + (des.data("db-RDA", labels, gower=G, prefix="db-RDA",
-                                            totals=totals, transform=d.transform),),
-                  n=n, con_prefix="db-RDA", res_prefix="PCoA")
-    return _restate_db(res, residual_dims)
+    return _result("db-RDA", scores, values, con_names, res_names, split, total=total,
+                   conditioned=(total - float(np.trace(Gz))) if Xc is not None else None,
+                   scaling=SCALINGS["samples"][1], taxa=None, fitted=fitted, corr=corr,
+                   has_constraints=True, provenance=dict(prov, scaling="samples"), notes=notes,
+                   shares=shares + (des.data("db-RDA", labels, gower=G, prefix="db-RDA",
+                                             totals=totals, transform=d.transform),),
+                   n=n, con_prefix="db-RDA", res_prefix="PCoA")
 
 
 def _table_totals(samples, labels) -> np.ndarray | None:

@@ -347,37 +347,10 @@ def constraint_test(ordination, scope: str = "all", *, n_permutations: int = 999
     block_codes, block_name = block_labels(frame, blocks)
     plan = resolve_units(frame, terms, units,
                          blocks=blocks if isinstance(blocks, str) else None)
-    key = {t: (0 if plan.independent else plan.strata.get(t, plan.within)) for t in terms}
-    strata: dict[int, _Stratum] = {}
-
-    def stratum(k):
-        if k not in strata:
-            strata[k] = _stratum(data, plan, k, block_codes, block_name)
-        return strata[k]
-
-    jobs = _jobs(data, scope, ss, key, stratum)
-    for _, k, *_ in jobs:
-        _permutations(stratum(k), data, n_permutations, rng)
-    shares = share_plan(data, n_permutations, rng) if data.method == "CCA" else []
-    grand = (sum(strata[k].perms.total for _, k, *_ in jobs) +
-             sum(perms.total for _, perms in shares))
-    state = {"done": 0}
-
-    def tick(b):
-        state["done"] += b
-        if progress is not None:
-            progress(state["done"], grand)
-
-    results = {}
-    for label, k, reduced, tested, later, first in jobs:
-        st = strata[k]
-        results[label] = (k, f_test(st.rows, reduced, tested, later, st.perms, first=first,
-                                    progress=tick, cancel=cancel))
+    jobs, strata, shares = _plan_jobs(data, plan, terms, scope, ss, block_codes, block_name,
+                                      n_permutations, rng)
     o = ordination
-    adjusted, chance = o.adjusted_r_squared, o.chance_share
-    if data.method == "CCA":
-        adjusted, perm_chance = adjusted_from_plan(data, shares, progress=tick, cancel=cancel)
-        chance = perm_chance if np.isfinite(perm_chance) else chance
+    results, adjusted, chance = _run_jobs(data, o, jobs, strata, shares, progress, cancel)
     table = _table(data, o, results, strata, plan)
     tested = list(results)
     stat = table.loc[tested, "pseudo_f"].rename("pseudo_f")
@@ -396,6 +369,47 @@ def constraint_test(ordination, scope: str = "all", *, n_permutations: int = 999
         r_squared=float(o.r_squared), chance_share=float(chance),
         adjusted_share=None if adjusted is None else float(adjusted),
         units=plan.provenance(), source=o, notes=tuple(notes))
+
+
+def _plan_jobs(data, plan, terms, scope, ss, block_codes, block_name, n_permutations,
+               rng) -> tuple:
+    """The tests to run, their strata with relabellings, and CCA's chance-share ones."""
+    key = {t: (0 if plan.independent else plan.strata.get(t, plan.within)) for t in terms}
+    strata: dict[int, _Stratum] = {}
+
+    def stratum(k):
+        if k not in strata:
+            strata[k] = _stratum(data, plan, k, block_codes, block_name)
+        return strata[k]
+
+    jobs = _jobs(data, scope, ss, key, stratum)
+    for _, k, *_ in jobs:
+        _permutations(stratum(k), data, n_permutations, rng)
+    shares = share_plan(data, n_permutations, rng) if data.method == "CCA" else []
+    return jobs, strata, shares
+
+
+def _run_jobs(data, o, jobs, strata, shares, progress, cancel) -> tuple:
+    """Run every F test (and, for CCA, the chance share) with one progress count."""
+    grand = (sum(strata[k].perms.total for _, k, *_ in jobs) +
+             sum(perms.total for _, perms in shares))
+    state = {"done": 0}
+
+    def tick(b):
+        state["done"] += b
+        if progress is not None:
+            progress(state["done"], grand)
+
+    results = {}
+    for label, k, reduced, tested, later, first in jobs:
+        st = strata[k]
+        results[label] = (k, f_test(st.rows, reduced, tested, later, st.perms, first=first,
+                                    progress=tick, cancel=cancel))
+    adjusted, chance = o.adjusted_r_squared, o.chance_share
+    if data.method == "CCA":
+        adjusted, perm_chance = adjusted_from_plan(data, shares, progress=tick, cancel=cancel)
+        chance = perm_chance if np.isfinite(perm_chance) else chance
+    return results, adjusted, chance
 
 
 def _scheme(data, used, jobs) -> str:

@@ -376,31 +376,15 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
         level=level, pseudocount=pseudocount, units=units, n_boot=n_boot, params=params,
         get_measure=get_measure, get_transform=get_transform)
     g = prep.groups
-    ticker = Ticker(2, progress, cancel)
     exact = rec.name in SPLIT_MEASURES
-    sub = CommunityTable(pd.DataFrame(prep.x, index=prep.labels, columns=prep.taxa),
-                         empty="keep")
-    if exact:
-        st = split_terms(sub, g, rec.name, tr, params, jackknife=prep.jackknife,
-                         ticker=ticker)
-    else:
-        st = pair_terms(sub, g, rec, tr, jackknife=prep.jackknife, ticker=ticker)
-    sz = size_ratios(prep.x, prep.e, g, float(pseudocount), jackknife=prep.jackknife,
-                     ticker=ticker)
+    st, sz = _term_pieces(prep, rec, tr, params, exact, float(pseudocount),
+                          Ticker(2, progress, cancel))
     shape = shape_part(prep, st, exact=exact)
     size = size_part(prep, sz)
 
     tab = as_table(table) if not isinstance(table, CommunityTable) else table
-    notes = shape_notes(prep, st, shape, exact=exact, rec=rec, params=params) + notes
-    if not st.size_free and not tr.removes_size:
-        notes.append(f"{rec.label} on {tr.name!r} values is not size-free: the shape terms "
-                     "also respond to differences in total abundance.")
-    notes.extend(st.notes)
-    if prep.excluded:
-        notes.append(f"{len(prep.excluded)} taxon/taxa absent from every sample of both "
-                     f"groups were left out: {listing(prep.excluded)}.")
-    notes += size_notes(prep, size, pseudocount=float(pseudocount),
-                        effort_name=tab.effort_name)
+    notes = _contribution_notes(prep, st, shape, size, rec, tr, params, notes,
+                                float(pseudocount), tab.effort_name)
     na, nb = len(g.ia), len(g.ib)
     method = "jackknife-t" if prep.jackknife else "none"
     prov = {"function": "taxon_contributions", "group": prep.gname, "a": prep.a,
@@ -416,6 +400,37 @@ def taxon_contributions(table, group, a, b, *, measure: str = "hellinger", trans
         size=size.table, size_reference=size.reference, n={prep.a: na, prep.b: nb},
         excluded=prep.excluded, per_effort=tab.effort_name, interval_method=method,
         level=float(level), notes=tuple(notes), provenance=prov)
+
+
+def _term_pieces(prep, rec, tr, params, exact, pseudocount, ticker):
+    """The per-taxon shape terms (exact split or pair terms) and the size ratios."""
+    g = prep.groups
+    sub = CommunityTable(pd.DataFrame(prep.x, index=prep.labels, columns=prep.taxa),
+                         empty="keep")
+    if exact:
+        st = split_terms(sub, g, rec.name, tr, params, jackknife=prep.jackknife,
+                         ticker=ticker)
+    else:
+        st = pair_terms(sub, g, rec, tr, jackknife=prep.jackknife, ticker=ticker)
+    sz = size_ratios(prep.x, prep.e, g, pseudocount, jackknife=prep.jackknife,
+                     ticker=ticker)
+    return st, sz
+
+
+def _contribution_notes(prep, st, shape, size, rec, tr, params, notes, pseudocount,
+                        effort_name) -> list:
+    """The notes of the shape terms, then of the preparation, then of the size ratios."""
+    exact = rec.name in SPLIT_MEASURES
+    notes = shape_notes(prep, st, shape, exact=exact, rec=rec, params=params) + notes
+    if not st.size_free and not tr.removes_size:
+        notes.append(f"{rec.label} on {tr.name!r} values is not size-free: the shape terms "
+                     "also respond to differences in total abundance.")
+    notes.extend(st.notes)
+    if prep.excluded:
+        notes.append(f"{len(prep.excluded)} taxon/taxa absent from every sample of both "
+                     f"groups were left out: {listing(prep.excluded)}.")
+    notes += size_notes(prep, size, pseudocount=pseudocount, effort_name=effort_name)
+    return notes
 
 
 def _prepare(table, group, a, b, *, measure, transform, intervals, level, pseudocount,

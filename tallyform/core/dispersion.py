@@ -396,12 +396,36 @@ def dispersion_test(d, groups, *, samples=None, units=None, blocks=None,
     >>> res.group_means["mean_distance"].round(3).tolist()
     [0.667, 2.667]
     """
-    from .schemes import Permutations, combine_codes, label_symmetries
-    from .units import resolve_units, unit_blocks
+    from .units import resolve_units
     d = check_dissimilarity(d)
     check_option("centre", centre, CENTRES)
     n_permutations = check_n_permutations(n_permutations)
     frame, name, notes = _group_frame(d, groups, samples)
+    labels, levels = _checked_groups(frame, name)
+    block_codes, block_name = _dispersion_blocks(d, frame, blocks)
+    codes = np.array([levels.index(x) for x in labels.to_numpy()])
+    plan = None
+    if samples is not None or units not in (None, False):
+        if isinstance(units, pd.Series):
+            units = align_labels(units, d.labels, "units")
+        plan = resolve_units(frame, [name], units, blocks=block_name)
+        notes += plan.notes
+    level = None if plan is None or plan.independent else plan.level_of(name)
+    rng = as_rng(rng)
+    if level is not None:
+        setup = _unit_setup(d, plan, level, codes, labels, levels, name, block_codes,
+                            block_name, centre, n_permutations, rng)
+    else:
+        setup = _sample_setup(d, plan, codes, labels, name, block_codes, block_name, centre,
+                              n_permutations, rng)
+    z2, gcodes, index, glabels, perms, what, where, space = setup
+    return _finish(d, z2, gcodes, levels, index, glabels, perms, centre=centre,
+                   correction=group_size_correction, what=what, where=where, notes=notes,
+                   space=space, progress=progress, cancel=cancel)
+
+
+def _checked_groups(frame: pd.DataFrame, name: str) -> tuple:
+    """The groups as text and their levels; refuses missing values, one level, lone samples."""
     g = frame[name]
     if g.isna().any():
         bad = list(g.index[g.isna()])[:8]
@@ -420,61 +444,63 @@ def dispersion_test(d, groups, *, samples=None, units=None, blocks=None,
                           "to its own centre is always 0; the dispersion test needs at least "
                           "2 samples per group.", location=Location(column=repr(name)),
                           hint="Merge or drop those groups first.")
+    return labels, levels
+
+
+def _dispersion_blocks(d: Dissimilarity, frame: pd.DataFrame, blocks) -> tuple:
+    """Block codes and name from a column name, labels aligned to ``d``, or None."""
     if blocks is None:
-        block_codes, block_name = None, None
-    elif isinstance(blocks, str):
-        block_codes, block_name = block_labels(frame, blocks)
-    else:
-        block_codes, block_name = block_labels(frame, align_labels(blocks, d.labels, "blocks"))
-    codes = np.array([levels.index(x) for x in labels.to_numpy()])
-    plan = None
-    if samples is not None or units not in (None, False):
-        if isinstance(units, pd.Series):
-            units = align_labels(units, d.labels, "units")
-        plan = resolve_units(frame, [name], units, blocks=block_name)
-        notes += plan.notes
-    level = None if plan is None or plan.independent else plan.level_of(name)
-    rng = as_rng(rng)
-    if level is not None:
-        k = plan.levels.index(level)
-        first = np.unique(level.codes, return_index=True)[1]
-        ucodes = codes[first]
-        parent = level.parent if k > 0 else None
-        ub = unit_blocks(level, block_codes, block_name) if block_codes is not None else None
-        pblocks = combine_codes(parent, ub)
-        y, signs = prepare_response(d).unit_means(level.codes)
-        z2 = _signed_z2(y, signs, ucodes, centre)
-        space = ("coords", y - np.vstack([y[ucodes == g].mean(axis=0)
-                                         for g in range(len(levels))])[ucodes], signs)
-        index = pd.Index(list(level.labels), name=level.name)
-        glabels = pd.Series(labels.to_numpy()[first], index=index, name=name)
-        what, where = f"units of {level.name!r}", level.name
-        sym = label_symmetries([("factor", ucodes)], pblocks)
-        perms = Permutations(level.m, n_permutations, rng, blocks=pblocks,
-                             block_name=None if pblocks is None else
-                             " x ".join(([plan.levels[k - 1].name] if k else [])
-                                        + ([block_name] if ub is not None else [])),
-                             design=ucodes[:, None], symmetries=sym,
-                             what=f"the {level.m} units of {level.name!r}")
-        gcodes = ucodes
-    else:
-        z2 = centroid_distances_squared(d, codes, centre)
-        space = sample_space(d, codes) if centre == "mean" else None
-        index = d.labels.copy()
-        glabels = pd.Series(labels.to_numpy(), index=d.labels.copy(), name=name)
-        what, where = "samples", None
-        strata = block_codes
-        sname = block_name
-        if plan is not None and not plan.independent:      # groups vary within units
-            strata = combine_codes(plan.levels[-1].codes, block_codes)
-            sname = plan.levels[-1].name + (f" x {block_name}" if block_name else "")
-        sym = label_symmetries([("factor", codes)], strata)
-        perms = Permutations(d.n, n_permutations, rng, blocks=strata, block_name=sname,
-                             design=codes[:, None], symmetries=sym)
-        gcodes = codes
-    return _finish(d, z2, gcodes, levels, index, glabels, perms, centre=centre,
-                   correction=group_size_correction, what=what, where=where, notes=notes,
-                   space=space, progress=progress, cancel=cancel)
+        return None, None
+    if isinstance(blocks, str):
+        return block_labels(frame, blocks)
+    return block_labels(frame, align_labels(blocks, d.labels, "blocks"))
+
+
+def _unit_setup(d, plan, level, codes, labels, levels, name, block_codes, block_name, centre,
+                n_permutations, rng) -> tuple:
+    """Distances and relabellings of whole units, for groups constant within units."""
+    from .schemes import Permutations, combine_codes, label_symmetries
+    from .units import unit_blocks
+    k = plan.levels.index(level)
+    first = np.unique(level.codes, return_index=True)[1]
+    ucodes = codes[first]
+    parent = level.parent if k > 0 else None
+    ub = unit_blocks(level, block_codes, block_name) if block_codes is not None else None
+    pblocks = combine_codes(parent, ub)
+    y, signs = prepare_response(d).unit_means(level.codes)
+    z2 = _signed_z2(y, signs, ucodes, centre)
+    space = ("coords", y - np.vstack([y[ucodes == g].mean(axis=0)
+                                     for g in range(len(levels))])[ucodes], signs)
+    index = pd.Index(list(level.labels), name=level.name)
+    glabels = pd.Series(labels.to_numpy()[first], index=index, name=name)
+    sym = label_symmetries([("factor", ucodes)], pblocks)
+    perms = Permutations(level.m, n_permutations, rng, blocks=pblocks,
+                         block_name=None if pblocks is None else
+                         " x ".join(([plan.levels[k - 1].name] if k else [])
+                                    + ([block_name] if ub is not None else [])),
+                         design=ucodes[:, None], symmetries=sym,
+                         what=f"the {level.m} units of {level.name!r}")
+    return (z2, ucodes, index, glabels, perms, f"units of {level.name!r}", level.name,
+            space)
+
+
+def _sample_setup(d, plan, codes, labels, name, block_codes, block_name, centre,
+                  n_permutations, rng) -> tuple:
+    """Distances and relabellings of samples (within units when groups vary within them)."""
+    from .schemes import Permutations, combine_codes, label_symmetries
+    z2 = centroid_distances_squared(d, codes, centre)
+    space = sample_space(d, codes) if centre == "mean" else None
+    index = d.labels.copy()
+    glabels = pd.Series(labels.to_numpy(), index=d.labels.copy(), name=name)
+    strata = block_codes
+    sname = block_name
+    if plan is not None and not plan.independent:      # groups vary within units
+        strata = combine_codes(plan.levels[-1].codes, block_codes)
+        sname = plan.levels[-1].name + (f" x {block_name}" if block_name else "")
+    sym = label_symmetries([("factor", codes)], strata)
+    perms = Permutations(d.n, n_permutations, rng, blocks=strata, block_name=sname,
+                         design=codes[:, None], symmetries=sym)
+    return z2, codes, index, glabels, perms, "samples", None, space
 
 
 def sample_space(d: Dissimilarity, codes: np.ndarray) -> tuple:

@@ -352,52 +352,20 @@ def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
     frame, notes = align_samples(samples, d.labels)
     mm = model_matrix(frame, terms)
     block_codes, block_name = block_labels(frame, blocks)
-    rng = as_rng(rng)
     terms = list(mm.terms)
-    n = d.n
     resp = prepare_response(d)
     common = dict(ss=ss, block_codes=block_codes, block_name=block_name,
-                  n_permutations=n_permutations, rng=rng, progress=progress, cancel=cancel)
-    if random is not None:
-        from .ems import random_tests
-        if units not in (None, False):
-            raise DesignError("`random` and `units` cannot be combined: with random factors "
-                              "the denominators come from expected mean squares.",
-                              hint="Drop `units`, or declare the units' factor random "
-                                   "instead.")
-        tests, rows, more, provenance = random_tests(resp, frame, mm, random, **common)
-        plan = None
-    else:
-        from .strata import design_tests
-        plan = resolve_plan(frame, terms, units, block_name)
-        notes += plan.notes
-        tests, rows, more = design_tests(resp, frame, mm, plan, cyclic=cyclic, **common)
-        provenance = plan.provenance()
-        if not plan.independent:
-            notes += tuple(_unit_notes(plan))
-    notes += tuple(more)
+                  n_permutations=n_permutations, rng=as_rng(rng), progress=progress,
+                  cancel=cancel)
+    tests, rows, plan, provenance, more = _run_tests(resp, frame, mm, terms, units, random,
+                                                     cyclic, common)
+    notes += more
     total = resp.total()
-    table = _table(tests, rows, terms, total, n, grouped=plan is not None)
+    table = _table(tests, rows, terms, total, d.n, grouped=plan is not None)
     tested = [t for t in terms if np.isfinite(tests[t].pvalue)]
     notes += tuple(_closing_notes(table, tested, mm, ss, terms, resp.path, total))
-    tangled = [t for t in tested if tests[t].order_dependent]
-    if tangled and ss == "sequential":
-        notes += (f"Unbalanced design: the sequential test of {', '.join(map(repr, tangled))} "
-                  "depends on the order of the terms (a term is not adjusted for correlated "
-                  "terms listed after it, whose fitted values its permutations keep; "
-                  "Freedman & Lane 1983). Such a test holds its level approximately "
-                  "(measured by simulation) but answers a question about the unadjusted "
-                  "means, and can miss an effect they hide; ss='marginal' tests every term "
-                  "adjusted for the others, whatever the order.",)
-    schemes = pd.DataFrame(
-        {"stratum": [tests[t].stratum for t in terms],
-         "permutations": [tests[t].scheme for t in terms],
-         "reduced_model": [tests[t].reduced for t in terms],
-         "n_permutations": [tests[t].n_permutations for t in terms],
-         "exact": [tests[t].exact for t in terms],
-         "n_distinct": pd.array([tests[t].n_distinct for t in terms], dtype="Int64"),
-         "min_pvalue": [np.nan if tests[t].min_pvalue is None else tests[t].min_pvalue
-                        for t in terms]}, index=pd.Index(terms, name="term"))
+    notes += _order_notes(tests, tested, ss)
+    schemes = _schemes_frame(tests, terms)
     totals = [tests[t].n_permutations for t in tested]
     return PermanovaResult(
         table=table, statistic=table.loc[terms, "pseudo_f"].rename("pseudo_f"),
@@ -406,9 +374,57 @@ def permanova(d, samples, terms, *, units=None, blocks=None, random=None,
         scheme=_scheme_text(tests, tested, plan),
         n_permutations=int(max(totals)) if totals else 0,
         exact=bool(tested) and all(tests[t].exact for t in tested), ss_type=ss,
-        terms=tuple(terms), measure=d.measure, n_samples=n, notes=tuple(dict.fromkeys(notes)),
+        terms=tuple(terms), measure=d.measure, n_samples=d.n,
+        notes=tuple(dict.fromkeys(notes)),
         schemes=schemes, min_pvalue=schemes["min_pvalue"].rename("min_pvalue"),
         units=provenance, reading=_reading(tests, tested, plan))
+
+
+def _run_tests(resp, frame, mm, terms, units, random, cyclic, common):
+    """Test every term, with random factors or by sampling-unit strata; returns the pieces."""
+    if random is not None:
+        from .ems import random_tests
+        if units not in (None, False):
+            raise DesignError("`random` and `units` cannot be combined: with random factors "
+                              "the denominators come from expected mean squares.",
+                              hint="Drop `units`, or declare the units' factor random "
+                                   "instead.")
+        tests, rows, more, provenance = random_tests(resp, frame, mm, random, **common)
+        return tests, rows, None, provenance, tuple(more)
+    from .strata import design_tests
+    plan = resolve_plan(frame, terms, units, common["block_name"])
+    notes = tuple(plan.notes)
+    tests, rows, more = design_tests(resp, frame, mm, plan, cyclic=cyclic, **common)
+    if not plan.independent:
+        notes += tuple(_unit_notes(plan))
+    return tests, rows, plan, plan.provenance(), notes + tuple(more)
+
+
+def _order_notes(tests: dict, tested: list, ss: str) -> tuple:
+    """The note on sequential tests whose result depends on the order of the terms."""
+    tangled = [t for t in tested if tests[t].order_dependent]
+    if not (tangled and ss == "sequential"):
+        return ()
+    return (f"Unbalanced design: the sequential test of {', '.join(map(repr, tangled))} "
+            "depends on the order of the terms (a term is not adjusted for correlated "
+            "terms listed after it, whose fitted values its permutations keep; "
+            "Freedman & Lane 1983). Such a test holds its level approximately "
+            "(measured by simulation) but answers a question about the unadjusted "
+            "means, and can miss an effect they hide; ss='marginal' tests every term "
+            "adjusted for the others, whatever the order.",)
+
+
+def _schemes_frame(tests: dict, terms: list) -> pd.DataFrame:
+    """One row per term: its stratum, permutation scheme, reduced model and exactness."""
+    return pd.DataFrame(
+        {"stratum": [tests[t].stratum for t in terms],
+         "permutations": [tests[t].scheme for t in terms],
+         "reduced_model": [tests[t].reduced for t in terms],
+         "n_permutations": [tests[t].n_permutations for t in terms],
+         "exact": [tests[t].exact for t in terms],
+         "n_distinct": pd.array([tests[t].n_distinct for t in terms], dtype="Int64"),
+         "min_pvalue": [np.nan if tests[t].min_pvalue is None else tests[t].min_pvalue
+                        for t in terms]}, index=pd.Index(terms, name="term"))
 
 
 def _table(tests: dict, rows: list, terms: list, total: float, n: int, *,

@@ -257,31 +257,46 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
     total = n_permutations + n_boot
     notes = list(res.notes)
     extra = {}
+    choice = dict(measure=measure, transform=transform, size=size, shape=shape)
     if n_permutations:
-        from .partition_null import shape_null_test
-        z, _ = size_predictor(table, size)
-        sub = None if progress is None else (lambda dn, tt: progress(dn, total))
-        tests, null_shares, null, more = shape_null_test(
-            table, res.fractions, measure=measure, transform=transform, shape=shape,
-            shape_dims=shape_dims, z=z, n_sim=n_permutations, overdispersion=overdispersion,
-            rng=test_rng, progress=sub, cancel=cancel)
-        extra.update(tests=tests, null_shares=null_shares, null_distribution=null)
-        notes.extend(more)
+        extra.update(_null_test(table, res, choice, shape_dims, n_permutations,
+                                overdispersion, test_rng, progress, cancel, total, notes))
     if n_boot:
-        from .partition_resample import leave_out_sets
-        arrays = prepared_arrays(table, d, measure=measure, transform=transform, size=size,
-                                 shape=shape)
-        kept, dd, items = leave_out_sets(n, n_boot, boot_rng, unit_codes=codes)
-        ci, more = share_intervals(arrays, res, kept, dd, items, unit_name=unit_name,
-                                   fixed=shape_dims is not None, progress=progress,
-                                   cancel=cancel, done_before=n_permutations, total=total,
-                                   size_free=bool(d.properties.get("size_free")))
-        extra["fractions_ci"] = ci
-        notes.extend(more)
+        extra["fractions_ci"] = _leave_out_intervals(
+            table, d, res, choice, shape_dims, n_boot, boot_rng, codes, unit_name, progress,
+            cancel, n_permutations, total, notes)
     prov = dict(res.provenance, n_permutations=n_permutations, n_boot=n_boot,
                 units=unit_name, overdispersion=overdispersion)
     from dataclasses import replace
     return replace(res, notes=tuple(dict.fromkeys(notes)), provenance=prov, **extra)
+
+
+def _null_test(table, res, choice, shape_dims, n_permutations, overdispersion, rng,
+               progress, cancel, total, notes: list) -> dict:
+    """The Monte Carlo test of the fractions (appending its notes); the result's fields."""
+    from .partition_null import shape_null_test
+    z, _ = size_predictor(table, choice["size"])
+    sub = None if progress is None else (lambda dn, tt: progress(dn, total))
+    tests, null_shares, null, more = shape_null_test(
+        table, res.fractions, measure=choice["measure"], transform=choice["transform"],
+        shape=choice["shape"], shape_dims=shape_dims, z=z, n_sim=n_permutations,
+        overdispersion=overdispersion, rng=rng, progress=sub, cancel=cancel)
+    notes.extend(more)
+    return dict(tests=tests, null_shares=null_shares, null_distribution=null)
+
+
+def _leave_out_intervals(table, d, res, choice, shape_dims, n_boot, rng, codes, unit_name,
+                         progress, cancel, done_before, total, notes: list):
+    """Leave-out intervals of the shares (appending their notes)."""
+    from .partition_resample import leave_out_sets
+    arrays = prepared_arrays(table, d, **choice)
+    kept, dd, items = leave_out_sets(table.n_samples, n_boot, rng, unit_codes=codes)
+    ci, more = share_intervals(arrays, res, kept, dd, items, unit_name=unit_name,
+                               fixed=shape_dims is not None, progress=progress,
+                               cancel=cancel, done_before=done_before, total=total,
+                               size_free=bool(d.properties.get("size_free")))
+    notes.extend(more)
+    return ci
 
 
 def check_count(name, value) -> int:

@@ -474,12 +474,43 @@ def welch_permanova(d, samples, group, *, n_permutations: int = 999, rng=None, u
     n_permutations = check_n_permutations(n_permutations)
     plan = _prepare(d, samples, group, units, blocks)
     k = len(plan.levels)
-    onehot = (plan.codes[None, :] == np.arange(k)[:, None]).astype(float).T
-    perms = Permutations(plan.resp.n, n_permutations, as_rng(rng), blocks=plan.blocks,
-                         block_name=plan.block_name, design=onehot)
+    perms = _group_permutations(plan, n_permutations, rng)
     stat, spread, weight, sizes, nu, null, null_nu = run_permutations(
         plan.resp, plan.codes, perms, progress, cancel)
-    flat = [plan.levels[j] for j in range(k) if not spread[j] > 0]
+    _check_spread(plan, spread)
+    dims = effective_dims(plan.resp, plan.codes, sizes)
+    pvalue, null = _welch_pvalue(stat, nu, null, null_nu, dims, k, perms.exact, small_sample)
+    notes = plan.notes + _result_notes(plan, perms, sizes, stat, null, small_sample, d,
+                                       spread)
+    table = _groups_table(plan, sizes, spread, weight)
+    return WelchResult(statistic=stat, pvalue=float(pvalue), null_distribution=null,
+                       groups=table, df=(k - 1, nu),
+                       scheme=_welch_scheme(plan, perms, small_sample),
+                       n_permutations=int(perms.total), exact=bool(perms.exact),
+                       group=plan.name, measure=d.measure, n_samples=d.n,
+                       units=None if plan.level is None else plan.level.name,
+                       small_sample=bool(small_sample), dimensions=float(dims), notes=notes,
+                       min_pvalue=perms.min_pvalue)
+
+
+def _group_permutations(plan: _Plan, n_permutations: int, rng) -> Permutations:
+    """Relabellings of the samples (or units) among the groups, within blocks."""
+    k = len(plan.levels)
+    onehot = (plan.codes[None, :] == np.arange(k)[:, None]).astype(float).T
+    return Permutations(plan.resp.n, n_permutations, as_rng(rng), blocks=plan.blocks,
+                        block_name=plan.block_name, design=onehot)
+
+
+def _groups_table(plan: _Plan, sizes, spread, weight) -> pd.DataFrame:
+    """Per group: size, spread, Welch weight and its share."""
+    return pd.DataFrame({"n": sizes.astype(int), "spread": spread, "weight": weight,
+                         "share": weight / weight.sum()},
+                        index=pd.Index(plan.levels, name=plan.name))
+
+
+def _check_spread(plan: _Plan, spread) -> None:
+    """Refuse groups without spread: their Welch weight would be infinite."""
+    flat = [plan.levels[j] for j in range(len(plan.levels)) if not spread[j] > 0]
     if flat:
         raise DesignError(f"group(s) {flat} of {plan.name!r} have no spread (all their "
                           f"{plan.what}s sit at the same point), so their Welch weight is "
@@ -487,28 +518,22 @@ def welch_permanova(d, samples, group, *, n_permutations: int = 999, rng=None, u
                           hint="A location test needs variation within each group; "
                                "check the measure (e.g. presence-absence on identical "
                                "samples) or merge groups.")
-    dims = effective_dims(plan.resp, plan.codes, sizes)
-    if small_sample:
-        level_null = calibrate(null, null_nu, dims, k)
-        pvalue = pvalue_from_null(float(calibrate(stat, nu, dims, k)), level_null,
-                                  exact=perms.exact)
-        null = equivalent(level_null, nu, dims, k)
-    else:
-        pvalue = pvalue_from_null(stat, null, exact=perms.exact)
-    notes = plan.notes + _result_notes(plan, perms, sizes, stat, null, small_sample, d,
-                                       spread)
-    table = pd.DataFrame({"n": sizes.astype(int), "spread": spread, "weight": weight,
-                          "share": weight / weight.sum()},
-                         index=pd.Index(plan.levels, name=plan.name))
+
+
+def _welch_pvalue(stat, nu, null, null_nu, dims, k, exact, small_sample) -> tuple:
+    """The p-value and the null on the statistic's scale, prepivoted when small_sample."""
+    if not small_sample:
+        return pvalue_from_null(stat, null, exact=exact), null
+    level_null = calibrate(null, null_nu, dims, k)
+    pvalue = pvalue_from_null(float(calibrate(stat, nu, dims, k)), level_null, exact=exact)
+    return pvalue, equivalent(level_null, nu, dims, k)
+
+
+def _welch_scheme(plan: _Plan, perms, small_sample) -> str:
+    """The plain description of the relabellings."""
     scheme = perms.describe() + ("" if plan.level is None else
                                  f"; whole units of {plan.level.name!r}")
     if small_sample:
         scheme += ("; each relabelling referred to Welch's F with its own degrees of freedom "
                    "(prepivoting)")
-    return WelchResult(statistic=stat, pvalue=float(pvalue), null_distribution=null,
-                       groups=table, df=(k - 1, nu), scheme=scheme,
-                       n_permutations=int(perms.total), exact=bool(perms.exact),
-                       group=plan.name, measure=d.measure, n_samples=d.n,
-                       units=None if plan.level is None else plan.level.name,
-                       small_sample=bool(small_sample), dimensions=float(dims), notes=notes,
-                       min_pvalue=perms.min_pvalue)
+    return scheme

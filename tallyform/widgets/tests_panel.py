@@ -29,35 +29,22 @@ import traitlets
 
 from ..core.errors import Cancelled, DesignError
 from ..core.spec import AnalysisSpec
-from ..core.measures import MEASURES
-from ..core.spec import SPEC_CHOICES
-from ..core.taxon_terms import PAIR_MEASURES, SPLIT_MEASURES
 from ..core.display import format_p
-from .common import (LABEL_STYLE, TABLE, TABLE_STYLE, Call, MessageArea, Ref, copy_figure,
-                     given,
-                     new_figure_widget)
-from .choices_tried import ChoicesTried
+from .common import TABLE, TABLE_STYLE, Call, Ref, copy_figure, given
 from .help import add_help
-from .shape_panel import default_group, group_options
+from .tests_controls import BLOCKS_HELP, build_options, build_outputs, options_box
 from .units_choice import unit_choices
 
 __all__ = ["TestsPanel", "ANALYSES"]
 
 ANALYSES = {"compare": "size, shape and spread", "pairwise": "pairwise PERMANOVA",
             "contributions": "taxon contributions"}
-_SIZE_METHOD_LABELS = {"welch": "Welch ANOVA (default)", "anova": "ANOVA",
-                       "kruskal": "Kruskal-Wallis", "permutation": "permutation F",
-                       "negbin": "negative binomial"}
-BLOCKS_HELP = ("Blocks only restrict the permutations of the shape and spread tests to "
-               "within blocks, and enter the size test's model as a factor; they are not "
-               "sampling units (choose those under Units).")
 
 
 def spec_has(key: str) -> bool:
     """Does this version's AnalysisSpec hold ``key``? (Keys are read defensively.)"""
     from dataclasses import fields
     return key in {f.name for f in fields(AnalysisSpec)}
-_ADJUST_LABELS = {"holm": "Holm", "bh": "Benjamini-Hochberg", None: "none"}
 
 
 class TestsPanel(widgets.VBox):
@@ -108,41 +95,6 @@ class TestsPanel(widgets.VBox):
         self.status = "idle"
         self.elapsed = 0.0
 
-        analyses = [(label, key) for key, label in ANALYSES.items()
-                    if key != "contributions" or self.has_contributions]
-        self.analysis = widgets.ToggleButtons(options=analyses, value="compare",
-                                              style={"button_width": "auto"})
-        self.analysis.add_class("tf-analysis")
-        self.group = widgets.Dropdown(options=group_options(table), description="Group",
-                                      value=default_group(table) if group is None else group,
-                                      style=LABEL_STYLE)
-        self.group.add_class("tf-group")
-        self.shape_measure = widgets.Dropdown(
-            options=[(MEASURES[m].label, m) for m in SPEC_CHOICES["shape_measure"]],
-            value="chi_square", description="Shape measure", style=LABEL_STYLE)
-        self.shape_measure.add_class("tf-shape-measure")
-        self.contribution_measure = widgets.Dropdown(
-            options=[(MEASURES[m].label, m) for m in (*SPLIT_MEASURES, *PAIR_MEASURES)],
-            value="hellinger", description="Measure", style=LABEL_STYLE)
-        self.contribution_measure.add_class("tf-contribution-measure")
-        self.size_method = widgets.Dropdown(
-            options=[(_SIZE_METHOD_LABELS.get(m, m), m) for m in SPEC_CHOICES["size_method"]],
-            value="welch", description="Size test", style=LABEL_STYLE)
-        self.size_method.add_class("tf-size-method")
-        self.adjust = widgets.Dropdown(
-            options=[(_ADJUST_LABELS.get(a, str(a)), a) for a in SPEC_CHOICES["pairwise_adjust"]],
-            value="holm", description="Adjust p", style=LABEL_STYLE)
-        self.adjust.add_class("tf-adjust")
-        self.blocks = widgets.Dropdown(options=group_options(table), value="",
-                                       description="Blocks", style=LABEL_STYLE)
-        self.blocks.add_class("tf-blocks")
-        self.blocks_help = widgets.HTML(f"<small>{html.escape(BLOCKS_HELP)}</small>")
-        self.blocks_help.add_class("tf-blocks-help")
-        self.blocks_help.tooltip = BLOCKS_HELP
-        self.units = widgets.Dropdown(options=[("none: samples independent", False)],
-                                      value=False, description="Units", style=LABEL_STYLE,
-                                      layout=widgets.Layout(width="460px"))
-        self.units.add_class("tf-units")
         self._units_auto = True          # follow the detection until the user picks
         self._units_busy = False
         self._units_extra = None         # nested units given by a spec
@@ -150,41 +102,10 @@ class TestsPanel(widgets.VBox):
         self._blocks_busy = False
         self.suggested_blocks = None
         self._detected_units = False
-        self.pair_a = widgets.Dropdown(options=[], description="Group A", style=LABEL_STYLE)
-        self.pair_b = widgets.Dropdown(options=[], description="Group B", style=LABEL_STYLE)
-        self.pair_a.add_class("tf-pair-a")
-        self.pair_b.add_class("tf-pair-b")
-        self.n_permutations = widgets.BoundedIntText(value=999, min=1, max=999_999,
-                                                     description="Permutations",
-                                                     continuous_update=False,
-                                                     style=LABEL_STYLE)
-        self.n_permutations.add_class("tf-permutations")
-        self.seed = widgets.BoundedIntText(value=1, min=0, max=2**31 - 1, description="Seed",
-                                           continuous_update=False, style=LABEL_STYLE)
-        self.seed.add_class("tf-seed")
-
-        self.run_button = widgets.Button(description="Run", button_style="primary",
-                                         icon="play")
-        self.run_button.add_class("tf-run-button")
-        self.cancel_button = widgets.Button(description="Cancel", icon="stop", disabled=True)
-        self.cancel_button.add_class("tf-cancel-button")
-        self.progress = widgets.IntProgress(value=0, min=0, max=100, description="Progress")
-        self.progress.add_class("tf-progress")
-        self.state = widgets.HTML()
-        self.state.add_class("tf-run-state")
-        self.results = widgets.HTML()
-        self.results.add_class("tf-test-results")
-        self.strata = widgets.HTML()
-        self.strata.add_class("tf-strata")
-        self.plot = new_figure_widget("tf-test-plot")
-        self.plot2 = new_figure_widget("tf-test-plot2")
-        self.plot3 = new_figure_widget("tf-test-plot3")
-        self._plots = (self.plot, self.plot2, self.plot3)
-        self._plot_boxes = tuple(widgets.Box([p]) for p in self._plots)
-        self.messages = MessageArea()
-        self.choices = ChoicesTried(table, core=self._core,
-                                    group=lambda: self.group.value or None,
-                                    menu=SPEC_CHOICES["shape_measure"], changed=self._bump)
+        analyses = [(label, key) for key, label in ANALYSES.items()
+                    if key != "contributions" or self.has_contributions]
+        build_options(self, table, analyses, group)
+        build_outputs(self, table)
 
         self.controls = [self.analysis, self.group, self.units, self.shape_measure,
                          self.contribution_measure, self.size_method, self.adjust, self.blocks,
@@ -193,14 +114,7 @@ class TestsPanel(widgets.VBox):
         for w in self.controls:
             add_help(w)
         self.controls += self.choices.controls
-        self._options = widgets.VBox([
-            self.analysis,
-            widgets.HBox([self.group, self.units]),
-            widgets.HBox([self.blocks, self.blocks_help]),
-            widgets.HBox([self.shape_measure, self.contribution_measure]),
-            widgets.HBox([self.size_method, self.adjust, self.pair_a, self.pair_b]),
-            widgets.HBox([self.n_permutations, self.seed]),
-            widgets.HBox([self.run_button, self.cancel_button, self.progress, self.state])])
+        self._options = options_box(self)
         super().__init__([self._options, self.messages, self.results, self.choices,
                           self.strata,
                           widgets.HBox(list(self._plot_boxes),

@@ -165,12 +165,40 @@ def _assemble(blocks, edges, labels, rec, tr, dt, chunks, params, opts, props, n
             keys.append((i, j))
             lazy.append(make(blocks[i], blocks[j] if j != i else None, i == j, rec.name,
                              params, dt.name, int(edges[i]), int(edges[j]), lab[i], lab[j]))
-    import warnings
-    with warnings.catch_warnings():
-        warnings.filterwarnings("ignore", message=".*[Ll]arge graph.*")
-        warnings.filterwarnings("ignore", message=".*[Ll]arge object.*")
-        persisted = dask.persist(*lazy)
+    persisted = persist_spread(lazy)
     tiles = Tiles(int(edges[-1]), edges, dict(zip(keys, persisted)), dt)
     return TiledDissimilarity(tiles, labels, chunks=chunks, measure=rec.name,
                               transform=tr.name, params=opts, properties=props, notes=notes,
                               dtype=dt)
+
+
+def persist_spread(lazy: list) -> list:
+    """Persist the tiles, spread evenly over the workers of the active client.
+
+    Left to itself the scheduler may put every tile on one worker (it does on a busy
+    machine), and that worker then holds the whole upper triangle. Here tile k is placed on
+    worker k mod W (workers in address order), so each holds about 1/W of the tiles. The
+    placement is loose: a tile whose worker has died is recomputed on any other, so the
+    result never depends on which workers are alive. Without a client (local threads) the
+    tiles are persisted in this process as before.
+    """
+    import warnings
+
+    import dask
+    from .tiled import active_client
+    client = active_client()
+    workers = sorted(client.scheduler_info()["workers"]) if client is not None else []
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=".*[Ll]arge graph.*")
+        warnings.filterwarnings("ignore", message=".*[Ll]arge object.*")
+        if len(workers) < 2:
+            return list(dask.persist(*lazy))
+        out = [None] * len(lazy)
+        for w, addr in enumerate(workers):
+            idx = list(range(w, len(lazy), len(workers)))
+            if idx:
+                got = client.persist([lazy[k] for k in idx], workers=[addr],
+                                     allow_other_workers=True)
+                for k, g in zip(idx, got):
+                    out[k] = g
+        return out

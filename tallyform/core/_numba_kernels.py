@@ -318,3 +318,50 @@ def gram_fill(G, i0, sq, F, out, tol):
                         d = F[i, k] - F[j, k]
                         d2 += d * d
                     out[base + j] = np.sqrt(d2)
+
+
+# ---------------------------------------------------------------------- Gower matrix
+@nb.njit(cache=True)
+def _squares_block(c, out, n, i0, i1, j0, j1):
+    for i in range(i0, i1):
+        s = _start(i, n)
+        if j0 <= i < j1:
+            out[i, i] = 0.0
+        for j in range(max(j0, i + 1), j1):
+            v = np.float64(c[s + j])
+            v = v * v
+            out[i, j] = v
+            out[j, i] = v
+
+
+@nb.njit(parallel=True, cache=True)
+def squared_square(c, out):
+    """The full n x n matrix of squared distances from the condensed vector, by 64 x 64
+    blocks of the upper triangle (each written to both triangles); block rows are paired
+    from both ends so the parallel halves get equal work."""
+    n = out.shape[0]
+    B = 64
+    nblk = (n + B - 1) // B
+    for t in nb.prange((nblk + 1) // 2):
+        for h in range(2):
+            bi = t if h == 0 else nblk - 1 - t
+            if h == 1 and bi == t:
+                break
+            i0 = bi * B
+            i1 = min(i0 + B, n)
+            for bj in range(bi, nblk):
+                j0 = bj * B
+                _squares_block(c, out, n, i0, i1, j0, min(j0 + B, n))
+    return out
+
+
+@nb.njit(parallel=True, cache=True)
+def centre_squares(a, r, m):
+    """a_ij <- -1/2 (a_ij - (r_i + r_j) + m) in place; exactly symmetric when a is (no
+    fastmath: the order of operations is the numpy fallback's)."""
+    n = a.shape[0]
+    for i in nb.prange(n):
+        ri = r[i]
+        for j in range(n):
+            a[i, j] = -0.5 * ((a[i, j] - (ri + r[j])) + m)
+    return a

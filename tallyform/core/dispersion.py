@@ -169,7 +169,7 @@ def centroid_distances_squared(d: Dissimilarity, codes: np.ndarray, centre: str 
         if centre != "mean":
             raise InputError("the eigen-free form gives distances to centroids (means) only.")
         check_memory(n * n * 8, f"a {n} x {n} matrix of squared distances")
-        d2 = d.square(dtype=np.float64) ** 2
+        d2 = d.squared()
         for idx in groups:
             block = d2[np.ix_(idx, idx)]
             z2[idx] = block.mean(axis=1) - block.sum() / (2.0 * idx.size ** 2)

@@ -221,6 +221,15 @@ class Dissimilarity:
             sub[low] = sub.T[low]
         return a
 
+    def squared(self) -> np.ndarray:
+        """The full n x n matrix of squared dissimilarities D^2, float64 (a new array)."""
+        n = self.n
+        check_memory(n ** 2 * 8, f"a {n} x {n} matrix of squared distances",
+                     alternatives="Use the condensed vector, or a tiled dissimilarity "
+                                  "(chunks=).")
+        from .kernels import squared_square
+        return squared_square(self.condensed, n)
+
     def gower(self) -> np.ndarray:
         """Gower-centred matrix G = -1/2 C D^2 C (Gower 1966), float64, cached, read-only.
 
@@ -234,17 +243,18 @@ class Dissimilarity:
             if self._features is not None:
                 f = self._features - self._features.mean(axis=0)
                 g = f @ f.T
-            else:
-                a = self.square(dtype=np.float64)
-                a *= a
-                a *= -0.5
-                a -= a.mean(axis=0, keepdims=True)
-                a -= a.mean(axis=1, keepdims=True)
-                g = a
-            g = (g + g.T) / 2
+                g = (g + g.T) / 2
+            else:                  # one pass over D^2 (kernels.gower_centre), symmetric
+                from .kernels import gower_centre
+                g = gower_centre(self.squared())
             g.setflags(write=False)
             self._cache["gower"] = g
         return self._cache["gower"]
+
+    @property
+    def has_gower(self) -> bool:
+        """True when the Gower-centred matrix is already computed (held in the cache)."""
+        return "gower" in self._cache
 
     def spectrum(self, *, compute: bool = True) -> np.ndarray | None:
         """All eigenvalues of G, largest first (negatives included), cached.

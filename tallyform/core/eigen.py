@@ -82,8 +82,7 @@ def gower_operator(d: Dissimilarity):
     centring passes when only a few leading axes are wanted.
     """
     from scipy.sparse.linalg import LinearOperator
-    A = d.square(dtype=np.float64)
-    A *= A
+    A = d.squared()
     n = A.shape[0]
 
     def mv(x):

@@ -25,6 +25,7 @@ import numpy as np
 __all__ = ["euclidean_condensed", "sqeuclidean_condensed", "abs_condensed",
            "kulczynski_condensed",
            "canberra_condensed", "jensen_shannon_condensed", "use_numba", "numba_enabled",
+           "squared_square", "gower_centre",
            "RAW", "RATIO", "RUZICKA", "KULCZYNSKI", "SQRT", "SCALE", "SPARSE_DENSITY"]
 
 # post-processing modes for the per-pair sums (same values as in _numba_kernels)
@@ -349,3 +350,49 @@ def _gram_fill_numpy(g, i0, sq, f, out):
             d2[redo] = np.einsum("ij,ij->i", d, d)
         start = i * n - i * (i + 1) // 2
         out[start:start + n - j0] = np.sqrt(np.maximum(d2, 0.0))
+
+
+# ---------------------------------------------------------------------- Gower matrix
+def squared_square(c: np.ndarray, n: int) -> np.ndarray:
+    """The n x n float64 matrix of squared distances from a condensed vector (any float)."""
+    out = np.empty((n, n), dtype=np.float64)
+    nb_mod = numba_ready(n * n)
+    if nb_mod is not None:
+        with _LOCK:
+            return nb_mod.squared_square(np.ascontiguousarray(c), out)
+    pos = 0
+    for i in range(n):                     # row by row: no float64 copy of c is made
+        out[i, i] = 0.0
+        row = np.asarray(c[pos:pos + n - 1 - i], dtype=np.float64)
+        out[i, i + 1:] = row * row
+        pos += n - 1 - i
+    block = 512
+    for i0 in range(0, n, block):           # lower triangle from the upper one
+        i1 = min(i0 + block, n)
+        out[i0:i1, :i0] = out[:i0, i0:i1].T
+        sub = out[i0:i1, i0:i1]
+        low = np.tril_indices(i1 - i0, -1)
+        sub[low] = sub.T[low]
+    return out
+
+
+def gower_centre(a: np.ndarray) -> np.ndarray:
+    """G = -1/2 C A C in place for a symmetric A (Gower 1966), exactly symmetric.
+
+    With r the row means of A and m their mean, G_ij = -1/2 (A_ij - (r_i + r_j) + m): the
+    same double centring in one pass, and r_i + r_j = r_j + r_i keeps G symmetric to the bit.
+    """
+    n = a.shape[0]
+    r = a.sum(axis=1) / n
+    m = float(r.mean())
+    nb_mod = numba_ready(n * n)
+    if nb_mod is not None:
+        with _LOCK:
+            return nb_mod.centre_squares(a, r, m)
+    for i0 in range(0, n, 256):             # by blocks of rows: no n x n temporary
+        i1 = min(i0 + 256, n)
+        blk = a[i0:i1]
+        blk -= r[i0:i1, None] + r[None, :]
+        blk += m
+        blk *= -0.5
+    return a

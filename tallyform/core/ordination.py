@@ -400,7 +400,8 @@ _SPECTRUM_FOR_NOTE = 300   # samples up to which the leading-axes path also take
                            # eigenvalues (values only, milliseconds) for its note
 
 
-def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordination:
+def pcoa(d, *, correction: str | None = None, dims: int | None = None,
+         spectrum: bool = True) -> Ordination:
     """Principal coordinates analysis (PCoA, classical scaling) of a dissimilarity.
 
     Parameters
@@ -412,6 +413,12 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
     dims : int, optional
         Compute only the ``dims`` leading axes (ARPACK), for thousands of samples. Without
         it every eigenvalue is computed and reported.
+    spectrum : bool, default True
+        With ``dims``: check a non-Euclidean measure for negative eigenvalues (the whole
+        spectrum up to 300 samples or when already known, else the smallest eigenvalue).
+        ``False`` skips that check unless the spectrum is already known:
+        ``negative_share`` is then NaN and a note says so (the dashboard's slider does this
+        while it moves). Ignored without ``dims``.
 
     Returns
     -------
@@ -478,7 +485,7 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
                      alternatives="Ask for the leading axes only with dims=..., or use a "
                                   "measure with a feature matrix (no n x n matrix needed).")
     total = d.total_ss()
-    spectrum = None                     # every eigenvalue, when known (for the notes)
+    known = None                        # every eigenvalue, when known (for the notes)
     if d.has_features:
         if correction is not None:
             notes.append(f"the {d.measure} measure is Euclidean (it has a feature matrix): "
@@ -487,19 +494,23 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None) -> Ordina
         prov["path"] = "features (SVD)"
         complete = True
     else:
-        values, vectors, total, spectrum = _gower_path(d, correction, dims, total, notes,
-                                                       prov)
+        values, vectors, total, known = _gower_path(d, correction, dims, total, notes,
+                                                    prov, check=spectrum)
         complete = dims is None
+    unchecked = (not d.has_features and known is None and not complete
+                 and correction is None and not d.properties.get("euclidean", False)
+                 and not spectrum)
     return pcoa_result(d, values, vectors, total, complete=complete, dims=dims,
                         correction=correction, notes=notes, provenance=prov,
-                        spectrum=spectrum)
+                        spectrum=known, unchecked=unchecked)
 
 
-def _gower_path(d, correction, dims, total, notes: list, prov: dict):
+def _gower_path(d, correction, dims, total, notes: list, prov: dict, *, check=True):
     """Eigenvalues, eigenvectors, total and known spectrum from the (corrected) Gower matrix."""
     n = d.n
     spectrum = None
-    if dims is not None and correction is None and 300 < n and dims < n - 1:
+    if (dims is not None and correction is None and 300 < n and dims < n - 1
+            and not d.has_gower):
         G, c = gower_operator(d), 0.0  # D^2 only: no centred n x n copy
     else:
         G, c = corrected_gower(d, correction)
@@ -521,10 +532,10 @@ def _gower_path(d, correction, dims, total, notes: list, prov: dict):
     if correction is None and not d.properties.get("euclidean", False):
         # the full spectrum when known or cheap (values only), so that the note
         # says the same share as every other note on this measure
-        known = d.spectrum(compute=n <= _SPECTRUM_FOR_NOTE)
+        known = d.spectrum(compute=check and n <= _SPECTRUM_FOR_NOTE)
         if known is not None:
             spectrum = np.asarray(known, float)
-        else:
+        elif check:
             lmin = smallest_eigenvalue(G, tol=1e-3)     # for a note: 3 digits
             if lmin < -ZERO_RTOL * max(values[0], 1e-300):
                 notes.append(
@@ -540,6 +551,15 @@ def _feature_path(F: np.ndarray, dims: int | None) -> tuple[np.ndarray, np.ndarr
     """Eigenvalues (S^2) and left singular vectors of the centred feature matrix."""
     Fc = F - F.mean(axis=0)
     n, q = Fc.shape
+    if dims is not None and dims < q <= n // 2:
+        # leading axes only, from the q x q cross-product: every eigenvalue (S^2) and the
+        # dims leading vectors U = Fc V / S, without the n x q U of a thin SVD
+        w, v = scipy.linalg.eigh(Fc.T @ Fc, check_finite=False)
+        w, v = np.maximum(w[::-1], 0.0), v[:, ::-1]
+        scale = max(float(w[0]), 1e-300)
+        k = min(dims, int(np.sum(w > 1e-12 * scale)))
+        u = (Fc @ v[:, :k]) / np.sqrt(w[:k])
+        return w, u
     check_memory(3 * n * min(n, q) * 8, f"the SVD of a {n} x {q} feature matrix")
     u, s, _ = scipy.linalg.svd(Fc, full_matrices=False, check_finite=False,
                                lapack_driver="gesdd")
@@ -550,7 +570,7 @@ def _feature_path(F: np.ndarray, dims: int | None) -> tuple[np.ndarray, np.ndarr
 
 
 def pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes,
-                 provenance, spectrum=None) -> Ordination:
+                 provenance, spectrum=None, unchecked=False) -> Ordination:
     n = d.n
     labels = labels_index(d.labels)
     scale = max(float(np.max(np.abs(values))) if values.size else 0.0, 1e-300)
@@ -566,6 +586,12 @@ def pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes,
     every = values if spectrum is None else spectrum
     neg = every[every < -tol]
     negative_share = float(-neg.sum() / total) if (neg.size and total > 0) else 0.0
+    if unchecked:
+        negative_share = float("nan")
+        notes = list(notes) + [
+            f"{setting_name(d.measure, d.provenance.get('transform'))!r} is not Euclidean "
+            "in general; whether negative eigenvalues hold part of the variation was not "
+            "checked (spectrum=False)."]
     if negative_share > 0:
         name = setting_name(d.measure, d.provenance.get("transform"))
         notes = list(notes) + [

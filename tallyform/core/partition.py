@@ -158,7 +158,7 @@ class SizeShapeResult(ResultMixin):
 def size_shape(table, measure: str = "bray_curtis", *, transform=None,
                size: str = "log_total", shape: str = "chi_square", shape_dims: int | None = None,
                n_permutations: int = 0, n_boot: int = 0, units=None, overdispersion=None,
-               chunks: int | None = None, rng=None, progress=None,
+               chunks: int | None = None, spectrum: bool = True, rng=None, progress=None,
                cancel=None) -> SizeShapeResult:
     """Partition the variation of a dissimilarity into size, shared, shape and residual.
 
@@ -202,6 +202,13 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
         without a feature matrix (those run in O(n p) memory anyway) and a shape measure
         with one (not ``'same_measure'``); ``n_permutations`` must be 0. The share of
         negative eigenvalues is not computed (NaN) unless the measure is Euclidean.
+    spectrum : bool, default True
+        Measure ``negative_share`` from every eigenvalue of G: an O(n^3) step that takes
+        most of the time past about a thousand samples. ``False`` skips it unless the
+        eigenvalues are already known or the measure is Euclidean (then 0):
+        ``negative_share`` is NaN and a note says it was not measured. The fractions do not
+        depend on it. (The dashboard's slider does this while it moves, and measures it
+        once the slider settles.)
     rng : None, int or numpy.random.Generator
         One seed gives the same test and intervals; the two use independent streams.
     progress, cancel : callables, optional
@@ -247,7 +254,7 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
     d = dissimilarity(table, measure, transform=transform, chunks=chunks)
     res = size_shape_from(table, d, measure=measure, transform=transform, size=size,
                            shape=shape, shape_dims=shape_dims, n_permutations=0, rng=None,
-                           progress=None, cancel=None)
+                           progress=None, cancel=None, spectrum=bool(spectrum))
     if chunks is not None:
         from dataclasses import replace
         res = replace(res, provenance=dict(res.provenance, chunks=chunks))
@@ -407,7 +414,8 @@ def _variation(d):
 
 
 def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
-                     n_permutations, rng, progress, cancel, shape_cache=None):
+                     n_permutations, rng, progress, cancel, shape_cache=None,
+                     spectrum: bool = True):
     """The partition of one choice (no inference: ``n_permutations`` must be 0)."""
     if n_permutations:
         raise ValueError("size_shape_from computes no tests; use size_shape.")
@@ -442,8 +450,18 @@ def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
     elif row["m_size"] == 0:
         notes.append("the size predictor lies in the span of the shape coordinates: size only "
                      "is 0 and all size-related variation is counted as shared.")
-    eig = var.eigenvalues()
-    if eig is None:                                # tiled: no whole spectrum
+    euclidean = bool(d.properties.get("euclidean"))
+    if euclidean or spectrum:
+        eig = None if euclidean else var.eigenvalues()
+    else:                                          # only when already known
+        eig = d.spectrum(compute=False) if hasattr(d, "spectrum") else None
+    if euclidean:                                  # embeddable: no negative eigenvalue
+        neg = 0.0
+    elif not spectrum and eig is None:
+        neg = float("nan")
+        notes.append("the share of the variation held by negative eigenvalues was not "
+                     "measured (spectrum=False); the fractions do not depend on it.")
+    elif eig is None:                              # tiled: no whole spectrum
         from .partition_tiled import negative_share_note
         neg, note = negative_share_note(d)
         notes.extend([note] if note else [])

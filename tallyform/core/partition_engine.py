@@ -123,13 +123,11 @@ class PartitionArrays:
         if d.has_features:
             kw["d_features"] = np.asarray(d.features, float)
         else:
-            sq = d.square(dtype=np.float64)
-            kw["d_sq"] = sq * sq
+            kw["d_sq"] = d.squared()
         if shape_d.has_features:
             kw["s_features"] = np.asarray(shape_d.features, float)
         else:
-            sq = shape_d.square(dtype=np.float64)
-            kw["s_sq"] = sq * sq
+            kw["s_sq"] = shape_d.squared()
         return cls(z=z, shape_dims=shape_dims, **kw)
 
     def _shape(self, idx):

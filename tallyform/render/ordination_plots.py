@@ -251,13 +251,17 @@ def _add_samples(fig: go.Figure, x, y, labels, g, s, plotted, levels, colours: d
                  sym_map: dict, sz: dict) -> None:
     """The samples as markers: one trace per group level (or one trace), hover per sample."""
     xa, ya = plotted
+    # plain arrays: a pandas lookup per sample costs more than the figure at 2000 samples
+    lab = [str(v) for v in labels]
+    gval = None if g is None else g.to_numpy(dtype=object)
+    sval = None if s is None else s.to_numpy(dtype=object)
 
     def hover(i: int) -> str:
-        bits = [f"<b>{labels[i]}</b>"]
-        if g is not None:
-            bits.append(f"{g.name}: {g.iloc[i]}")
-        if s is not None:
-            bits.append(f"{s.name}: {s.iloc[i]}")
+        bits = [f"<b>{lab[i]}</b>"]
+        if gval is not None:
+            bits.append(f"{g.name}: {gval[i]}")
+        if sval is not None:
+            bits.append(f"{s.name}: {sval[i]}")
         bits += [f"{xa}: {_fmt(x[i])}", f"{ya}: {_fmt(y[i])}"]
         return "<br>".join(bits)
 
@@ -268,7 +272,7 @@ def _add_samples(fig: go.Figure, x, y, labels, g, s, plotted, levels, colours: d
             x=x, y=y, mode="markers", name="samples", hovertext=[hover(i) for i in idx],
             hovertemplate="%{hovertext}<extra></extra>",
             marker={"color": "#333333", "size": sz["marker"], "line": marker_line,
-                    "symbol": [sym_map[s.iloc[i]] for i in idx] if s is not None
+                    "symbol": [sym_map[sval[i]] for i in idx] if s is not None
                     else "circle"}))
         return
     gv = g.astype(str).to_numpy()
@@ -280,7 +284,7 @@ def _add_samples(fig: go.Figure, x, y, labels, g, s, plotted, levels, colours: d
             x=x[idx], y=y[idx], mode="markers", name=lv, legendgroup=f"group:{lv}",
             hovertext=[hover(i) for i in idx], hovertemplate="%{hovertext}<extra></extra>",
             marker={"color": colours[lv], "size": sz["marker"], "line": marker_line,
-                    "symbol": [sym_map[s.iloc[i]] for i in idx] if s is not None
+                    "symbol": [sym_map[sval[i]] for i in idx] if s is not None
                     else "circle"},
             meta={"role": "samples", "group": lv}))
 

@@ -76,6 +76,25 @@ def subtitle(title: str | None, *lines: str) -> str | None:
     return f"{title or ''}{body}"
 
 
+# trace types our figures draw: the template keeps the white look's defaults for these only
+_TRACE_TYPES = ("bar", "box", "heatmap", "histogram", "scatter")
+_TEMPLATE = None
+
+
+def _template():
+    """The white look (plotly's "plotly_white" layout and the defaults of the trace types we
+    draw), built once: a template of every trace type costs several times more to apply and
+    compare, on every redraw of a live figure."""
+    global _TEMPLATE
+    if _TEMPLATE is None:
+        import plotly.graph_objects as go
+        import plotly.io as pio
+        white = pio.templates["plotly_white"].to_plotly_json()
+        data = {k: v for k, v in white.get("data", {}).items() if k in _TRACE_TYPES}
+        _TEMPLATE = go.layout.Template(layout=white["layout"], data=data)
+    return _TEMPLATE
+
+
 def base_layout(fig, *, title: str | None = None, legend_title: str | None = None,
                 font_size: int | None = None, height: int | None = None,
                 present: bool = False):
@@ -90,7 +109,7 @@ def base_layout(fig, *, title: str | None = None, legend_title: str | None = Non
     line = round(1.35 * (font_size + 4))       # plotly spaces every title line alike
     top = font_size + 6 + line * n_title_lines + 8 if title else 40
     fig.update_layout(
-        template="plotly_white",
+        template=_template(),
         font={"size": font_size, "family": "Arial, Helvetica, sans-serif", "color": "#222222"},
         title={"text": title, "font": {"size": font_size + 4}, "x": 0.01, "xanchor": "left",
                "y": 1.0, "yref": "container", "yanchor": "top",

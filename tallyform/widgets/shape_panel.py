@@ -37,7 +37,7 @@ from .common import (TABLE, Call, MessageArea, NotesArea, Ref, copy_figure, erro
                      given, new_figure_widget, plots, transform_code)
 
 __all__ = ["ShapePanel", "LIVE_BUDGET", "POWER", "group_options", "INTERVAL_CHOICES",
-           "SETTLE_DELAY"]
+           "SETTLE_DELAY", "SPECTRUM_LIVE_MAX"]
 
 LIVE_BUDGET = 0.15        # seconds of compute under which the slider updates while dragged
 POWER = "power"           # the transform choice read from the exponent slider
@@ -51,6 +51,9 @@ ELLIPSE_KINDS = ("confidence", "prediction", "data")      # quick enough for the
 ELLIPSE_LEVEL = 0.95
 INTERVAL_CHOICES = (0, 199, 999)   # resamples of the share intervals (0: none)
 SETTLE_DELAY = 0.5                 # seconds of quiet before the intervals start
+# past this many samples the live partition skips the O(n^3) eigenvalues behind its
+# negative-eigenvalue note (size_shape(spectrum=False)); the settled call measures them
+SPECTRUM_LIVE_MAX = 300
 PARTITION_WIDTH = 370             # px: side by side on a 970 px screen (754 px of
                                    # notebook with the side bar closed), wrapped below
 ORDINATION_WIDTH = 380
@@ -118,7 +121,14 @@ class ShapePanel(widgets.VBox):
         The partition shown (None after an error).
     intervals_result : SizeShapeResult or None
         The same partition with ``fractions_ci``, once the background run for the current
-        settings has finished (None before, and when intervals are off).
+        settings has finished (None before, and when intervals are off). Past
+        ``SPECTRUM_LIVE_MAX`` samples the live partition skips the negative-eigenvalue
+        share (``spectrum=False``); the background run then measures it, intervals or not,
+        and this holds that settled result.
+    settled_ordination : Ordination or None
+        Past ``SPECTRUM_LIVE_MAX`` samples: the ordination of the current settings with its
+        negative-eigenvalue check, from the background run (its notes replace the live
+        ones; the scores are the same).
     interval_state : HTML
         "intervals: computing", what was drawn, or why there are none.
     ordination, ellipse_set : Ordination, EllipseSet or None
@@ -152,6 +162,8 @@ class ShapePanel(widgets.VBox):
         self._shown_scores = None
         self.intervals_result = None
         self._intervals_done: tuple | None = None    # (call code, result, error), last
+        self._settled_o: tuple | None = None         # (call code, ordination), last
+        self.settled_ordination = None
         self._intervals_code: str | None = None      # the call in the background now
         self._runner = SettledRunner(SETTLE_DELAY)
         self.error: BaseException | None = None
@@ -256,19 +268,27 @@ class ShapePanel(widgets.VBox):
         """The core calls for the current control values (nothing is run)."""
         tab = Ref(TABLE, self._table)
         measure, tr = self.measure.value, self.transform_value()
+        defer = self._table.n_samples > SPECTRUM_LIVE_MAX
         calls = {
             "partition": Call("size_shape", (tab, measure), given(
                 transform=tr, size=self.size.value, shape=self.shape.value,
-                shape_dims=self.shape_dims.value or None)),
+                shape_dims=self.shape_dims.value or None, spectrum=False if defer else None)),
             "ordination": Call("pcoa", (Call("dissimilarity", (tab, measure),
-                                             given(transform=tr)),), {"dims": 2}),
+                                             given(transform=tr)),),
+                               {"dims": 2, **({"spectrum": False} if defer else {})}),
         }
+        if defer:                    # the ordination's own check, once the controls rest
+            calls["ordination_settled"] = Call("pcoa", calls["ordination"].args, {"dims": 2})
         if int(self.intervals.value):
             units = self.units.value or None
             calls["intervals"] = Call("size_shape", (tab, measure), given(
                 transform=tr, size=self.size.value, shape=self.shape.value,
                 shape_dims=self.shape_dims.value or None, n_boot=int(self.intervals.value),
                 units=units, rng=int(self.seed.value)))
+        elif defer:                  # no intervals: the settled call measures the spectrum
+            calls["settled"] = Call("size_shape", (tab, measure), given(
+                transform=tr, size=self.size.value, shape=self.shape.value,
+                shape_dims=self.shape_dims.value or None))
         if self.group.value:
             calls["group"] = Call("group", (self.group.value,), obj=tab)
             if self.ellipses.value:
@@ -344,7 +364,8 @@ class ShapePanel(widgets.VBox):
         """Run the calls whose arguments changed, then redraw from the results; the
         intervals follow in the background once the controls settle."""
         calls = self.build_calls()
-        code = calls["intervals"].code() if "intervals" in calls else None
+        background = calls.get("intervals") or calls.get("settled")
+        code = background.code() if background is not None else None
         if code != self._intervals_code:     # a result for other settings is dropped
             self._runner.cancel()
             self._intervals_code = None
@@ -379,6 +400,9 @@ class ShapePanel(widgets.VBox):
         with self._runner.hold():            # no interval result lands while we draw
             ready, failed = self._ready_intervals(code)
             self.intervals_result = ready
+            self.settled_ordination = (self._settled_o[1] if ready is not None
+                                       and self._settled_o and self._settled_o[0] == code
+                                       else None)
             try:
                 p = plots()
                 if self.result is not None:
@@ -400,14 +424,16 @@ class ShapePanel(widgets.VBox):
             elif ready is not None or failed is not None:
                 self._say_intervals(ready, failed)
             elif self._intervals_code != code:
-                self._start_intervals(calls["intervals"], code)
+                self._start_intervals(background, code)
         self.revision += 1
 
     def _show_notes(self) -> None:
         if self.error is None:
-            self.notes.show(list(self.result.notes)
-                            + list(getattr(self.intervals_result, "notes", ()))
-                            + list(self.shown_ordination.notes)
+            # the settled result (same settings) holds the live one's notes, measured
+            settled = self.intervals_result
+            o = self.settled_ordination or self.shown_ordination
+            self.notes.show(list(self.result.notes if settled is None else settled.notes)
+                            + list(o.notes)
                             + list(getattr(self.ellipse_set, "notes", ())))
 
     def _attempt(self, name: str, calls: dict, plot, *, key_extra: str = ""):
@@ -439,12 +465,19 @@ class ShapePanel(widgets.VBox):
         return (result, err) if done == code else (None, None)
 
     def _start_intervals(self, call: Call, code: str) -> None:
-        self.interval_state.value = _state_html("intervals: computing")
+        what = "intervals" if "n_boot" in call.kwargs else "eigenvalues"
+        self.interval_state.value = _state_html(f"{what}: computing")
         self._intervals_code = code
         core = self._core
+        ocall = self.calls.get("ordination_settled") if self.calls else None
+
+        def job(progress, cancel):
+            result = call.run(core, progress=progress, cancel=cancel)
+            # the eigenvalues are now known: the ordination's check costs no more
+            return result, (ocall.run(core) if ocall is not None else None)
         self._runner.request(
-            lambda progress, cancel: call.run(core, progress=progress, cancel=cancel),
-            lambda result, err: self._intervals_finished(code, result, err),
+            job, lambda out, err: self._intervals_finished(
+                code, *(out if err is None else (None, None)), err),
             on_progress=self._intervals_progress)
 
     def _intervals_progress(self, done: int, total: int) -> None:
@@ -452,9 +485,11 @@ class ShapePanel(widgets.VBox):
             self.interval_state.value = _state_html(
                 f"intervals: computing ({int(done)} of {int(total)} resamples)")
 
-    def _intervals_finished(self, code: str, result, err) -> None:
+    def _intervals_finished(self, code: str, result, settled_ordination, err) -> None:
         """Background thread, for the latest settings only (the runner drops the rest)."""
         self._intervals_code = None
+        self._settled_o = (code, settled_ordination)
+        self.settled_ordination = settled_ordination if err is None else None
         if err is None:
             try:
                 fig = plots().partition_bars(result, present=self._present)
@@ -474,6 +509,9 @@ class ShapePanel(widgets.VBox):
                                                     warn=True)
             return
         prov = result.provenance
+        if not prov.get("n_boot"):           # the settled call: no intervals to name
+            self.interval_state.value = ""
+            return
         how = f"{prov.get('n_boot')} resamples" + (
             f" leaving out whole units of {prov['units']!r}" if prov.get("units") else "")
         self.interval_state.value = _state_html(f"intervals: {how}")

@@ -4,8 +4,9 @@ Past what one machine holds (float64 distances need 8 n^2 bytes: 3.2 GB at 20 00
 80 GB at 100 000), :func:`tallyform.dissimilarity` with ``chunks=N`` splits the samples
 into blocks of N rows and computes every tile D[I, J] (I <= J) as one task from the two row
 blocks, with the measure's own compiled kernel (the kernel runs on the rows of both blocks
-and the cross part is kept). The tiles are persisted where they were computed: on the
-workers of the active ``dask.distributed`` client, or in this process's memory (local
+and the cross part is kept). The tiles are persisted on the workers of the active
+``dask.distributed`` client, spread evenly (tile k on worker k mod W, a loose placement:
+a tile whose worker died is recomputed on another), or in this process's memory (local
 threads) when no client is active. The full matrix is never gathered. float64 tiles hold
 D^2 (what every product needs; squared once), float32 tiles hold D (squared in float64 at
 every use, as the in-memory path squares its float32 distances).

@@ -76,8 +76,11 @@ def subtitle(title: str | None, *lines: str) -> str | None:
     return f"{title or ''}{body}"
 
 
-# trace types our figures draw: the template keeps the white look's defaults for these only
-_TRACE_TYPES = ("bar", "box", "heatmap", "histogram", "scatter")
+# trace types whose white-look defaults we keep (scatter has none that we draw)
+_TRACE_TYPES = ("bar", "box", "heatmap", "histogram")
+# parts of the white layout no figure of ours uses (maps, polar and 3-D axes; every
+# heatmap names its own colour scale)
+_UNUSED_LAYOUT = ("geo", "polar", "scene", "ternary", "colorscale")
 _TEMPLATE = None
 
 
@@ -90,8 +93,10 @@ def _template():
         import plotly.graph_objects as go
         import plotly.io as pio
         white = pio.templates["plotly_white"].to_plotly_json()
-        data = {k: v for k, v in white.get("data", {}).items() if k in _TRACE_TYPES}
-        _TEMPLATE = go.layout.Template(layout=white["layout"], data=data)
+        layout = {k: v for k, v in white["layout"].items() if k not in _UNUSED_LAYOUT}
+        data = {k: [{x: y for x, y in t.items() if x != "colorscale"} for t in v]
+                for k, v in white.get("data", {}).items() if k in _TRACE_TYPES}
+        _TEMPLATE = go.layout.Template(layout=layout, data=data)
     return _TEMPLATE
 
 

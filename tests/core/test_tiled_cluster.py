@@ -20,8 +20,9 @@ distributed = pytest.importorskip("distributed")
 import tallyform as tly  # noqa: E402
 
 N = 9000                      # the float64 matrix needs 8 N^2 = 648 MB
-LIMIT = 620_000_000           # per worker: less than that (each holds about a quarter of it,
-                              # beside some 220 MB of Python, numpy, pandas, numba, dask)
+LIMIT = 640_000_000           # per worker: less than that (each holds 10 or 11 of the 21
+                              # tiles, about 200 MB, beside some 280 MB of Python, numpy,
+                              # pandas, numba, dask and tallyform: 490 MB measured at most)
 
 
 @pytest.fixture(scope="module")

@@ -205,21 +205,8 @@ class Dissimilarity:
         n = self.n
         check_memory(n ** 2 * dt.itemsize, f"a {n} x {n} distance matrix",
                      alternatives="Use the condensed vector, or dtype='float32'.")
-        c = self.condensed
-        a = np.empty((n, n), dtype=dt)
-        pos = 0
-        for i in range(n):
-            a[i, i] = 0
-            a[i, i + 1:] = c[pos:pos + n - 1 - i]
-            pos += n - 1 - i
-        block = 512
-        for i0 in range(0, n, block):                 # lower triangle from the upper one
-            i1 = min(i0 + block, n)
-            a[i0:i1, :i0] = a[:i0, i0:i1].T
-            sub = a[i0:i1, i0:i1]
-            low = np.tril_indices(i1 - i0, -1)
-            sub[low] = sub.T[low]
-        return a
+        from .kernels import fill_square
+        return fill_square(self.condensed, np.empty((n, n), dtype=dt))
 
     def squared(self) -> np.ndarray:
         """The full n x n matrix of squared dissimilarities D^2, float64 (a new array)."""

@@ -25,7 +25,7 @@ import numpy as np
 __all__ = ["euclidean_condensed", "sqeuclidean_condensed", "abs_condensed",
            "kulczynski_condensed",
            "canberra_condensed", "jensen_shannon_condensed", "use_numba", "numba_enabled",
-           "squared_square", "gower_centre",
+           "squared_square", "gower_centre", "fill_square",
            "RAW", "RATIO", "RUZICKA", "KULCZYNSKI", "SQRT", "SCALE", "SPARSE_DENSITY"]
 
 # post-processing modes for the per-pair sums (same values as in _numba_kernels)
@@ -360,11 +360,22 @@ def squared_square(c: np.ndarray, n: int) -> np.ndarray:
     if nb_mod is not None:
         with _LOCK:
             return nb_mod.squared_square(np.ascontiguousarray(c), out)
+    return fill_square(c, out, squared=True)
+
+
+def fill_square(c: np.ndarray, out: np.ndarray, *, squared: bool = False) -> np.ndarray:
+    """Write the symmetric matrix of a condensed vector into ``out`` (n x n), its values
+    squared in float64 when ``squared``; row by row, so no converted copy of ``c`` is made
+    (float32 distances into a float64 matrix)."""
+    n = out.shape[0]
     pos = 0
-    for i in range(n):                     # row by row: no float64 copy of c is made
-        out[i, i] = 0.0
-        row = np.asarray(c[pos:pos + n - 1 - i], dtype=np.float64)
-        out[i, i + 1:] = row * row
+    for i in range(n):
+        out[i, i] = 0
+        row = c[pos:pos + n - 1 - i]
+        if squared:
+            row = np.asarray(row, dtype=np.float64)
+            row = row * row
+        out[i, i + 1:] = row
         pos += n - 1 - i
     block = 512
     for i0 in range(0, n, block):           # lower triangle from the upper one

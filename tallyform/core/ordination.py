@@ -100,7 +100,9 @@ class Ordination(ResultMixin):
         Number of constrained eigenvalues at the start of ``eigenvalues``.
     negative_share : float
         Sum of the magnitudes of negative eigenvalues divided by the total (0 when none):
-        the positive axes together then hold ``1 + negative_share`` of the total.
+        the positive axes together then hold ``1 + negative_share`` of the total. NaN when
+        it was not measured: leading axes only (``dims``) past 300 samples with a negative
+        smallest eigenvalue, or ``spectrum=False``; a note says which.
     eigenvalues_complete : bool
         False when only the leading eigenvalues were computed (``dims=``).
     stress, stress_reading, shepard, starts
@@ -544,6 +546,7 @@ def _gower_path(d, correction, dims, total, notes: list, prov: dict, *, check=Tr
                     f"{100 * -lmin / values[0]:.2g} % of the largest); with only "
                     f"the {dims} leading axes computed, the share of the variation "
                     "held by negative eigenvalues was not measured.")
+                prov["negative_share_measured"] = False      # NaN, not 0: it is not known
     return values, vectors, total, spectrum
 
 
@@ -586,6 +589,8 @@ def pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes,
     every = values if spectrum is None else spectrum
     neg = every[every < -tol]
     negative_share = float(-neg.sum() / total) if (neg.size and total > 0) else 0.0
+    if provenance.get("negative_share_measured") is False:
+        negative_share = float("nan")          # negative, by the smallest eigenvalue
     if unchecked:
         negative_share = float("nan")
         notes = list(notes) + [

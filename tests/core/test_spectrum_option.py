@@ -58,7 +58,7 @@ def test_pcoa_leading_axes_without_spectrum(n):
     np.testing.assert_allclose(fast.scores.to_numpy(), full.scores.to_numpy(), atol=1e-10)
     np.testing.assert_allclose(fast.eigenvalues.to_numpy(), full.eigenvalues.to_numpy(),
                                rtol=1e-12)
-    assert not np.isnan(full.negative_share)
+    assert np.isnan(full.negative_share) == (n > 300)   # past 300: not measured
     # a Euclidean measure needs no check: share 0 either way
     e = tly.pcoa(tly.dissimilarity(tab, "hellinger"), dims=2, spectrum=False)
     assert e.negative_share == 0.0
@@ -77,3 +77,18 @@ def test_feature_path_leading_axes_equal_the_thin_svd():
                                atol=1e-12 * s[0] ** 2)
     np.testing.assert_allclose(np.abs(o.scores.to_numpy()), np.abs(u[:, :3] * s[:3]),
                                atol=1e-10)
+
+
+def test_leading_axes_past_300_samples_report_an_unmeasured_share_as_nan():
+    # the smallest eigenvalue shows the measure is not Euclidean here, but with only the
+    # leading axes the share itself is unknown: NaN (not 0) beside the note
+    tab = _table(n=320, seed=2)
+    clear_cache()
+    d = tly.dissimilarity(tab, "bray_curtis")
+    o = tly.pcoa(d, dims=2)
+    assert np.isnan(o.negative_share)
+    assert any("was not measured" in note for note in o.notes)
+    full = tly.pcoa(d).negative_share                  # every eigenvalue: measured
+    assert full > 0
+    d.spectrum()                                       # every eigenvalue, cached on d
+    assert tly.pcoa(d, dims=2).negative_share == pytest.approx(full, rel=1e-9)

@@ -69,7 +69,8 @@ def reproduce_code(dashboard, spec=None) -> str:
     # (past a few hundred samples the live call skips the eigenvalues; the settled one
     # is the call that reproduces the screen once the controls rest)
     first = next(k for k in ("intervals", "settled", "partition") if k in calls)
-    for key in (first, "ordination", "ellipses"):
+    ordination = "ordination_settled" if "ordination_settled" in calls else "ordination"
+    for key in (first, ordination, "ellipses"):
         if key in calls:
             lines.append(f"{_NAMES[calls[key].func]} = {calls[key].code()}")
     group = f", group={calls['group'].code()}" if "group" in calls else ""

@@ -52,3 +52,12 @@ def test_with_intervals_the_interval_run_measures_it(tmp_path):
     direct = tly.size_shape(tab, "bray_curtis", progress=False)
     assert panel.intervals_result.negative_share == direct.negative_share
     assert not any("spectrum=False" in n for n in panel.notes.items)
+
+
+def test_reproduce_code_gives_the_settled_calls():
+    from tallyform.widgets.report_panel import reproduce_code
+    dash = tly.explore(_big_table(seed=11))
+    dash.shape.intervals.value = 0
+    code = reproduce_code(dash)
+    assert "spectrum=False" not in code               # what the screen shows once at rest
+    assert "s = tly.size_shape(tab, " in code and "o = tly.pcoa(" in code

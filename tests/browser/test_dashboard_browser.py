@@ -121,6 +121,13 @@ def choose(p, select: str, label: str) -> None:
     p.page.locator(select).select_option(index=index)
 
 
+def enter(p, selector: str, value: str) -> None:
+    """Type a value into a text field and press Enter (what commits it in the widget)."""
+    field = p.page.locator(selector)
+    field.fill(value)
+    field.press("Enter")
+
+
 def open_notebook(p, lab, name: str) -> None:
     """Open a notebook of the served copy and wait for its kernel to be connected and idle
     (the toolbar's indicator flips too early to rely on)."""
@@ -297,15 +304,13 @@ def test_tests_panel_progress_results_and_cancel(quickstart):
     panel = f"{DASH} .tf-panel-tests"
     run = p.page.locator(f"{panel} .tf-run-button")
     cancel = p.page.locator(f"{panel} .tf-cancel-button")
-    perms = p.page.locator(f"{panel} .tf-permutations input")
     state = p.page.locator(f"{panel} .tf-run-state")
     bar = f"{panel} .tf-progress .progress-bar"
 
     # no blocks (the default follows the design's complete blocks, whose few relabellings
     # would be enumerated at once): a long run, the bar moves, Cancel stops it
     choose(p, f"{panel} .tf-blocks select", "(none)")
-    perms.fill("999999")
-    perms.press("Enter")
+    enter(p, f"{panel} .tf-permutations input", "999999")
     run.click()
     p.page.wait_for_function(
         "(sel) => parseFloat(document.querySelector(sel).style.width) >= 1", arg=bar)
@@ -329,8 +334,7 @@ def test_tests_panel_progress_results_and_cancel(quickstart):
     p.shot("4b_tests_cancelled")
 
     # the panel is still usable: a short run completes with its table
-    perms.fill("199")
-    perms.press("Enter")
+    enter(p, f"{panel} .tf-permutations input", "199")
     run.click()
     p.page.locator(f"{panel} .tf-test-results table").first.wait_for(state="visible")
     p.page.wait_for_function("(sel) => document.querySelector(sel).textContent.startsWith('done')",
@@ -414,12 +418,8 @@ def test_units_chosen_in_the_tests_panel_reach_the_tests(quickstart):
     assert p.page.evaluate(SELECTED, select) == detected      # the core's detection
     expect(p.page.locator(f"{panel} .tf-blocks-help")).to_contain_text(
         "Blocks only restrict the permutations")
-    perms = p.page.locator(f"{panel} .tf-permutations input")
-    perms.fill("199")
-    perms.press("Enter")
-    seed = p.page.locator(f"{panel} .tf-seed input")
-    seed.fill("7")
-    seed.press("Enter")
+    enter(p, f"{panel} .tf-permutations input", "199")
+    enter(p, f"{panel} .tf-seed input", "7")
     choose(p, f"{panel} .tf-blocks select", "(none)")     # compared with calls without blocks
 
     # samples as independent replicates (60 samples)
@@ -456,12 +456,8 @@ def test_tests_panel_adjusts_for_the_two_choices_tried(quickstart):
     p.page.locator(select).wait_for(state="visible")
     choose(p, select, "tank: 15 units, 4 samples each (detected)")
     choose(p, f"{panel} .tf-blocks select", "(none)")     # compared with a call without blocks
-    perms = p.page.locator(f"{panel} .tf-permutations input")
-    perms.fill("199")
-    perms.press("Enter")
-    seed = p.page.locator(f"{panel} .tf-seed input")
-    seed.fill("3")
-    seed.press("Enter")
+    enter(p, f"{panel} .tf-permutations input", "199")
+    enter(p, f"{panel} .tf-seed input", "3")
     _kernel_has(p, "whole units of 'tank'", "3")
     # a new question: the choices shown by the tests before are forgotten
     p.page.locator(f"{panel} .tf-clear-choices").click()

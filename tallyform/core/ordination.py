@@ -499,12 +499,9 @@ def pcoa(d, *, correction: str | None = None, dims: int | None = None,
         values, vectors, total, known = _gower_path(d, correction, dims, total, notes,
                                                     prov, check=spectrum)
         complete = dims is None
-    unchecked = (not d.has_features and known is None and not complete
-                 and correction is None and not d.properties.get("euclidean", False)
-                 and not spectrum)
     return pcoa_result(d, values, vectors, total, complete=complete, dims=dims,
                         correction=correction, notes=notes, provenance=prov,
-                        spectrum=known, unchecked=unchecked)
+                        spectrum=known)
 
 
 def _gower_path(d, correction, dims, total, notes: list, prov: dict, *, check=True):
@@ -547,6 +544,12 @@ def _gower_path(d, correction, dims, total, notes: list, prov: dict, *, check=Tr
                     f"the {dims} leading axes computed, the share of the variation "
                     "held by negative eigenvalues was not measured.")
                 prov["negative_share_measured"] = False      # NaN, not 0: it is not known
+        else:
+            notes.append(
+                f"{setting_name(d.measure, d.provenance.get('transform'))!r} is not "
+                "Euclidean in general; whether negative eigenvalues hold part of the "
+                "variation was not checked (spectrum=False).")
+            prov["negative_share_measured"] = False
     return values, vectors, total, spectrum
 
 
@@ -573,7 +576,7 @@ def _feature_path(F: np.ndarray, dims: int | None) -> tuple[np.ndarray, np.ndarr
 
 
 def pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes,
-                 provenance, spectrum=None, unchecked=False) -> Ordination:
+                 provenance, spectrum=None) -> Ordination:
     n = d.n
     labels = labels_index(d.labels)
     scale = max(float(np.max(np.abs(values))) if values.size else 0.0, 1e-300)
@@ -590,13 +593,7 @@ def pcoa_result(d, values, vectors, total, *, complete, dims, correction, notes,
     neg = every[every < -tol]
     negative_share = float(-neg.sum() / total) if (neg.size and total > 0) else 0.0
     if provenance.get("negative_share_measured") is False:
-        negative_share = float("nan")          # negative, by the smallest eigenvalue
-    if unchecked:
-        negative_share = float("nan")
-        notes = list(notes) + [
-            f"{setting_name(d.measure, d.provenance.get('transform'))!r} is not Euclidean "
-            "in general; whether negative eigenvalues hold part of the variation was not "
-            "checked (spectrum=False)."]
+        negative_share = float("nan")          # not measured: the notes say why
     if negative_share > 0:
         name = setting_name(d.measure, d.provenance.get("transform"))
         notes = list(notes) + [

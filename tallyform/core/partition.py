@@ -454,7 +454,7 @@ def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
     if euclidean or spectrum:
         eig = None if euclidean else var.eigenvalues()
     else:                                          # only when already known
-        eig = d.spectrum(compute=False) if hasattr(d, "spectrum") else None
+        eig = d.spectrum(compute=False)
     if euclidean:                                  # embeddable: no negative eigenvalue
         neg = 0.0
     elif not spectrum and eig is None:

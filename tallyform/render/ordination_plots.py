@@ -56,8 +56,11 @@ def _labels_for(values, labels: pd.Index, what: str) -> pd.Series | None:
                          f"table.samples[{values!r}]), not a column name.")
     if isinstance(values, pd.Series):
         s = values.copy()
-        s.index = [str(x) for x in s.index]
-        missing = [x for x in labels if x not in s.index]
+        # plain lists: iterating a pandas index costs a lookup per element
+        s.index = [str(x) for x in s.index.tolist()]
+        have = set(s.index)
+        wanted = labels.tolist()
+        missing = [x for x in wanted if x not in have]
         if missing:
             if len(s) == len(labels) and not set(s.index) & set(labels):
                 s = pd.Series(values.to_numpy(), index=labels, name=values.name)
@@ -65,7 +68,7 @@ def _labels_for(values, labels: pd.Index, what: str) -> pd.Series | None:
                 raise DesignError(f"`{what}` has no value for sample(s) {missing[:8]}; give a "
                                   "Series indexed by sample label (or one value per sample, "
                                   "in order).")
-        out = s.loc[list(labels)]
+        out = s.loc[wanted]
         name = values.name if values.name is not None else what
     else:
         arr = np.asarray(values, dtype=object).ravel()
@@ -88,6 +91,12 @@ def _levels(s: pd.Series) -> list[str]:
                           else s)
     levels = [lv for lv in levels if lv != MISSING]
     return levels + ([MISSING] if (s.astype(str) == MISSING).any() else [])
+
+
+def texts(strings: list[str]) -> np.ndarray:
+    """Per-point strings as one numpy array: plotly checks a list element by element (most
+    of the cost of a figure of 2 000 samples), an array at once."""
+    return np.array(strings, dtype=str)
 
 
 def _fmt(v: float) -> str:
@@ -180,7 +189,7 @@ def ordination_figure(ordination, *, group=None, symbol=None, ellipses=None, axe
     if xa == ya:
         raise InputError(f"`axes` must name two different axes; got {axes!r}.")
     scores = o.scores
-    labels = pd.Index([str(x) for x in scores.index])
+    labels = pd.Index([str(x) for x in scores.index.tolist()])
     x = scores[xa].to_numpy(dtype=float)
     y = scores[ya].to_numpy(dtype=float)
     g = _labels_for(group, labels, "group")
@@ -218,13 +227,13 @@ def _frame(fig: go.Figure, o: Ordination, ellipses, plotted, *, title, legend_ti
     """Title and lines under it, legend, and equal scales on the two plotted axes."""
     xa, ya = plotted
     default_title, lines = _title_lines(o, ellipses)
+    zero = {"zeroline": True, "zerolinecolor": "#BBBBBB", "zerolinewidth": 1}
     base_layout(fig, title=subtitle(title or default_title, *lines), legend_title=legend_title,
-                present=present, height=680 if present else 620)
-    fig.update_layout(legend={"groupclick": "togglegroup", "tracegroupgap": 4})
-    fig.update_xaxes(title_text=o.axis_label(xa), zeroline=True, zerolinecolor="#BBBBBB",
-                     zerolinewidth=1)
-    fig.update_yaxes(title_text=o.axis_label(ya), zeroline=True, zerolinecolor="#BBBBBB",
-                     zerolinewidth=1, scaleanchor="x", scaleratio=1)
+                present=present, height=680 if present else 620, extra={
+                    "legend": {"groupclick": "togglegroup", "tracegroupgap": 4},
+                    "xaxis": {"title": {"text": o.axis_label(xa)}, **zero},
+                    "yaxis": {"title": {"text": o.axis_label(ya)}, **zero,
+                              "scaleanchor": "x", "scaleratio": 1}})
 
 
 def _shown_levels(g, ellipses, xa: str, ya: str) -> list:
@@ -252,7 +261,7 @@ def _add_samples(fig: go.Figure, x, y, labels, g, s, plotted, levels, colours: d
     """The samples as markers: one trace per group level (or one trace), hover per sample."""
     xa, ya = plotted
     # plain arrays: a pandas lookup per sample costs more than the figure at 2000 samples
-    lab = [str(v) for v in labels]
+    lab = labels.tolist()
     gval = None if g is None else g.to_numpy(dtype=object)
     sval = None if s is None else s.to_numpy(dtype=object)
 
@@ -269,7 +278,7 @@ def _add_samples(fig: go.Figure, x, y, labels, g, s, plotted, levels, colours: d
     if g is None:
         idx = np.arange(len(labels))
         fig.add_trace(go.Scatter(
-            x=x, y=y, mode="markers", name="samples", hovertext=[hover(i) for i in idx],
+            x=x, y=y, mode="markers", name="samples", hovertext=texts([hover(i) for i in idx]),
             hovertemplate="%{hovertext}<extra></extra>",
             marker={"color": "#333333", "size": sz["marker"], "line": marker_line,
                     "symbol": [sym_map[sval[i]] for i in idx] if s is not None
@@ -282,7 +291,8 @@ def _add_samples(fig: go.Figure, x, y, labels, g, s, plotted, levels, colours: d
             continue
         fig.add_trace(go.Scatter(
             x=x[idx], y=y[idx], mode="markers", name=lv, legendgroup=f"group:{lv}",
-            hovertext=[hover(i) for i in idx], hovertemplate="%{hovertext}<extra></extra>",
+            hovertext=texts([hover(i) for i in idx]),
+            hovertemplate="%{hovertext}<extra></extra>",
             marker={"color": colours[lv], "size": sz["marker"], "line": marker_line,
                     "symbol": [sym_map[sval[i]] for i in idx] if s is not None
                     else "circle"},

@@ -14,7 +14,8 @@ from ..core.display import p_words
 from ..core.errors import InputError
 from ..core.partition import FRACTIONS, SizeShapeResult
 from ..core.scan import ScanResult
-from .style import FRACTION_COLOURS, FRACTION_LABELS, NEUTRAL, base_layout, sizes, subtitle
+from .style import (FRACTION_COLOURS, FRACTION_LABELS, NEUTRAL, base_layout, merged, sizes,
+                    subtitle, vertical_line)
 
 NEGATIVE_BLUE = "#3B6FB6"
 
@@ -200,33 +201,39 @@ def partition_bars(results, *, title: str | None = None, present: bool = False) 
         fig = go.Figure()
     for f in FRACTIONS:
         _add_fraction(fig, rows, labels, f, with_ci, sz)
-    low = _label_negatives(fig, rows, labels, sz)
+    notes = _negative_labels(rows, labels, sz)
+    low = min([0.0] + [sum(float(v) for v in r["fractions"].values()
+                           if np.isfinite(v) and v < 0) for r in rows])
     highs = [sum(float(v) for v in r["fractions"].values() if np.isfinite(v) and v > 0)
              for r in rows]
     high = max([1.0] + highs)
-    left = min(0.0, low) - (0.12 if any(a.name == "negative fraction"
-                                         for a in fig.layout.annotations) else 0.0)
-    fig.add_vline(x=0, line={"color": "#222222", "width": 2})
+    left = min(0.0, low) - (0.12 if notes else 0.0)
     default_title, lines = describe_choice(results)
     lines.append("shares of the dissimilarity's variation (adjusted R<sup>2</sup>); "
                  "they sum to 100 %"
                  + ("; right: each share with its 95 % interval" if with_ci else ""))
-    base_layout(fig, title=subtitle(title or default_title, *lines), legend_title="fraction",
-                present=present, height=max(360, 260 + (70 if present else 56) * len(rows)))
-    # legend under the axis title, anchored to the figure so it never meets the title
-    fig.update_layout(barmode="relative", bargap=0.3,
-                      uniformtext={"minsize": sz["small"], "mode": "hide"},
-                      legend={"orientation": "h", "yref": "container", "y": 0.0,
-                              "yanchor": "bottom", "xanchor": "left", "x": 0.0,
-                              "traceorder": "normal"},
-                      margin={"b": 70 + 2 * sz["font"] + (20 if len(rows) == 1 else 0)})
-    fig.update_xaxes(title_text="share of the variation (%)", tickformat=".0%",
-                     range=[left, high + 0.02], zeroline=False, gridcolor="#E5E5E5",
-                     **({"row": 1, "col": 1} if with_ci else {}))
-    fig.update_yaxes(autorange="reversed", tickmode="array", tickvals=labels,
-                     ticktext=ticks, title_text=None)
+    zero = {"color": "#222222", "width": 2}
+    y_axis = {"autorange": "reversed", "tickmode": "array", "tickvals": labels,
+              "ticktext": ticks, "title": {"text": None}}
+    extra = {
+        "barmode": "relative", "bargap": 0.3,
+        "uniformtext": {"minsize": sz["small"], "mode": "hide"},
+        # legend under the axis title, anchored to the figure so it never meets the title
+        "legend": {"orientation": "h", "yref": "container", "y": 0.0, "yanchor": "bottom",
+                   "xanchor": "left", "x": 0.0, "traceorder": "normal"},
+        "margin": {"b": 70 + 2 * sz["font"] + (20 if len(rows) == 1 else 0)},
+        "xaxis": {"title": {"text": "share of the variation (%)"}, "tickformat": ".0%",
+                  "range": [left, high + 0.02], "zeroline": False, "gridcolor": "#E5E5E5"},
+        "yaxis": y_axis,
+        "annotations": list(fig.layout.annotations) + notes,
+        "shapes": [vertical_line(0, zero)],
+    }
     if with_ci:
-        _interval_axes(fig, rows)
+        extra["shapes"].append(vertical_line(0, zero, xref="x2", yref="y2"))
+        extra.update(_interval_axes(rows, y_axis))
+    base_layout(fig, title=subtitle(title or default_title, *lines), legend_title="fraction",
+                present=present, height=max(360, 260 + (70 if present else 56) * len(rows)),
+                extra=extra)
     return fig
 
 
@@ -271,33 +278,33 @@ def _add_fraction(fig: go.Figure, rows, labels, f: str, with_ci: bool, sz: dict)
         fig.add_trace(_interval_trace(rows, labels, f, vals, hover, sz), row=1, col=2)
 
 
-def _label_negatives(fig: go.Figure, rows, labels, sz: dict) -> float:
-    """Label negative segments left of their bar (they are thin); the lowest left end."""
-    lows = []
+def _negative_labels(rows, labels, sz: dict) -> list[dict]:
+    """Labels of negative segments, left of their bar (they are thin): annotation dicts,
+    each at the left end of its row's negative part."""
+    out = []
     for r, lb in zip(rows, labels):
         neg = [(f, float(r["fractions"][f])) for f in FRACTIONS
                if np.isfinite(r["fractions"][f]) and r["fractions"][f] < 0]
-        low = sum(v for _, v in neg)
-        lows.append(low)
         if neg and any(percent(v) != "0.0 %" for _, v in neg):
-            fig.add_annotation(   # short, in the fraction's colour (hover says more)
-                x=low, y=lb, xref="x", yref="y", xanchor="right", showarrow=False,
-                text=" ".join(f"<span style='color:{FRACTION_COLOURS[f]}'>{percent(v)}</span>"
-                              for f, v in neg) + " ",
-                font={"size": sz["small"]}, name="negative fraction")
-    return min(lows) if lows else 0.0
+            out.append({   # short, in the fraction's colour (hover says more)
+                "x": sum(v for _, v in neg), "y": lb, "xref": "x", "yref": "y",
+                "xanchor": "right", "showarrow": False,
+                "text": " ".join(f"<span style='color:{FRACTION_COLOURS[f]}'>{percent(v)}"
+                                 "</span>" for f, v in neg) + " ",
+                "font": {"size": sz["small"]}, "name": "negative fraction"})
+    return out
 
 
-def _interval_axes(fig: go.Figure, rows) -> None:
+def _interval_axes(rows, y_axis: dict) -> dict:
     """Axes of the side panel of intervals: every interval end in view, rows as the bars."""
     ends = [v for r in rows if r.get("ci") is not None for pair in r["ci"].values()
             for v in pair if np.isfinite(v)] + [0.0, 1.0]
-    fig.update_xaxes(title_text="share, 95 % interval", tickformat=".0%", zeroline=True,
-                     zerolinecolor="#222222", gridcolor="#E5E5E5", row=1, col=2,
-                     range=[min(ends) - 0.03, max(ends) + 0.03])
-    fig.update_yaxes(showticklabels=False, autorange=False, tickmode="auto",
-                     range=[len(rows) - 0.5, -0.5], showgrid=False, zeroline=False,
-                     row=1, col=2)
+    return {"xaxis2": {"title": {"text": "share, 95 % interval"}, "tickformat": ".0%",
+                       "zeroline": True, "zerolinecolor": "#222222", "gridcolor": "#E5E5E5",
+                       "range": [min(ends) - 0.03, max(ends) + 0.03]},
+            "yaxis2": merged(y_axis, {"showticklabels": False, "autorange": False,
+                                      "tickmode": "auto", "range": [len(rows) - 0.5, -0.5],
+                                      "showgrid": False, "zeroline": False})}
 
 
 def dims_figure(result: SizeShapeResult, *, present: bool = False) -> go.Figure:

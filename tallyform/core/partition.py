@@ -112,7 +112,8 @@ class SizeShapeResult(ResultMixin):
         return float(self.tests.loc["shape_only", "pvalue"])
 
     def by_dims(self) -> pd.DataFrame:
-        """Fractions for k = 1 .. kmax shape dimensions (adjusted, then unadjusted columns)."""
+        """Fractions for k = 1 .. kmax shape dimensions (adjusted, then unadjusted columns);
+        kmax is the k used when the result was computed with ``all_dims=False``."""
         return self._dims.copy()
 
     def tables(self) -> dict:
@@ -158,8 +159,8 @@ class SizeShapeResult(ResultMixin):
 def size_shape(table, measure: str = "bray_curtis", *, transform=None,
                size: str = "log_total", shape: str = "chi_square", shape_dims: int | None = None,
                n_permutations: int = 0, n_boot: int = 0, units=None, overdispersion=None,
-               chunks: int | None = None, spectrum: bool = True, rng=None, progress=None,
-               cancel=None) -> SizeShapeResult:
+               chunks: int | None = None, spectrum: bool = True, all_dims: bool = True,
+               rng=None, progress=None, cancel=None) -> SizeShapeResult:
     """Partition the variation of a dissimilarity into size, shared, shape and residual.
 
     Parameters
@@ -209,6 +210,13 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
         ``negative_share`` is NaN and a note says it was not measured. The fractions do not
         depend on it. (The dashboard's slider does this while it moves, and measures it
         once the slider settles.)
+    all_dims : bool, default True
+        :meth:`SizeShapeResult.by_dims` tabulates the fractions for every number of shape
+        dimensions k up to floor((n - 2) / 3) (or ``shape_dims`` when larger, and at most
+        the number of shape coordinates). ``False`` stops the table at the k used: G is then
+        multiplied by k shape coordinates instead of all of them, which saves time when k
+        is well below that limit (the dashboard's slider does this while it moves). The
+        fractions do not depend on it.
     rng : None, int or numpy.random.Generator
         One seed gives the same test and intervals; the two use independent streams.
     progress, cancel : callables, optional
@@ -254,7 +262,8 @@ def size_shape(table, measure: str = "bray_curtis", *, transform=None,
     d = dissimilarity(table, measure, transform=transform, chunks=chunks)
     res = size_shape_from(table, d, measure=measure, transform=transform, size=size,
                            shape=shape, shape_dims=shape_dims, n_permutations=0, rng=None,
-                           progress=None, cancel=None, spectrum=bool(spectrum))
+                           progress=None, cancel=None, spectrum=bool(spectrum),
+                           all_dims=bool(all_dims))
     if chunks is not None:
         from dataclasses import replace
         res = replace(res, provenance=dict(res.provenance, chunks=chunks))
@@ -415,7 +424,7 @@ def _variation(d):
 
 def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
                      n_permutations, rng, progress, cancel, shape_cache=None,
-                     spectrum: bool = True):
+                     spectrum: bool = True, all_dims: bool = True):
     """The partition of one choice (no inference: ``n_permutations`` must be 0)."""
     if n_permutations:
         raise ValueError("size_shape_from computes no tests; use size_shape.")
@@ -442,7 +451,7 @@ def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
         if k > cap:
             notes.append(f"{k} shape dimensions exceed floor((n - 2) / 3) = {cap}: adjusted "
                          "R^2 values become unstable with so many predictors.")
-    kmax = min(ev.size, max(cap, k))
+    kmax = min(ev.size, max(cap, k)) if all_dims else k
     dims = partition_by_dims(var, z, u[:, :kmax], n)
     row = dims.loc[k]
     if z is None:
@@ -490,6 +499,7 @@ def size_shape_from(table, d, *, measure, transform, size, shape, shape_dims,
     prov = {"measure": measure, "transform": tr_name, "size": size, "size_label": size_label,
             "shape": shape, "shape_measure": shape_measure, "shape_dims": k,
             "shape_dims_given": shape_dims is not None, "n_permutations": 0,
+            "all_dims": bool(all_dims),
             "n_samples": n, "table": table.fingerprint}
     return SizeShapeResult(
         measure=measure, transform=tr_name, size=size, shape=shape, n=n, fractions=frac,

@@ -308,7 +308,7 @@ class ReportPanel(widgets.VBox):
             shown = (d.shape.intervals_result if d.shape.intervals_result is not None
                      else d.shape.result)                    # with its intervals when done
             out["size_shape"] = shown.to_frame()
-            out["size_shape_by_dims"] = d.shape.result.by_dims()
+            out["size_shape_by_dims"] = shown.by_dims()      # every k once settled
         if d.shape.ordination is not None:
             out["ordination_axes"] = d.shape.ordination.to_frame()
             out["ordination_scores"] = d.shape.ordination.scores

@@ -52,7 +52,8 @@ ELLIPSE_LEVEL = 0.95
 INTERVAL_CHOICES = (0, 199, 999)   # resamples of the share intervals (0: none)
 SETTLE_DELAY = 0.5                 # seconds of quiet before the intervals start
 # past this many samples the live partition skips the O(n^3) eigenvalues behind its
-# negative-eigenvalue note (size_shape(spectrum=False)); the settled call measures them
+# negative-eigenvalue note (size_shape(spectrum=False)) and tabulates the fractions by number
+# of shape dimensions only up to the one used (all_dims=False); the settled call does both
 SPECTRUM_LIVE_MAX = 300
 PARTITION_WIDTH = 370             # px: side by side on a 970 px screen (754 px of
                                    # notebook with the side bar closed), wrapped below
@@ -272,7 +273,8 @@ class ShapePanel(widgets.VBox):
         calls = {
             "partition": Call("size_shape", (tab, measure), given(
                 transform=tr, size=self.size.value, shape=self.shape.value,
-                shape_dims=self.shape_dims.value or None, spectrum=False if defer else None)),
+                shape_dims=self.shape_dims.value or None, spectrum=False if defer else None,
+                all_dims=False if defer else None)),
             "ordination": Call("pcoa", (Call("dissimilarity", (tab, measure),
                                              given(transform=tr)),),
                                {"dims": 2, **({"spectrum": False} if defer else {})}),

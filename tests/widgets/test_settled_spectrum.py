@@ -26,14 +26,20 @@ def test_live_calls_skip_the_spectrum_and_the_settled_run_measures_it():
     panel = ShapePanel(tab, group="grp")
     panel.intervals.value = 0
     assert "spectrum=False" in panel.calls["partition"].code()
+    assert "all_dims=False" in panel.calls["partition"].code()
     assert "spectrum=False" in panel.calls["ordination"].code()
     assert "settled" in panel.calls and "spectrum" not in panel.calls["settled"].code()
+    assert "all_dims" not in panel.calls["settled"].code()
     assert panel.wait_intervals(120)
     direct = tly.size_shape(tab, "bray_curtis", progress=False)
     assert direct.negative_share > 0.001
     assert panel.intervals_result is not None
     assert panel.intervals_result.negative_share == direct.negative_share
     pd.testing.assert_series_equal(panel.result.fractions, direct.fractions)
+    # the live table by number of dimensions stops at the k used; the settled one is whole
+    k = direct.shape_dims
+    assert panel.result.by_dims().index.max() == k
+    pd.testing.assert_frame_equal(panel.intervals_result.by_dims(), direct.by_dims())
     notes = panel.notes.items
     assert any("negative eigenvalues hold" in n for n in notes)
     assert not any("spectrum=False" in n for n in notes)          # the live notes replaced

@@ -242,9 +242,11 @@ def aligned_groups(group, labels: pd.Index) -> np.ndarray:
         raise InputError("`group` must be the group labels (e.g. table.samples['treatment']), "
                          f"not a column name ({group!r}).")
     if isinstance(group, pd.Series):
-        idx = pd.Index([str(x) for x in group.index])
-        if set(idx) == set(labels) and len(idx) == len(labels):
-            group = group.set_axis(idx).loc[list(labels)]
+        # plain lists: iterating a pandas index costs a lookup per element
+        idx = pd.Index([str(x) for x in group.index.tolist()])
+        wanted = labels.tolist() if isinstance(labels, pd.Index) else list(labels)
+        if set(idx) == set(wanted) and len(idx) == len(wanted):
+            group = group.set_axis(idx).loc[wanted]
         elif len(group) != len(labels):
             raise DesignError(f"`group` has {len(group)} entries for {len(labels)} samples and "
                               "its index does not match the sample labels.")
@@ -259,7 +261,7 @@ def aligned_groups(group, labels: pd.Index) -> np.ndarray:
         bad = [str(labels[i]) for i in np.flatnonzero(missing)]
         raise DesignError(f"`group` has missing values for sample(s) {bad[:8]}.",
                           hint="Fill them in, or take a subset without those samples.")
-    return np.array([str(v) for v in values], dtype=object)
+    return np.array([str(v) for v in values.tolist()], dtype=object)
 
 
 def groups_choose_axes(fitted_scores, group) -> bool:
@@ -388,7 +390,7 @@ def group_ellipses(scores, group, *, kind: str = "confidence", level: float = 0.
                          f"{constrained!r}.")
     level = float(level)
     if isinstance(scores, pd.DataFrame):
-        labels = pd.Index([str(x) for x in scores.index])
+        labels = pd.Index([str(x) for x in scores.index.tolist()])
         axes = tuple(str(c) for c in scores.columns)
         pts = scores.to_numpy(dtype=float)
     else:

@@ -92,13 +92,14 @@ from .random import as_rng
 from .errors import Cancelled, DesignError, InputError
 from .response import Response, nested_bases, prepare_response  # noqa: F401 (the engine's)
 from .results import ResultMixin, readonly
+from .single_precision import SinglePass, record
 from .schemes import (FEW_PERMUTATIONS, CyclicShifts, Permutations, UnitPermutations,
                       count_relabellings, label_symmetries, span_symmetries, within_units)
 
 __all__ = ["Permutations", "UnitPermutations", "CyclicShifts", "within_units",
            "PermutationTest", "permutation_f_test", "prepare_response", "nested_bases",
            "count_relabellings", "label_symmetries", "span_symmetries", "permuted_f",
-           "TIE_RTOL", "FEW_PERMUTATIONS"]
+           "TIE_RTOL", "FEW_PERMUTATIONS", "tie_threshold"]
 
 #: Relative tolerance under which a permuted statistic counts as equal to the observed one.
 TIE_RTOL = 1e-9
@@ -121,6 +122,9 @@ class PermutationTest(ResultMixin):
     pvalue : float
     null_distribution : ndarray
         Permuted statistics (for exact enumeration: all of them, the identity included).
+        Past a few hundred samples on the distance path most are computed in single
+        precision (within a proven bound; those near the observed statistic in float64):
+        the p-value is the float64 one, the values are for figures.
     n_permutations : int
         Number of permuted statistics computed.
     exact : bool
@@ -192,6 +196,11 @@ def pseudo_f_ratio(ss_t, ss_res, df_t, df_res):
     return float(f) if f.ndim == 0 else f
 
 
+def tie_threshold(observed: float) -> float:
+    """Permuted statistics at or above this value count as at least the observed one."""
+    return observed - TIE_RTOL * abs(observed)
+
+
 def pvalue_from_null(observed: float, null: np.ndarray, *, exact: bool) -> float:
     """Add-one p-value for random permutations, plain proportion for exact enumeration.
 
@@ -203,7 +212,7 @@ def pvalue_from_null(observed: float, null: np.ndarray, *, exact: bool) -> float
     if np.isinf(observed):
         hits = int(np.count_nonzero(null == observed))
     else:
-        hits = int(np.count_nonzero(null >= observed - TIE_RTOL * abs(observed)))
+        hits = int(np.count_nonzero(null >= tie_threshold(observed)))
     if exact:
         return hits / null.size
     return (1 + hits) / (1 + null.size)
@@ -220,7 +229,7 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
                df_res: int, add_fitted: bool = True, batch_size: int | None = None,
                progress: Callable[[int, int], None] | None = None,
                cancel: Callable[[], bool] | None = None, offset: int = 0,
-               grand_total: int | None = None) -> tuple:
+               grand_total: int | None = None, single_precision: bool = False) -> tuple:
     """Observed pseudo-F of one term and its permutation distribution (the engine's core).
 
     Parameters
@@ -241,6 +250,16 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
     add_fitted : bool
         Add the reduced model's fitted part back to the permuted residuals (Freedman & Lane
         1983); False permutes the residuals alone (ter Braak 1992, full-model residuals).
+    single_precision : bool
+        For callers that only count the permuted statistics at or above the observed one
+        (:func:`pvalue_from_null`): on the in-memory distance path, with the tested term
+        orthogonal to the reduced model and n between ``MIN_SAMPLES`` and ``MAX_SAMPLES``
+        of :mod:`tallyform.core.single_precision`, the forms are computed in float32 with a
+        rigorous error bound, and every permutation whose side of the tie threshold the
+        bound cannot certify is recomputed in float64: the count, hence the p-value, is
+        the float64 engine's. The other permuted statistics returned are then the
+        single-precision ones (each sum within its bound, about n 2^-24 times the largest
+        absolute row sum of G): fine for a figure, not for ranking them against each other.
 
     Returns
     -------
@@ -254,12 +273,67 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
     ss_res = clean_ss(total - float(quad.sum()), total)
     observed = pseudo_f_ratio(ss_t, ss_res, nt, df_res)
     r = resp.residual(qz)
+    f64, cross, scale = _float64_batch(resp, r, qa, nb, nt, qz, df_res=df_res,
+                                       add_fitted=add_fitted)
+    fast = None
+    if (single_precision and not cross and r.features is None and np.isfinite(observed)
+            and SinglePass.usable(r.gower, n)):
+        fast = SinglePass(r.gower, np.ascontiguousarray(qa.T))
+        trace_r = r.total()
+        threshold = tie_threshold(observed)
+        tol = SS_RTOL * abs(float(scale))
+
+        def sums(tr):
+            return _sums(tr, nb, nt, trace_r)
+
+        def ratio(num, den):
+            return pseudo_f_ratio(num, den, nt, df_res)
+    q = None if r.features is None else r.features.shape[1]
+    size = batch_size or default_batch_size(n, k, q)
+    null = np.empty(perms.total)
+    done = rechecked = 0
+    grand = grand_total if grand_total is not None else perms.total
+    for idx in perms.batches(size):
+        if cancel is not None and cancel():
+            raise Cancelled(f"stopped after {offset + done} of {grand} permutations; "
+                            "no result was produced.")
+        b = idx.shape[0]
+        if fast is None:
+            null[done:done + b] = f64(idx)
+        else:
+            f, todo = fast.settle(fast.forms(idx), sums, ratio, nt=nt, trace_r=trace_r,
+                                  tol=tol, threshold=threshold)
+            if todo.any():
+                f[todo] = f64(idx[todo])
+                rechecked += int(np.count_nonzero(todo))
+            null[done:done + b] = f
+        done += b
+        if progress is not None:
+            progress(offset + done, grand)
+    record(done, done if fast is not None else 0, rechecked)
+    return observed, null, ss_t, ss_res
+
+
+def _sums(tr: np.ndarray, nb: int, nt: int, trace_r: float) -> tuple:
+    """Numerator and denominator sums of a batch from its k x B forms u' R u."""
+    num = tr[nb:nb + nt].sum(axis=0)
+    den = trace_r - tr[:nb].sum(axis=0) - num - tr[nb + nt:].sum(axis=0)
+    return num, den
+
+
+def _float64_batch(resp: Response, r: Response, qa, nb: int, nt: int, qz, *, df_res: int,
+                   add_fitted: bool) -> tuple:
+    """The float64 engine for one term: (function idx -> permuted pseudo-F, whether the
+    reduced model's fitted part enters the numerator, the scale of ``clean_ss``)."""
+    n = resp.n
+    k = qa.shape[1]
+    total = resp.total()
     trace_r = r.total()
     # the reduced model's fitted part, seen by the tested columns: a constant and one fixed
     # vector per column (zero when the tested term is orthogonal to the reduced model)
     qt = qa[:, nb:nb + nt]
     tz = qz.T @ qt if qz.shape[1] else np.zeros((0, nt))
-    cross = add_fitted and tz.size and float(np.abs(tz).max()) > 1e-12
+    cross = bool(add_fitted and tz.size and float(np.abs(tz).max()) > 1e-12)
     if cross:
         if resp.features is not None:
             a = tz.T @ (qz.T @ resp.features)                   # q' H_Z F, nt x f
@@ -277,18 +351,10 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
         c2 = dim / (dim - qz.shape[1])
         scale = max(trace_r, total)
     else:
-        const = np.zeros(nt)
         scale = trace_r
     q_all = np.ascontiguousarray(qa.T)                          # k x n
-    q = None if r.features is None else r.features.shape[1]
-    size = batch_size or default_batch_size(n, k, q)
-    null = np.empty(perms.total)
-    done = 0
-    grand = grand_total if grand_total is not None else perms.total
-    for idx in perms.batches(size):
-        if cancel is not None and cancel():
-            raise Cancelled(f"stopped after {offset + done} of {grand} permutations; "
-                            "no result was produced.")
+
+    def batch(idx):
         b = idx.shape[0]
         u = np.take(q_all, idx, axis=1).reshape(k * b, n)          # rows: (column, perm)
         if r.features is not None:
@@ -299,9 +365,7 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
             tr = np.einsum("ij,ij->i", u, v)
         else:                                   # tiles: u' R u reduced on the workers
             tr = r.gower.quad_rows(u)
-        tr = tr.reshape(k, b)
-        num = tr[nb:nb + nt].sum(axis=0)
-        den = trace_r - tr[:nb].sum(axis=0) - num - tr[nb + nt:].sum(axis=0)
+        num, den = _sums(tr.reshape(k, b), nb, nt, trace_r)
         if cross:
             ut = np.take(qt_res, idx, axis=1).reshape(nt * b, n)
             if r.features is not None:
@@ -317,11 +381,8 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
                 xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
             num = c2 * plain.sum(axis=0) + const.sum() + 2.0 * np.sqrt(c2) * xc
             den = c2 * den
-        null[done:done + b] = pseudo_f_ratio(clean_ss(num, scale), clean_ss(den, scale), nt, df_res)
-        done += b
-        if progress is not None:
-            progress(offset + done, grand)
-    return observed, null, ss_t, ss_res
+        return pseudo_f_ratio(clean_ss(num, scale), clean_ss(den, scale), nt, df_res)
+    return batch, cross, scale
 
 
 def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=None,
@@ -425,7 +486,7 @@ def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=Non
         how = "residuals of the full model"
     observed, null, ss_t, ss_res = permuted_f(
         resp, qa, qz.shape[1], df_t, qr_, perms, df_res=df_res, add_fitted=add,
-        batch_size=batch_size, progress=progress, cancel=cancel)
+        batch_size=batch_size, progress=progress, cancel=cancel, single_precision=True)
     pvalue = pvalue_from_null(observed, null, exact=perms.exact)
     scheme = f"{perms.describe()}; permuting {how}"
     notes = tuple(x for x in [perms.note()] if x)

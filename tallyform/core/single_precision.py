@@ -1,0 +1,218 @@
+"""Permuted quadratic forms in single precision, with a rigorous error bound, for the
+permutation engine (:func:`tallyform.core.permutation.permuted_f`).
+
+Why. On the distance path nearly all the time of a permutation test is one matrix product
+per batch, U G (U the permuted basis rows, G the n x n residual Gower matrix). A float32
+product runs at twice the speed of a float64 one. The p-value only needs to know, for each
+permutation, on which side of the tie threshold its pseudo-F falls; single precision settles
+that for nearly every permutation, and the few it cannot settle are recomputed in float64.
+The p-value is therefore the float64 engine's p-value, digit for digit.
+
+How. G is symmetric, so u' G u = sum_B u_B' G_BB u_B + 2 sum_{B < C} u_B' G_BC u_C over
+blocks of m = 256 samples: each block row is one float32 product u_B G_B,[B..n) and its
+row-wise dot products with u are accumulated in float64. Only the blocks on and right of the
+diagonal are multiplied (about half the work of U G), and every float32 inner product has
+m terms, not n, which keeps the bound small.
+
+The bound. Let u be one permuted basis row (||u||^2 <= s, measured once per call: a
+permutation does not change a norm), G the residual Gower matrix, a = |u|'|G||u|, eps =
+2^-24 (float32 unit roundoff), e = 2^-53 (float64), and gamma_j(x) = j x / (1 - j x). Single
+precision uses u^ = fl32(u) (|u^ - u| <= eps |u| elementwise) and G^ = fl32(fl64((G + G')/2))
+(|G^ - (G + G')/2| <= eps' |G|-ish with eps' = eps + e (1 + eps); u'((G + G')/2)u = u'Gu).
+With the classical bound for an inner product in any summation order, |fl(x'y) - x'y| <=
+gamma_j |x|'|y| for j terms (Higham 2002, Accuracy and Stability of Numerical Algorithms,
+2nd ed., ch. 3, eq. 3.5):
+
+  * rounding u:      (2 eps + eps^2) a
+  * rounding G:      eps' (1 + eps)^2 a
+  * the float32 products (inner products of at most m terms): gamma_m(eps) (1 + eps')(1 + eps)^2 a
+    (the blocks right of the diagonal count twice and stand for the blocks left of it, so
+    the sum of |u^_B|'|G^_BC||u^_C| over the blocks used, with those weights, is |u^|'|G^||u^|)
+  * the float64 sums (products of two float32 numbers are exact in float64; each term goes
+    through at most L = n + n/m + 3 additions): gamma_L(e) (1 + gamma_m(eps)) (1 + eps)^3 a.
+
+The float64 engine's own value t64 = fl64(u' fl64(u G)) is within gamma_n(e) (2 + gamma_n(e))
+a of u'Gu. Hence |t32 - t64| <= c a with c the sum of all those terms (about (m + 4) eps), and
+a <= ||(|G|)||_2 s <= R s, R = max(||G||_1, ||G||_inf) (the largest absolute column and row
+sums; the spectral norm of a matrix is at most the geometric mean of those two norms). We
+use delta = 1.01 c R s: the factor 1.01, plus one more eps for gradual underflow, absorbs the
+rounding of the bound itself and of the interval ends. Entries of G beyond 2^100 or a norm R
+below 2^-60 (where underflow would no longer be negligible) keep the float64 engine.
+
+From forms to the decision. The numerator sums nt forms and the denominator subtracts all k
+forms from the exact trace, so num64 lies within nt delta + r_num and den64 within k delta +
+r_den of the single-precision sums, r_* bounding the float64 rounding of those few additions
+(in both computations). A permutation is settled in single precision only when
+
+  * the denominator interval lies above the tolerance of ``clean_ss`` and the numerator
+    interval lies wholly above it or wholly below minus it (so no sum is set to 0 and the
+    ratio is finite), and
+  * the pseudo-F interval [F_lo, F_hi], from the four corners of the (num, den) box through
+    the same float64 expression as the engine, lies wholly on one side of the tie threshold.
+
+Rounding to nearest is monotone and F is monotone in each sum once the signs are fixed, so
+the float64 engine's pseudo-F lies in [F_lo, F_hi] and falls on the same side of the
+threshold as the single-precision one. Every other permutation is recomputed in float64.
+The permuted statistics returned for settled permutations are the single-precision ones
+(within delta in each sum); only figures draw them.
+"""
+from __future__ import annotations
+
+import contextlib
+import contextvars
+from dataclasses import dataclass
+
+import numpy as np
+
+EPS32 = 2.0 ** -24
+EPS64 = 2.0 ** -53
+#: Below this many samples the float64 engine is used (measured: the float32 pass gains
+#: little below a few hundred samples, where the product is no longer most of the time).
+MIN_SAMPLES = 200
+#: Above this many samples the float32 copy of G (4 n^2 bytes beside its 8 n^2) is not made.
+MAX_SAMPLES = 20_000
+#: Samples per block of G (float32 inner products have this many terms), and rows of the
+#: permuted basis handled per product (the block row of the output stays in cache).
+BLOCK = 256
+_ROWS = 512
+_MAX_ENTRY = 2.0 ** 100
+_MIN_NORM = 2.0 ** -60
+
+
+def _gamma(m: int, u: float) -> float:
+    return m * u / (1.0 - m * u)
+
+
+def form_error_constant(n: int, m: int = BLOCK) -> float:
+    """c such that |t32 - t64| <= c |u|'|G||u| for one quadratic form of length n computed
+    in blocks of m (see the module notes), with the 1.01 safety factor."""
+    m = min(m, n)
+    e, e64 = EPS32, EPS64
+    e_g = e + e64 * (1 + e)                     # G symmetrised in float64, then rounded
+    g32 = _gamma(m, e)
+    g64 = _gamma(n + n // m + 3, e64)
+    single = ((2 * e + e * e) + e_g * (1 + e) ** 2 + g32 * (1 + e_g) * (1 + e) ** 2
+              + g64 * (1 + g32) * (1 + e) ** 3 + e)             # the last eps: underflow
+    gn = _gamma(n, e64)
+    double = gn * (2 + gn)
+    return 1.01 * (single + double)
+
+
+def abs_norm(g: np.ndarray, rows: int = 512) -> float:
+    """max(||G||_1, ||G||_inf), by blocks of rows (no n x n temporary)."""
+    n = g.shape[0]
+    col = np.zeros(g.shape[1])
+    row_max = 0.0
+    for s in range(0, n, rows):
+        a = np.abs(g[s:s + rows])
+        row_max = max(row_max, float(a.sum(axis=1).max()))
+        col += a.sum(axis=0)
+    return max(row_max, float(col.max()) * (1 + 2 * n * EPS64))
+
+
+def symmetric_float32(g: np.ndarray, rows: int = 512) -> np.ndarray:
+    """fl32((G + G') / 2), by blocks of rows."""
+    n = g.shape[0]
+    out = np.empty((n, n), dtype=np.float32)
+    for s in range(0, n, rows):
+        out[s:s + rows] = (g[s:s + rows] + g[:, s:s + rows].T) * 0.5
+    return out
+
+
+# ---------------------------------------------------------------------------- tally
+@dataclass
+class PrecisionTally:
+    """Permutations seen by the engine while the tally was open: settled in single
+    precision, and re-checked in float64 (see :func:`precision_tally`)."""
+
+    permutations: int = 0
+    single: int = 0
+    rechecked: int = 0
+
+    @property
+    def rechecked_share(self) -> float:
+        return self.rechecked / self.single if self.single else float("nan")
+
+
+_TALLY: contextvars.ContextVar = contextvars.ContextVar("tallyform_precision_tally",
+                                                        default=None)
+
+
+@contextlib.contextmanager
+def precision_tally():
+    """Count, for every engine call inside the block, the permutations computed in single
+    precision and those re-checked in float64 (a diagnostic for benchmarks and tests)."""
+    tally = PrecisionTally()
+    token = _TALLY.set(tally)
+    try:
+        yield tally
+    finally:
+        _TALLY.reset(token)
+
+
+def record(permutations: int, single: int, rechecked: int) -> None:
+    tally = _TALLY.get()
+    if tally is not None:
+        tally.permutations += permutations
+        tally.single += single
+        tally.rechecked += rechecked
+
+
+# ---------------------------------------------------------------------------- the pass
+class SinglePass:
+    """Float32 copies of G and of the basis rows, and the bound delta of one form."""
+
+    def __init__(self, gower: np.ndarray, q_all: np.ndarray):
+        n = gower.shape[0]
+        self.n = n
+        self.g32 = symmetric_float32(gower)
+        self.q32 = np.ascontiguousarray(q_all, dtype=np.float32)
+        self.edges = list(range(0, n, BLOCK)) + [n]
+        norm = abs_norm(gower)
+        s = float(np.einsum("ij,ij->i", q_all, q_all).max()) * (1 + 4 * (n + 1) * EPS64)
+        self.form_max = 2.0 * norm * s                  # |t32|, |t64| <= (1 + c) R s
+        self.delta = form_error_constant(n) * norm * s
+
+    @staticmethod
+    def usable(gower, n: int) -> bool:
+        if not isinstance(gower, np.ndarray) or not MIN_SAMPLES <= n <= MAX_SAMPLES:
+            return False
+        big = max(abs(float(gower.max())), abs(float(gower.min())))   # no n x n temporary
+        return bool(np.isfinite(big) and big <= _MAX_ENTRY)
+
+    def forms(self, idx: np.ndarray) -> np.ndarray:
+        """The k x B single-precision forms u' G u of a batch (float64 values)."""
+        from ._numba_forms import add_block_row
+        k, b = self.q32.shape[0], idx.shape[0]
+        u = np.take(self.q32, idx, axis=1).reshape(k * b, self.n)
+        out = np.zeros(k * b)
+        for r0 in range(0, k * b, _ROWS):
+            ur, o = u[r0:r0 + _ROWS], out[r0:r0 + _ROWS]
+            for s0, s1 in zip(self.edges[:-1], self.edges[1:]):
+                v = ur[:, s0:s1] @ self.g32[s0:s1, s0:]
+                add_block_row(ur, v, s0, s1 - s0, o)
+        return out.reshape(k, b)
+
+    def settle(self, tr: np.ndarray, sums, ratio, *, nt: int, trace_r: float, tol: float,
+               threshold: float) -> tuple[np.ndarray, np.ndarray]:
+        """Pseudo-F of each permutation from single-precision forms ``tr`` (k x B), and the
+        mask of those that must be recomputed in float64.
+
+        ``sums(tr) -> (num, den)`` and ``ratio(num, den) -> F`` are the engine's own
+        float64 expressions (the monotonicity argument needs the very same arithmetic).
+        """
+        k = tr.shape[0]
+        num, den = sums(tr)
+        if self.delta * k >= _MAX_ENTRY or self.form_max < _MIN_NORM:
+            return ratio(num, den), np.ones(num.shape, dtype=bool)
+        d_num = nt * self.delta + 2 * _gamma(nt + 1, EPS64) * nt * self.form_max
+        d_den = (k * self.delta
+                 + 2 * _gamma(k + 3, EPS64) * (abs(trace_r) + k * self.form_max))
+        n_lo, n_hi, d_lo, d_hi = num - d_num, num + d_num, den - d_den, den + d_den
+        ok = (d_lo > tol) & ((n_lo > tol) | (n_hi < -tol))
+        corners = np.stack([ratio(n_lo, d_lo), ratio(n_lo, d_hi), ratio(n_hi, d_lo),
+                            ratio(n_hi, d_hi)])
+        f_lo, f_hi = corners.min(axis=0), corners.max(axis=0)
+        settled = ok & np.isfinite(f_lo) & np.isfinite(f_hi) & (
+            (f_lo >= threshold) | (f_hi < threshold))
+        return ratio(num, den), ~settled

@@ -19,12 +19,15 @@ def add_block_row(u, v, start, width, out):
 
     with ``v = u[:, start:start + width] @ G[start:start + width, start:]``: the diagonal
     block of a symmetric G once, the blocks right of it twice (for those left of it)."""
+    m = v.shape[1]
     for i in range(v.shape[0]):
+        ui = u[i, start:start + m]
+        vi = v[i]
         s = 0.0
         for j in range(width):
-            s += np.float64(u[i, start + j]) * np.float64(v[i, j])
+            s += np.float64(ui[j]) * np.float64(vi[j])
         s2 = 0.0
-        for j in range(width, v.shape[1]):
-            s2 += np.float64(u[i, start + j]) * np.float64(v[i, j])
+        for j in range(width, m):
+            s2 += np.float64(ui[j]) * np.float64(vi[j])
         out[i] += s + 2.0 * s2
     return out

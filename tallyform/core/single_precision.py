@@ -72,9 +72,10 @@ MIN_SAMPLES = 200
 #: Above this many samples the float32 copy of G (4 n^2 bytes beside its 8 n^2) is not made.
 MAX_SAMPLES = 20_000
 #: Samples per block of G (float32 inner products have this many terms), and rows of the
-#: permuted basis handled per product (the block row of the output stays in cache).
+#: permuted basis handled per product: few large products (many small multi-threaded ones
+#: were up to 4x slower, measured, when the machine's cores were busy with other work).
 BLOCK = 256
-_ROWS = 512
+_ROWS = 8192
 _MAX_ENTRY = 2.0 ** 100
 _MIN_NORM = 2.0 ** -60
 

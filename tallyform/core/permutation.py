@@ -252,12 +252,11 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
         1983); False permutes the residuals alone (ter Braak 1992, full-model residuals).
     single_precision : bool
         For callers that only count the permuted statistics at or above the observed one
-        (:func:`pvalue_from_null`): on the in-memory distance path, with the tested term
-        orthogonal to the reduced model and n between ``MIN_SAMPLES`` and ``MAX_SAMPLES``
-        of :mod:`tallyform.core.single_precision`, the forms are computed in float32 with a
-        rigorous error bound, and every permutation whose side of the tie threshold the
-        bound cannot certify is recomputed in float64: the count, hence the p-value, is
-        the float64 engine's. The other permuted statistics returned are then the
+        (:func:`pvalue_from_null`): on the in-memory distance path with n between
+        ``MIN_SAMPLES`` and ``MAX_SAMPLES`` of :mod:`tallyform.core.single_precision`, the
+        quadratic forms are computed in float32 with a rigorous error bound, and every
+        permutation whose side of the tie threshold the bound cannot certify is recomputed
+        in float64: the count, hence the p-value, is the float64 engine's. The other permuted statistics returned are then the
         single-precision ones (each sum within its bound, about n 2^-24 times the largest
         absolute row sum of G): fine for a figure, not for ranking them against each other.
 
@@ -273,18 +272,16 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
     ss_res = clean_ss(total - float(quad.sum()), total)
     observed = pseudo_f_ratio(ss_t, ss_res, nt, df_res)
     r = resp.residual(qz)
-    f64, cross, scale = _float64_batch(resp, r, qa, nb, nt, qz, df_res=df_res,
-                                       add_fitted=add_fitted)
+    f64, fit = _float64_batch(resp, r, qa, nb, nt, qz, df_res=df_res, add_fitted=add_fitted)
     fast = None
-    if (single_precision and not cross and r.features is None and np.isfinite(observed)
+    if (single_precision and r.features is None and np.isfinite(observed)
             and SinglePass.usable(r.gower, n)):
-        fast = SinglePass(r.gower, np.ascontiguousarray(qa.T))
+        rows = [qa.T, fit.qt_res] if fit.cross else [qa.T]
+        fast = SinglePass(r.gower, np.vstack(rows))
         trace_r = r.total()
+        d_num, d_den = fast.sum_bounds(k=k, nt=nt, trace_r=trace_r, fit=fit)
         threshold = tie_threshold(observed)
-        tol = SS_RTOL * abs(float(scale))
-
-        def sums(tr):
-            return _sums(tr, nb, nt, trace_r)
+        tol = SS_RTOL * abs(float(fit.scale))
 
         def ratio(num, den):
             return pseudo_f_ratio(num, den, nt, df_res)
@@ -301,8 +298,14 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
         if fast is None:
             null[done:done + b] = f64(idx)
         else:
-            f, todo = fast.settle(fast.forms(idx), sums, ratio, nt=nt, trace_r=trace_r,
-                                  tol=tol, threshold=threshold)
+            tr = fast.forms(idx)
+            num, den = _sums(tr[:k], nb, nt, trace_r)
+            if fit.cross:                   # the same float64 arithmetic as _float64_batch
+                ut = np.take(fit.qt_res, idx, axis=1)
+                xc = np.einsum("jbn,nj->b", ut, fit.c)
+                num, den = _cross_sums(tr[k:], xc, den, fit)
+            f, todo = fast.settle(num, den, d_num, d_den, ratio, tol=tol,
+                                  threshold=threshold)
             if todo.any():
                 f[todo] = f64(idx[todo])
                 rechecked += int(np.count_nonzero(todo))
@@ -321,37 +324,62 @@ def _sums(tr: np.ndarray, nb: int, nt: int, trace_r: float) -> tuple:
     return num, den
 
 
-def _float64_batch(resp: Response, r: Response, qa, nb: int, nt: int, qz, *, df_res: int,
-                   add_fitted: bool) -> tuple:
-    """The float64 engine for one term: (function idx -> permuted pseudo-F, whether the
-    reduced model's fitted part enters the numerator, the scale of ``clean_ss``)."""
-    n = resp.n
+def _cross_sums(plain: np.ndarray, xc: np.ndarray, den: np.ndarray, fit) -> tuple:
+    """Numerator and denominator with the reduced model's fitted part added back: ``plain``
+    the nt x B forms of the projected tested columns, ``xc`` their cross terms."""
+    num = fit.c2 * plain.sum(axis=0) + fit.const.sum() + 2.0 * np.sqrt(fit.c2) * xc
+    return num, fit.c2 * den
+
+
+@dataclass(frozen=True)
+class _Fitted:
+    """The reduced model's fitted part as the tested columns see it (``cross``), and the
+    scale of ``clean_ss``. With ``cross`` False the other fields are unused."""
+
+    cross: bool
+    scale: float
+    qt_res: np.ndarray | None = None          # (I - H_Z) q, nt x n
+    c: np.ndarray | None = None               # (I - H_Z) G H_Z q, n x nt (distance path)
+    a: np.ndarray | None = None               # q' H_Z F, nt x f (feature path)
+    const: np.ndarray | None = None           # q' H_Z G H_Z q, nt
+    c2: float = 1.0                           # variance correction of the residuals
+
+
+def _fitted_part(resp: Response, r: Response, qa, nb: int, nt: int, qz, *,
+                 df_res: int, add_fitted: bool) -> _Fitted:
     k = qa.shape[1]
-    total = resp.total()
     trace_r = r.total()
     # the reduced model's fitted part, seen by the tested columns: a constant and one fixed
     # vector per column (zero when the tested term is orthogonal to the reduced model)
     qt = qa[:, nb:nb + nt]
     tz = qz.T @ qt if qz.shape[1] else np.zeros((0, nt))
-    cross = bool(add_fitted and tz.size and float(np.abs(tz).max()) > 1e-12)
-    if cross:
-        if resp.features is not None:
-            a = tz.T @ (qz.T @ resp.features)                   # q' H_Z F, nt x f
-            const = np.einsum("ij,ij->i", a, a)
-        else:
-            gqz = resp.gower @ qz
-            gz = qz.T @ gqz
-            c = (gqz - qz @ gz) @ tz                            # (I - H_Z) G H_Z q, n x nt
-            const = np.einsum("ij,ik,kj->j", tz, gz, tz)
-        # the permuted residuals are projected back onto the residual space of Z, so the
-        # tested columns meet them through (I - H_Z) q, and rescaled to the variance of the
-        # errors they stand for (see the module notes)
-        qt_res = np.ascontiguousarray((qt - qz @ tz).T)         # nt x n
-        dim = df_res + k
-        c2 = dim / (dim - qz.shape[1])
-        scale = max(trace_r, total)
+    if not (add_fitted and tz.size and float(np.abs(tz).max()) > 1e-12):
+        return _Fitted(False, trace_r)
+    a = c = None
+    if resp.features is not None:
+        a = tz.T @ (qz.T @ resp.features)                       # q' H_Z F, nt x f
+        const = np.einsum("ij,ij->i", a, a)
     else:
-        scale = trace_r
+        gqz = resp.gower @ qz
+        gz = qz.T @ gqz
+        c = (gqz - qz @ gz) @ tz                                # (I - H_Z) G H_Z q, n x nt
+        const = np.einsum("ij,ik,kj->j", tz, gz, tz)
+    # the permuted residuals are projected back onto the residual space of Z, so the
+    # tested columns meet them through (I - H_Z) q, and rescaled to the variance of the
+    # errors they stand for (see the module notes)
+    qt_res = np.ascontiguousarray((qt - qz @ tz).T)             # nt x n
+    dim = df_res + k
+    return _Fitted(True, max(trace_r, resp.total()), qt_res, c, a, const,
+                   dim / (dim - qz.shape[1]))
+
+
+def _float64_batch(resp: Response, r: Response, qa, nb: int, nt: int, qz, *, df_res: int,
+                   add_fitted: bool) -> tuple:
+    """The float64 engine for one term: (function idx -> permuted pseudo-F, _Fitted)."""
+    n = resp.n
+    k = qa.shape[1]
+    trace_r = r.total()
+    fit = _fitted_part(resp, r, qa, nb, nt, qz, df_res=df_res, add_fitted=add_fitted)
     q_all = np.ascontiguousarray(qa.T)                          # k x n
 
     def batch(idx):
@@ -366,23 +394,23 @@ def _float64_batch(resp: Response, r: Response, qa, nb: int, nt: int, qz, *, df_
         else:                                   # tiles: u' R u reduced on the workers
             tr = r.gower.quad_rows(u)
         num, den = _sums(tr.reshape(k, b), nb, nt, trace_r)
-        if cross:
-            ut = np.take(qt_res, idx, axis=1).reshape(nt * b, n)
+        if fit.cross:
+            ut = np.take(fit.qt_res, idx, axis=1).reshape(nt * b, n)
             if r.features is not None:
                 vt = ut @ r.features
                 plain = np.einsum("ij,ij->i", vt, vt).reshape(nt, b)
-                xc = np.einsum("jbf,jf->b", vt.reshape(nt, b, -1), a)
+                xc = np.einsum("jbf,jf->b", vt.reshape(nt, b, -1), fit.a)
             elif isinstance(r.gower, np.ndarray):
                 vt = ut @ r.gower
                 plain = np.einsum("ij,ij->i", ut, vt).reshape(nt, b)
-                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
+                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), fit.c)
             else:
                 plain = r.gower.quad_rows(ut).reshape(nt, b)
-                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
-            num = c2 * plain.sum(axis=0) + const.sum() + 2.0 * np.sqrt(c2) * xc
-            den = c2 * den
+                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), fit.c)
+            num, den = _cross_sums(plain, xc, den, fit)
+        scale = fit.scale
         return pseudo_f_ratio(clean_ss(num, scale), clean_ss(den, scale), nt, df_res)
-    return batch, cross, scale
+    return batch, fit
 
 
 def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=None,

@@ -50,6 +50,13 @@ r_den of the single-precision sums, r_* bounding the float64 rounding of those f
   * the pseudo-F interval [F_lo, F_hi], from the four corners of the (num, den) box through
     the same float64 expression as the engine, lies wholly on one side of the tie threshold.
 
+With the reduced model's fitted part added back (a tested term not orthogonal to the
+reduced model, Freedman & Lane 1983), num = c2 sum_j p_j + sum(const) + 2 sqrt(c2) x with
+p_j the forms of the projected tested columns (each within delta: their norms are at most
+1 and enter s) and x a float64 linear term computed the same way by both (its rounding
+counts twice in the bound, since the products may differ in size); den is scaled by c2
+(:meth:`SinglePass.sum_bounds`).
+
 Rounding to nearest is monotone and F is monotone in each sum once the signs are fixed, so
 the float64 engine's pseudo-F lies in [F_lo, F_hi] and falls on the same side of the
 threshold as the single-precision one. Every other permutation is recomputed in float64.
@@ -171,6 +178,7 @@ class SinglePass:
         self.edges = list(range(0, n, BLOCK)) + [n]
         norm = abs_norm(gower)
         s = float(np.einsum("ij,ij->i", q_all, q_all).max()) * (1 + 4 * (n + 1) * EPS64)
+        self.s = s
         self.form_max = 2.0 * norm * s                  # |t32|, |t64| <= (1 + c) R s
         self.delta = form_error_constant(n) * norm * s
 
@@ -194,21 +202,38 @@ class SinglePass:
                 add_block_row(ur, v, s0, s1 - s0, o)
         return out.reshape(k, b)
 
-    def settle(self, tr: np.ndarray, sums, ratio, *, nt: int, trace_r: float, tol: float,
-               threshold: float) -> tuple[np.ndarray, np.ndarray]:
-        """Pseudo-F of each permutation from single-precision forms ``tr`` (k x B), and the
-        mask of those that must be recomputed in float64.
+    def sum_bounds(self, *, k: int, nt: int, trace_r: float, fit) -> tuple[float, float]:
+        """Bounds on |num32 - num64| and |den32 - den64| for the engine's sums (see the
+        module notes); ``fit`` describes the reduced model's fitted part (cross terms)."""
+        def g(m):
+            return _gamma(m, EPS64)
+        delta, fmax = self.delta, self.form_max
+        d_den = k * delta + 2 * g(k + 3) * (abs(trace_r) + k * fmax)
+        if not fit.cross:
+            return nt * delta + 2 * g(nt + 1) * nt * fmax, d_den
+        # num = c2 sum(plain) + sum(const) + 2 sqrt(c2) xc, den = c2 den: the nt plain forms
+        # carry delta each; xc is computed in float64 by both (in batches of other sizes:
+        # its rounding, |xc| <= sqrt(s) sum ||c_j||, counts twice); the few float64
+        # operations that combine them round relative to the largest magnitude involved
+        c2, root = fit.c2, float(np.sqrt(fit.c2))
+        xc_max = float(np.sqrt(self.s) * np.linalg.norm(fit.c, axis=0).sum())
+        mag = c2 * nt * fmax + abs(float(fit.const.sum())) + 2 * root * xc_max
+        d_num = (c2 * nt * delta + 2 * root * 2 * g(nt * self.n) * xc_max
+                 + 2 * g(nt + 6) * mag)
+        d_den = c2 * d_den + 2 * g(2) * c2 * (abs(trace_r) + k * fmax)
+        return 1.01 * d_num, 1.01 * d_den
 
-        ``sums(tr) -> (num, den)`` and ``ratio(num, den) -> F`` are the engine's own
-        float64 expressions (the monotonicity argument needs the very same arithmetic).
+    def settle(self, num: np.ndarray, den: np.ndarray, d_num: float, d_den: float, ratio, *,
+               tol: float, threshold: float) -> tuple[np.ndarray, np.ndarray]:
+        """Pseudo-F of each permutation from its single-precision sums, and the mask of
+        those that must be recomputed in float64.
+
+        ``ratio(num, den) -> F`` is the engine's own float64 expression (the monotonicity
+        argument needs the very same arithmetic); ``d_num``, ``d_den`` bound the distance
+        of the sums from the float64 engine's (:meth:`sum_bounds`).
         """
-        k = tr.shape[0]
-        num, den = sums(tr)
-        if self.delta * k >= _MAX_ENTRY or self.form_max < _MIN_NORM:
+        if max(d_num, d_den) >= _MAX_ENTRY or self.form_max < _MIN_NORM:
             return ratio(num, den), np.ones(num.shape, dtype=bool)
-        d_num = nt * self.delta + 2 * _gamma(nt + 1, EPS64) * nt * self.form_max
-        d_den = (k * self.delta
-                 + 2 * _gamma(k + 3, EPS64) * (abs(trace_r) + k * self.form_max))
         n_lo, n_hi, d_lo, d_hi = num - d_num, num + d_num, den - d_den, den + d_den
         ok = (d_lo > tol) & ((n_lo > tol) | (n_hi < -tol))
         corners = np.stack([ratio(n_lo, d_lo), ratio(n_lo, d_hi), ratio(n_hi, d_lo),

@@ -39,13 +39,16 @@ def dummies(codes):
 
 
 def both_ways(d, X_full, X_reduced=None, X_later=None, *, n_perm=199, seed=0, blocks=None,
-              exact="auto", residuals="reduced"):
+              exact="auto", residuals="reduced", permuted_model=None):
     """(p single, p float64, null single, null float64, tally, observed) of one term, the
-    two runs on the same permutations."""
+    two runs on the same permutations. ``permuted_model``: columns of the reduced model
+    whose residuals are permuted, when not ``X_reduced`` (a sequential table: the later
+    terms too, so the tested term meets that model's fitted part)."""
     resp = prepare_response(d, path="distances")
     n = resp.n
-    qz, qt, qw = nested_bases(X_reduced, X_full, X_later)
-    qa = np.hstack([qz, qt, qw])
+    qb, qt, qw = nested_bases(X_reduced, X_full, X_later)
+    qa = np.hstack([qb, qt, qw])
+    qz = qb if permuted_model is None else nested_bases(None, permuted_model)[1]
     df_res = n - 1 - qa.shape[1]
     parts = [np.asarray(X).reshape(n, -1) for X in (X_reduced, X_full, X_later)
              if X is not None]
@@ -55,7 +58,7 @@ def both_ways(d, X_full, X_reduced=None, X_later=None, *, n_perm=199, seed=0, bl
     out = []
     with precision_tally() as tally:
         for single in (True, False):
-            obs, null, _, _ = permuted_f(resp, qa, qz.shape[1], qt.shape[1], qr_, perms,
+            obs, null, _, _ = permuted_f(resp, qa, qb.shape[1], qt.shape[1], qr_, perms,
                                          df_res=df_res, add_fitted=residuals == "reduced",
                                          single_precision=single)
             out.append((pvalue_from_null(obs, null, exact=perms.exact), null))
@@ -90,9 +93,9 @@ def test_one_factor_pvalue_is_the_float64_one(sizes, effect, model, seed):
 
 @pytest.mark.parametrize("balanced", [True, False])
 def test_two_factors_and_blocks_pvalues_are_the_float64_ones(balanced):
-    # reference: the float64 engine; balanced factors are orthogonal (the single pass
-    # runs), unbalanced ones are not (the cross terms keep float64); blocks restrict the
-    # permutations
+    # reference: the float64 engine; balanced factors are orthogonal, unbalanced ones are
+    # not: the first term of a sequential table then meets the fitted part of the second
+    # (cross terms); blocks restrict the permutations
     rng = np.random.default_rng(7)
     n = 240
     a = np.repeat(np.arange(2), n // 2)
@@ -100,15 +103,15 @@ def test_two_factors_and_blocks_pvalues_are_the_float64_ones(balanced):
     x = counts(n, 25, a * 3 + b, 0.08, rng, model="gamma")
     d = bray(x)
     blocks = np.tile(np.arange(4), n // 4)
-    for X_red, X_full, X_later in [(None, dummies(a), dummies(b)),
-                                   (dummies(a), np.hstack([dummies(a), dummies(b)]), None)]:
+    A, B = dummies(a), dummies(b)
+    for X_red, X_full, X_later, z in [(None, A, B, B), (None, A, B, None),
+                                      (A, np.hstack([A, B]), None, None)]:
         for bl in (None, blocks):
             p1, p2, _, _, tally, _ = both_ways(d, X_full, X_red, X_later, n_perm=199,
-                                            blocks=bl, seed=3)
+                                               blocks=bl, seed=3, permuted_model=z)
             assert p1 == p2
-            if X_red is not None and balanced:
-                assert tally.single == 199
-    p1, p2, _, _, tally, _ = both_ways(d, dummies(b), dummies(a), residuals="full")
+            assert tally.single == 199          # cross terms (unbalanced) included
+    p1, p2, _, _, tally, _ = both_ways(d, B, A, residuals="full")
     assert p1 == p2 and tally.single == 199          # full-model residuals: no cross terms
 
 
@@ -241,3 +244,42 @@ def test_permanova_uses_it_and_choice_tests_do_not():
         permuted_f(resp, qt, 0, 2, np.empty((n, 0)), perms, df_res=n - 3)
     assert tally.permutations == 199 and tally.single == 0
     assert 0 < res.pvalue["g"] <= 1
+
+
+def test_cross_term_sums_within_their_bounds():
+    # identity: with the reduced model's fitted part added back (Freedman & Lane 1983; a
+    # tested factor strongly confounded with the reduced one), the single-precision
+    # numerator and denominator lie within sum_bounds of the same sums in float64
+    from tallyform.core.permutation import _cross_sums, _fitted_part, _sums
+    rng = np.random.default_rng(12)
+    n = 400
+    a = rng.integers(0, 3, n)
+    b = np.where(rng.random(n) < 0.7, a, rng.integers(0, 3, n))     # confounded with a
+    x = counts(n, 30, a * 3 + b, 0.2, rng, model="gamma")
+    resp = prepare_response(bray(x), path="distances")
+    # the first term of a sequential table: numerator on a alone, residuals of b permuted
+    qb, qt, qw = nested_bases(None, dummies(a), dummies(b))
+    qz = nested_bases(None, dummies(b))[1]
+    qa = np.hstack([qb, qt, qw])
+    k, nb, nt = qa.shape[1], qb.shape[1], qt.shape[1]
+    r = resp.residual(qz)
+    fit = _fitted_part(resp, r, qa, nb, nt, qz, df_res=n - 1 - k, add_fitted=True)
+    assert fit.cross and np.abs(fit.c).max() > 0
+    fast = SinglePass(r.gower, np.vstack([qa.T, fit.qt_res]))
+    trace_r = r.total()
+    d_num, d_den = fast.sum_bounds(k=k, nt=nt, trace_r=trace_r, fit=fit)
+    idx = np.vstack([np.arange(n), [rng.permutation(n) for _ in range(200)]])
+    tr = fast.forms(idx)
+    ut = np.take(fit.qt_res, idx, axis=1)
+    xc = np.einsum("jbn,nj->b", ut, fit.c)
+    num, den = _cross_sums(tr[k:], xc, _sums(tr[:k], nb, nt, trace_r)[1], fit)
+    rows = np.vstack([qa.T, fit.qt_res])
+    u = np.take(rows, idx, axis=1)                                  # (k + nt, B, n)
+    t64 = np.einsum("jbn,jbn->jb", u, u @ r.gower)
+    num64, den64 = _cross_sums(t64[k:], xc, _sums(t64[:k], nb, nt, trace_r)[1], fit)
+    assert 0 < np.abs(num - num64).max() <= d_num
+    assert 0 < np.abs(den - den64).max() <= d_den
+    # and the p-value of this design is the float64 one
+    p1, p2, _, _, tally, _ = both_ways(bray(x), dummies(a), None, dummies(b), n_perm=499,
+                                       seed=8, permuted_model=dummies(b))
+    assert p1 == p2 and tally.single == 499

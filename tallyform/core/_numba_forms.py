@@ -21,13 +21,13 @@ def add_block_row(u, v, start, width, out):
     block of a symmetric G once, the blocks right of it twice (for those left of it)."""
     m = v.shape[1]
     for i in range(v.shape[0]):
-        ui = u[i, start:start + m]
+        ui = u[i, start:]
         vi = v[i]
         s = 0.0
-        for j in range(width):
-            s += np.float64(ui[j]) * np.float64(vi[j])
+        for j in range(np.uint64(width)):       # unsigned: no negative-index wraparound,
+            s += np.float64(ui[j]) * np.float64(vi[j])      # so the loops vectorise
         s2 = 0.0
-        for j in range(width, m):
+        for j in range(np.uint64(width), np.uint64(m)):
             s2 += np.float64(ui[j]) * np.float64(vi[j])
         out[i] += s + 2.0 * s2
     return out

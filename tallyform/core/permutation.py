@@ -256,9 +256,10 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
         ``MIN_SAMPLES`` and ``MAX_SAMPLES`` of :mod:`tallyform.core.single_precision`, the
         quadratic forms are computed in float32 with a rigorous error bound, and every
         permutation whose side of the tie threshold the bound cannot certify is recomputed
-        in float64: the count, hence the p-value, is the float64 engine's. The other permuted statistics returned are then the
-        single-precision ones (each sum within its bound, about n 2^-24 times the largest
-        absolute row sum of G): fine for a figure, not for ranking them against each other.
+        in float64: the count, hence the p-value, is the float64 engine's. The other
+        permuted statistics returned are then the single-precision ones (each form within
+        its bound, about 260 x 2^-24 times the largest absolute row sum of G): fine for a
+        figure, not for ranking them against each other.
 
     Returns
     -------

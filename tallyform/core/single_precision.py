@@ -6,7 +6,11 @@ per batch, U G (U the permuted basis rows, G the n x n residual Gower matrix). A
 product runs at twice the speed of a float64 one. The p-value only needs to know, for each
 permutation, on which side of the tie threshold its pseudo-F falls; single precision settles
 that for nearly every permutation, and the few it cannot settle are recomputed in float64.
-The p-value is therefore the float64 engine's p-value, digit for digit.
+The p-value is therefore the float64 engine's p-value. (The re-checked permutations go
+through a float64 product of fewer rows, which may round their last digits differently, as
+any change of the engine's batch size does: a statistic within a few units in the last
+place of the tie threshold could fall on its other side. The tie rule of
+:func:`~tallyform.core.permutation.pvalue_from_null`, 1e-9 relative, exists for that.)
 
 How. G is symmetric, so u' G u = sum_B u_B' G_BB u_B + 2 sum_{B < C} u_B' G_BC u_C over
 blocks of m = 256 samples: each block row is one float32 product u_B G_B,[B..n) and its
@@ -17,15 +21,17 @@ m terms, not n, which keeps the bound small.
 The bound. Let u be one permuted basis row (||u||^2 <= s, measured once per call: a
 permutation does not change a norm), G the residual Gower matrix, a = |u|'|G||u|, eps =
 2^-24 (float32 unit roundoff), e = 2^-53 (float64), and gamma_j(x) = j x / (1 - j x). Single
-precision uses u^ = fl32(u) (|u^ - u| <= eps |u| elementwise) and G^ = fl32(fl64((G + G')/2))
-(|G^ - (G + G')/2| <= eps' |G|-ish with eps' = eps + e (1 + eps); u'((G + G')/2)u = u'Gu).
+precision uses u^ = fl32(u) (|u^ - u| <= eps |u| elementwise) and G^ = fl32(fl64(S)) with
+S = (G + G')/2: u'Su = u'Gu, |G^ - S| <= eps' |S| with eps' = eps + e (1 + eps), and
+|u|'|S||u| <= |u|'(|G| + |G'|)/2 |u| = a.
 With the classical bound for an inner product in any summation order, |fl(x'y) - x'y| <=
 gamma_j |x|'|y| for j terms (Higham 2002, Accuracy and Stability of Numerical Algorithms,
 2nd ed., ch. 3, eq. 3.5):
 
   * rounding u:      (2 eps + eps^2) a
   * rounding G:      eps' (1 + eps)^2 a
-  * the float32 products (inner products of at most m terms): gamma_m(eps) (1 + eps')(1 + eps)^2 a
+  * the float32 products (inner products of at most m terms):
+                     gamma_m(eps) (1 + eps') (1 + eps)^2 a
     (the blocks right of the diagonal count twice and stand for the blocks left of it, so
     the sum of |u^_B|'|G^_BC||u^_C| over the blocks used, with those weights, is |u^|'|G^||u^|)
   * the float64 sums (products of two float32 numbers are exact in float64; each term goes
@@ -35,7 +41,8 @@ The float64 engine's own value t64 = fl64(u' fl64(u G)) is within gamma_n(e) (2 
 a of u'Gu. Hence |t32 - t64| <= c a with c the sum of all those terms (about (m + 4) eps), and
 a <= ||(|G|)||_2 s <= R s, R = max(||G||_1, ||G||_inf) (the largest absolute column and row
 sums; the spectral norm of a matrix is at most the geometric mean of those two norms). We
-use delta = 1.01 c R s: the factor 1.01, plus one more eps for gradual underflow, absorbs the
+use delta = 1.01 c R s: the factor 1.01, plus one more eps for underflow (gradual, or flushed
+to zero: at most about n 2^-126 in all, far below eps R s once R >= 2^-60), absorbs the
 rounding of the bound itself and of the interval ends. Entries of G beyond 2^100 or a norm R
 below 2^-60 (where underflow would no longer be negligible) keep the float64 engine.
 
@@ -111,15 +118,16 @@ def form_error_constant(n: int, m: int = BLOCK) -> float:
 
 
 def abs_norm(g: np.ndarray, rows: int = 512) -> float:
-    """max(||G||_1, ||G||_inf), by blocks of rows (no n x n temporary)."""
+    """max(||G||_1, ||G||_inf), by blocks of rows (no n x n temporary), summed in float64
+    and raised by the bound on the rounding of those sums."""
     n = g.shape[0]
     col = np.zeros(g.shape[1])
     row_max = 0.0
     for s in range(0, n, rows):
-        a = np.abs(g[s:s + rows])
+        a = np.abs(g[s:s + rows], dtype=np.float64)
         row_max = max(row_max, float(a.sum(axis=1).max()))
         col += a.sum(axis=0)
-    return max(row_max, float(col.max()) * (1 + 2 * n * EPS64))
+    return max(row_max, float(col.max())) * (1 + 2 * _gamma(n, EPS64))
 
 
 def symmetric_float32(g: np.ndarray, rows: int = 512) -> np.ndarray:
@@ -127,7 +135,8 @@ def symmetric_float32(g: np.ndarray, rows: int = 512) -> np.ndarray:
     n = g.shape[0]
     out = np.empty((n, n), dtype=np.float32)
     for s in range(0, n, rows):
-        out[s:s + rows] = (g[s:s + rows] + g[:, s:s + rows].T) * 0.5
+        out[s:s + rows] = (np.asarray(g[s:s + rows], dtype=np.float64)
+                           + g[:, s:s + rows].T) * 0.5
     return out
 
 

@@ -102,7 +102,7 @@ def _gamma(m: int, u: float) -> float:
     return m * u / (1.0 - m * u)
 
 
-def form_error_constant(n: int, m: int = BLOCK) -> float:
+def form_error_constant(n: int, m: int) -> float:
     """c such that |t32 - t64| <= c |u|'|G||u| for one quadratic form of length n computed
     in blocks of m (see the module notes), with the 1.01 safety factor."""
     m = min(m, n)
@@ -188,12 +188,12 @@ class SinglePass:
         self.n = n
         self.g32 = symmetric_float32(gower)
         self.q32 = np.ascontiguousarray(q_all, dtype=np.float32)
-        self.edges = list(range(0, n, BLOCK)) + [n]
+        self.edges = list(range(0, n, BLOCK)) + [n]     # the bound below uses this BLOCK
         norm = abs_norm(gower)
         s = float(np.einsum("ij,ij->i", q_all, q_all).max()) * (1 + 4 * (n + 1) * EPS64)
         self.s = s
         self.form_max = 2.0 * norm * s                  # |t32|, |t64| <= (1 + c) R s
-        self.delta = form_error_constant(n) * norm * s
+        self.delta = form_error_constant(n, BLOCK) * norm * s
 
     @staticmethod
     def usable(gower, n: int) -> bool:

@@ -168,10 +168,13 @@ def test_exact_enumeration_with_ties(monkeypatch, force):
 
 
 # ---------------------------------------------------------------------------- the bound
-def test_bound_holds_on_adversarial_inputs():
+@pytest.mark.parametrize("block", [256, 97])
+def test_bound_holds_on_adversarial_inputs(monkeypatch, block):
     # identity: |t32 - t64| <= delta (Higham 2002, ch. 3) for every permuted form, with a
     # large dynamic range in G (points on scales from 1e-4 to 1e4) and rows of one sign
-    # (no cancellation, so rounding errors pile up), n = 2000
+    # (no cancellation, so rounding errors pile up), n = 2000; blocks of the default size
+    # and of a size that leaves a partial last block
+    monkeypatch.setattr(sp, "BLOCK", block)
     rng = np.random.default_rng(2)
     n = 2000
     pts = rng.standard_normal((n, 3)) * np.logspace(-4, 4, n)[:, None]
@@ -194,8 +197,8 @@ def test_bound_holds_on_adversarial_inputs():
         assert err.max() > 0                         # the single pass is not float64
         assert err.max() <= one.delta
     # the constant is about (m + 4) eps (the leading terms of the derivation)
-    m = sp.BLOCK
-    c_n = form_error_constant(5000) / 1.01
+    m = block
+    c_n = form_error_constant(5000, m) / 1.01
     assert (m + 4) * 2.0 ** -24 <= c_n <= (m + 6) * 2.0 ** -24
 
 

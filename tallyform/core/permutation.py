@@ -253,10 +253,11 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
     single_precision : bool
         For callers that only count the permuted statistics at or above the observed one
         (:func:`pvalue_from_null`): on the in-memory distance path with n between
-        ``MIN_SAMPLES`` and ``MAX_SAMPLES`` of :mod:`tallyform.core.single_precision`, the
-        quadratic forms are computed in float32 with a rigorous error bound, and every
-        permutation whose side of the tie threshold the bound cannot certify is recomputed
-        in float64: the count, hence the p-value, is the float64 engine's. The other
+        ``MIN_SAMPLES`` and ``MAX_SAMPLES`` of :mod:`tallyform.core.single_precision` and at
+        least ``MIN_PERMUTATIONS`` permutations, the quadratic forms are computed in float32
+        with a rigorous error bound, and every permutation whose side of the tie threshold
+        the bound cannot certify is recomputed in float64: the count, hence the p-value, is
+        the float64 engine's. The other
         permuted statistics returned are then the single-precision ones (each form within
         its bound, about 260 x 2^-24 times the largest absolute row sum of G): fine for a
         figure, not for ranking them against each other.
@@ -276,7 +277,7 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
     f64, fit = _float64_batch(resp, r, qa, nb, nt, qz, df_res=df_res, add_fitted=add_fitted)
     fast = None
     if (single_precision and r.features is None and np.isfinite(observed)
-            and SinglePass.usable(r.gower, n)):
+            and SinglePass.usable(r.gower, n, perms.total)):
         rows = [qa.T, fit.qt_res] if fit.cross else [qa.T]
         fast = SinglePass(r.gower, np.vstack(rows))
         trace_r = r.total()

@@ -286,3 +286,13 @@ def test_cross_term_sums_within_their_bounds():
     p1, p2, _, _, tally, _ = both_ways(bray(x), dummies(a), None, dummies(b), n_perm=499,
                                        seed=8, permuted_model=dummies(b))
     assert p1 == p2 and tally.single == 499
+
+
+def test_few_permutations_stay_float64():
+    # below MIN_PERMUTATIONS the setup would cost more than it saves: float64 values
+    rng = np.random.default_rng(6)
+    codes = np.repeat(np.arange(2), 120)
+    d = bray(counts(240, 20, codes, 0.0, rng))
+    p1, p2, null1, null2, tally, _ = both_ways(d, dummies(codes), n_perm=19)
+    assert tally.single == 0 and p1 == p2
+    assert null1 == pytest.approx(null2, rel=1e-12)

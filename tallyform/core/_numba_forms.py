@@ -4,7 +4,8 @@ forms u' G u, float32 inputs, float64 accumulation.
 Each product of two float32 numbers is exact in float64 (24 + 24 significant bits <= 53), so
 the only rounding is in the float64 sums. 'reassoc' lets the loops vectorise: it changes the
 order of the sums, and the error bound used (Higham 2002, ch. 3) holds for any order;
-'contract' (fused multiply-add) changes nothing since the products are exact.
+'contract' (fused multiply-add) changes nothing since the products are exact. ``nogil``: the
+batches of a test run on several Python threads.
 """
 from __future__ import annotations
 
@@ -12,7 +13,7 @@ import numba as nb
 import numpy as np
 
 
-@nb.njit(fastmath={"reassoc", "contract"}, cache=True)
+@nb.njit(fastmath={"reassoc", "contract"}, cache=True, nogil=True)
 def add_block_row(u, v, start, width, out):
     """out[i] += sum_{j < width} u[i, start + j] v[i, j]
                  + 2 sum_{j >= width} u[i, start + j] v[i, j]

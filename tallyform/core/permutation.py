@@ -81,6 +81,7 @@ regression and ANOVA. In Bootstrapping and Related Techniques, 79-86. Springer.
 """
 from __future__ import annotations
 
+import contextlib
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -292,29 +293,30 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
     null = np.empty(perms.total)
     done = rechecked = 0
     grand = grand_total if grand_total is not None else perms.total
-    for idx in perms.batches(size):
-        if cancel is not None and cancel():
-            raise Cancelled(f"stopped after {offset + done} of {grand} permutations; "
-                            "no result was produced.")
-        b = idx.shape[0]
-        if fast is None:
-            null[done:done + b] = f64(idx)
-        else:
-            tr = fast.forms(idx)
-            num, den = _sums(tr[:k], nb, nt, trace_r)
-            if fit.cross:                   # the same float64 arithmetic as _float64_batch
-                ut = np.take(fit.qt_res, idx, axis=1)
-                xc = np.einsum("jbn,nj->b", ut, fit.c)
-                num, den = _cross_sums(tr[k:], xc, den, fit)
-            f, todo = fast.settle(num, den, d_num, d_den, ratio, tol=tol,
-                                  threshold=threshold)
-            if todo.any():
-                f[todo] = f64(idx[todo])
-                rechecked += int(np.count_nonzero(todo))
-            null[done:done + b] = f
-        done += b
-        if progress is not None:
-            progress(offset + done, grand)
+    with fast.threads() if fast is not None else contextlib.nullcontext():
+        for idx in perms.batches(size):
+            if cancel is not None and cancel():
+                raise Cancelled(f"stopped after {offset + done} of {grand} permutations; "
+                                "no result was produced.")
+            b = idx.shape[0]
+            if fast is None:
+                null[done:done + b] = f64(idx)
+            else:
+                tr = fast.forms(idx)
+                num, den = _sums(tr[:k], nb, nt, trace_r)
+                if fit.cross:                # the same float64 arithmetic as _float64_batch
+                    ut = np.take(fit.qt_res, idx, axis=1)
+                    xc = np.einsum("jbn,nj->b", ut, fit.c)
+                    num, den = _cross_sums(tr[k:], xc, den, fit)
+                f, todo = fast.settle(num, den, d_num, d_den, ratio, tol=tol,
+                                      threshold=threshold)
+                if todo.any():
+                    f[todo] = f64(idx[todo])
+                    rechecked += int(np.count_nonzero(todo))
+                null[done:done + b] = f
+            done += b
+            if progress is not None:
+                progress(offset + done, grand)
     record(done, done if fast is not None else 0, rechecked)
     return observed, null, ss_t, ss_res
 

@@ -296,3 +296,23 @@ def test_few_permutations_stay_float64():
     p1, p2, null1, null2, tally, _ = both_ways(d, dummies(codes), n_perm=19)
     assert tally.single == 0 and p1 == p2
     assert null1 == pytest.approx(null2, rel=1e-12)
+
+
+def test_batches_split_over_threads_give_the_same_forms():
+    # identity: each row's arithmetic does not depend on the other rows, so splitting a
+    # batch over Python threads changes no value
+    from concurrent.futures import ThreadPoolExecutor
+    rng = np.random.default_rng(13)
+    n = 300
+    g = -0.5 * squareform(pdist(rng.random((n, 4)), "sqeuclidean"))
+    q = nested_bases(None, rng.random((n, 2)))[1].T
+    one = SinglePass(g, q)
+    idx = np.array([rng.permutation(n) for _ in range(500)])
+    serial = one.forms(idx)
+    with ThreadPoolExecutor(3) as pool:
+        one._pool, one._workers = pool, 3
+        split = one.forms(idx)
+    one._pool = None
+    assert np.array_equal(serial, split)
+    with one.threads():                              # however many threads BLAS has here
+        assert np.array_equal(one.forms(idx), serial)

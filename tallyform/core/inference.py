@@ -139,7 +139,9 @@ class PermanovaResult(ResultMixin):
     statistic, pvalue : Series
         Pseudo-F and p-value of every term (indexed by term, in the order given).
     null_distribution : dict term -> ndarray
-        The permuted pseudo-F values of each term (read-only).
+        The permuted pseudo-F values of each term (read-only). Past a few hundred samples
+        on the distance path most are single-precision values (within a proven bound; the
+        p-value is the float64 one): draw them, do not rank them against each other.
     scheme : str
         How samples (or whole units) were relabelled.
     n_permutations : int

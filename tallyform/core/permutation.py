@@ -81,6 +81,7 @@ regression and ANOVA. In Bootstrapping and Related Techniques, 79-86. Springer.
 """
 from __future__ import annotations
 
+import contextlib
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -92,13 +93,14 @@ from .random import as_rng
 from .errors import Cancelled, DesignError, InputError
 from .response import Response, nested_bases, prepare_response  # noqa: F401 (the engine's)
 from .results import ResultMixin, readonly
+from .single_precision import SinglePass, record
 from .schemes import (FEW_PERMUTATIONS, CyclicShifts, Permutations, UnitPermutations,
                       count_relabellings, label_symmetries, span_symmetries, within_units)
 
 __all__ = ["Permutations", "UnitPermutations", "CyclicShifts", "within_units",
            "PermutationTest", "permutation_f_test", "prepare_response", "nested_bases",
            "count_relabellings", "label_symmetries", "span_symmetries", "permuted_f",
-           "TIE_RTOL", "FEW_PERMUTATIONS"]
+           "TIE_RTOL", "FEW_PERMUTATIONS", "tie_threshold"]
 
 #: Relative tolerance under which a permuted statistic counts as equal to the observed one.
 TIE_RTOL = 1e-9
@@ -121,6 +123,9 @@ class PermutationTest(ResultMixin):
     pvalue : float
     null_distribution : ndarray
         Permuted statistics (for exact enumeration: all of them, the identity included).
+        Past a few hundred samples on the distance path most are computed in single
+        precision (within a proven bound; those near the observed statistic in float64):
+        the p-value is the float64 one, the values are for figures.
     n_permutations : int
         Number of permuted statistics computed.
     exact : bool
@@ -192,6 +197,11 @@ def pseudo_f_ratio(ss_t, ss_res, df_t, df_res):
     return float(f) if f.ndim == 0 else f
 
 
+def tie_threshold(observed: float) -> float:
+    """Permuted statistics at or above this value count as at least the observed one."""
+    return observed - TIE_RTOL * abs(observed)
+
+
 def pvalue_from_null(observed: float, null: np.ndarray, *, exact: bool) -> float:
     """Add-one p-value for random permutations, plain proportion for exact enumeration.
 
@@ -203,7 +213,7 @@ def pvalue_from_null(observed: float, null: np.ndarray, *, exact: bool) -> float
     if np.isinf(observed):
         hits = int(np.count_nonzero(null == observed))
     else:
-        hits = int(np.count_nonzero(null >= observed - TIE_RTOL * abs(observed)))
+        hits = int(np.count_nonzero(null >= tie_threshold(observed)))
     if exact:
         return hits / null.size
     return (1 + hits) / (1 + null.size)
@@ -220,7 +230,7 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
                df_res: int, add_fitted: bool = True, batch_size: int | None = None,
                progress: Callable[[int, int], None] | None = None,
                cancel: Callable[[], bool] | None = None, offset: int = 0,
-               grand_total: int | None = None) -> tuple:
+               grand_total: int | None = None, single_precision: bool = False) -> tuple:
     """Observed pseudo-F of one term and its permutation distribution (the engine's core).
 
     Parameters
@@ -241,6 +251,17 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
     add_fitted : bool
         Add the reduced model's fitted part back to the permuted residuals (Freedman & Lane
         1983); False permutes the residuals alone (ter Braak 1992, full-model residuals).
+    single_precision : bool
+        For callers that only count the permuted statistics at or above the observed one
+        (:func:`pvalue_from_null`): on the in-memory distance path with n between
+        ``MIN_SAMPLES`` and ``MAX_SAMPLES`` of :mod:`tallyform.core.single_precision` and at
+        least ``MIN_PERMUTATIONS`` permutations, the quadratic forms are computed in float32
+        with a rigorous error bound, and every permutation whose side of the tie threshold
+        the bound cannot certify is recomputed in float64: the count, hence the p-value, is
+        the float64 engine's. The other
+        permuted statistics returned are then the single-precision ones (each form within
+        its bound, about 260 x 2^-24 times the largest absolute row sum of G): fine for a
+        figure, not for ranking them against each other.
 
     Returns
     -------
@@ -254,41 +275,118 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
     ss_res = clean_ss(total - float(quad.sum()), total)
     observed = pseudo_f_ratio(ss_t, ss_res, nt, df_res)
     r = resp.residual(qz)
+    f64, fit = _float64_batch(resp, r, qa, nb, nt, qz, df_res=df_res, add_fitted=add_fitted)
+    fast = None
+    if (single_precision and r.features is None and np.isfinite(observed)
+            and SinglePass.usable(r.gower, n, perms.total)):
+        rows = [qa.T, fit.qt_res] if fit.cross else [qa.T]
+        fast = SinglePass(r.gower, np.vstack(rows))
+        trace_r = r.total()
+        d_num, d_den = fast.sum_bounds(k=k, nt=nt, trace_r=trace_r, fit=fit)
+        threshold = tie_threshold(observed)
+        tol = SS_RTOL * abs(float(fit.scale))
+
+        def ratio(num, den):
+            return pseudo_f_ratio(num, den, nt, df_res)
+    q = None if r.features is None else r.features.shape[1]
+    size = batch_size or default_batch_size(n, k, q)
+    null = np.empty(perms.total)
+    done = rechecked = 0
+    grand = grand_total if grand_total is not None else perms.total
+    with fast.threads() if fast is not None else contextlib.nullcontext():
+        for idx in perms.batches(size):
+            if cancel is not None and cancel():
+                raise Cancelled(f"stopped after {offset + done} of {grand} permutations; "
+                                "no result was produced.")
+            b = idx.shape[0]
+            if fast is None:
+                null[done:done + b] = f64(idx)
+            else:
+                tr = fast.forms(idx)
+                num, den = _sums(tr[:k], nb, nt, trace_r)
+                if fit.cross:                # the same float64 arithmetic as _float64_batch
+                    ut = np.take(fit.qt_res, idx, axis=1)
+                    xc = np.einsum("jbn,nj->b", ut, fit.c)
+                    num, den = _cross_sums(tr[k:], xc, den, fit)
+                f, todo = fast.settle(num, den, d_num, d_den, ratio, tol=tol,
+                                      threshold=threshold)
+                if todo.any():
+                    f[todo] = f64(idx[todo])
+                    rechecked += int(np.count_nonzero(todo))
+                null[done:done + b] = f
+            done += b
+            if progress is not None:
+                progress(offset + done, grand)
+    record(done, done if fast is not None else 0, rechecked)
+    return observed, null, ss_t, ss_res
+
+
+def _sums(tr: np.ndarray, nb: int, nt: int, trace_r: float) -> tuple:
+    """Numerator and denominator sums of a batch from its k x B forms u' R u."""
+    num = tr[nb:nb + nt].sum(axis=0)
+    den = trace_r - tr[:nb].sum(axis=0) - num - tr[nb + nt:].sum(axis=0)
+    return num, den
+
+
+def _cross_sums(plain: np.ndarray, xc: np.ndarray, den: np.ndarray, fit) -> tuple:
+    """Numerator and denominator with the reduced model's fitted part added back: ``plain``
+    the nt x B forms of the projected tested columns, ``xc`` their cross terms."""
+    num = fit.c2 * plain.sum(axis=0) + fit.const.sum() + 2.0 * np.sqrt(fit.c2) * xc
+    return num, fit.c2 * den
+
+
+@dataclass(frozen=True)
+class _Fitted:
+    """The reduced model's fitted part as the tested columns see it (``cross``), and the
+    scale of ``clean_ss``. With ``cross`` False the other fields are unused."""
+
+    cross: bool
+    scale: float
+    qt_res: np.ndarray | None = None          # (I - H_Z) q, nt x n
+    c: np.ndarray | None = None               # (I - H_Z) G H_Z q, n x nt (distance path)
+    a: np.ndarray | None = None               # q' H_Z F, nt x f (feature path)
+    const: np.ndarray | None = None           # q' H_Z G H_Z q, nt
+    c2: float = 1.0                           # variance correction of the residuals
+
+
+def _fitted_part(resp: Response, r: Response, qa, nb: int, nt: int, qz, *,
+                 df_res: int, add_fitted: bool) -> _Fitted:
+    k = qa.shape[1]
     trace_r = r.total()
     # the reduced model's fitted part, seen by the tested columns: a constant and one fixed
     # vector per column (zero when the tested term is orthogonal to the reduced model)
     qt = qa[:, nb:nb + nt]
     tz = qz.T @ qt if qz.shape[1] else np.zeros((0, nt))
-    cross = add_fitted and tz.size and float(np.abs(tz).max()) > 1e-12
-    if cross:
-        if resp.features is not None:
-            a = tz.T @ (qz.T @ resp.features)                   # q' H_Z F, nt x f
-            const = np.einsum("ij,ij->i", a, a)
-        else:
-            gqz = resp.gower @ qz
-            gz = qz.T @ gqz
-            c = (gqz - qz @ gz) @ tz                            # (I - H_Z) G H_Z q, n x nt
-            const = np.einsum("ij,ik,kj->j", tz, gz, tz)
-        # the permuted residuals are projected back onto the residual space of Z, so the
-        # tested columns meet them through (I - H_Z) q, and rescaled to the variance of the
-        # errors they stand for (see the module notes)
-        qt_res = np.ascontiguousarray((qt - qz @ tz).T)         # nt x n
-        dim = df_res + k
-        c2 = dim / (dim - qz.shape[1])
-        scale = max(trace_r, total)
+    if not (add_fitted and tz.size and float(np.abs(tz).max()) > 1e-12):
+        return _Fitted(False, trace_r)
+    a = c = None
+    if resp.features is not None:
+        a = tz.T @ (qz.T @ resp.features)                       # q' H_Z F, nt x f
+        const = np.einsum("ij,ij->i", a, a)
     else:
-        const = np.zeros(nt)
-        scale = trace_r
+        gqz = resp.gower @ qz
+        gz = qz.T @ gqz
+        c = (gqz - qz @ gz) @ tz                                # (I - H_Z) G H_Z q, n x nt
+        const = np.einsum("ij,ik,kj->j", tz, gz, tz)
+    # the permuted residuals are projected back onto the residual space of Z, so the
+    # tested columns meet them through (I - H_Z) q, and rescaled to the variance of the
+    # errors they stand for (see the module notes)
+    qt_res = np.ascontiguousarray((qt - qz @ tz).T)             # nt x n
+    dim = df_res + k
+    return _Fitted(True, max(trace_r, resp.total()), qt_res, c, a, const,
+                   dim / (dim - qz.shape[1]))
+
+
+def _float64_batch(resp: Response, r: Response, qa, nb: int, nt: int, qz, *, df_res: int,
+                   add_fitted: bool) -> tuple:
+    """The float64 engine for one term: (function idx -> permuted pseudo-F, _Fitted)."""
+    n = resp.n
+    k = qa.shape[1]
+    trace_r = r.total()
+    fit = _fitted_part(resp, r, qa, nb, nt, qz, df_res=df_res, add_fitted=add_fitted)
     q_all = np.ascontiguousarray(qa.T)                          # k x n
-    q = None if r.features is None else r.features.shape[1]
-    size = batch_size or default_batch_size(n, k, q)
-    null = np.empty(perms.total)
-    done = 0
-    grand = grand_total if grand_total is not None else perms.total
-    for idx in perms.batches(size):
-        if cancel is not None and cancel():
-            raise Cancelled(f"stopped after {offset + done} of {grand} permutations; "
-                            "no result was produced.")
+
+    def batch(idx):
         b = idx.shape[0]
         u = np.take(q_all, idx, axis=1).reshape(k * b, n)          # rows: (column, perm)
         if r.features is not None:
@@ -299,29 +397,24 @@ def permuted_f(resp: Response, qa: np.ndarray, nb: int, nt: int, qz: np.ndarray,
             tr = np.einsum("ij,ij->i", u, v)
         else:                                   # tiles: u' R u reduced on the workers
             tr = r.gower.quad_rows(u)
-        tr = tr.reshape(k, b)
-        num = tr[nb:nb + nt].sum(axis=0)
-        den = trace_r - tr[:nb].sum(axis=0) - num - tr[nb + nt:].sum(axis=0)
-        if cross:
-            ut = np.take(qt_res, idx, axis=1).reshape(nt * b, n)
+        num, den = _sums(tr.reshape(k, b), nb, nt, trace_r)
+        if fit.cross:
+            ut = np.take(fit.qt_res, idx, axis=1).reshape(nt * b, n)
             if r.features is not None:
                 vt = ut @ r.features
                 plain = np.einsum("ij,ij->i", vt, vt).reshape(nt, b)
-                xc = np.einsum("jbf,jf->b", vt.reshape(nt, b, -1), a)
+                xc = np.einsum("jbf,jf->b", vt.reshape(nt, b, -1), fit.a)
             elif isinstance(r.gower, np.ndarray):
                 vt = ut @ r.gower
                 plain = np.einsum("ij,ij->i", ut, vt).reshape(nt, b)
-                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
+                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), fit.c)
             else:
                 plain = r.gower.quad_rows(ut).reshape(nt, b)
-                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), c)
-            num = c2 * plain.sum(axis=0) + const.sum() + 2.0 * np.sqrt(c2) * xc
-            den = c2 * den
-        null[done:done + b] = pseudo_f_ratio(clean_ss(num, scale), clean_ss(den, scale), nt, df_res)
-        done += b
-        if progress is not None:
-            progress(offset + done, grand)
-    return observed, null, ss_t, ss_res
+                xc = np.einsum("jbn,nj->b", ut.reshape(nt, b, n), fit.c)
+            num, den = _cross_sums(plain, xc, den, fit)
+        scale = fit.scale
+        return pseudo_f_ratio(clean_ss(num, scale), clean_ss(den, scale), nt, df_res)
+    return batch, fit
 
 
 def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=None,
@@ -425,7 +518,7 @@ def permutation_f_test(data, X_full, X_reduced=None, *, X_later=None, blocks=Non
         how = "residuals of the full model"
     observed, null, ss_t, ss_res = permuted_f(
         resp, qa, qz.shape[1], df_t, qr_, perms, df_res=df_res, add_fitted=add,
-        batch_size=batch_size, progress=progress, cancel=cancel)
+        batch_size=batch_size, progress=progress, cancel=cancel, single_precision=True)
     pvalue = pvalue_from_null(observed, null, exact=perms.exact)
     scheme = f"{perms.describe()}; permuting {how}"
     notes = tuple(x for x in [perms.note()] if x)

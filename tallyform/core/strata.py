@@ -228,9 +228,11 @@ def sample_jobs(resp: Response, cols: DesignColumns, terms: list, ss: str, perms
         def run(offset, grand, t=t, qa=qa, nb=qb.shape[1], nt=qt.shape[1], qz=qz,
                 reduced=reduced, tangled=tangled):
             from .permutation import permuted_f, pvalue_from_null
+            # the null only forms the p-value (and a figure): single precision settles it
             obs, null, ss_t, _ = permuted_f(resp, qa, nb, nt, qz, perms, df_res=df_res,
                                             batch_size=batch_size, progress=progress,
-                                            cancel=cancel, offset=offset, grand_total=grand)
+                                            cancel=cancel, offset=offset, grand_total=grand,
+                                            single_precision=True)
             return TermTest(t, stratum, nt, ss_t, obs,
                             pvalue_from_null(obs, null, exact=perms.exact), null,
                             perms.describe(), int(perms.total), bool(perms.exact),

@@ -28,17 +28,13 @@ def small_blas(n: int):
     """Context that runs BLAS on one thread for loops over many small matrices.
 
     Threaded BLAS on matrices of a few dozen rows spends its time waking threads (measured:
-    a loop of 300 partitions of 60 samples took 6.3 s on 2 threads, 0.5 s on one). Uses
-    threadpoolctl when it is installed (it comes with scikit-learn); otherwise does nothing.
+    a loop of 300 partitions of 60 samples took 6.3 s on 2 threads, 0.5 s on one); see
+    :mod:`tallyform.core.blas_threads`.
     """
     from contextlib import nullcontext
-    if n > SMALL:
-        return nullcontext()
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:          # pragma: no cover - optional
-        return nullcontext()
-    return threadpool_limits(limits=1, user_api="blas")
+
+    from .blas_threads import one_blas_thread
+    return nullcontext() if n > SMALL else one_blas_thread()
 
 
 def shares_from_traces(r2_s, r2_t, r2_st, n, m_s, m_t) -> np.ndarray:

@@ -218,21 +218,16 @@ class SinglePass:
         """Within this block, :meth:`forms` splits each batch over as many Python threads
         as BLAS had threads, each running BLAS on one thread (measured, n = 1000, 2 cores:
         0.19-0.20 s instead of 0.28-0.38 s for 9999 permutations; threaded BLAS on the
-        block products scaled poorly and left the row sums on one core). Without
+        block products scaled poorly and left the row sums on one core). The limit is
+        process-wide while it lasts (:mod:`tallyform.core.blas_threads`). Without
         threadpoolctl (it comes with scikit-learn) the batches run as they are."""
-        try:
-            from threadpoolctl import threadpool_info, threadpool_limits
-        except ImportError:                                     # pragma: no cover
-            yield
-            return
-        blas = [i.get("num_threads", 1) for i in threadpool_info()
-                if i.get("user_api") == "blas"]
-        workers = min(max(blas, default=1), os.cpu_count() or 1)
+        from .blas_threads import blas_threads, one_blas_thread
+        workers = min(blas_threads(), os.cpu_count() or 1)
         if workers <= 1:
             yield
             return
         from concurrent.futures import ThreadPoolExecutor
-        with threadpool_limits(limits=1, user_api="blas"), \
+        with one_blas_thread(), \
                 ThreadPoolExecutor(workers, thread_name_prefix="tallyform-forms") as pool:
             self._pool, self._workers = pool, workers
             try:

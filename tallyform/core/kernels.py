@@ -22,8 +22,6 @@ import threading
 
 import numpy as np
 
-from .memory import empty_large
-
 __all__ = ["euclidean_condensed", "sqeuclidean_condensed", "abs_condensed",
            "kulczynski_condensed",
            "canberra_condensed", "jensen_shannon_condensed", "use_numba", "numba_enabled",
@@ -79,7 +77,7 @@ def _work(x) -> float:
 
 
 def _empty_out(n: int, dtype) -> np.ndarray:
-    return empty_large(n * (n - 1) // 2, dtype=dtype)
+    return np.empty(n * (n - 1) // 2, dtype=np.dtype(dtype))
 
 
 def _combine(mode: int, s: np.ndarray, ti, tj, scale: float) -> np.ndarray:
@@ -357,7 +355,7 @@ def _gram_fill_numpy(g, i0, sq, f, out):
 # ---------------------------------------------------------------------- Gower matrix
 def squared_square(c: np.ndarray, n: int) -> np.ndarray:
     """The n x n float64 matrix of squared distances from a condensed vector (any float)."""
-    out = empty_large((n, n), dtype=np.float64)
+    out = np.empty((n, n), dtype=np.float64)
     nb_mod = numba_ready(n * n)
     if nb_mod is not None:
         with _LOCK:

@@ -6,18 +6,12 @@ machine's physical memory.
 """
 from __future__ import annotations
 
-import mmap
 import os
 import re
 
-import numpy as np
-
 from .errors import InputError, TooLargeError, format_bytes
 
-__all__ = ["memory_limit", "set_memory_limit", "check_memory", "parse_bytes", "empty_large"]
-
-#: Arrays from this size on are mapped by :func:`empty_large` (smaller ones by numpy).
-LARGE_BYTES = 8 * 2**20
+__all__ = ["memory_limit", "set_memory_limit", "check_memory", "parse_bytes"]
 
 _limit: int | None = None
 _UNITS = {"": 1, "B": 1, "KB": 10**3, "MB": 10**6, "GB": 10**9, "TB": 10**12,
@@ -67,26 +61,3 @@ def check_memory(nbytes: float, what: str, *, alternatives: str = "") -> None:
             hint=(alternatives + " " if alternatives else "") +
                  "The limit can be raised with tallyform.set_memory_limit('...GB') or the "
                  "TALLYFORM_MEMORY_LIMIT environment variable.")
-
-
-def empty_large(shape, dtype=np.float64) -> np.ndarray:
-    """An uninitialised, writable, C-ordered array; from ``LARGE_BYTES`` on (on Linux) its
-    memory is mapped from the operating system without transparent huge pages.
-
-    numpy asks for huge pages on large arrays. Where the kernel must first compact memory to
-    find them (its "madvise" defragmentation, the default of many distributions and of the
-    2-core test machines), touching a fresh 16 MB array took 30 ms instead of 7.5 ms, which
-    made page faults the largest cost of every live dissimilarity at 2000 samples. The
-    mapping is released when the last array viewing it is freed.
-    """
-    dt = np.dtype(dtype)
-    shape = tuple(int(s) for s in np.atleast_1d(shape))
-    nbytes = int(np.prod(shape, dtype=np.int64)) * dt.itemsize
-    if nbytes < LARGE_BYTES or not hasattr(mmap, "MADV_NOHUGEPAGE"):
-        return np.empty(shape, dtype=dt)
-    buf = mmap.mmap(-1, nbytes)
-    try:
-        buf.madvise(mmap.MADV_NOHUGEPAGE)
-    except OSError:                      # a kernel without the advice: plain pages anyway
-        pass
-    return np.frombuffer(buf, dtype=dt).reshape(shape)
